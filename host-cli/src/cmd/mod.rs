@@ -1,0 +1,9 @@
+//! One module per subcommand: each has its clap `Args` and a `run`.
+
+pub mod ber;
+pub mod budget;
+pub mod fade;
+pub mod noise;
+pub mod pathloss;
+pub mod rain;
+pub mod solve;

@@ -1,0 +1,44 @@
+//! Errors of the command line: one line, naming what was wrong.
+
+use std::fmt;
+
+/// A failure of a command, printed as one line on stderr.
+#[derive(Debug)]
+pub enum CliError {
+    /// Bad input: an argument, a file's content, a setting. Exit code 2.
+    Input(String),
+    /// The environment failed: a file could not be read or written. Exit code 1.
+    Io(String),
+}
+
+impl CliError {
+    /// An input error about argument `arg`.
+    pub fn arg(arg: &str, why: impl fmt::Display) -> Self {
+        CliError::Input(format!("{arg}: {why}"))
+    }
+
+    /// Exit code for this error.
+    pub fn exit_code(&self) -> u8 {
+        match self {
+            CliError::Input(_) => 2,
+            CliError::Io(_) => 1,
+        }
+    }
+}
+
+impl fmt::Display for CliError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            CliError::Input(m) | CliError::Io(m) => f.write_str(m),
+        }
+    }
+}
+
+impl From<headroom::Error> for CliError {
+    fn from(e: headroom::Error) -> Self {
+        CliError::Input(e.to_string())
+    }
+}
+
+/// Shorthand result type of commands.
+pub type CliResult<T = ()> = Result<T, CliError>;

@@ -1,0 +1,69 @@
+//! `headroom`: the command-line front end of the headroom engine.
+//!
+//! This crate parses, prints and feeds records; every formula lives in the
+//! `headroom` engine crate.
+
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+
+mod cmd;
+mod error;
+mod output;
+mod quantity;
+
+use error::CliError;
+
+const CAUTION: &str = "\
+CAUTION: transmit power, EIRP, duty cycle and RF exposure limits are set by
+regulation and differ by region and band. headroom's numbers are engineering
+estimates: check them against the rules that apply where the radio is used,
+respect RF exposure limits for people nearby, and defer to local regulations
+and licensed practice.";
+
+/// Link budgets, path loss, fade margins and adaptive transmit power for
+/// battery-powered radios.
+#[derive(Parser)]
+#[command(name = "headroom", version, about, after_help = CAUTION, after_long_help = CAUTION)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Evaluate a link budget described in a TOML file.
+    Budget(cmd::budget::Args),
+    /// Solve a link for the transmit power, the maximum path loss or the range.
+    Solve(cmd::solve::Args),
+    /// Path loss of a propagation model at one frequency and distance.
+    Pathloss(cmd::pathloss::Args),
+    /// Fade margin for an availability, or availability for a margin.
+    Fade(cmd::fade::Args),
+    /// Thermal noise power and noise temperature of a receiver.
+    Noise(cmd::noise::Args),
+    /// Required Eb/N0 for a bit error rate.
+    Ber(cmd::ber::Args),
+    /// Rain attenuation (ITU-R P.838 and P.618).
+    Rain(cmd::rain::Args),
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Budget(a) => cmd::budget::run(a),
+        Command::Solve(a) => cmd::solve::run(a),
+        Command::Pathloss(a) => cmd::pathloss::run(a),
+        Command::Fade(a) => cmd::fade::run(a),
+        Command::Noise(a) => cmd::noise::run(a),
+        Command::Ber(a) => cmd::ber::run(a),
+        Command::Rain(a) => cmd::rain::run(a),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("headroom: error: {e}");
+            ExitCode::from(e.exit_code())
+        }
+    }
+}

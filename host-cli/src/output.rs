@@ -1,0 +1,130 @@
+//! Printing results: an aligned table for people, one JSON object for scripts.
+
+use clap::ValueEnum;
+use serde_json::{Map, Value};
+
+use crate::error::{CliError, CliResult};
+
+/// Output format of the calculator commands.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    /// Aligned `key  value  unit` lines.
+    #[default]
+    Table,
+    /// One JSON object on stdout.
+    Json,
+}
+
+/// A result being assembled: ordered keys, values, and units for the table.
+#[derive(Default)]
+pub struct Report {
+    rows: Vec<(String, Value, &'static str)>,
+}
+
+impl Report {
+    /// A new, empty report.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Add a number with its unit (the unit is shown in the table only).
+    pub fn num(&mut self, key: &str, value: f32, unit: &'static str) -> &mut Self {
+        self.rows.push((key.to_string(), json_num(value), unit));
+        self
+    }
+
+    /// Add any JSON value (a string, an array of line items, ...).
+    pub fn value(&mut self, key: &str, value: Value) -> &mut Self {
+        self.rows.push((key.to_string(), value, ""));
+        self
+    }
+
+    /// Print in the chosen format.
+    pub fn print(&self, format: Format) -> CliResult {
+        match format {
+            Format::Json => {
+                let mut m = Map::new();
+                for (k, v, _) in &self.rows {
+                    m.insert(k.clone(), v.clone());
+                }
+                let s = serde_json::to_string_pretty(&Value::Object(m))
+                    .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+                println!("{s}");
+            }
+            Format::Table => {
+                let width = self.rows.iter().map(|r| r.0.len()).max().unwrap_or(0);
+                for (k, v, unit) in &self.rows {
+                    match v {
+                        Value::Number(_) | Value::String(_) | Value::Bool(_) | Value::Null => {
+                            println!("{k:<width$}  {}  {unit}", scalar(v));
+                        }
+                        _ => {
+                            println!("{k}:");
+                            print_nested(v, 1);
+                        }
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A JSON number rounded to what an f32 carries (no 13.979400634765625 noise).
+pub fn json_num(x: f32) -> Value {
+    if !x.is_finite() {
+        return Value::Null;
+    }
+    let rounded: f64 = format!("{:.6}", x).parse().unwrap_or(f64::from(x));
+    let s = format!("{}", fmt_sig(rounded));
+    serde_json::from_str(&s).unwrap_or(Value::Null)
+}
+
+fn fmt_sig(x: f64) -> String {
+    // Seven significant digits, as many as an f32 holds.
+    if x == 0.0 {
+        return "0".into();
+    }
+    let s = format!("{:.*e}", 6, x);
+    let v: f64 = s.parse().unwrap_or(x);
+    format!("{v}")
+}
+
+fn scalar(v: &Value) -> String {
+    match v {
+        Value::Number(n) => {
+            let x = n.as_f64().unwrap_or(f64::NAN);
+            if x.abs() >= 1e6 || (x != 0.0 && x.abs() < 1e-3) {
+                format!("{x:.4e}")
+            } else {
+                format!("{x:.3}")
+            }
+        }
+        Value::String(s) => s.clone(),
+        other => other.to_string(),
+    }
+}
+
+fn print_nested(v: &Value, depth: usize) {
+    let pad = "  ".repeat(depth);
+    match v {
+        Value::Array(items) => {
+            for item in items {
+                match item {
+                    Value::Object(m) => {
+                        let line: Vec<String> =
+                            m.iter().map(|(k, v)| format!("{k}={}", scalar(v))).collect();
+                        println!("{pad}{}", line.join("  "));
+                    }
+                    other => println!("{pad}{}", scalar(other)),
+                }
+            }
+        }
+        Value::Object(m) => {
+            for (k, v) in m {
+                println!("{pad}{k}  {}", scalar(v));
+            }
+        }
+        other => println!("{pad}{}", scalar(other)),
+    }
+}
