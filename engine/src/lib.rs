@@ -16,6 +16,7 @@
 //! | [`budget`] | line-item link budget and inverse solving |
 //! | [`control`] | the per-packet transmit-power controller and replay semantics |
 //! | [`record`] | field-log records and their framed binary codec |
+//! | [`sim`] | seeded channel simulation: drift, correlated shadowing, Rayleigh/Rician fading, bursts |
 //! | [`special`] | special functions (erfc, inverse normal, Bessel I0, Marcum Q) |
 //!
 //! ## Features
@@ -55,5 +56,6 @@ pub mod fading;
 pub mod budget;
 pub mod control;
 pub mod record;
+pub mod sim;
 
 pub use error::Error;

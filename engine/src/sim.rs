@@ -1,0 +1,1 @@
+//! Seeded, deterministic channel simulation (being written).
