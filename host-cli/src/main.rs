@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 
 mod cmd;
 mod error;
+mod logio;
 mod output;
 mod quantity;
 
@@ -46,6 +47,12 @@ enum Command {
     Ber(cmd::ber::Args),
     /// Rain attenuation (ITU-R P.838 and P.618).
     Rain(cmd::rain::Args),
+    /// Replay a field log through the controller: what would it have chosen?
+    Replay(cmd::replay::Args),
+    /// Generate a synthetic field log from a channel scenario.
+    Synth(cmd::synth::Args),
+    /// Convert a field log between CSV and the framed binary format.
+    Convert(cmd::convert::Args),
 }
 
 fn main() -> ExitCode {
@@ -58,6 +65,9 @@ fn main() -> ExitCode {
         Command::Noise(a) => cmd::noise::run(a),
         Command::Ber(a) => cmd::ber::run(a),
         Command::Rain(a) => cmd::rain::run(a),
+        Command::Replay(a) => cmd::replay::run(a),
+        Command::Synth(a) => cmd::synth::run(a),
+        Command::Convert(a) => cmd::convert::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

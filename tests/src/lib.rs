@@ -2,3 +2,7 @@
 //! headroom engine, written from the published methods, sharing no code with
 //! the engine. The integration tests in `tests/` compare the two.
 #![forbid(unsafe_code)]
+
+pub mod budget;
+pub mod propagation;
+pub mod signal;

@@ -7,3 +7,6 @@ pub mod noise;
 pub mod pathloss;
 pub mod rain;
 pub mod solve;
+pub mod convert;
+pub mod replay;
+pub mod synth;

@@ -1,0 +1,1 @@
+//! Reading and writing field logs (CSV and framed binary), streaming.

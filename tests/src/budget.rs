@@ -1,0 +1,1 @@
+//! f64 reference: line-item link budget.

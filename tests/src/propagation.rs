@@ -1,0 +1,1 @@
+//! f64 reference: path loss, apertures and rain.

@@ -1,0 +1,1 @@
+//! f64 reference: special functions, noise, modulation, fading and coverage.
