@@ -9,11 +9,11 @@ use clap::{Parser, Subcommand};
 
 mod cmd;
 mod error;
+mod link;
 mod logio;
 mod output;
 mod quantity;
 
-use error::CliError;
 
 const CAUTION: &str = "\
 CAUTION: transmit power, EIRP, duty cycle and RF exposure limits are set by
@@ -56,7 +56,33 @@ enum Command {
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            use clap::error::ErrorKind;
+            if matches!(e.kind(), ErrorKind::DisplayHelp | ErrorKind::DisplayVersion)
+                || matches!(e.kind(), ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand)
+            {
+                let _ = e.print();
+                return if e.kind() == ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand {
+                    ExitCode::from(2)
+                } else {
+                    ExitCode::SUCCESS
+                };
+            }
+            // One line: what clap says before its usage hint, joined.
+            let text = e.render().to_string();
+            let msg: Vec<&str> = text
+                .lines()
+                .take_while(|l| !l.starts_with("Usage:"))
+                .map(str::trim)
+                .filter(|l| !l.is_empty() && !l.starts_with("For more information"))
+                .collect();
+            let msg = msg.join(" ");
+            eprintln!("headroom: {} (see 'headroom --help')", msg.trim_start_matches("error: "));
+            return ExitCode::from(2);
+        }
+    };
     let result = match cli.command {
         Command::Budget(a) => cmd::budget::run(a),
         Command::Solve(a) => cmd::solve::run(a),

@@ -70,31 +70,21 @@ impl Report {
     }
 }
 
-/// A JSON number rounded to what an f32 carries (no 13.979400634765625 noise).
+/// A JSON number with the seven significant digits an f32 carries (no
+/// 13.979400634765625 noise); NaN and infinities become `null`.
 pub fn json_num(x: f32) -> Value {
     if !x.is_finite() {
         return Value::Null;
     }
-    let rounded: f64 = format!("{:.6}", x).parse().unwrap_or(f64::from(x));
-    let s = format!("{}", fmt_sig(rounded));
-    serde_json::from_str(&s).unwrap_or(Value::Null)
-}
-
-fn fmt_sig(x: f64) -> String {
-    // Seven significant digits, as many as an f32 holds.
-    if x == 0.0 {
-        return "0".into();
-    }
-    let s = format!("{:.*e}", 6, x);
-    let v: f64 = s.parse().unwrap_or(x);
-    format!("{v}")
+    let v: f64 = format!("{:.6e}", f64::from(x)).parse().unwrap_or(f64::from(x));
+    serde_json::Number::from_f64(v).map(Value::Number).unwrap_or(Value::Null)
 }
 
 fn scalar(v: &Value) -> String {
     match v {
         Value::Number(n) => {
             let x = n.as_f64().unwrap_or(f64::NAN);
-            if x.abs() >= 1e6 || (x != 0.0 && x.abs() < 1e-3) {
+            if x.abs() >= 1e12 || (x != 0.0 && x.abs() < 1e-3) {
                 format!("{x:.4e}")
             } else {
                 format!("{x:.3}")

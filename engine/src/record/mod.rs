@@ -3,6 +3,22 @@
 //! A [`LogRecord`] is one packet as a device logged it: when it was sent, at
 //! what power, and what the far end reported. The same type feeds the host
 //! replay, the firmware's replay-on-target and the tests.
+//!
+//! A log may start with a [`LogHeader`] (which device, its radio limits, the
+//! time base). A firmware replaying a log on target writes one
+//! [`DecisionRecord`] per packet.
+//!
+//! With the `serde` feature, [`codec`] writes and reads these as framed binary
+//! (postcard payload, CRC-32C, COBS, 0x00 delimiter); the byte layout is
+//! described in `docs/log-format.md`. [`crc`] holds the checksum, which is
+//! always available.
+
+use crate::units::{Db, Dbi, Dbm};
+
+pub mod crc;
+
+#[cfg(feature = "serde")]
+pub mod codec;
 
 /// One logged packet. `None` is a reading that was not logged (an empty CSV
 /// cell): such a record cannot be judged by a replay.
@@ -18,4 +34,43 @@ pub struct LogRecord {
     pub rssi_dbm: Option<f32>,
     /// Noise floor at the far end when this packet was received, dBm.
     pub noise_dbm: Option<f32>,
+}
+
+/// What a log says about the device that wrote it. Every radio field is
+/// optional: `None` means the log does not say.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LogHeader {
+    /// Identifier of the logging device (its serial number, or 0 if unknown).
+    pub device_id: u64,
+    /// Unix time in milliseconds of `t_ms = 0` in this log; 0 if unknown.
+    pub epoch_ms: u64,
+    /// Lowest transmit power the radio can be set to.
+    pub min_tx: Option<Dbm>,
+    /// Highest transmit power the radio can be set to.
+    pub max_tx: Option<Dbm>,
+    /// Step between settable transmit powers.
+    pub tx_step: Option<Db>,
+    /// Gain of the device's antenna.
+    pub antenna_gain: Option<Dbi>,
+}
+
+/// One decision of a controller replaying a log on target.
+///
+/// `outcome` and `reason` are the `u8` codes of the controller's outcome and
+/// reason enums (defined in [`crate::control`]); this module stores them
+/// without interpreting them, so a log written by a newer controller still
+/// decodes.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct DecisionRecord {
+    /// Time of the packet in milliseconds on the log's time base.
+    pub t_ms: u64,
+    /// Transmit power chosen for the packet, dBm.
+    pub tx_dbm: f32,
+    /// Outcome code of the decision.
+    pub outcome: u8,
+    /// Reason code of the decision.
+    pub reason: u8,
 }

@@ -1,0 +1,330 @@
+//! Replay of a field log through the controller: what would it have chosen,
+//! and how many packets would it have lost?
+//!
+//! This is the one implementation of the replay semantics; the host's
+//! `headroom replay`, the firmware's replay on target and the tests all call
+//! it, so they agree bit for bit.
+//!
+//! ## Semantics
+//! Records are taken one at a time, in order. For record `k`:
+//! 1. the controller's power `chosen` for record `k` is the one it decided
+//!    from the observations of records before `k`;
+//! 2. the channel of record `k` is the logged one: the replayed received
+//!    power is `rssi − tx + chosen`, the replayed SNR that less `noise`;
+//! 3. the packet is lost when the replayed SNR is below the required SNR;
+//! 4. a delivered packet gives the controller the replayed feedback
+//!    (sent at `chosen`, received at the replayed power, the logged noise);
+//!    a lost one gives it a loss and no readings;
+//! 5. a record with a missing reading (or one that is NaN or infinite)
+//!    cannot be judged: it is counted apart and passed to the controller as
+//!    an observation of nothing ([`Observation::Missing`]).
+//!
+//! A logged reading that was clipped by a saturated receiver gives a
+//! replayed received power that is only a lower bound, so the replay is
+//! pessimistic for it.
+
+use super::config::{ConfigError, ControllerConfig};
+use super::controller::{Controller, Observation};
+use super::reason::Reason;
+use crate::record::LogRecord;
+use crate::units::{Db, Dbm};
+
+/// What happened to a replayed packet.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[repr(u8)]
+pub enum Outcome {
+    /// The replayed SNR met the requirement.
+    Delivered = 0,
+    /// The replayed SNR fell short.
+    Lost = 1,
+    /// The record lacks a reading: it cannot be judged.
+    Unjudged = 2,
+}
+
+impl Outcome {
+    /// Stable lower-case name for CSV and JSON.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            Outcome::Delivered => "delivered",
+            Outcome::Lost => "lost",
+            Outcome::Unjudged => "unjudged",
+        }
+    }
+
+    /// Stable one-byte code (for binary decision logs).
+    pub const fn code(self) -> u8 {
+        self as u8
+    }
+
+    /// The outcome with this code, if any.
+    pub fn from_code(code: u8) -> Option<Outcome> {
+        match code {
+            0 => Some(Outcome::Delivered),
+            1 => Some(Outcome::Lost),
+            2 => Some(Outcome::Unjudged),
+            _ => None,
+        }
+    }
+}
+
+/// One replayed record.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ReplayStep {
+    /// Time of the record, ms.
+    pub t_ms: u64,
+    /// Power the controller chose for this record.
+    pub chosen: Dbm,
+    /// SNR the packet would have had at the chosen power (`None` if unjudged).
+    pub replayed_snr: Option<Db>,
+    /// Delivered, lost, or not judgeable.
+    pub outcome: Outcome,
+    /// The controller's slow path-loss estimate after this record.
+    pub path_loss_estimate: Option<Db>,
+    /// The adaptive margin after this record.
+    pub margin: Db,
+    /// Why the controller moved (or ignored the reading) after this record.
+    pub reason: Reason,
+    /// Power chosen for the next record.
+    pub next_tx: Dbm,
+}
+
+/// Running totals of a replay.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Summary {
+    /// Records replayed.
+    pub records: u64,
+    /// Records that could be judged (delivered + lost).
+    pub judged: u64,
+    /// Judged records that were lost.
+    pub lost: u64,
+    /// Records that could not be judged.
+    pub unjudged: u64,
+    /// Records whose power differs from the previous record's.
+    pub power_changes: u64,
+    /// Highest power chosen (`None` before the first record).
+    pub max_tx_dbm_used: Option<Dbm>,
+    /// Readings ignored, indexed by [`Reason::index`] (only the
+    /// `Ignored*` reasons are counted).
+    pub ignored_readings: [u64; Reason::COUNT],
+    /// Highest power the controller was allowed (radio maximum and EIRP cap,
+    /// on the grid): the reference of [`Summary::energy_saving_db`].
+    pub max_allowed: Dbm,
+    sum_mw: f64,
+    last_chosen: Option<f32>,
+}
+
+impl Summary {
+    /// Empty totals for a controller whose highest allowed level is `max_allowed`.
+    pub fn new(max_allowed: Dbm) -> Self {
+        Summary {
+            records: 0,
+            judged: 0,
+            lost: 0,
+            unjudged: 0,
+            power_changes: 0,
+            max_tx_dbm_used: None,
+            ignored_readings: [0; Reason::COUNT],
+            max_allowed,
+            sum_mw: 0.0,
+            last_chosen: None,
+        }
+    }
+
+    /// Count one replayed record.
+    pub fn add(&mut self, s: &ReplayStep) {
+        self.records += 1;
+        match s.outcome {
+            Outcome::Delivered => self.judged += 1,
+            Outcome::Lost => {
+                self.judged += 1;
+                self.lost += 1;
+            }
+            Outcome::Unjudged => self.unjudged += 1,
+        }
+        let p = s.chosen.0;
+        if let Some(last) = self.last_chosen {
+            if last != p {
+                self.power_changes += 1;
+            }
+        }
+        self.last_chosen = Some(p);
+        self.max_tx_dbm_used = Some(match self.max_tx_dbm_used {
+            Some(m) if m.0 >= p => m,
+            _ => s.chosen,
+        });
+        // Linear mW summed in f64: 10⁶ records of 25 mW lose nothing.
+        self.sum_mw += f64::from(libm::exp10f(p / 10.0));
+        if s.reason.is_ignored_reading() {
+            if let Some(c) = self.ignored_readings.get_mut(s.reason.index()) {
+                *c += 1;
+            }
+        }
+    }
+
+    /// Lost / judged (`None` before a judged record).
+    #[allow(clippy::cast_possible_truncation)] // a fraction in [0, 1]
+    pub fn outage_fraction(&self) -> Option<f32> {
+        if self.judged == 0 {
+            None
+        } else {
+            Some((self.lost as f64 / self.judged as f64) as f32)
+        }
+    }
+
+    /// `10·log10` of the mean chosen power in mW (`None` before a record).
+    #[allow(clippy::cast_possible_truncation)] // a level within ±300 dBm
+    pub fn mean_tx_dbm(&self) -> Option<Dbm> {
+        if self.records == 0 || self.sum_mw <= 0.0 || self.sum_mw.is_nan() {
+            None
+        } else {
+            Some(Dbm(libm::log10(self.sum_mw / self.records as f64) as f32 * 10.0))
+        }
+    }
+
+    /// How much lower the mean power is than always sending at
+    /// [`Summary::max_allowed`], dB.
+    pub fn energy_saving_db(&self) -> Option<Db> {
+        self.mean_tx_dbm().map(|m| self.max_allowed - m)
+    }
+
+    /// Readings ignored for reason `r`.
+    pub fn ignored(&self, r: Reason) -> u64 {
+        self.ignored_readings.get(r.index()).copied().unwrap_or(0)
+    }
+}
+
+/// A controller replaying a log, with its running [`Summary`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Replay<const W: usize> {
+    controller: Controller<W>,
+    summary: Summary,
+}
+
+impl<const W: usize> Replay<W> {
+    /// A replay with a fresh controller.
+    pub fn new(cfg: ControllerConfig) -> Result<Self, ConfigError> {
+        let controller = Controller::<W>::new(cfg)?;
+        let summary = Summary::new(controller.limits().1);
+        Ok(Replay { controller, summary })
+    }
+
+    /// Replay one record (see the [module documentation](self)).
+    pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
+        let chosen = self.controller.tx();
+        let required = self.controller.config().required_snr_db;
+        let t_ms = rec.t_ms;
+        let mut own_reason: Option<Reason> = None;
+        let (outcome, snr, obs) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
+            (Some(tx), Some(rssi), Some(noise)) => {
+                let rx = rssi - tx + chosen.0;
+                let snr = rx - noise;
+                if !(tx.is_finite() && rssi.is_finite() && noise.is_finite() && snr.is_finite()) {
+                    own_reason = Some(Reason::IgnoredNotFinite);
+                    (Outcome::Unjudged, None, Observation::Missing { t_ms })
+                } else if snr < required.0 {
+                    (Outcome::Lost, Some(Db(snr)), Observation::Lost { t_ms })
+                } else {
+                    let obs = Observation::Feedback {
+                        t_ms,
+                        tx: chosen,
+                        rssi: Dbm(rx),
+                        noise: Dbm(noise),
+                        snr: None,
+                    };
+                    (Outcome::Delivered, Some(Db(snr)), obs)
+                }
+            }
+            _ => (Outcome::Unjudged, None, Observation::Missing { t_ms }),
+        };
+        let d = self.controller.update(&obs);
+        let step = ReplayStep {
+            t_ms,
+            chosen,
+            replayed_snr: snr,
+            outcome,
+            path_loss_estimate: d.path_loss,
+            margin: d.margin,
+            reason: own_reason.unwrap_or(d.reason),
+            next_tx: d.tx,
+        };
+        self.summary.add(&step);
+        step
+    }
+
+    /// The totals so far.
+    pub fn summary(&self) -> &Summary {
+        &self.summary
+    }
+
+    /// The controller being replayed.
+    pub fn controller(&self) -> &Controller<W> {
+        &self.controller
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::panic, clippy::cast_possible_truncation)]
+mod tests {
+    use super::*;
+
+    fn rec(t_ms: u64, tx: f32, rssi: f32, noise: f32) -> LogRecord {
+        LogRecord { t_ms, tx_dbm: Some(tx), rssi_dbm: Some(rssi), noise_dbm: Some(noise) }
+    }
+
+    #[test]
+    fn judges_by_replayed_snr() {
+        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
+            Ok(r) => r,
+            Err(e) => panic!("{e}"),
+        };
+        // Start power 14 dBm. Logged at 10 dBm, −105 dBm received, −110
+        // noise: replayed rx = −105 − 10 + 14 = −101, SNR 9 dB ≥ 8: delivered.
+        let s = r.step(&rec(0, 10.0, -105.0, -110.0));
+        assert_eq!(s.chosen, Dbm(14.0));
+        assert_eq!(s.outcome, Outcome::Delivered);
+        assert_eq!(s.replayed_snr, Some(Db(9.0)));
+        // −108 at 10 dBm: replayed SNR 6 dB < 8: lost.
+        let s = r.step(&rec(1, 10.0, -108.0, -110.0));
+        assert_eq!(s.outcome, Outcome::Lost);
+        let s = r.step(&LogRecord { t_ms: 2, tx_dbm: Some(10.0), rssi_dbm: None, noise_dbm: Some(-110.0) });
+        assert_eq!(s.outcome, Outcome::Unjudged);
+        assert_eq!(s.reason, Reason::NoInformation);
+        let s = r.step(&rec(3, 10.0, f32::NAN, -110.0));
+        assert_eq!(s.outcome, Outcome::Unjudged);
+        assert_eq!(s.reason, Reason::IgnoredNotFinite);
+        let sum = r.summary();
+        assert_eq!((sum.records, sum.judged, sum.lost, sum.unjudged), (4, 2, 1, 2));
+        assert_eq!(sum.outage_fraction(), Some(0.5));
+        assert_eq!(sum.ignored(Reason::IgnoredNotFinite), 1);
+        assert_eq!(sum.max_tx_dbm_used, Some(Dbm(14.0)));
+        // Always at the highest allowed level: no saving.
+        assert!(sum.energy_saving_db().is_some_and(|e| e.0.abs() < 1e-4));
+        assert_eq!(sum.power_changes, 0);
+    }
+
+    #[test]
+    fn summary_means_in_milliwatts() {
+        let mut s = Summary::new(Dbm(10.0));
+        for p in [10.0f32, 0.0] {
+            s.add(&ReplayStep {
+                t_ms: 0,
+                chosen: Dbm(p),
+                replayed_snr: None,
+                outcome: Outcome::Unjudged,
+                path_loss_estimate: None,
+                margin: Db(0.0),
+                reason: Reason::Hold,
+                next_tx: Dbm(p),
+            });
+        }
+        // (10 mW + 1 mW) / 2 = 5.5 mW = 7.4036 dBm.
+        let m = s.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
+        assert!((m - 7.403_627).abs() < 1e-4, "{m}");
+        assert_eq!(s.power_changes, 1);
+        assert_eq!(s.outage_fraction(), None);
+    }
+}

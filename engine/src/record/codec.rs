@@ -1,0 +1,884 @@
+//! The framed binary log format: encoder, one-frame decoder and a streaming
+//! decoder that resynchronises after damage. No allocation, no panics on any
+//! bytes.
+//!
+//! A log is a sequence of frames, each terminated by one `0x00` byte:
+//!
+//! ```text
+//! frame   = COBS(payload) 0x00
+//! payload = kind:u8  seq:u16-le  body:postcard  crc:u32-le
+//! crc     = CRC-32C over kind, seq and body
+//! ```
+//!
+//! COBS (consistent overhead byte stuffing) removes every `0x00` from the
+//! payload for one byte of overhead per 254, so `0x00` only ever ends a
+//! frame: after any corruption a reader finds the next frame at the next
+//! `0x00`. The 16-bit sequence number counts frames from 0 (the header) and
+//! wraps; a reader uses the gap across a damaged region to tell how many
+//! frames were lost.
+//!
+//! | kind | frame | body (postcard, in this order) |
+//! |---|---|---|
+//! | 0 | header | magic `b"hrlg"`, major `u8`, minor `u8`, device id `u64`, epoch ms `u64`, min tx, max tx, tx step, antenna gain (each `Option<f32>`) |
+//! | 1 | record | `t_ms: u64`, `tx_dbm`, `rssi_dbm`, `noise_dbm` (each `Option<f32>`) |
+//! | 2 | decision | `t_ms: u64`, `tx_dbm: f32`, `outcome: u8`, `reason: u8` |
+//!
+//! postcard writes integers as LEB128 varints, `Option` as a 0/1 byte
+//! followed by the value, `f32` as 4 little-endian bytes (so NaN payloads
+//! survive bit for bit). The full layout and the versioning rule are in
+//! `docs/log-format.md`.
+//!
+//! ```
+//! use headroom::record::codec::{Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
+//! use headroom::record::{LogHeader, LogRecord};
+//!
+//! // Write: one frame at a time into a caller's buffer.
+//! let mut enc = Encoder::new();
+//! let mut buf = [0u8; MAX_FRAME];
+//! let mut log = [0u8; 2 * MAX_FRAME];
+//! let mut len = 0;
+//! let frame = enc.header(&LogHeader::default(), &mut buf)?;
+//! log[len..len + frame.len()].copy_from_slice(frame);
+//! len += frame.len();
+//! let r = LogRecord { t_ms: 5, rssi_dbm: Some(-91.5), ..Default::default() };
+//! let frame = enc.record(&r, &mut buf)?;
+//! log[len..len + frame.len()].copy_from_slice(frame);
+//! len += frame.len();
+//!
+//! // Read: feed chunks of any size.
+//! let mut dec: FrameDecoder = FrameDecoder::new();
+//! let mut records = 0;
+//! for chunk in log[..len].chunks(7) {
+//!     let mut input = chunk;
+//!     while let Some(event) = dec.feed(&mut input) {
+//!         if let Event::Frame { frame: Frame::Record(got), .. } = event {
+//!             assert_eq!(got, r);
+//!             records += 1;
+//!         }
+//!     }
+//! }
+//! assert_eq!(dec.finish(), None); // nothing left over
+//! assert_eq!(records, 1);
+//! # Ok::<(), headroom::record::codec::CodecError>(())
+//! ```
+
+use core::fmt;
+
+use serde::{Deserialize, Serialize};
+
+use super::crc::{crc32c, Crc32c};
+use super::{DecisionRecord, LogHeader, LogRecord};
+use crate::units::{Db, Dbi, Dbm};
+
+/// First four bytes of a header frame's body.
+pub const MAGIC: [u8; 4] = *b"hrlg";
+
+/// Format version written by this encoder.
+pub const VERSION: Version = Version { major: 1, minor: 0 };
+
+/// Largest payload (kind, seq, body, CRC) a frame may carry. Kept below 254
+/// so that COBS adds exactly one byte.
+pub const MAX_PAYLOAD: usize = 250;
+
+/// Largest frame on the wire: COBS-encoded [`MAX_PAYLOAD`] plus the `0x00`
+/// delimiter. A run of more bytes without `0x00` is damage.
+pub const MAX_FRAME: usize = MAX_PAYLOAD + 2;
+
+/// Smallest payload: kind, seq and CRC with an empty body.
+const MIN_PAYLOAD: usize = 1 + 2 + 4;
+
+/// Frame kind of the header.
+pub const KIND_HEADER: u8 = 0;
+/// Frame kind of a [`LogRecord`].
+pub const KIND_RECORD: u8 = 1;
+/// Frame kind of a [`DecisionRecord`].
+pub const KIND_DECISION: u8 = 2;
+
+/// A format version. Readers accept any minor version of their major
+/// version (newer minors only append fields and add frame kinds) and refuse
+/// other major versions.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Version {
+    /// Incompatible changes.
+    pub major: u8,
+    /// Compatible additions.
+    pub minor: u8,
+}
+
+/// Why bytes could not be encoded or decoded.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum CodecError {
+    /// The output buffer cannot hold the frame.
+    BufferTooSmall,
+    /// More than [`MAX_FRAME`] bytes without a `0x00` delimiter.
+    FrameTooLong,
+    /// Too few bytes for kind, sequence number and CRC.
+    TooShort,
+    /// The bytes are not valid COBS (a `0x00` inside, or a block running
+    /// past the end).
+    Cobs,
+    /// The CRC-32C does not match the frame's content.
+    Crc,
+    /// The CRC matched but the body does not decode as its kind says.
+    Payload,
+    /// A header frame without the `hrlg` magic.
+    BadMagic,
+    /// A header of a major version this decoder does not read.
+    UnknownVersion {
+        /// Major version found.
+        major: u8,
+        /// Minor version found.
+        minor: u8,
+    },
+    /// The stream ended inside a frame (no final `0x00`).
+    Truncated,
+    /// [`Frame::Other`] has no body to encode.
+    UnknownKind(u8),
+}
+
+impl fmt::Display for CodecError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            CodecError::BufferTooSmall => f.write_str("output buffer too small for the frame"),
+            CodecError::FrameTooLong => {
+                write!(f, "no frame delimiter within {MAX_FRAME} bytes")
+            }
+            CodecError::TooShort => f.write_str("frame too short"),
+            CodecError::Cobs => f.write_str("frame is not valid COBS"),
+            CodecError::Crc => f.write_str("CRC-32C mismatch"),
+            CodecError::Payload => f.write_str("frame content does not decode"),
+            CodecError::BadMagic => f.write_str("header frame without the log magic"),
+            CodecError::UnknownVersion { major, minor } => write!(
+                f,
+                "log format version {major}.{minor} is not supported (this build reads {}.x)",
+                VERSION.major
+            ),
+            CodecError::Truncated => f.write_str("log ends inside a frame"),
+            CodecError::UnknownKind(k) => write!(f, "frame kind {k} cannot be encoded"),
+        }
+    }
+}
+
+impl core::error::Error for CodecError {}
+
+/// The content of one frame.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Frame {
+    /// The log's header and the format version it was written in.
+    Header {
+        /// What the log says about its device.
+        header: LogHeader,
+        /// Format version of the log.
+        version: Version,
+    },
+    /// One logged packet.
+    Record(LogRecord),
+    /// One decision of a controller replaying on target.
+    Decision(DecisionRecord),
+    /// A frame of a kind this decoder does not know (from a newer minor
+    /// version); its CRC was good, its body is skipped.
+    Other {
+        /// The frame kind.
+        kind: u8,
+    },
+}
+
+/// One decoded frame and its sequence number.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Decoded {
+    /// Sequence number of the frame.
+    pub seq: u16,
+    /// Content of the frame.
+    pub frame: Frame,
+}
+
+#[derive(Serialize, Deserialize)]
+struct WireHeader {
+    magic: [u8; 4],
+    major: u8,
+    minor: u8,
+    device_id: u64,
+    epoch_ms: u64,
+    min_tx_dbm: Option<f32>,
+    max_tx_dbm: Option<f32>,
+    tx_step_db: Option<f32>,
+    antenna_gain_dbi: Option<f32>,
+}
+
+#[derive(Serialize, Deserialize)]
+struct WireRecord {
+    t_ms: u64,
+    tx_dbm: Option<f32>,
+    rssi_dbm: Option<f32>,
+    noise_dbm: Option<f32>,
+}
+
+#[derive(Serialize, Deserialize)]
+struct WireDecision {
+    t_ms: u64,
+    tx_dbm: f32,
+    outcome: u8,
+    reason: u8,
+}
+
+/// Encode one frame with sequence number `seq` into `buf`; returns the
+/// frame's bytes, final `0x00` included. A header frame is written with
+/// this encoder's [`VERSION`] whatever `version` it holds.
+pub fn encode_frame<'b>(seq: u16, frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+    let mut payload = [0u8; MAX_PAYLOAD];
+    let (kind, body_len) = {
+        let (head, rest) = payload.split_at_mut(3);
+        let body = rest.get_mut(..MAX_PAYLOAD - MIN_PAYLOAD).ok_or(CodecError::BufferTooSmall)?;
+        let (kind, used) = match frame {
+            Frame::Header { header: h, .. } => (
+                KIND_HEADER,
+                postcard::to_slice(
+                    &WireHeader {
+                        magic: MAGIC,
+                        major: VERSION.major,
+                        minor: VERSION.minor,
+                        device_id: h.device_id,
+                        epoch_ms: h.epoch_ms,
+                        min_tx_dbm: h.min_tx.map(|v| v.0),
+                        max_tx_dbm: h.max_tx.map(|v| v.0),
+                        tx_step_db: h.tx_step.map(|v| v.0),
+                        antenna_gain_dbi: h.antenna_gain.map(|v| v.0),
+                    },
+                    body,
+                )
+                .map_err(|_| CodecError::BufferTooSmall)?
+                .len(),
+            ),
+            Frame::Record(r) => (
+                KIND_RECORD,
+                postcard::to_slice(
+                    &WireRecord {
+                        t_ms: r.t_ms,
+                        tx_dbm: r.tx_dbm,
+                        rssi_dbm: r.rssi_dbm,
+                        noise_dbm: r.noise_dbm,
+                    },
+                    body,
+                )
+                .map_err(|_| CodecError::BufferTooSmall)?
+                .len(),
+            ),
+            Frame::Decision(d) => (
+                KIND_DECISION,
+                postcard::to_slice(
+                    &WireDecision {
+                        t_ms: d.t_ms,
+                        tx_dbm: d.tx_dbm,
+                        outcome: d.outcome,
+                        reason: d.reason,
+                    },
+                    body,
+                )
+                .map_err(|_| CodecError::BufferTooSmall)?
+                .len(),
+            ),
+            Frame::Other { kind } => return Err(CodecError::UnknownKind(*kind)),
+        };
+        let [k, s0, s1] = head else { return Err(CodecError::BufferTooSmall) };
+        *k = kind;
+        [*s0, *s1] = seq.to_le_bytes();
+        (kind, used)
+    };
+    let _ = kind;
+    let crc_at = 3 + body_len;
+    let crc = crc32c(payload.get(..crc_at).ok_or(CodecError::BufferTooSmall)?);
+    payload
+        .get_mut(crc_at..crc_at + 4)
+        .ok_or(CodecError::BufferTooSmall)?
+        .copy_from_slice(&crc.to_le_bytes());
+    let payload = payload.get(..crc_at + 4).ok_or(CodecError::BufferTooSmall)?;
+    let n = cobs_encode(payload, buf)?;
+    let delim = buf.get_mut(n).ok_or(CodecError::BufferTooSmall)?;
+    *delim = 0;
+    buf.get(..=n).ok_or(CodecError::BufferTooSmall)
+}
+
+/// Encode a header frame (sequence number 0) into `buf`.
+pub fn encode_header<'b>(header: &LogHeader, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+    encode_frame(0, &Frame::Header { header: *header, version: VERSION }, buf)
+}
+
+/// Encode a record frame with sequence number `seq` into `buf`.
+pub fn encode_record<'b>(seq: u16, record: &LogRecord, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+    encode_frame(seq, &Frame::Record(*record), buf)
+}
+
+/// Encode a decision frame with sequence number `seq` into `buf`.
+pub fn encode_decision<'b>(
+    seq: u16,
+    decision: &DecisionRecord,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
+    encode_frame(seq, &Frame::Decision(*decision), buf)
+}
+
+/// Writes frames with consecutive sequence numbers, the first one 0.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Encoder {
+    seq: u16,
+}
+
+impl Encoder {
+    /// An encoder whose next frame gets sequence number 0.
+    pub const fn new() -> Self {
+        Encoder { seq: 0 }
+    }
+
+    /// Sequence number of the next frame.
+    pub const fn next_seq(&self) -> u16 {
+        self.seq
+    }
+
+    /// Encode `frame` into `buf` and advance the sequence number (only on
+    /// success).
+    pub fn frame<'b>(&mut self, frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+        let out = encode_frame(self.seq, frame, buf)?;
+        self.seq = self.seq.wrapping_add(1);
+        Ok(out)
+    }
+
+    /// Encode a header frame.
+    pub fn header<'b>(&mut self, header: &LogHeader, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+        self.frame(&Frame::Header { header: *header, version: VERSION }, buf)
+    }
+
+    /// Encode a record frame.
+    pub fn record<'b>(&mut self, record: &LogRecord, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+        self.frame(&Frame::Record(*record), buf)
+    }
+
+    /// Encode a decision frame.
+    pub fn decision<'b>(
+        &mut self,
+        decision: &DecisionRecord,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
+        self.frame(&Frame::Decision(*decision), buf)
+    }
+}
+
+/// COBS-encode `src` into `dst`; returns the encoded length (no delimiter).
+fn cobs_encode(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
+    let mut code_at = 0usize;
+    let mut out = 1usize;
+    let mut code: u8 = 1;
+    if dst.is_empty() {
+        return Err(CodecError::BufferTooSmall);
+    }
+    for &b in src {
+        if b == 0 {
+            *dst.get_mut(code_at).ok_or(CodecError::BufferTooSmall)? = code;
+            code_at = out;
+            out += 1;
+            code = 1;
+        } else {
+            *dst.get_mut(out).ok_or(CodecError::BufferTooSmall)? = b;
+            out += 1;
+            code += 1;
+            if code == 0xFF {
+                *dst.get_mut(code_at).ok_or(CodecError::BufferTooSmall)? = code;
+                code_at = out;
+                out += 1;
+                code = 1;
+            }
+        }
+    }
+    *dst.get_mut(code_at).ok_or(CodecError::BufferTooSmall)? = code;
+    Ok(out)
+}
+
+/// Whether `src` is well-formed COBS (no `0x00`, blocks end exactly at the
+/// end). Walks the code bytes only.
+fn cobs_valid(src: &[u8]) -> bool {
+    let mut i = 0usize;
+    while let Some(&code) = src.get(i) {
+        if code == 0 {
+            return false;
+        }
+        let next = i + usize::from(code);
+        match src.get(i + 1..next) {
+            Some(block) if !block.contains(&0) => i = next,
+            _ => return false,
+        }
+    }
+    true
+}
+
+/// COBS-decode `src` into `dst`; returns the decoded length.
+fn cobs_decode(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
+    let mut i = 0usize;
+    let mut out = 0usize;
+    while let Some(&code) = src.get(i) {
+        if code == 0 {
+            return Err(CodecError::Cobs);
+        }
+        let n = usize::from(code) - 1;
+        let block = src.get(i + 1..i + 1 + n).ok_or(CodecError::Cobs)?;
+        if block.contains(&0) {
+            return Err(CodecError::Cobs);
+        }
+        dst.get_mut(out..out + n).ok_or(CodecError::FrameTooLong)?.copy_from_slice(block);
+        out += n;
+        i += 1 + n;
+        if code != 0xFF && i < src.len() {
+            *dst.get_mut(out).ok_or(CodecError::FrameTooLong)? = 0;
+            out += 1;
+        }
+    }
+    Ok(out)
+}
+
+/// COBS-decode `buf` in place; returns the decoded length.
+fn cobs_decode_in_place(buf: &mut [u8]) -> Result<usize, CodecError> {
+    let len = buf.len();
+    let mut i = 0usize;
+    let mut out = 0usize;
+    while let Some(&code) = buf.get(i) {
+        if code == 0 {
+            return Err(CodecError::Cobs);
+        }
+        let n = usize::from(code) - 1;
+        let end = i + 1 + n;
+        match buf.get(i + 1..end) {
+            Some(block) if !block.contains(&0) => {}
+            _ => return Err(CodecError::Cobs),
+        }
+        // out <= i always, so the copy moves bytes towards the front.
+        buf.copy_within(i + 1..end, out);
+        out += n;
+        i = end;
+        if code != 0xFF && i < len {
+            *buf.get_mut(out).ok_or(CodecError::Cobs)? = 0;
+            out += 1;
+        }
+    }
+    Ok(out)
+}
+
+/// Decode one frame: its COBS bytes without the final `0x00`. The buffer is
+/// decoded in place (its content is changed).
+pub fn decode_frame(frame: &mut [u8]) -> Result<Decoded, CodecError> {
+    if frame.len() > MAX_FRAME - 1 {
+        return Err(CodecError::FrameTooLong);
+    }
+    if frame.len() < MIN_PAYLOAD + 1 {
+        return Err(CodecError::TooShort);
+    }
+    let n = cobs_decode_in_place(frame)?;
+    decode_payload(frame.get(..n).ok_or(CodecError::Cobs)?)
+}
+
+/// Decode a payload: kind, seq, body, CRC.
+fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
+    if p.len() < MIN_PAYLOAD {
+        return Err(CodecError::TooShort);
+    }
+    let (content, crc) = p.split_at(p.len() - 4);
+    let mut want = [0u8; 4];
+    want.copy_from_slice(crc);
+    let mut c = Crc32c::new();
+    c.update(content);
+    if c.value() != u32::from_le_bytes(want) {
+        return Err(CodecError::Crc);
+    }
+    let (head, body) = content.split_at(3);
+    let &[kind, s0, s1] = head else { return Err(CodecError::TooShort) };
+    let seq = u16::from_le_bytes([s0, s1]);
+    // Bytes after the fields this version knows are ignored (newer minors
+    // append fields).
+    let frame = match kind {
+        KIND_HEADER => {
+            let (h, _) = postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
+            if h.magic != MAGIC {
+                return Err(CodecError::BadMagic);
+            }
+            if h.major != VERSION.major {
+                return Err(CodecError::UnknownVersion { major: h.major, minor: h.minor });
+            }
+            Frame::Header {
+                header: LogHeader {
+                    device_id: h.device_id,
+                    epoch_ms: h.epoch_ms,
+                    min_tx: h.min_tx_dbm.map(Dbm),
+                    max_tx: h.max_tx_dbm.map(Dbm),
+                    tx_step: h.tx_step_db.map(Db),
+                    antenna_gain: h.antenna_gain_dbi.map(Dbi),
+                },
+                version: Version { major: h.major, minor: h.minor },
+            }
+        }
+        KIND_RECORD => {
+            let (r, _) = postcard::take_from_bytes::<WireRecord>(body).map_err(|_| CodecError::Payload)?;
+            Frame::Record(LogRecord {
+                t_ms: r.t_ms,
+                tx_dbm: r.tx_dbm,
+                rssi_dbm: r.rssi_dbm,
+                noise_dbm: r.noise_dbm,
+            })
+        }
+        KIND_DECISION => {
+            let (d, _) =
+                postcard::take_from_bytes::<WireDecision>(body).map_err(|_| CodecError::Payload)?;
+            Frame::Decision(DecisionRecord {
+                t_ms: d.t_ms,
+                tx_dbm: d.tx_dbm,
+                outcome: d.outcome,
+                reason: d.reason,
+            })
+        }
+        kind => Frame::Other { kind },
+    };
+    Ok(Decoded { seq, frame })
+}
+
+/// What the streaming decoder found.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Event {
+    /// An intact frame.
+    Frame {
+        /// Stream offset of the frame's first byte.
+        offset: u64,
+        /// Sequence number of the frame.
+        seq: u16,
+        /// Content of the frame.
+        frame: Frame,
+    },
+    /// Bytes that are not an intact frame and were skipped.
+    Damaged {
+        /// Stream offset of the first skipped byte.
+        offset: u64,
+        /// Number of bytes skipped (a delimiter that ended them included).
+        len: u64,
+        /// What was wrong with them.
+        error: CodecError,
+    },
+}
+
+/// A streaming decoder: feed it byte chunks of any size, get frames and
+/// damaged regions with their stream offsets. `N` bounds the frame length
+/// it can hold (at least [`MAX_FRAME`] to read every valid frame); memory is
+/// two buffers of `N` bytes.
+///
+/// After damage it resumes at the next `0x00`. When a piece between two
+/// delimiters fails to decode (for example garbage glued in front of an
+/// intact frame), it also tries the piece's suffixes, so an intact frame
+/// right after garbage is still found. A `0x00` right after damage is
+/// reported as part of it; elsewhere `0x00` bytes between frames are padding
+/// and ignored.
+#[derive(Debug, Clone)]
+pub struct FrameDecoder<const N: usize = MAX_FRAME> {
+    /// The current piece (its last `N` bytes once it is longer).
+    buf: [u8; N],
+    /// Bytes in `buf`.
+    len: usize,
+    /// Write position in `buf` once the piece is longer than `N` (ring).
+    ring: usize,
+    /// Bytes of the current piece not held in `buf`.
+    dropped: u64,
+    /// Stream offset of the current piece's first byte.
+    start: u64,
+    /// Stream offset of the next byte to be fed.
+    pos: u64,
+    /// Scratch for decoding.
+    scratch: [u8; N],
+    /// A frame found behind damage, reported after it.
+    pending: Option<Event>,
+    /// Whether the last piece was damaged (a `0x00` right after damage is
+    /// part of it; elsewhere runs of `0x00` are padding).
+    after_damage: bool,
+}
+
+impl<const N: usize> Default for FrameDecoder<N> {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl<const N: usize> FrameDecoder<N> {
+    /// A decoder at stream offset 0.
+    pub const fn new() -> Self {
+        FrameDecoder {
+            buf: [0; N],
+            len: 0,
+            ring: 0,
+            dropped: 0,
+            start: 0,
+            pos: 0,
+            scratch: [0; N],
+            pending: None,
+            after_damage: false,
+        }
+    }
+
+    /// Stream offset of the next byte to be fed.
+    pub const fn position(&self) -> u64 {
+        self.pos
+    }
+
+    /// Consume bytes from the front of `input` until one event is complete,
+    /// and return it; `None` once `input` is used up (a partial frame is
+    /// kept for the next chunk).
+    pub fn feed(&mut self, input: &mut &[u8]) -> Option<Event> {
+        if let Some(ev) = self.pending.take() {
+            return Some(ev);
+        }
+        loop {
+            let data: &[u8] = input;
+            if data.is_empty() {
+                return None;
+            }
+            match data.iter().position(|&b| b == 0) {
+                None => {
+                    self.push(data);
+                    *input = &[];
+                    return None;
+                }
+                Some(at) => {
+                    let (piece, rest) = data.split_at(at);
+                    self.push(piece);
+                    *input = rest.get(1..).unwrap_or(&[]);
+                    self.pos += 1;
+                    if let Some(ev) = self.end_piece(1) {
+                        return Some(ev);
+                    }
+                }
+            }
+        }
+    }
+
+    /// End of the stream: the bytes of an unfinished frame, if any, as
+    /// damage ([`CodecError::Truncated`]).
+    pub fn finish(&mut self) -> Option<Event> {
+        if let Some(ev) = self.pending.take() {
+            return Some(ev);
+        }
+        if self.len == 0 && self.dropped == 0 {
+            return None;
+        }
+        let ev = Event::Damaged {
+            offset: self.start,
+            len: self.dropped + self.len as u64,
+            error: CodecError::Truncated,
+        };
+        self.reset_piece();
+        Some(ev)
+    }
+
+    fn push(&mut self, bytes: &[u8]) {
+        self.pos += bytes.len() as u64;
+        if self.dropped == 0 && self.len + bytes.len() <= N {
+            if let Some(dst) = self.buf.get_mut(self.len..self.len + bytes.len()) {
+                dst.copy_from_slice(bytes);
+                self.len += bytes.len();
+                return;
+            }
+        }
+        // Longer than N: keep the last N bytes in a ring.
+        for &b in bytes {
+            if self.len < N {
+                if let Some(slot) = self.buf.get_mut(self.len) {
+                    *slot = b;
+                }
+                self.len += 1;
+                self.ring = self.len % N.max(1);
+            } else {
+                if let Some(slot) = self.buf.get_mut(self.ring) {
+                    *slot = b;
+                }
+                self.ring = (self.ring + 1) % N.max(1);
+                self.dropped += 1;
+            }
+        }
+    }
+
+    fn reset_piece(&mut self) {
+        self.len = 0;
+        self.ring = 0;
+        self.dropped = 0;
+        self.start = self.pos;
+    }
+
+    /// A delimiter (`delim` bytes, already counted in `pos`) ended the piece.
+    fn end_piece(&mut self, delim: u64) -> Option<Event> {
+        let offset = self.start;
+        let total = self.dropped + self.len as u64 + delim;
+        if self.len == 0 && self.dropped == 0 {
+            self.reset_piece();
+            return if self.after_damage {
+                Some(Event::Damaged { offset, len: delim, error: CodecError::TooShort })
+            } else {
+                None
+            };
+        }
+        if self.dropped > 0 {
+            // Put the ring in order: oldest kept byte first.
+            self.buf.rotate_left(self.ring);
+        }
+        let len = self.len;
+        let whole = if self.dropped > 0 {
+            Err(CodecError::FrameTooLong)
+        } else {
+            self.try_decode(0, len)
+        };
+        let ev = match whole {
+            Ok(d) => Some(Event::Frame { offset, seq: d.seq, frame: d.frame }),
+            Err(error) => {
+                // An intact frame may sit at the end of the piece.
+                let mut found = None;
+                for s in 1..len.saturating_sub(MIN_PAYLOAD) {
+                    if let Ok(d) = self.try_decode(s, len) {
+                        found = Some((s, d));
+                        break;
+                    }
+                }
+                match found {
+                    Some((s, d)) => {
+                        let skipped = self.dropped + s as u64;
+                        self.pending = Some(Event::Frame {
+                            offset: offset + skipped,
+                            seq: d.seq,
+                            frame: d.frame,
+                        });
+                        Some(Event::Damaged { offset, len: skipped, error })
+                    }
+                    None => Some(Event::Damaged { offset, len: total, error }),
+                }
+            }
+        };
+        self.after_damage = matches!(ev, Some(Event::Damaged { .. })) && self.pending.is_none();
+        self.reset_piece();
+        ev
+    }
+
+    fn try_decode(&mut self, from: usize, to: usize) -> Result<Decoded, CodecError> {
+        let src = self.buf.get(from..to).ok_or(CodecError::Cobs)?;
+        if src.len() < MIN_PAYLOAD + 1 {
+            return Err(CodecError::TooShort);
+        }
+        if src.len() > MAX_FRAME - 1 {
+            return Err(CodecError::FrameTooLong);
+        }
+        if !cobs_valid(src) {
+            return Err(CodecError::Cobs);
+        }
+        let n = cobs_decode(src, &mut self.scratch)?;
+        decode_payload(self.scratch.get(..n).ok_or(CodecError::Cobs)?)
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::unwrap_used, clippy::indexing_slicing)]
+mod tests {
+    use super::*;
+
+    fn rec(t: u64) -> LogRecord {
+        LogRecord { t_ms: t, tx_dbm: Some(10.0), rssi_dbm: Some(-90.25), noise_dbm: None }
+    }
+
+    #[test]
+    fn cobs_known_vectors() {
+        // COBS examples (Cheshire and Baker 1999 scheme), from memory.
+        let cases: [(&[u8], &[u8]); 4] = [
+            (&[0x00], &[0x01, 0x01]),
+            (&[0x00, 0x00], &[0x01, 0x01, 0x01]),
+            (&[0x11, 0x22, 0x00, 0x33], &[0x03, 0x11, 0x22, 0x02, 0x33]),
+            (&[0x11, 0x00, 0x00, 0x00], &[0x02, 0x11, 0x01, 0x01, 0x01]),
+        ];
+        for (raw, enc) in cases {
+            let mut out = [0u8; 16];
+            let n = cobs_encode(raw, &mut out).unwrap();
+            assert_eq!(&out[..n], enc);
+            let mut back = [0u8; 16];
+            let m = cobs_decode(enc, &mut back).unwrap();
+            assert_eq!(&back[..m], raw);
+            let mut inplace = [0u8; 16];
+            inplace[..enc.len()].copy_from_slice(enc);
+            let m = cobs_decode_in_place(&mut inplace[..enc.len()]).unwrap();
+            assert_eq!(&inplace[..m], raw);
+        }
+    }
+
+    #[test]
+    fn round_trip_each_kind() {
+        let mut buf = [0u8; MAX_FRAME];
+        let h = LogHeader {
+            device_id: 0x1234_5678_9abc,
+            epoch_ms: 1_790_000_000_000,
+            min_tx: Some(Dbm(-4.0)),
+            max_tx: Some(Dbm(14.0)),
+            tx_step: Some(Db(1.0)),
+            antenna_gain: Some(Dbi(2.15)),
+        };
+        for (seq, f) in [
+            (0u16, Frame::Header { header: h, version: VERSION }),
+            (1, Frame::Record(rec(7))),
+            (65535, Frame::Decision(DecisionRecord { t_ms: 9, tx_dbm: 3.5, outcome: 2, reason: 7 })),
+        ] {
+            let n = encode_frame(seq, &f, &mut buf).unwrap().len();
+            assert_eq!(buf[n - 1], 0);
+            assert!(!buf[..n - 1].contains(&0));
+            let d = decode_frame(&mut buf[..n - 1]).unwrap();
+            assert_eq!(d, Decoded { seq, frame: f });
+        }
+    }
+
+    #[test]
+    fn small_buffer_is_an_error() {
+        let mut buf = [0u8; 8];
+        assert_eq!(encode_record(1, &rec(1), &mut buf), Err(CodecError::BufferTooSmall));
+    }
+
+    #[test]
+    fn crc_catches_a_flip() {
+        let mut buf = [0u8; MAX_FRAME];
+        let n = encode_record(3, &rec(1000), &mut buf).unwrap().len();
+        buf[5] ^= 0x10;
+        if buf[5] == 0 {
+            buf[5] = 0x10;
+        }
+        assert!(decode_frame(&mut buf[..n - 1]).is_err());
+    }
+
+    #[test]
+    fn streaming_resumes_after_garbage() {
+        let mut log = [0u8; 200];
+        let mut len = 0;
+        let mut enc = Encoder::new();
+        let mut buf = [0u8; MAX_FRAME];
+        for t in 0..2 {
+            let f = enc.record(&rec(t), &mut buf).unwrap();
+            log[len..len + f.len()].copy_from_slice(f);
+            len += f.len();
+        }
+        let first = len / 2;
+        // Glue garbage without a delimiter in front of the second frame.
+        let mut s = [0u8; 220];
+        s[..first].copy_from_slice(&log[..first]);
+        s[first..first + 5].copy_from_slice(&[9, 9, 9, 9, 9]);
+        s[first + 5..len + 5].copy_from_slice(&log[first..len]);
+        let mut dec: FrameDecoder = FrameDecoder::new();
+        let mut input = &s[..len + 5];
+        let mut events = [None; 4];
+        let mut k = 0;
+        while let Some(ev) = dec.feed(&mut input) {
+            events[k] = Some(ev);
+            k += 1;
+        }
+        assert_eq!(k, 3);
+        assert!(matches!(events[0], Some(Event::Frame { offset: 0, seq: 0, .. })));
+        assert!(matches!(events[1], Some(Event::Damaged { offset, len: 5, .. }) if offset == first as u64));
+        assert!(matches!(events[2], Some(Event::Frame { seq: 1, .. })));
+    }
+}

@@ -1,1 +1,0 @@
-//! Seeded, deterministic channel simulation (being written).

@@ -1,0 +1,153 @@
+//! Cost of the controller on this core: instructions per update (and per
+//! replay step and per decision frame), measured with SysTick. Run under
+//! `qemu-system-arm -icount shift=0` (one instruction per ns of virtual
+//! time), where the counts are exact and repeat run after run; elsewhere
+//! they are meaningless. Prints `key=value` lines for `cargo xtask`.
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::hprintln;
+
+use headroom::control::{Controller, Observation, Replay};
+use headroom::record::codec::{encode_decision, MAX_FRAME};
+use headroom::record::{DecisionRecord, LogRecord};
+use headroom_firmware_demo::clock::{ticks_between, ticks_to_milli_instructions, Clock};
+use headroom_firmware_demo::radio::{Radio, SimRadio};
+use headroom_firmware_demo::{board, host, scenario};
+
+/// Readings in the controller's window (the size the targets are set for).
+const WINDOW: usize = 32;
+
+/// Observations timed per pass (small enough for the microbit's 16 KiB RAM).
+const N: usize = 128;
+
+#[entry]
+fn main() -> ! {
+    let ok = run();
+    host::exit(ok)
+}
+
+/// Instructions (×1000) per item for a span of `ticks` over `n` items,
+/// less `overhead_ticks` of the same loop with an empty body.
+fn per_item(ticks: u32, overhead_ticks: u32, n: usize) -> u64 {
+    ticks_to_milli_instructions(u64::from(ticks.saturating_sub(overhead_ticks))) / n as u64
+}
+
+fn run() -> bool {
+    let Some(p) = cortex_m::Peripherals::take() else {
+        host::eprint("peripherals already taken\n");
+        return false;
+    };
+    let clock = Clock::new(p.SYST);
+
+    // 1. A closed loop over the simulated link records what the controller
+    //    is fed; a fresh controller fed the same sequence makes the same
+    //    decisions, so the timed passes below see the real mix of warm-up,
+    //    tracking, losses and climbs.
+    let Ok(mut radio) = SimRadio::new(scenario::channel(), scenario::SEED, scenario::RADIO) else {
+        host::eprint("channel refused\n");
+        return false;
+    };
+    let cfg = scenario::controller_config(&radio.capabilities());
+    let Ok(mut ctrl) = Controller::<WINDOW>::new(cfg) else {
+        host::eprint("controller settings refused\n");
+        return false;
+    };
+    let mut obs = [Observation::Missing { t_ms: 0 }; N];
+    let mut recs = [LogRecord::default(); N];
+    for (o, r) in obs.iter_mut().zip(recs.iter_mut()) {
+        if radio.set_tx_power(ctrl.tx()).is_err() || radio.send(&[]).is_err() {
+            host::eprint("radio refused\n");
+            return false;
+        }
+        let Ok(f) = radio.feedback() else {
+            host::eprint("no feedback\n");
+            return false;
+        };
+        *o = f;
+        if let Some(s) = radio.last_sample() {
+            *r = s.record();
+        }
+        ctrl.update(&f);
+    }
+
+    // 2. Loop overhead: the same loop with nothing in it.
+    let t0 = clock.now();
+    for o in obs.iter() {
+        black_box(o);
+    }
+    let overhead = ticks_between(t0, clock.now());
+
+    // 3. All N updates in one span: the mean, to a fraction of an instruction.
+    let Ok(mut ctrl) = Controller::<WINDOW>::new(cfg) else {
+        return false;
+    };
+    let t0 = clock.now();
+    for o in obs.iter() {
+        black_box(ctrl.update(black_box(o)));
+    }
+    let batch = ticks_between(t0, clock.now());
+
+    // 4. Each update in its own span: the largest, to one SysTick tick.
+    let Ok(mut ctrl) = Controller::<WINDOW>::new(cfg) else {
+        return false;
+    };
+    let mut empty_max = 0u32;
+    for _ in 0..8 {
+        let t = clock.now();
+        let u = clock.now();
+        empty_max = empty_max.max(ticks_between(t, u));
+    }
+    let mut max_ticks = 0u32;
+    for o in obs.iter() {
+        let t = clock.now();
+        black_box(ctrl.update(black_box(o)));
+        let u = clock.now();
+        max_ticks = max_ticks.max(ticks_between(t, u));
+    }
+
+    // 5. One replay step per logged record (the replay on target).
+    let Ok(mut replay) = Replay::<WINDOW>::new(cfg) else {
+        return false;
+    };
+    let t0 = clock.now();
+    for r in recs.iter() {
+        black_box(replay.step(black_box(r)));
+    }
+    let replay_ticks = ticks_between(t0, clock.now());
+
+    // 6. Encoding one decision frame.
+    let mut buf = [0u8; MAX_FRAME];
+    let t0 = clock.now();
+    let mut frames_ok = true;
+    for (i, r) in recs.iter().enumerate() {
+        let d = DecisionRecord { t_ms: r.t_ms, tx_dbm: -3.0, outcome: 0, reason: 1 };
+        frames_ok &= black_box(encode_decision(i as u16, black_box(&d), &mut buf)).is_ok();
+    }
+    let encode_ticks = ticks_between(t0, clock.now());
+    if !frames_ok {
+        host::eprint("decision frame did not encode\n");
+        return false;
+    }
+
+    let milli = 1_000_000_000_000u64 / u64::from(board::SYSTICK_HZ);
+    hprintln!("board={}", board::BOARD);
+    hprintln!("core={}", board::CORE);
+    hprintln!("window={}", WINDOW);
+    hprintln!("updates_timed={}", N);
+    hprintln!("controller_state_bytes={}", core::mem::size_of::<Controller<WINDOW>>());
+    hprintln!("replay_state_bytes={}", core::mem::size_of::<Replay<WINDOW>>());
+    hprintln!("milli_instructions_per_tick={}", milli);
+    hprintln!("update_mean_milli_instructions={}", per_item(batch, overhead, N));
+    hprintln!("update_max_ticks={}", max_ticks.saturating_sub(empty_max));
+    hprintln!(
+        "update_max_instructions_upper={}",
+        ticks_to_milli_instructions(u64::from(max_ticks.saturating_sub(empty_max) + 1)) / 1000
+    );
+    hprintln!("replay_step_mean_milli_instructions={}", per_item(replay_ticks, overhead, N));
+    hprintln!("encode_decision_mean_milli_instructions={}", per_item(encode_ticks, overhead, N));
+    true
+}

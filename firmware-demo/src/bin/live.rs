@@ -1,0 +1,134 @@
+//! Live demo: a packet loop over the simulated orchard link. Before each
+//! packet the engine's controller chooses the power; every decision is
+//! logged with defmt (decode with `defmt-print -e ELF`), and a summary ends
+//! the run.
+#![no_std]
+#![no_main]
+
+use cortex_m_rt::entry;
+use defmt_semihosting as _;
+use embedded_hal::delay::DelayNs;
+
+use headroom::control::{Controller, Observation, Outcome, ReplayStep, Summary};
+use headroom_firmware_demo::clock::{Clock, Delay};
+use headroom_firmware_demo::radio::{Radio, SimRadio};
+use headroom_firmware_demo::{board, host, scenario};
+
+/// Readings in the controller's window.
+const WINDOW: usize = 32;
+
+/// Real time between packets in the demo, ms (the simulated link's own
+/// time base runs at its packet interval; this only paces the loop).
+const PACKET_GAP_MS: u32 = 1;
+
+#[entry]
+fn main() -> ! {
+    let ok = run();
+    host::exit(ok)
+}
+
+fn run() -> bool {
+    let Some(p) = cortex_m::Peripherals::take() else {
+        defmt::error!("peripherals already taken");
+        return false;
+    };
+    let clock = Clock::new(p.SYST);
+    let mut delay = Delay::new(&clock);
+
+    let mut radio = match SimRadio::new(scenario::channel(), scenario::SEED, scenario::RADIO) {
+        Ok(r) => r,
+        Err(e) => {
+            defmt::error!("channel refused: {}", e);
+            return false;
+        }
+    };
+    let caps = radio.capabilities();
+    let mut ctrl = match Controller::<WINDOW>::new(scenario::controller_config(&caps)) {
+        Ok(c) => c,
+        Err(e) => {
+            defmt::error!("controller settings refused: {}", e);
+            return false;
+        }
+    };
+    let (bottom, top) = ctrl.limits();
+    defmt::info!(
+        "live demo on {=str}: {=u32} packets, levels {=f32}..{=f32} dBm, window {=usize}",
+        board::BOARD,
+        scenario::PACKETS,
+        bottom.0,
+        top.0,
+        WINDOW
+    );
+
+    // The engine's replay totals count packets, losses and power the same
+    // way for the live loop as for a replayed log.
+    let mut summary = Summary::new(top);
+    for k in 0..scenario::PACKETS {
+        let chosen = ctrl.tx();
+        if let Err(e) = radio.set_tx_power(chosen) {
+            defmt::error!("packet {=u32}: radio refused {=f32} dBm: {}", k, chosen.0, e);
+            return false;
+        }
+        if let Err(e) = radio.send(&k.to_le_bytes()) {
+            defmt::error!("packet {=u32}: send failed: {}", k, e);
+            return false;
+        }
+        delay.delay_ms(PACKET_GAP_MS);
+        let obs = match radio.feedback() {
+            Ok(o) => o,
+            Err(e) => {
+                defmt::error!("packet {=u32}: no feedback: {}", k, e);
+                return false;
+            }
+        };
+        let d = ctrl.update(&obs);
+        let (outcome, snr) = match obs {
+            Observation::Feedback { rssi, noise, snr, .. } => {
+                (Outcome::Delivered, Some(snr.unwrap_or(rssi - noise)))
+            }
+            Observation::Acked { .. } => (Outcome::Delivered, None),
+            Observation::Lost { .. } => (Outcome::Lost, None),
+            Observation::Beacon { .. } | Observation::Missing { .. } => (Outcome::Unjudged, None),
+        };
+        summary.add(&ReplayStep {
+            t_ms: obs.t_ms(),
+            chosen,
+            replayed_snr: snr,
+            outcome,
+            path_loss_estimate: d.path_loss,
+            margin: d.margin,
+            reason: d.reason,
+            next_tx: d.tx,
+        });
+        defmt::info!(
+            "pkt {=u32} t={=u64}ms tx={=f32}dBm {} snr={} -> {=f32}dBm {} margin={=f32}dB",
+            k,
+            obs.t_ms(),
+            chosen.0,
+            outcome,
+            snr.map(|s| s.0),
+            d.tx.0,
+            d.reason,
+            d.margin.0
+        );
+    }
+
+    let loss = summary.outage_fraction().unwrap_or(0.0);
+    let mean = summary.mean_tx_dbm().map_or(f32::NAN, |m| m.0);
+    let saved_db = summary.energy_saving_db().map_or(0.0, |s| s.0);
+    // Fraction of the always-at-maximum radiated energy that was not spent.
+    let saved_fraction = 1.0 - libm::exp10f(-saved_db / 10.0);
+    defmt::info!(
+        "summary: {=u64} packets, {=u64} lost ({=f32} %), mean power {=f32} dBm, \
+         always-max {=f32} dBm, energy saved {=f32} dB ({=f32} % of always-max), {=u64} power changes",
+        summary.records,
+        summary.lost,
+        loss * 100.0,
+        mean,
+        top.0,
+        saved_db,
+        saved_fraction * 100.0,
+        summary.power_changes
+    );
+    true
+}

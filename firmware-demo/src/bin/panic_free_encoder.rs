@@ -1,0 +1,43 @@
+//! Panic-freedom, part 2: the frame encoder (records, decisions, header).
+//!
+//! Built with `--features panic-free-check` this links only if no panic
+//! path is left after optimisation (see the crate's panic handler). Without
+//! the feature it runs and exits 0.
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+
+use cortex_m_rt::entry;
+
+use headroom::record::codec::{encode_decision, encode_header, encode_record, MAX_FRAME};
+use headroom::record::{DecisionRecord, LogHeader, LogRecord};
+use headroom_firmware_demo::{host, probe_f32};
+
+#[entry]
+fn main() -> ! {
+    host::exit(run())
+}
+
+fn run() -> bool {
+    let mut buf = [0u8; MAX_FRAME];
+    let mut ok = encode_header(black_box(&LogHeader::default()), &mut buf).is_ok();
+    for k in 0..black_box(256u32) {
+        let t_ms = black_box(u64::from(k).wrapping_mul(0x0123_4567_89ab));
+        let rec = LogRecord {
+            t_ms,
+            tx_dbm: Some(probe_f32(k, 1)),
+            rssi_dbm: if k % 3 == 0 { None } else { Some(probe_f32(k, 2)) },
+            noise_dbm: Some(probe_f32(k, 3)),
+        };
+        let seq = black_box(k as u16);
+        ok &= black_box(encode_record(seq, black_box(&rec), &mut buf)).is_ok();
+        let d = DecisionRecord { t_ms, tx_dbm: probe_f32(k, 4), outcome: k as u8, reason: (k >> 8) as u8 };
+        ok &= black_box(encode_decision(seq, black_box(&d), &mut buf)).is_ok();
+        // A buffer too small must be an error, not a panic.
+        let small = black_box((k as usize) % 8);
+        let mut tiny = [0u8; 8];
+        black_box(encode_decision(seq, &d, tiny.get_mut(..small).unwrap_or(&mut [])).is_err());
+    }
+    ok
+}

@@ -1,0 +1,173 @@
+//! Replay on target: reads a framed binary field log from the host
+//! (semihosting), runs it through the engine's replay semantics
+//! ([`headroom::control::Replay`], the same code as `headroom replay`) with
+//! the same controller settings, and writes one decision frame per record
+//! to a host file. `cargo xtask firmware` compares those frames with the
+//! host's `headroom replay` output, record by record.
+//!
+//! Usage (under QEMU): `-append "LOG.hrlog DECISIONS.hrlog"`; prints a
+//! one-line summary and exits 0, or prints why it failed and exits 1.
+#![no_std]
+#![no_main]
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::hprintln;
+
+use headroom::control::{ControllerConfig, Replay};
+use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
+use headroom::record::{DecisionRecord, LogHeader};
+use headroom_firmware_demo::host::{self, File, HostError, Mode};
+
+/// Readings in the controller's window: the same as the host's replay.
+const WINDOW: usize = 32;
+
+/// Bytes read from the host per call.
+const READ_CHUNK: usize = 256;
+
+/// Output bytes gathered before one host write.
+const WRITE_BUFFER: usize = 512;
+
+#[entry]
+fn main() -> ! {
+    let ok = match run() {
+        Ok(()) => true,
+        Err(e) => {
+            hprintln!("replay: {}", e);
+            false
+        }
+    };
+    host::exit(ok)
+}
+
+/// Why the replay stopped.
+enum Failure {
+    Usage,
+    Host(HostError),
+    Config,
+    Encode(CodecError),
+}
+
+impl core::fmt::Display for Failure {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            Failure::Usage => f.write_str("usage: replay LOG.hrlog DECISIONS.hrlog"),
+            Failure::Host(e) => f.write_str(e.as_str()),
+            Failure::Config => f.write_str("controller settings refused"),
+            Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
+        }
+    }
+}
+
+impl From<HostError> for Failure {
+    fn from(e: HostError) -> Self {
+        Failure::Host(e)
+    }
+}
+
+impl From<CodecError> for Failure {
+    fn from(e: CodecError) -> Self {
+        Failure::Encode(e)
+    }
+}
+
+/// Frames gathered into one buffer and written to the host in large pieces.
+struct Output {
+    file: File,
+    buf: [u8; WRITE_BUFFER],
+    len: usize,
+    bytes: u64,
+}
+
+impl Output {
+    fn push(&mut self, frame: &[u8]) -> Result<(), HostError> {
+        if self.len + frame.len() > self.buf.len() {
+            self.flush()?;
+        }
+        match self.buf.get_mut(self.len..self.len + frame.len()) {
+            Some(dst) => {
+                dst.copy_from_slice(frame);
+                self.len += frame.len();
+                Ok(())
+            }
+            // Larger than the whole buffer: write it directly.
+            None => self.file.write_all(frame),
+        }?;
+        self.bytes += frame.len() as u64;
+        Ok(())
+    }
+
+    fn flush(&mut self) -> Result<(), HostError> {
+        let data = self.buf.get(..self.len).unwrap_or(&[]);
+        self.file.write_all(data)?;
+        self.len = 0;
+        Ok(())
+    }
+}
+
+fn run() -> Result<(), Failure> {
+    let mut line = [0u8; 2 * host::MAX_PATH + 64];
+    let cmdline = host::command_line(&mut line)?;
+    let (Some(input), Some(output)) = (host::arg(cmdline, 0), host::arg(cmdline, 1)) else {
+        return Err(Failure::Usage);
+    };
+
+    let mut log = File::open(input, Mode::ReadBinary)?;
+    let log_len = log.len()?;
+    let mut out = Output { file: File::open(output, Mode::WriteBinary)?, buf: [0; WRITE_BUFFER], len: 0, bytes: 0 };
+
+    let mut replay = Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node()).map_err(|_| Failure::Config)?;
+    let mut enc = Encoder::new();
+    let mut frame = [0u8; MAX_FRAME];
+    out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
+
+    let mut dec: FrameDecoder = FrameDecoder::new();
+    let mut chunk = [0u8; READ_CHUNK];
+    let mut damaged = 0u64;
+    let mut other = 0u64;
+    let mut handle = |ev: Event, out: &mut Output, enc: &mut Encoder| -> Result<(), Failure> {
+        match ev {
+            Event::Frame { frame: Frame::Record(rec), .. } => {
+                let s = replay.step(&rec);
+                let d = DecisionRecord {
+                    t_ms: s.t_ms,
+                    tx_dbm: s.chosen.0,
+                    outcome: s.outcome.code(),
+                    reason: s.reason.code(),
+                };
+                out.push(enc.decision(&d, &mut frame)?)?;
+            }
+            Event::Frame { frame: Frame::Header { .. }, .. } => {}
+            Event::Frame { .. } => other += 1,
+            Event::Damaged { .. } => damaged += 1,
+        }
+        Ok(())
+    };
+    loop {
+        let n = log.read(&mut chunk)?;
+        if n == 0 {
+            break;
+        }
+        let mut input: &[u8] = chunk.get(..n).unwrap_or(&[]);
+        while let Some(ev) = dec.feed(&mut input) {
+            handle(ev, &mut out, &mut enc)?;
+        }
+    }
+    if let Some(ev) = dec.finish() {
+        handle(ev, &mut out, &mut enc)?;
+    }
+    out.flush()?;
+
+    let s = replay.summary();
+    hprintln!(
+        "replay: {} bytes in, {} records, {} lost of {} judged, {} unjudged, {} damaged, {} other frames, {} bytes out",
+        log_len,
+        s.records,
+        s.lost,
+        s.judged,
+        s.unjudged,
+        damaged,
+        other,
+        out.bytes
+    );
+    Ok(())
+}

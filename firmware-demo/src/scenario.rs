@@ -1,0 +1,79 @@
+//! The demo's invented link and radio: a soil-moisture node on a cart that
+//! goes up and down the rows of an orchard, 150 to 700 m from its
+//! gateway, at 868 MHz. All numbers are made up for the demo; they are
+//! plausible for a sub-GHz node, not any product's data.
+
+use headroom::control::{ControllerConfig, PowerSteps};
+use headroom::propagation::PathLossModel;
+use headroom::sim::{ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory};
+use headroom::units::{Db, Dbi, Dbm, Hertz, Metres};
+
+use crate::radio::PowerCapabilities;
+
+/// Seed of the demo's channel: the same seed gives the same run on every
+/// target and on the host.
+pub const SEED: u64 = 0x6f72_6368_6172_6431;
+
+/// Packets the live demo sends.
+pub const PACKETS: u32 = 600;
+
+/// The node's radio: −9 to +22 dBm in 1 dB steps.
+pub const RADIO: PowerCapabilities = PowerCapabilities {
+    min: Dbm(-9.0),
+    max: Dbm(22.0),
+    steps: PowerSteps::Uniform(Db(1.0)),
+};
+
+/// Gain of the gateway's antenna (a collinear on the barn roof).
+pub const GATEWAY_ANTENNA: Dbi = Dbi(5.0);
+
+/// The controller: the engine's sub-GHz node settings with this radio's
+/// range and steps and the gateway's antenna.
+pub fn controller_config(radio: &PowerCapabilities) -> ControllerConfig {
+    let mut cfg = ControllerConfig::sub_ghz_node();
+    cfg.min_tx_dbm = radio.min;
+    cfg.max_tx_dbm = radio.max;
+    cfg.steps = radio.steps;
+    cfg.far_antenna_gain_dbi = GATEWAY_ANTENNA;
+    cfg
+}
+
+/// The orchard link.
+pub fn channel() -> ChannelConfig {
+    let mut steps = heapless::Vec::new();
+    // A loaded trailer parks between cart and gateway for a while.
+    let _ = steps.push(PathLossStep { at_packet: 300, change: Db(10.0) });
+    let _ = steps.push(PathLossStep { at_packet: 360, change: Db(-10.0) });
+    ChannelConfig {
+        frequency: Hertz(868.0e6),
+        // Free space to 1 m, then exponent 3.2 through the trees.
+        path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: None, exponent: 3.2 },
+        tx_antenna_gain: Dbi(2.15),
+        rx_antenna_gain: GATEWAY_ANTENNA,
+        trajectory: Trajectory {
+            start: Metres(300.0),
+            speed_m_per_s: 1.5,
+            min: Some(Metres(150.0)),
+            max: Some(Metres(700.0)),
+        },
+        packet_interval_ms: 2_000,
+        start_ms: 0,
+        shadowing: Some(Shadowing {
+            sigma: Db(3.0),
+            decorrelation_distance: Metres(40.0),
+            time_constant_s: None,
+        }),
+        fading: FastFading::Rician { k_db: 9.0 },
+        fading_correlation: 0.3,
+        noise: NoiseFloor {
+            mean: Dbm(-117.0),
+            jitter: Db(0.5),
+            bursts: Some(Episodes { rate_per_hour: 4.0, mean_duration_s: 30.0 }),
+            burst_rise: Db(8.0),
+        },
+        min_snr: Some(Db(8.0)),
+        feedback_dropouts: Some(Episodes { rate_per_hour: 3.0, mean_duration_s: 10.0 }),
+        report_resolution: Some(Db(1.0)),
+        steps,
+    }
+}

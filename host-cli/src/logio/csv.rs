@@ -1,0 +1,487 @@
+//! CSV logs: a streaming reader over `csv::ByteRecord` (no allocation per
+//! row) and a writer.
+
+use std::fmt;
+use std::fs::File;
+use std::io::{self, BufRead, BufReader, Read, Write};
+
+use headroom::units::{Db, Dbi, Dbm};
+
+use super::{LogHeader, LogRecord, MAX_LINE, MAX_PREAMBLE};
+use crate::error::{CliError, CliResult};
+
+/// First word of the comment block that carries a [`LogHeader`].
+const MAGIC: &str = "headroom-log";
+/// Version written after [`MAGIC`]; the CSV layout follows the binary
+/// format's version numbers.
+const VERSION: &str = "1.0";
+/// Column names, in the order the writer puts them.
+const COLUMNS: [&str; 4] = ["t_ms", "tx_dbm", "rssi_dbm", "noise_dbm"];
+
+/// A line over [`MAX_LINE`] bytes, found while reading.
+#[derive(Debug)]
+struct LineTooLong {
+    line: u64,
+}
+
+impl fmt::Display for LineTooLong {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}: line is longer than {MAX_LINE} bytes", self.line)
+    }
+}
+
+impl std::error::Error for LineTooLong {}
+
+/// Fails the read once a line grows past [`MAX_LINE`], so a file without
+/// newlines cannot make the CSV parser buffer it whole.
+struct LineLimit<R> {
+    inner: R,
+    /// Bytes since the last newline.
+    run: usize,
+    /// Lines finished so far, including those read before the CSV parser.
+    lines: u64,
+}
+
+impl<R: Read> Read for LineLimit<R> {
+    fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        let chunk = buf.get(..n).unwrap_or(&[]);
+        let mut start = 0usize;
+        for (i, &b) in chunk.iter().enumerate() {
+            if b == b'\n' {
+                if self.run + (i - start) > MAX_LINE {
+                    return Err(too_long(self.lines + 1));
+                }
+                self.lines += 1;
+                self.run = 0;
+                start = i + 1;
+            }
+        }
+        self.run += n - start;
+        if self.run > MAX_LINE {
+            return Err(too_long(self.lines + 1));
+        }
+        Ok(n)
+    }
+}
+
+fn too_long(line: u64) -> io::Error {
+    io::Error::new(io::ErrorKind::InvalidData, LineTooLong { line })
+}
+
+/// Column positions of the fields in a row.
+#[derive(Clone, Copy)]
+struct Columns {
+    t: usize,
+    tx: Option<usize>,
+    rssi: Option<usize>,
+    noise: Option<usize>,
+}
+
+pub(super) struct CsvReader {
+    name: String,
+    rdr: ::csv::Reader<LineLimit<BufReader<File>>>,
+    rec: ::csv::ByteRecord,
+    cols: Columns,
+    /// Lines read before the CSV parser started (the comment block).
+    line_base: u64,
+    header: Option<LogHeader>,
+    done: bool,
+}
+
+impl CsvReader {
+    pub(super) fn new(name: String, file: File) -> CliResult<Self> {
+        let mut input = BufReader::with_capacity(64 * 1024, file);
+        let (header, line_base) = read_preamble(&name, &mut input)?;
+        let limited = LineLimit { inner: input, run: 0, lines: line_base };
+        let mut rdr = ::csv::ReaderBuilder::new()
+            .has_headers(true)
+            .flexible(false)
+            .quoting(false)
+            .comment(Some(b'#'))
+            .buffer_capacity(64 * 1024)
+            .from_reader(limited);
+        let names = match rdr.byte_headers() {
+            Ok(h) => h.clone(),
+            Err(e) => return Err(csv_error(&name, line_base, e).0),
+        };
+        if names.is_empty() || (names.len() == 1 && names.get(0) == Some(b"")) {
+            return Err(CliError::Input(format!("{name}: no header row (expected columns {})", COLUMNS.join(","))));
+        }
+        let header_line = names.position().map_or(line_base + 1, |p| p.line() + line_base);
+        let cols = find_columns(&name, header_line, &names)?;
+        Ok(CsvReader {
+            name,
+            rdr,
+            rec: ::csv::ByteRecord::new(),
+            cols,
+            line_base,
+            header,
+            done: false,
+        })
+    }
+
+    pub(super) fn header(&self) -> Option<&LogHeader> {
+        self.header.as_ref()
+    }
+
+    pub(super) fn next(&mut self) -> Option<CliResult<LogRecord>> {
+        if self.done {
+            return None;
+        }
+        match self.rdr.read_byte_record(&mut self.rec) {
+            Ok(false) => {
+                self.done = true;
+                None
+            }
+            Ok(true) => Some(self.parse_row()),
+            Err(e) => {
+                let (err, fatal) = csv_error(&self.name, self.line_base, e);
+                self.done = fatal;
+                Some(Err(err))
+            }
+        }
+    }
+
+    fn parse_row(&self) -> CliResult<LogRecord> {
+        let rec = &self.rec;
+        let cols = self.cols;
+        let line = rec.position().map_or(0, |p| p.line()) + self.line_base;
+        let bad = |col: &str, why: String| CliError::Input(format!("{}:{line}: column {col}: {why}", self.name));
+        let t_cell = unquote(rec.get(cols.t).unwrap_or(b""));
+        if t_cell.is_empty() {
+            return Err(bad("t_ms", "empty (every row needs a time)".into()));
+        }
+        let t_ms = parse_u64(t_cell).ok_or_else(|| {
+            bad("t_ms", format!("'{}' is not a whole number of milliseconds", show(t_cell)))
+        })?;
+        let float = |idx: Option<usize>, col: &str| -> CliResult<Option<f32>> {
+            let Some(i) = idx else { return Ok(None) };
+            let cell = unquote(rec.get(i).unwrap_or(b""));
+            if cell.is_empty() {
+                return Ok(None);
+            }
+            parse_f32(cell)
+                .map(Some)
+                .ok_or_else(|| bad(col, format!("'{}' is not a number", show(cell))))
+        };
+        Ok(LogRecord {
+            t_ms,
+            tx_dbm: float(cols.tx, "tx_dbm")?,
+            rssi_dbm: float(cols.rssi, "rssi_dbm")?,
+            noise_dbm: float(cols.noise, "noise_dbm")?,
+        })
+    }
+}
+
+/// A CSV parser error as a CLI error, and whether the stream must end.
+fn csv_error(name: &str, line_base: u64, e: ::csv::Error) -> (CliError, bool) {
+    match e.kind() {
+        ::csv::ErrorKind::UnequalLengths { pos, expected_len, len } => {
+            let line = pos.as_ref().map_or(0, |p| p.line()) + line_base;
+            (
+                CliError::Input(format!(
+                    "{name}:{line}: row has {len} cell{}, the header row has {expected_len}",
+                    if *len == 1 { "" } else { "s" }
+                )),
+                false,
+            )
+        }
+        ::csv::ErrorKind::Io(io) => {
+            if let Some(long) = io.get_ref().and_then(|x| x.downcast_ref::<LineTooLong>()) {
+                (CliError::Input(format!("{name}:{long}")), true)
+            } else {
+                (CliError::Io(format!("{name}: cannot read: {io}")), true)
+            }
+        }
+        _ => (CliError::Input(format!("{name}: {e}")), true),
+    }
+}
+
+/// Read the `#` comment lines before the header row; parse a header block.
+fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<LogHeader>, u64)> {
+    let mut header: Option<LogHeader> = None;
+    let mut lines = 0u64;
+    let mut total = 0usize;
+    let mut line = Vec::with_capacity(128);
+    loop {
+        let first = match input.fill_buf() {
+            Ok(b) => b.first().copied(),
+            Err(e) => return Err(CliError::Io(format!("{name}: cannot read: {e}"))),
+        };
+        if first != Some(b'#') {
+            break;
+        }
+        line.clear();
+        let n = (&mut *input)
+            .take(MAX_LINE as u64 + 1)
+            .read_until(b'\n', &mut line)
+            .map_err(|e| CliError::Io(format!("{name}: cannot read: {e}")))?;
+        lines += 1;
+        total += n;
+        if line.len() > MAX_LINE {
+            return Err(CliError::Input(format!("{name}:{lines}: line is longer than {MAX_LINE} bytes")));
+        }
+        if total > MAX_PREAMBLE {
+            return Err(CliError::Input(format!(
+                "{name}:{lines}: comment block before the header row is longer than {MAX_PREAMBLE} bytes"
+            )));
+        }
+        let text = String::from_utf8_lossy(&line);
+        let text = text.trim_start_matches('#').trim();
+        if lines == 1 {
+            if let Some(rest) = text.strip_prefix(MAGIC) {
+                let version = rest.trim();
+                if let Some(major) = version.split('.').next().filter(|m| !m.is_empty()) {
+                    if major != "1" {
+                        return Err(CliError::Input(format!(
+                            "{name}:1: {MAGIC} version {version} is not supported (this build reads 1.x)"
+                        )));
+                    }
+                }
+                header = Some(LogHeader::default());
+            }
+            continue;
+        }
+        if let Some(h) = header.as_mut() {
+            parse_header_line(name, lines, text, h)?;
+        }
+    }
+    Ok((header, lines))
+}
+
+fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> CliResult {
+    let Some((key, value)) = text.split_once(':') else { return Ok(()) };
+    let (key, value) = (key.trim(), value.trim());
+    let bad = |what: &str| {
+        CliError::Input(format!("{name}:{line}: header {key}: '{value}' is not {what}"))
+    };
+    let float = || -> CliResult<Option<f32>> {
+        if value.is_empty() {
+            return Ok(None);
+        }
+        match value.parse::<f32>() {
+            Ok(v) if v.is_finite() => Ok(Some(v)),
+            _ => Err(bad("a finite number")),
+        }
+    };
+    let int = || value.parse::<u64>().map_err(|_| bad("a whole number"));
+    match key {
+        "device_id" => h.device_id = int()?,
+        "epoch_ms" => h.epoch_ms = int()?,
+        "min_tx_dbm" => h.min_tx = float()?.map(Dbm),
+        "max_tx_dbm" => h.max_tx = float()?.map(Dbm),
+        "tx_step_db" => h.tx_step = float()?.map(Db),
+        "antenna_gain_dbi" => h.antenna_gain = float()?.map(Dbi),
+        // Keys of newer versions are ignored.
+        _ => {}
+    }
+    Ok(())
+}
+
+fn find_columns(name: &str, line: u64, names: &::csv::ByteRecord) -> CliResult<Columns> {
+    let mut found: [Option<usize>; 4] = [None; 4];
+    for (i, cell) in names.iter().enumerate() {
+        let cell = unquote(cell);
+        for (k, col) in COLUMNS.iter().enumerate() {
+            if cell.eq_ignore_ascii_case(col.as_bytes()) {
+                if let Some(slot) = found.get_mut(k) {
+                    if slot.is_some() {
+                        return Err(CliError::Input(format!("{name}:{line}: column {col} appears twice")));
+                    }
+                    *slot = Some(i);
+                }
+            }
+        }
+    }
+    let [t, tx, rssi, noise] = found;
+    let Some(t) = t else {
+        let seen: Vec<String> = names.iter().map(|c| show(unquote(c))).collect();
+        return Err(CliError::Input(format!(
+            "{name}:{line}: missing required column t_ms (the header row has: {})",
+            seen.join(", ")
+        )));
+    };
+    Ok(Columns { t, tx, rssi, noise })
+}
+
+/// A cell without surrounding ASCII whitespace and one surrounding pair of
+/// double quotes. (Trimming here rather than in the CSV parser, whose
+/// trimming allocates a record per row.)
+fn unquote(cell: &[u8]) -> &[u8] {
+    let cell = cell.trim_ascii();
+    match cell {
+        [b'"', inner @ .., b'"'] => inner,
+        _ => cell,
+    }
+}
+
+/// A cell for an error message: text, at most 40 characters.
+fn show(cell: &[u8]) -> String {
+    let s = String::from_utf8_lossy(cell);
+    if s.chars().count() > 40 {
+        let cut: String = s.chars().take(40).collect();
+        format!("{cut}...")
+    } else {
+        s.into_owned()
+    }
+}
+
+/// A whole number of digits, no sign; `None` if not or if it overflows.
+pub(super) fn parse_u64(s: &[u8]) -> Option<u64> {
+    if s.is_empty() || s.len() > 20 {
+        return None;
+    }
+    let mut v: u64 = 0;
+    for &b in s {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            return None;
+        }
+        v = v.checked_mul(10)?.checked_add(u64::from(d))?;
+    }
+    Some(v)
+}
+
+/// Powers of ten that are exact in f32 (5^10 < 2^24).
+const POW10: [f32; 11] = [1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10];
+
+/// A decimal number (or `nan`, `inf`, `infinity` in any case, signed) as the
+/// nearest f32.
+///
+/// Fast path: a plain decimal with at most 24 significant bits of digits and
+/// at most 10 fraction digits is `m / 10^k` with both operands exact in f32,
+/// so the single IEEE division is correctly rounded (Clinger's fast path).
+/// Anything else goes to the standard library's correctly rounded parser.
+pub(super) fn parse_f32(s: &[u8]) -> Option<f32> {
+    let (neg, digits) = match s.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        Some((b'+', rest)) => (false, rest),
+        _ => (false, s),
+    };
+    let mut mant: u32 = 0;
+    let mut frac: usize = 0;
+    let mut dot = false;
+    let mut any = false;
+    let mut fast = !digits.is_empty();
+    for &b in digits {
+        let d = b.wrapping_sub(b'0');
+        if d <= 9 {
+            if mant > (1 << 24) / 10 {
+                fast = false;
+                break;
+            }
+            mant = mant * 10 + u32::from(d);
+            any = true;
+            if dot {
+                frac += 1;
+            }
+        } else if b == b'.' && !dot {
+            dot = true;
+        } else {
+            fast = false;
+            break;
+        }
+    }
+    if fast && any {
+        if let Some(&p) = POW10.get(frac) {
+            #[allow(clippy::cast_precision_loss)] // mant <= 2^24: exact
+            let v = mant as f32 / p;
+            return Some(if neg { -v } else { v });
+        }
+    }
+    std::str::from_utf8(s).ok()?.parse::<f32>().ok()
+}
+
+/// Writes records as CSV rows.
+pub(super) struct CsvEncoder {
+    line: Vec<u8>,
+}
+
+impl CsvEncoder {
+    pub(super) fn new() -> Self {
+        CsvEncoder { line: Vec::with_capacity(256) }
+    }
+
+    pub(super) fn start(&mut self, out: &mut dyn Write, header: Option<&LogHeader>) -> io::Result<()> {
+        if let Some(h) = header.filter(|h| **h != LogHeader::default()) {
+            writeln!(out, "# {MAGIC} {VERSION}")?;
+            writeln!(out, "# device_id: {}", h.device_id)?;
+            writeln!(out, "# epoch_ms: {}", h.epoch_ms)?;
+            if let Some(v) = h.min_tx {
+                writeln!(out, "# min_tx_dbm: {}", v.0)?;
+            }
+            if let Some(v) = h.max_tx {
+                writeln!(out, "# max_tx_dbm: {}", v.0)?;
+            }
+            if let Some(v) = h.tx_step {
+                writeln!(out, "# tx_step_db: {}", v.0)?;
+            }
+            if let Some(v) = h.antenna_gain {
+                writeln!(out, "# antenna_gain_dbi: {}", v.0)?;
+            }
+        }
+        writeln!(out, "{}", COLUMNS.join(","))
+    }
+
+    pub(super) fn write(&mut self, out: &mut dyn Write, r: &LogRecord) -> io::Result<()> {
+        let line = &mut self.line;
+        line.clear();
+        write!(line, "{}", r.t_ms)?;
+        for v in [r.tx_dbm, r.rssi_dbm, r.noise_dbm] {
+            line.push(b',');
+            if let Some(v) = v {
+                // Display prints the shortest digits that read back to the
+                // same f32 (`NaN`, `inf`, `-inf` for the others).
+                write!(line, "{v}")?;
+            }
+        }
+        line.push(b'\n');
+        out.write_all(line)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fast_path_matches_std() {
+        for s in [
+            "0", "-0", "1", "-87.5", "14.25", "0.1", "123456.7", "16777216", "16777217", "1.0000001",
+            "0.0000000001", "0.00000000001", "3.4028235e38", ".5", "5.", "-.25", "1e3", "nan",
+            "-inf", "Infinity", "NaN", "+7",
+        ] {
+            let ours = parse_f32(s.as_bytes());
+            let std = s.parse::<f32>().ok();
+            match (ours, std) {
+                (Some(a), Some(b)) if a.is_nan() && b.is_nan() => {}
+                (a, b) => assert_eq!(a.map(f32::to_bits), b.map(f32::to_bits), "{s}"),
+            }
+        }
+        for s in ["", "-", ".", "1.2.3", "abc", "1,5", "--1"] {
+            assert_eq!(parse_f32(s.as_bytes()), s.parse::<f32>().ok(), "{s}");
+        }
+    }
+
+    #[test]
+    fn fast_path_exhaustive_small_decimals() {
+        // Every value with up to 3 fraction digits in -200..200 against std.
+        for m in -200_000i32..=200_000 {
+            let s = format!("{}.{:03}", m / 1000, (m % 1000).abs());
+            let s = if m < 0 && m > -1000 { format!("-{s}") } else { s };
+            let ours = parse_f32(s.as_bytes()).map(f32::to_bits);
+            assert_eq!(ours, s.parse::<f32>().ok().map(f32::to_bits), "{s}");
+        }
+    }
+
+    #[test]
+    fn u64_cells() {
+        assert_eq!(parse_u64(b"0"), Some(0));
+        assert_eq!(parse_u64(b"18446744073709551615"), Some(u64::MAX));
+        assert_eq!(parse_u64(b"18446744073709551616"), None);
+        assert_eq!(parse_u64(b"-1"), None);
+        assert_eq!(parse_u64(b"1.5"), None);
+        assert_eq!(parse_u64(b""), None);
+    }
+}

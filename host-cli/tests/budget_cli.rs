@@ -1,0 +1,81 @@
+//! `headroom budget` and `headroom solve` as a user runs them.
+
+use std::path::PathBuf;
+use std::process::Command;
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_headroom"))
+}
+
+fn example(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples/links").join(name)
+}
+
+fn json(args: &[&str]) -> serde_json::Value {
+    let out = bin().args(args).args(["--format", "json"]).output().expect("runs");
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    serde_json::from_slice(&out.stdout).expect("one JSON object")
+}
+
+#[test]
+fn every_example_link_evaluates_with_the_fixed_keys() {
+    for f in ["orchard-sensor.toml", "smallsat-ground-station.toml", "workshop-mesh.toml"] {
+        let p = example(f);
+        let v = json(&["budget", p.to_str().expect("utf-8 path")]);
+        for key in ["eirp_dbm", "rx_power_dbm", "noise_power_dbm", "cn_db", "margin_db", "line_items"] {
+            assert!(v.get(key).is_some(), "{f}: no {key} in {v}");
+        }
+        let eirp = v["eirp_dbm"].as_f64().expect("number");
+        let rx = v["rx_power_dbm"].as_f64().expect("number");
+        assert!(rx < eirp, "{f}: received power above EIRP");
+    }
+}
+
+#[test]
+fn solve_closes_the_loop_through_the_budget() {
+    let p = example("orchard-sensor.toml");
+    let p = p.to_str().expect("utf-8 path");
+    let v = json(&["solve", p, "--for", "tx-power", "--target-margin", "5dB"]);
+    let tx = v["tx_power_dbm"].as_f64().expect("number");
+    let b = json(&["budget", p]);
+    let margin = b["margin_db"].as_f64().expect("number");
+    let tx0 = b["tx_power_dbm"].as_f64().expect("number");
+    // Margin is linear in transmit power (all in dB): tx = tx0 + (5 − margin).
+    assert!((tx - (tx0 + 5.0 - margin)).abs() < 1e-3, "{tx} vs {tx0} {margin}");
+    let r = json(&["solve", p, "--for", "range"]);
+    assert!(r["range_m"].as_f64().expect("number") > 1400.0, "margin is positive, so range exceeds the distance");
+    let pl = json(&["solve", p, "--for", "path-loss", "--target-margin", "0"]);
+    let pl0 = b["path_loss_db"].as_f64().expect("number");
+    assert!((pl["path_loss_db"].as_f64().expect("number") - (pl0 + margin)).abs() < 1e-3);
+}
+
+fn fails_with(args: &[&str], needle: &str) {
+    let out = bin().args(args).output().expect("runs");
+    assert_eq!(out.status.code(), Some(2), "{args:?}");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains(needle), "{args:?}: {err}");
+    assert_eq!(err.trim().lines().count(), 1, "one line: {err}");
+    assert!(!err.contains("panicked"));
+}
+
+#[test]
+fn bad_link_files_get_one_line_errors() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let write = |name: &str, text: &str| {
+        let p = dir.path().join(name);
+        std::fs::write(&p, text).expect("write");
+        p.to_str().expect("utf-8").to_string()
+    };
+    let good = std::fs::read_to_string(example("orchard-sensor.toml")).expect("read");
+    let typo = write("typo.toml", &good.replace("noise_figure", "noise_fgure"));
+    fails_with(&["budget", &typo], "noise_fgure");
+    let unit = write("unit.toml", &good.replace("\"1.4km\"", "\"1.4 furlongs\""));
+    fails_with(&["budget", &unit], "path.distance");
+    let broken = write("broken.toml", "frequency = \"868MHz\"\n[transmitter\n");
+    fails_with(&["budget", &broken], "broken.toml");
+    fails_with(&["budget", "/no/such/link.toml"], "cannot read");
+    let short = write("short.toml", &good.replace("\"1.4km\"", "\"10m\""));
+    fails_with(&["budget", &short], "distance");
+    let fixed = write("fixed.toml", &good.replace("model = \"log-distance\"", "model = \"fixed\"\nloss = \"120dB\""));
+    fails_with(&["solve", &fixed, "--for", "range"], "path.model");
+}

@@ -1,0 +1,286 @@
+//! `headroom convert` end to end: CSV and binary round trips, refusals,
+//! error messages with positions, and recovery from a damaged binary log.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use headroom::record::codec::{Encoder, MAX_FRAME};
+use headroom::record::{LogHeader, LogRecord};
+use headroom::units::{Db, Dbi, Dbm};
+
+fn headroom(args: &[&Path]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .arg("convert")
+        .args(args)
+        .output()
+        .expect("run headroom")
+}
+
+fn headroom_flags(args: &[&Path], flags: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .arg("convert")
+        .args(args)
+        .args(flags)
+        .output()
+        .expect("run headroom")
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// Files in `dir` (to see that no temporary file is left behind).
+fn files(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
+
+/// A log of our own invented node, written by the engine's encoder.
+fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
+    let mut enc = Encoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let mut bytes = Vec::new();
+    let mut spans = Vec::new();
+    let h = LogHeader {
+        device_id: 7_001,
+        epoch_ms: 1_786_000_000_000,
+        min_tx: Some(Dbm(-2.0)),
+        max_tx: Some(Dbm(14.0)),
+        tx_step: Some(Db(2.0)),
+        antenna_gain: Some(Dbi(0.5)),
+    };
+    let f = enc.header(&h, &mut buf).unwrap();
+    spans.push((0, f.len()));
+    bytes.extend_from_slice(f);
+    let specials = [f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -0.0, f32::MIN_POSITIVE / 8.0, f32::MAX];
+    for i in 0..n {
+        let r = LogRecord {
+            t_ms: 250 * i,
+            tx_dbm: Some(14.0 - 2.0 * (i % 9) as f32),
+            rssi_dbm: match i % 13 {
+                0 => None,
+                k @ 1..=6 => Some(specials[k as usize - 1]),
+                k => Some(-120.0 + 0.1 * (i as f32) + 1.0 / (k as f32)),
+            },
+            noise_dbm: if i % 4 == 0 { Some(-117.3) } else { None },
+        };
+        let f = enc.record(&r, &mut buf).unwrap();
+        spans.push((bytes.len(), bytes.len() + f.len()));
+        bytes.extend_from_slice(f);
+    }
+    std::fs::write(path, &bytes).unwrap();
+    (bytes, spans)
+}
+
+#[test]
+fn binary_to_csv_to_binary_is_byte_identical() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("node.hrlog");
+    let c = dir.path().join("node.csv");
+    let b = dir.path().join("again.hrlog");
+    let c2 = dir.path().join("again.csv");
+    let (bytes, _) = engine_log(&a, 500);
+    let o = headroom(&[&a, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("converted 500 record(s)"), "{}", stderr(&o));
+    let o = headroom(&[&c, &b]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(std::fs::read(&b).unwrap(), bytes, "engine-written frames survive csv and back");
+    let o = headroom(&[&b, &c2]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(&c).unwrap();
+    assert_eq!(std::fs::read_to_string(&c2).unwrap(), csv);
+    assert!(csv.starts_with("# headroom-log 1.0\n# device_id: 7001\n"), "{csv}");
+    assert!(csv.contains(",NaN,") && csv.contains(",inf,") && csv.contains(",-inf,") && csv.contains(",-0,"));
+}
+
+#[test]
+fn csv_to_binary_to_csv_is_text_identical() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("bench.csv");
+    let b = dir.path().join("bench.hrlog");
+    let c = dir.path().join("bench2.csv");
+    let text = "# headroom-log 1.0\n# device_id: 12\n# epoch_ms: 0\n# max_tx_dbm: 20\n\
+                t_ms,tx_dbm,rssi_dbm,noise_dbm\n\
+                0,20,-101.7,-119\n\
+                40,,,\n\
+                18446744073709551615,-0.1,0.000001,1e-40\n\
+                90,NaN,inf,-inf\n";
+    std::fs::write(&a, text).unwrap();
+    assert!(headroom(&[&a, &b]).status.success());
+    let o = headroom(&[&b, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let back = std::fs::read_to_string(&c).unwrap();
+    // f32 Display writes 1e-40 (a subnormal) in full decimal: compare values
+    // for that cell, text for the rest.
+    let want = text.replace("1e-40", &format!("{}", "1e-40".parse::<f32>().unwrap()));
+    assert_eq!(back, want);
+}
+
+#[test]
+fn columns_in_any_order_extra_ignored_and_format_override() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("field.txt");
+    let b = dir.path().join("field.bin");
+    let c = dir.path().join("out.csv");
+    std::fs::write(&a, "site,rssi_dbm,t_ms\nnorth,-80,5\r\nsouth,,6\r\n").unwrap();
+    let o = headroom_flags(&[&a, &b], &["--from", "csv", "--to", "binary"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let o = headroom_flags(&[&b, &c], &["--from", "binary"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(std::fs::read_to_string(&c).unwrap(), "t_ms,tx_dbm,rssi_dbm,noise_dbm\n5,,-80,\n6,,,\n");
+    let o = headroom(&[&a, &c]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("cannot tell the log format"), "{}", stderr(&o));
+}
+
+#[test]
+fn overwrite_is_refused_without_force() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("in.csv");
+    let b = dir.path().join("out.hrlog");
+    std::fs::write(&a, "t_ms,tx_dbm\n1,2\n").unwrap();
+    std::fs::write(&b, b"keep me").unwrap();
+    let o = headroom(&[&a, &b]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("already exists (use --force to overwrite)"), "{}", stderr(&o));
+    assert_eq!(std::fs::read(&b).unwrap(), b"keep me");
+    let o = headroom_flags(&[&a, &b], &["--force"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_ne!(std::fs::read(&b).unwrap(), b"keep me");
+    assert_eq!(files(dir.path()), vec!["in.csv", "out.hrlog"]);
+    // Converting a file onto itself is refused even with --force.
+    let o = headroom_flags(&[&a, &a], &["--force"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(std::fs::read_to_string(&a).unwrap(), "t_ms,tx_dbm\n1,2\n");
+}
+
+#[test]
+fn a_bad_cell_names_line_and_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("log.csv");
+    let b = dir.path().join("log.hrlog");
+    // Line 1 is a comment, line 2 the header row, the bad cell on line 5.
+    std::fs::write(&a, "# from the roof node\nt_ms,tx_dbm,rssi_dbm\n0,10,-90\n1000,10,-91\n2000,10,abc\n").unwrap();
+    let o = headroom(&[&a, &b]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(err.contains("log.csv:5: column rssi_dbm: 'abc' is not a number"), "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert_eq!(files(dir.path()), vec!["log.csv"], "no output, no temporary file");
+}
+
+#[test]
+fn csv_input_errors_are_clear() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o.hrlog");
+    let cases: [(&str, &str); 6] = [
+        ("tx_dbm,rssi_dbm\n1,2\n", "1: missing required column t_ms"),
+        ("t_ms,rssi_dbm\n1,2\n3\n", "3: row has 1 cell, the header row has 2"),
+        ("t_ms,rssi_dbm\n1.5,2\n", "2: column t_ms: '1.5' is not a whole number of milliseconds"),
+        ("t_ms,rssi_dbm\n,2\n", "2: column t_ms: empty"),
+        ("", "no header row"),
+        ("t_ms,t_ms\n1,2\n", "1: column t_ms appears twice"),
+    ];
+    for (i, (text, want)) in cases.iter().enumerate() {
+        let a = dir.path().join(format!("c{i}.csv"));
+        std::fs::write(&a, text).unwrap();
+        let o = headroom(&[&a, &out]);
+        assert_eq!(o.status.code(), Some(2), "{text:?}");
+        assert!(stderr(&o).contains(want), "{text:?}: {}", stderr(&o));
+    }
+    // A line longer than the limit is refused with its line number, without
+    // reading it whole.
+    let a = dir.path().join("long.csv");
+    let mut text = String::from("t_ms,rssi_dbm\n1,2\n3,");
+    text.push_str(&"7".repeat(1 << 20));
+    std::fs::write(&a, text).unwrap();
+    let o = headroom(&[&a, &out]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("long.csv:3: line is longer than 4096 bytes"), "{}", stderr(&o));
+    assert!(!out.exists());
+}
+
+/// Overwrite frames `from..=to` (their delimiters included) with garbage.
+fn smash(bytes: &mut [u8], spans: &[(usize, usize)], from: usize, to: usize) -> (usize, usize) {
+    let (s, e) = (spans[from].0, spans[to].1);
+    let mut x: u32 = 99;
+    for b in &mut bytes[s..e] {
+        x = x.wrapping_mul(1_664_525).wrapping_add(1_013_904_223);
+        *b = (x >> 24) as u8 | 1;
+    }
+    bytes[s + 7] = 0;
+    (s, e)
+}
+
+#[test]
+fn damaged_binary_converts_every_intact_frame() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("hurt.hrlog");
+    let c = dir.path().join("hurt.csv");
+    let clean = dir.path().join("clean.csv");
+    let (mut bytes, spans) = engine_log(&a, 300);
+    assert!(headroom(&[&a, &clean]).status.success());
+    // Frames 101..=110 (records 100..=109) become garbage; the log is cut
+    // in the middle of its last frame.
+    let (s, e) = smash(&mut bytes, &spans, 101, 110);
+    let last = spans[300];
+    bytes.truncate(last.0 + 5);
+    std::fs::write(&a, &bytes).unwrap();
+    let o = headroom(&[&a, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let err = stderr(&o);
+    assert!(
+        err.contains(&format!("byte {s}: skipped {} damaged bytes (10 frames lost)", e - s)),
+        "{err}"
+    );
+    assert!(err.contains(&format!("byte {}: skipped 5 damaged bytes (1 frame lost)", last.0)), "{err}");
+    assert!(err.contains("converted 289 record(s)"), "{err}");
+    // Every intact record is there, unchanged.
+    let want: Vec<String> = std::fs::read_to_string(&clean)
+        .unwrap()
+        .lines()
+        .enumerate()
+        .filter(|(i, _)| {
+            // 8 header lines (comments + column names) then record k on line 8+k.
+            *i < 8 || !((8 + 100..8 + 110).contains(i) || *i == 8 + 299)
+        })
+        .map(|(_, l)| l.to_string())
+        .collect();
+    let got: Vec<String> = std::fs::read_to_string(&c).unwrap().lines().map(String::from).collect();
+    assert_eq!(got, want);
+    // The input was not touched.
+    assert_eq!(std::fs::read(&a).unwrap(), bytes);
+
+    // --strict: the first damage is the error, nothing is written.
+    let c2 = dir.path().join("strict.csv");
+    let o = headroom_flags(&[&a, &c2], &["--strict"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains(&format!("hurt.hrlog: byte {s}: damaged")), "{}", stderr(&o));
+    assert!(!c2.exists());
+}
+
+#[test]
+fn not_a_log_is_damage_not_a_crash() {
+    let dir = tempfile::tempdir().unwrap();
+    let a: PathBuf = dir.path().join("noise.hrlog");
+    let c = dir.path().join("noise.csv");
+    let mut x: u64 = 7;
+    let junk: Vec<u8> = (0..100_000)
+        .map(|_| {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 56) as u8
+        })
+        .collect();
+    std::fs::write(&a, &junk).unwrap();
+    let o = headroom(&[&a, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("converted 0 record(s)"), "{}", stderr(&o));
+    assert_eq!(std::fs::read_to_string(&c).unwrap(), "t_ms,tx_dbm,rssi_dbm,noise_dbm\n");
+}
