@@ -150,6 +150,35 @@ impl fmt::Display for BudgetError {
 
 impl core::error::Error for BudgetError {}
 
+/// Which stage of the chain a [`Level`] follows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Stage {
+    /// The transmitter output: the transmit power itself.
+    TransmitterOutput,
+    /// After one named line item on the given side.
+    Item(Side),
+    /// The effective isotropic radiated power (after every transmitter-side item).
+    Eirp,
+    /// After the modelled propagation loss of the path.
+    PathLoss,
+    /// The receiver input (after every item): the received power.
+    ReceiverInput,
+}
+
+/// The power at one point of the chain, for level diagrams and reports.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Level<'a> {
+    /// The stage this level follows.
+    pub stage: Stage,
+    /// The line item's name, or a fixed name for the other stages
+    /// ("transmitter output", "EIRP", "path loss", "receiver input").
+    pub name: &'a str,
+    /// Power after this stage.
+    pub level: Dbm,
+}
+
 /// A link of at most `N` line items.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Link<const N: usize> {
@@ -301,6 +330,40 @@ impl<const N: usize> Link<N> {
         Ok(result)
     }
 
+    /// The power along the chain, in order: transmitter output, each
+    /// transmitter-side item, EIRP, path loss, each path item, each
+    /// receiver-side item, receiver input. Items keep their order within a
+    /// side. Each level is the previous one plus the stage's gain in dB
+    /// (common practice); EIRP and the receiver input are computed exactly
+    /// as [`Link::evaluate`] computes them, so they agree to the bit.
+    pub fn levels(&self) -> Result<impl Iterator<Item = Level<'_>> + '_, Error> {
+        finite("tx power", self.tx_power.0)?;
+        finite("path loss", self.path_loss.0)?;
+        let eirp = self.tx_power + self.side_total(Side::Transmitter);
+        let after_loss = eirp - self.path_loss;
+        let after_path = after_loss + self.side_total(Side::Path);
+        let rx_power =
+            eirp - self.path_loss + self.side_total(Side::Path) + self.side_total(Side::Receiver);
+        let fixed = |stage, name, level| Level { stage, name, level };
+        let running = move |side: Side, start: Dbm| {
+            self.items.iter().filter(move |i| i.side == side).scan(start, move |acc, i| {
+                *acc += i.gain;
+                Some(Level { stage: Stage::Item(side), name: i.name.as_str(), level: *acc })
+            })
+        };
+        let chain = core::iter::once(fixed(Stage::TransmitterOutput, "transmitter output", self.tx_power))
+            .chain(running(Side::Transmitter, self.tx_power))
+            .chain(core::iter::once(fixed(Stage::Eirp, "EIRP", eirp)))
+            .chain(core::iter::once(fixed(Stage::PathLoss, "path loss", after_loss)))
+            .chain(running(Side::Path, after_loss))
+            .chain(running(Side::Receiver, after_path))
+            .chain(core::iter::once(fixed(Stage::ReceiverInput, "receiver input", rx_power)));
+        if !rx_power.is_finite() {
+            return Err(Error::NoSolution("budget"));
+        }
+        Ok(chain)
+    }
+
     /// Transmit power that leaves `target_margin` (dB, may be 0).
     pub fn tx_power_for_margin(&self, target_margin: Db) -> Result<Dbm, Error> {
         let r = self.evaluate()?;
@@ -407,6 +470,38 @@ mod tests {
             // kT0B·F: -173.98 + 10log10(125e3) + 6 = -117.01 dBm (common practice).
             assert!((r.noise_power.0 + 117.01).abs() < 0.02);
         }
+    }
+
+    #[test]
+    fn levels_walk_the_chain_in_order() {
+        let l = link();
+        let r = l.evaluate();
+        assert!(r.is_ok());
+        let Ok(r) = r else { return };
+        let lv: Vec<Level<'_>, 16> = match l.levels() {
+            Ok(it) => it.collect(),
+            Err(_) => Vec::new(),
+        };
+        let names: Vec<&str, 16> = lv.iter().map(|x| x.name).collect();
+        assert_eq!(
+            names.as_slice(),
+            ["transmitter output", "antenna", "cable", "EIRP", "path loss", "foliage", "antenna", "receiver input"]
+        );
+        let at = |k: usize| lv.get(k).map(|x| x.level.0).unwrap_or(f32::NAN);
+        assert_eq!(at(0), 14.0);
+        assert!((at(1) - 16.15).abs() < 1e-4);
+        assert!((at(2) - 15.65).abs() < 1e-4);
+        // The anchors agree with evaluate() to the bit.
+        assert_eq!(at(3), r.eirp.0);
+        assert_eq!(at(7), r.rx_power.0);
+        assert!((at(4) - (15.65 - 120.0)).abs() < 1e-4);
+        assert!((at(5) - (15.65 - 126.0)).abs() < 1e-4);
+        // The last item's running sum lands on the received power.
+        assert!((at(6) - at(7)).abs() < 1e-4);
+        assert_eq!(lv.get(6).map(|x| x.stage), Some(Stage::Item(Side::Receiver)));
+        let mut bad = l.clone();
+        bad.path_loss = Db(f32::INFINITY);
+        assert!(bad.levels().is_err());
     }
 
     #[test]

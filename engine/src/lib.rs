@@ -25,6 +25,8 @@
 //! - `serde`: derives serde traits on log records and configurations and
 //!   enables the postcard frame codec in [`record`]. Off by default; a
 //!   Cortex-M0 build that never writes logs can leave it off.
+//! - `fast-crc`: 8 KiB of CRC tables instead of 1 KiB, several times faster
+//!   log checksums; for hosts, not for small flash.
 //!
 //! ## Cost of floats
 //! All arithmetic is `f32`. On a Cortex-M4F it runs on the FPU; on a

@@ -180,7 +180,11 @@ pub fn eprint(text: &str) {
 
 /// End the program: QEMU exits with status 0 (`ok`) or 1.
 pub fn exit(ok: bool) -> ! {
-    debug::exit(if ok { debug::EXIT_SUCCESS } else { debug::EXIT_FAILURE });
+    debug::exit(if ok {
+        debug::EXIT_SUCCESS
+    } else {
+        debug::EXIT_FAILURE
+    });
     // Without a semihosting host the call returns: stop here.
     loop {
         cortex_m::asm::wfi();

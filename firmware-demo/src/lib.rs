@@ -19,6 +19,7 @@ pub mod clock;
 pub mod host;
 pub mod radio;
 pub mod scenario;
+pub mod stack;
 
 /// Print `n` in decimal through `out` without `core::fmt` (keeps the panic
 /// handler and the small binaries small).
@@ -71,7 +72,9 @@ fn panic(_info: &core::panic::PanicInfo) -> ! {
 /// infinities and subnormals included), hidden from the optimiser.
 #[inline(never)]
 pub fn probe_f32(k: u32, lane: u32) -> f32 {
-    let bits = k.wrapping_mul(0x9e37_79b9).wrapping_add(lane.wrapping_mul(0x85eb_ca6b));
+    let bits = k
+        .wrapping_mul(0x9e37_79b9)
+        .wrapping_add(lane.wrapping_mul(0x85eb_ca6b));
     // Mostly plausible levels around −100 dBm, every 8th one raw bits.
     if k % 8 == lane % 8 {
         f32::from_bits(core::hint::black_box(bits))

@@ -64,9 +64,18 @@ const LEVEL_TOLERANCE_DB: f32 = 1e-3;
 
 impl SimRadio {
     /// A radio with the given power levels over the channel `cfg`, seeded.
-    pub fn new(cfg: ChannelConfig, seed: u64, caps: PowerCapabilities) -> Result<Self, SimRadioError> {
+    pub fn new(
+        cfg: ChannelConfig,
+        seed: u64,
+        caps: PowerCapabilities,
+    ) -> Result<Self, SimRadioError> {
         let channel = Channel::new(cfg, seed).map_err(SimRadioError::Channel)?;
-        Ok(SimRadio { channel, caps, tx: caps.max, last: None })
+        Ok(SimRadio {
+            channel,
+            caps,
+            tx: caps.max,
+            last: None,
+        })
     }
 
     /// The truth behind the last packet (what the simulator knows and the
@@ -85,7 +94,10 @@ impl SimRadio {
                 let k = (p - c.min.0) / step.0;
                 (k - libm::roundf(k)).abs() * step.0 < LEVEL_TOLERANCE_DB
             }
-            PowerSteps::Table(t) => t.levels().iter().any(|l| (l.0 - p).abs() < LEVEL_TOLERANCE_DB),
+            PowerSteps::Table(t) => t
+                .levels()
+                .iter()
+                .any(|l| (l.0 - p).abs() < LEVEL_TOLERANCE_DB),
         }
     }
 }
@@ -106,7 +118,10 @@ impl Radio for SimRadio {
     }
 
     fn send(&mut self, _payload: &[u8]) -> Result<(), SimRadioError> {
-        let s = self.channel.packet(self.tx).map_err(SimRadioError::Channel)?;
+        let s = self
+            .channel
+            .packet(self.tx)
+            .map_err(SimRadioError::Channel)?;
         self.last = Some(s);
         Ok(())
     }
@@ -114,9 +129,13 @@ impl Radio for SimRadio {
     fn feedback(&mut self) -> Result<Observation, SimRadioError> {
         let s = self.last.as_ref().ok_or(SimRadioError::NothingSent)?;
         Ok(match (s.reported_rssi, s.reported_noise) {
-            (Some(rssi), Some(noise)) => {
-                Observation::Feedback { t_ms: s.t_ms, tx: s.tx, rssi, noise, snr: None }
-            }
+            (Some(rssi), Some(noise)) => Observation::Feedback {
+                t_ms: s.t_ms,
+                tx: s.tx,
+                rssi,
+                noise,
+                snr: None,
+            },
             // A report without readings is a bare acknowledgement.
             _ if s.received && !s.feedback_lost => Observation::Acked { t_ms: s.t_ms },
             // Not received, or the acknowledgement did not come back: to

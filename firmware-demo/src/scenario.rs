@@ -5,7 +5,9 @@
 
 use headroom::control::{ControllerConfig, PowerSteps};
 use headroom::propagation::PathLossModel;
-use headroom::sim::{ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory};
+use headroom::sim::{
+    ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory,
+};
 use headroom::units::{Db, Dbi, Dbm, Hertz, Metres};
 
 use crate::radio::PowerCapabilities;
@@ -42,12 +44,22 @@ pub fn controller_config(radio: &PowerCapabilities) -> ControllerConfig {
 pub fn channel() -> ChannelConfig {
     let mut steps = heapless::Vec::new();
     // A loaded trailer parks between cart and gateway for a while.
-    let _ = steps.push(PathLossStep { at_packet: 300, change: Db(10.0) });
-    let _ = steps.push(PathLossStep { at_packet: 360, change: Db(-10.0) });
+    let _ = steps.push(PathLossStep {
+        at_packet: 300,
+        change: Db(10.0),
+    });
+    let _ = steps.push(PathLossStep {
+        at_packet: 360,
+        change: Db(-10.0),
+    });
     ChannelConfig {
         frequency: Hertz(868.0e6),
         // Free space to 1 m, then exponent 3.2 through the trees.
-        path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: None, exponent: 3.2 },
+        path_loss: PathLossModel::LogDistance {
+            d0: Metres(1.0),
+            pl_d0: None,
+            exponent: 3.2,
+        },
         tx_antenna_gain: Dbi(2.15),
         rx_antenna_gain: GATEWAY_ANTENNA,
         trajectory: Trajectory {
@@ -68,11 +80,17 @@ pub fn channel() -> ChannelConfig {
         noise: NoiseFloor {
             mean: Dbm(-117.0),
             jitter: Db(0.5),
-            bursts: Some(Episodes { rate_per_hour: 4.0, mean_duration_s: 30.0 }),
+            bursts: Some(Episodes {
+                rate_per_hour: 4.0,
+                mean_duration_s: 30.0,
+            }),
             burst_rise: Db(8.0),
         },
         min_snr: Some(Db(8.0)),
-        feedback_dropouts: Some(Episodes { rate_per_hour: 3.0, mean_duration_s: 10.0 }),
+        feedback_dropouts: Some(Episodes {
+            rate_per_hour: 3.0,
+            mean_duration_s: 10.0,
+        }),
         report_resolution: Some(Db(1.0)),
         steps,
     }

@@ -4,6 +4,9 @@
 //! prints the records read and the records per second for each file.
 
 #[allow(dead_code)]
+#[path = "../src/atomic.rs"]
+mod atomic;
+#[allow(dead_code)]
 #[path = "../src/error.rs"]
 mod error;
 #[allow(dead_code)]

@@ -7,11 +7,13 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 
+mod atomic;
 mod cmd;
 mod error;
 mod link;
 mod logio;
 mod output;
+mod plot;
 mod quantity;
 
 
@@ -53,6 +55,8 @@ enum Command {
     Synth(cmd::synth::Args),
     /// Convert a field log between CSV and the framed binary format.
     Convert(cmd::convert::Args),
+    /// Replay a fleet of logs under a grid of controller settings: the Pareto front of power and loss.
+    Tune(cmd::tune::Args),
 }
 
 fn main() -> ExitCode {
@@ -94,6 +98,7 @@ fn main() -> ExitCode {
         Command::Replay(a) => cmd::replay::run(a),
         Command::Synth(a) => cmd::synth::run(a),
         Command::Convert(a) => cmd::convert::run(a),
+        Command::Tune(a) => cmd::tune::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -84,10 +84,17 @@ fn scalar(v: &Value) -> String {
     match v {
         Value::Number(n) => {
             let x = n.as_f64().unwrap_or(f64::NAN);
-            if x.abs() >= 1e12 || (x != 0.0 && x.abs() < 1e-3) {
+            let a = x.abs();
+            if x == x.trunc() && a < 1e15 {
+                format!("{x:.0}")
+            } else if !(1e-3..1e15).contains(&a) {
                 format!("{x:.4e}")
-            } else {
+            } else if a >= 1.0 {
                 format!("{x:.3}")
+            } else {
+                // Four significant digits below 1.
+                let decimals = (3.0 - a.log10().floor()) as usize;
+                format!("{x:.decimals$}")
             }
         }
         Value::String(s) => s.clone(),

@@ -178,7 +178,11 @@ fn a_bad_cell_names_line_and_column() {
 fn csv_input_errors_are_clear() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("o.hrlog");
-    let cases: [(&str, &str); 6] = [
+    let cases: [(&str, &str); 9] = [
+        // Line numbers count comment and blank lines too.
+        ("# c\n\nt_ms,rssi_dbm\n1,2\n# mid\n\n3,x\n", "7: column rssi_dbm: 'x' is not a number"),
+        ("# x\n\nt_ms,a\n# y\n1,2\n\n3\n", "7: row has 1 cell, the header row has 2"),
+        ("\n\nt_ms,T_MS\n", "3: column t_ms appears twice"),
         ("tx_dbm,rssi_dbm\n1,2\n", "1: missing required column t_ms"),
         ("t_ms,rssi_dbm\n1,2\n3\n", "3: row has 1 cell, the header row has 2"),
         ("t_ms,rssi_dbm\n1.5,2\n", "2: column t_ms: '1.5' is not a whole number of milliseconds"),

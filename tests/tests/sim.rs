@@ -559,3 +559,51 @@ proptest! {
         }
     }
 }
+
+// --- controller in the loop ------------------------------------------------------
+
+#[test]
+fn channel_drives_the_controller_in_a_closed_loop() {
+    use headroom::control::{Controller, ControllerConfig, Observation};
+    // A Rician link with 3 dB shadowing and about 30 dB SNR at 14 dBm; the
+    // far end decodes at SNR ≥ 8 dB (the controller's requirement), and a
+    // missing report is an unknown outcome.
+    let cc = ControllerConfig::sub_ghz_node();
+    let cfg = ChannelConfig {
+        path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: None, exponent: 3.0 },
+        tx_antenna_gain: Dbi(cc.antenna_gain_dbi.0),
+        rx_antenna_gain: Dbi(cc.far_antenna_gain_dbi.0),
+        trajectory: Trajectory { start: Metres(300.0), ..base().trajectory },
+        packet_interval_ms: 60_000,
+        shadowing: Some(Shadowing { sigma: Db(3.0), decorrelation_distance: Metres(50.0), time_constant_s: Some(3600.0) }),
+        fading: FastFading::Rician { k_db: 6.0 },
+        min_snr: Some(cc.required_snr_db),
+        feedback_dropouts: Some(Episodes { rate_per_hour: 0.5, mean_duration_s: 300.0 }),
+        report_resolution: Some(Db(1.0)),
+        ..base()
+    };
+    let mut ch = Channel::new(cfg, 99).expect("valid");
+    let mut ctl = Controller::<32>::new(cc).expect("valid");
+    let (mut sent, mut lost, mut sum_mw) = (0u32, 0u32, 0.0f64);
+    for _ in 0..20_000 {
+        let tx = ctl.tx();
+        let s = ch.packet(tx).expect("finite");
+        let obs = match (s.received, s.reported_rssi, s.reported_noise) {
+            (false, _, _) => Observation::Lost { t_ms: s.t_ms },
+            (true, Some(rssi), Some(noise)) => Observation::Feedback { t_ms: s.t_ms, tx, rssi, noise, snr: None },
+            _ => Observation::Missing { t_ms: s.t_ms },
+        };
+        ctl.update(&obs);
+        sent += 1;
+        lost += u32::from(!s.received);
+        sum_mw += 10f64.powf(f64::from(tx.0) / 10.0);
+    }
+    let rate = f64::from(lost) / f64::from(sent);
+    let mean_dbm = 10.0 * (sum_mw / f64::from(sent)).log10();
+    // Loose bounds: the loop works with the channel (losses near the 1 %
+    // target, power well below the 14 dBm ceiling); the controller's own
+    // accuracy is tested with its own scenarios.
+    println!("closed loop: loss rate {rate:.4}, mean power {mean_dbm:.2} dBm");
+    assert!(rate < 0.03, "loss rate {rate}");
+    assert!(mean_dbm < 10.0, "mean power {mean_dbm} dBm");
+}

@@ -186,6 +186,9 @@ pub struct ControllerConfig {
     pub margin_max_db: Db,
     /// Readings needed in the window before the estimate drives the power.
     pub min_readings: u16,
+    /// Number of readings over which the spread of the prediction errors is
+    /// averaged (exponentially, after a plain mean over the first ones).
+    pub spread_memory: u16,
     /// Consecutive losses after which the power climbs by `max_step_up_db`
     /// per packet until a packet gets through.
     pub climb_after_losses: u16,
@@ -238,6 +241,7 @@ impl ControllerConfig {
             margin_min_db: Db(-20.0),
             margin_max_db: Db(30.0),
             min_readings: 8,
+            spread_memory: 512,
             climb_after_losses: 3,
             stale_after_ms: 3_600_000,
             rssi_min_dbm: Dbm(-150.0),
@@ -341,6 +345,9 @@ impl ControllerConfig {
                 min: 2.0,
                 max: MAX_WINDOW as f32,
             });
+        }
+        if c.spread_memory == 0 {
+            return Err(ConfigError::NotPositive { setting: "spread_memory" });
         }
         if c.climb_after_losses == 0 {
             return Err(ConfigError::NotPositive { setting: "climb_after_losses" });

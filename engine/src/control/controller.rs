@@ -1,47 +1,4 @@
 //! The per-packet transmit-power controller.
-//!
-//! ## What it estimates
-//! Every usable reading gives the *loss to noise* `z = tx − SNR` (dB): the
-//! path loss less the antenna gains, plus the far end's noise floor. A
-//! packet sent at power `P` arrives with SNR `P − z`, so the next packet's
-//! `z` is all the decision needs. The controller keeps the last `W` values of
-//! `z` and of the noise floor in a ring, as integers in 1/32 dB, with exact
-//! running sums (O(1) per update, no drift, the same bits on every target).
-//!
-//! Three predictors of the next `z` run side by side: the window's mean (best
-//! when fading is independent from packet to packet) and two exponential
-//! filters with gains 1/8 and 1/2 (best when shadowing or interference is
-//! correlated over a few packets). Each keeps the mean square of its own
-//! one-step prediction errors (averaged over the last ~`W` readings); the
-//! predictor with the smallest gives the level `ẑ` and the spread `σ`
-//! (the root of that mean square) of the decision.
-//!
-//! ## What it chooses
-//! `wanted = required SNR + ẑ + k·σ + margin`, where `k = Q⁻¹(p)` is the
-//! upper normal quantile of the target outage `p` (computed once in
-//! [`Controller::new`]) and `margin` is an adaptive margin: it rises by `Δup`
-//! after each lost packet and falls by `Δup·p/(1−p)` after each delivered one
-//! (the "jump" or sawtooth outer loop). Whatever the fading distribution, the
-//! margin can stay bounded only if losses are a fraction `p` of the judged
-//! packets, so the achieved loss rate converges to the target; the `k·σ`
-//! term only makes it start close and follow changes of the spread. The
-//! margin does not integrate while the power is clamped at the top (a loss
-//! there cannot be cured) or at the bottom (no wind-down), nor while warming
-//! up.
-//!
-//! `wanted` is rounded *up* to a supported level, clamped to
-//! `[min_tx, min(max_tx, eirp_cap − antenna_gain)]`, and limited to
-//! `max_step_up_db`/`max_step_down_db` per update. It falls only when
-//! `wanted + deadband` is at or below a lower level (hysteresis).
-//!
-//! ## Safe defaults
-//! Until `min_readings` readings are in the window the power stays where it
-//! is (initially `start_tx_dbm`). After `climb_after_losses` consecutive
-//! losses it climbs by `max_step_up_db` per packet; when a packet gets
-//! through, tracking resumes from the power that worked and comes down no
-//! faster than `max_step_down_db` per packet, as the predictors learn the
-//! new level. A gap of more than `stale_after_ms` between readings drops the
-//! history.
 
 use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_WINDOW};
 use super::reason::Reason;
@@ -211,12 +168,19 @@ impl<const W: usize> Window<W> {
         }
     }
 
+    /// 1 / (W · steps per dB): the scale of the sums of a full window.
+    const INV_FULL: f32 = 1.0 / (W as f32 * Q_PER_DB);
+
     /// Mean of z and of the noise, dB / dBm.
     fn means(&self) -> Option<(f32, f32)> {
         if self.n == 0 {
             return None;
         }
-        let inv = 1.0 / (f32::from(self.n) * Q_PER_DB);
+        let inv = if usize::from(self.n) >= W {
+            Self::INV_FULL
+        } else {
+            1.0 / (f32::from(self.n) * Q_PER_DB)
+        };
         Some((self.sum_z as f32 * inv, self.sum_noise as f32 * inv))
     }
 }
@@ -226,15 +190,71 @@ impl<const W: usize> Window<W> {
 /// (and maps NaN to 0) rather than wrapping, so no input can corrupt the sums.
 #[allow(clippy::cast_possible_truncation)]
 fn to_q(x: f32) -> i16 {
-    libm::roundf(x * Q_PER_DB) as i16
+    // Round half away from zero, then a saturating cast.
+    let y = x * Q_PER_DB;
+    (if y >= 0.0 { y + 0.5 } else { y - 0.5 }) as i16
+}
+
+/// The whole part of a level index `k ≥ 0` (truncation; the cast saturates,
+/// and `k` is bounded by the number of levels, at most 2·300/step).
+#[allow(clippy::cast_possible_truncation)]
+fn to_level_index(k: f32) -> i32 {
+    k as i32
 }
 
 /// The adaptive-margin transmit power controller over a window of `W`
-/// readings. See the [module documentation](self) for the method.
+/// readings.
 ///
+/// ## What it estimates
+/// Every usable reading gives the *loss to noise* `z = tx − SNR` (dB): the
+/// path loss less the antenna gains, plus the far end's noise floor. A
+/// packet sent at power `P` arrives with SNR `P − z`, so the next packet's
+/// `z` is all the decision needs. The controller keeps the last `W` values of
+/// `z` and of the noise floor in a ring, as integers in 1/32 dB, with exact
+/// running sums (O(1) per update, no drift, the same bits on every target).
+///
+/// Three predictors of the next `z` run side by side: the window's mean (best
+/// when fading is independent from packet to packet) and two exponential
+/// filters with gains 1/8 and 1/2 (best when shadowing or interference is
+/// correlated over a few packets). Each keeps the mean absolute value of its
+/// own one-step prediction errors, averaged over the last `spread_memory`
+/// readings (512 by default: the spread is a property of the link, not of
+/// the last few packets); the predictor with the smallest gives the level
+/// `ẑ` and the spread `σ = √(π/2)·mean |error|` (exact for normal errors,
+/// and robust to the large errors at the edges of an interference burst).
+///
+/// ## What it chooses
+/// `wanted = required SNR + ẑ + k·σ + margin`, where `k = Q⁻¹(p)` is the
+/// upper normal quantile of the target outage `p` (computed once in
+/// [`Controller::new`]) and `margin` is an adaptive margin: it rises by `Δup`
+/// after each lost packet and falls by `Δup·p/(1−p)` after each delivered one
+/// (the "jump" or sawtooth outer loop). Whatever the fading distribution, the
+/// margin can stay bounded only if losses are a fraction `p` of the judged
+/// packets, so the achieved loss rate converges to the target; the `k·σ`
+/// term only makes it start close and follow changes of the spread. The
+/// margin does not integrate while the power is clamped at the top (a loss
+/// there cannot be cured) or at the bottom (no wind-down), nor while warming
+/// up.
+///
+/// `wanted` is rounded *up* to a supported level, clamped to
+/// `[min_tx, min(max_tx, eirp_cap − antenna_gain)]`, and limited to
+/// `max_step_up_db`/`max_step_down_db` per update. It falls only when
+/// `wanted + deadband` is at or below a lower level (hysteresis).
+///
+/// ## Safe defaults
+/// Until `min_readings` readings are in the window the power stays where it
+/// is (initially `start_tx_dbm`). After `climb_after_losses` consecutive
+/// losses it climbs by `max_step_up_db` per packet; when a packet gets
+/// through, tracking resumes from the power that worked and comes down no
+/// faster than `max_step_down_db` per packet, as the predictors learn the
+/// new level. A gap of more than `stale_after_ms` between readings drops the
+/// history.
+///
+/// ## Cost
 /// All state is in this fixed-size struct (no allocation); one
 /// [`Controller::update`] per packet, O(1) in `W`, with no logarithm or
-/// exponential (one division pair and one square root).
+/// exponential; divisions only while the window and the error averages
+/// fill up.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
@@ -256,13 +276,13 @@ pub struct Controller<const W: usize> {
     last_reading_ms: Option<u64>,
     /// Exponential-filter predictors of z, dB.
     filters: [f32; 2],
-    /// Mean square one-step prediction error of the window mean and of the
-    /// two filters, dB².
-    mse: [f32; 3],
+    /// Mean absolute one-step prediction error of the window mean and of
+    /// the two filters, dB.
+    mae: [f32; 3],
     /// Prediction errors seen since the history started (saturating).
     errors: u16,
-    /// 1 / W, the weight of a new error in `mse` once `errors ≥ W`.
-    inv_w: f32,
+    /// 1 / `spread_memory`, the weight of a new error once `errors` reaches it.
+    inv_memory: f32,
     window: Window<W>,
 }
 
@@ -306,9 +326,9 @@ impl<const W: usize> Controller<W> {
             clamped_low: false,
             last_reading_ms: None,
             filters: [0.0; 2],
-            mse: [0.0; 3],
+            mae: [0.0; 3],
             errors: 0,
-            inv_w: 1.0 / (W as f32 * 4.0), // TMP
+            inv_memory: 1.0 / f32::from(cfg.spread_memory),
             window: Window::new(),
         };
         let m = c.clamp_margin(0.0);
@@ -365,7 +385,7 @@ impl<const W: usize> Controller<W> {
     fn forget(&mut self) {
         self.window.clear();
         self.filters = [0.0; 2];
-        self.mse = [0.0; 3];
+        self.mae = [0.0; 3];
         self.errors = 0;
     }
 
@@ -376,14 +396,14 @@ impl<const W: usize> Controller<W> {
         match self.window.means() {
             Some((mz, _)) => {
                 self.errors = self.errors.saturating_add(1);
-                let w = if usize::from(self.errors) < W * 8 { // TMP
+                let w = if self.errors < self.cfg.spread_memory {
                     1.0 / f32::from(self.errors)
                 } else {
-                    self.inv_w
+                    self.inv_memory
                 };
                 let [f0, f1] = self.filters;
                 let e = [z - mz, z - f0, z - f1];
-                for (m, e) in self.mse.iter_mut().zip(e.iter()) {
+                for (m, e) in self.mae.iter_mut().zip(e.iter()) {
                     *m += w * (e.abs() - *m);
                 }
                 for (f, g) in self.filters.iter_mut().zip(FILTER_GAINS.iter()) {
@@ -402,16 +422,16 @@ impl<const W: usize> Controller<W> {
         if self.errors == 0 {
             return Some((mz, None));
         }
-        let [m0, m1, m2] = self.mse;
+        let [m0, m1, m2] = self.mae;
         let [f0, f1] = self.filters;
-        let (level, mse) = if m0 <= m1 && m0 <= m2 {
+        let (level, mae) = if m0 <= m1 && m0 <= m2 {
             (mz, m0)
         } else if m1 <= m2 {
             (f0, m1)
         } else {
             (f1, m2)
         };
-        Some((level, Some(MAE_TO_SIGMA * mse)))
+        Some((level, Some(MAE_TO_SIGMA * mae)))
     }
 
     /// `true` if `p` is one of the levels the controller may choose.
@@ -570,6 +590,24 @@ impl<const W: usize> Controller<W> {
         }
     }
 
+    /// Why a logged record's readings cannot be judged by a replay, if they
+    /// cannot: not finite, or outside the configured plausible ranges (the
+    /// logged transmit power only has to be finite and within ±300 dBm).
+    pub(crate) fn check_logged(&self, tx: f32, rssi: f32, noise: f32) -> Option<Reason> {
+        let c = &self.cfg;
+        if !(tx.is_finite() && rssi.is_finite() && noise.is_finite()) {
+            return Some(Reason::IgnoredNotFinite);
+        }
+        let lim = super::config::SETTING_LIMIT_DB;
+        if !(-lim..=lim).contains(&tx)
+            || !(c.rssi_min_dbm.0..=c.rssi_max_dbm.0).contains(&rssi)
+            || !(c.noise_min_dbm.0..=c.noise_max_dbm.0).contains(&noise)
+        {
+            return Some(Reason::IgnoredImplausible);
+        }
+        None
+    }
+
     /// Loss to noise and noise floor of a feedback, or why it is unusable.
     fn check_feedback(
         &self,
@@ -638,22 +676,40 @@ impl<const W: usize> Controller<W> {
     fn clamp_margin(&self, m: f32) -> f32 {
         let lo = self.cfg.margin_min_db.0;
         let hi = self.cfg.margin_max_db.0;
-        if m.is_nan() {
-            lo.max(0.0).min(hi)
+        if m >= lo {
+            if m > hi {
+                hi
+            } else {
+                m
+            }
+        } else if m < lo {
+            lo
+        } else if 0.0 > hi {
+            // NaN (cannot arise from validated settings): the neutral margin.
+            hi
+        } else if 0.0 < lo {
+            lo
         } else {
-            m.max(lo).min(hi)
+            0.0
         }
     }
 
-    /// Lowest level ≥ `x`, within `[bottom, top]` (`top` if none).
+    /// Lowest level ≥ `x`, within `[bottom, top]` (`top` if none or NaN).
     fn level_at_or_above(&self, x: f32) -> f32 {
-        if !x.is_finite() {
-            return if x < 0.0 { self.bottom } else { self.top };
+        if x >= self.top || x.is_nan() {
+            return self.top;
+        }
+        if x <= self.bottom {
+            return self.bottom;
         }
         let v = match self.cfg.steps {
             PowerSteps::Uniform(s) => {
-                let k = libm::ceilf((x - self.cfg.min_tx_dbm.0) * self.inv_step - GRID_EPS);
-                self.cfg.min_tx_dbm.0 + k * s.0
+                // bottom = min_tx < x < top, so 0 < k ≤ levels: an integer
+                // ceiling without libm.
+                let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step - GRID_EPS;
+                let ki = to_level_index(k);
+                let ki = if (ki as f32) < k { ki + 1 } else { ki };
+                self.cfg.min_tx_dbm.0 + ki as f32 * s.0
             }
             PowerSteps::Table(t) => t
                 .levels()
@@ -665,15 +721,18 @@ impl<const W: usize> Controller<W> {
         self.clamp_level(v)
     }
 
-    /// Highest level ≤ `x`, within `[bottom, top]` (`bottom` if none).
+    /// Highest level ≤ `x`, within `[bottom, top]` (`top` if NaN).
     fn level_at_or_below(&self, x: f32) -> f32 {
-        if !x.is_finite() {
-            return if x < 0.0 { self.bottom } else { self.top };
+        if x >= self.top || x.is_nan() {
+            return self.top;
+        }
+        if x <= self.bottom {
+            return self.bottom;
         }
         let v = match self.cfg.steps {
             PowerSteps::Uniform(s) => {
-                let k = libm::floorf((x - self.cfg.min_tx_dbm.0) * self.inv_step + GRID_EPS);
-                self.cfg.min_tx_dbm.0 + k * s.0
+                let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step + GRID_EPS;
+                self.cfg.min_tx_dbm.0 + to_level_index(k) as f32 * s.0
             }
             PowerSteps::Table(t) => t
                 .levels()
@@ -740,6 +799,7 @@ mod tests {
         let total = core::mem::size_of::<Controller<32>>();
         let cfg = core::mem::size_of::<ControllerConfig>();
         assert!(total - cfg <= 256, "state {} bytes", total - cfg);
+        println!("Controller<32>: {total} bytes, of which config {cfg}");
     }
 
     #[test]

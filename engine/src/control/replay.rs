@@ -3,25 +3,7 @@
 //!
 //! This is the one implementation of the replay semantics; the host's
 //! `headroom replay`, the firmware's replay on target and the tests all call
-//! it, so they agree bit for bit.
-//!
-//! ## Semantics
-//! Records are taken one at a time, in order. For record `k`:
-//! 1. the controller's power `chosen` for record `k` is the one it decided
-//!    from the observations of records before `k`;
-//! 2. the channel of record `k` is the logged one: the replayed received
-//!    power is `rssi − tx + chosen`, the replayed SNR that less `noise`;
-//! 3. the packet is lost when the replayed SNR is below the required SNR;
-//! 4. a delivered packet gives the controller the replayed feedback
-//!    (sent at `chosen`, received at the replayed power, the logged noise);
-//!    a lost one gives it a loss and no readings;
-//! 5. a record with a missing reading (or one that is NaN or infinite)
-//!    cannot be judged: it is counted apart and passed to the controller as
-//!    an observation of nothing ([`Observation::Missing`]).
-//!
-//! A logged reading that was clipped by a saturated receiver gives a
-//! replayed received power that is only a lower bound, so the replay is
-//! pessimistic for it.
+//! it, so they agree bit for bit. [`Replay`] states the semantics.
 
 use super::config::{ConfigError, ControllerConfig};
 use super::controller::{Controller, Observation};
@@ -197,6 +179,27 @@ impl Summary {
 }
 
 /// A controller replaying a log, with its running [`Summary`].
+///
+/// ## Semantics
+/// Records are taken one at a time, in order. For record `k`:
+/// 1. the controller's power `chosen` for record `k` is the one it decided
+///    from the observations of records before `k`;
+/// 2. the channel of record `k` is the logged one: the replayed received
+///    power is `rssi − tx + chosen`, the replayed SNR that less `noise`;
+/// 3. the packet is lost when the replayed SNR is below the required SNR;
+/// 4. a delivered packet gives the controller the replayed feedback
+///    (sent at `chosen`, received at the replayed power, the logged noise);
+///    a lost one gives it a loss and no readings;
+/// 5. a record with a missing reading, or one that is NaN, infinite or
+///    outside the configured plausible range (`rssi_min_dbm..rssi_max_dbm`,
+///    `noise_min_dbm..noise_max_dbm`), cannot be judged: it is counted apart
+///    (the reason in [`Summary::ignored_readings`] for the bad ones) and
+///    passed to the controller as an observation of nothing
+///    ([`Observation::Missing`]).
+///
+/// A logged reading that was clipped by a saturated receiver gives a
+/// replayed received power that is only a lower bound, so the replay is
+/// pessimistic for it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Replay<const W: usize> {
@@ -212,7 +215,7 @@ impl<const W: usize> Replay<W> {
         Ok(Replay { controller, summary })
     }
 
-    /// Replay one record (see the [module documentation](self)).
+    /// Replay one record (see [`Replay`] for the semantics).
     pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
         let chosen = self.controller.tx();
         let required = self.controller.config().required_snr_db;
@@ -222,8 +225,13 @@ impl<const W: usize> Replay<W> {
             (Some(tx), Some(rssi), Some(noise)) => {
                 let rx = rssi - tx + chosen.0;
                 let snr = rx - noise;
-                if !(tx.is_finite() && rssi.is_finite() && noise.is_finite() && snr.is_finite()) {
-                    own_reason = Some(Reason::IgnoredNotFinite);
+                let unusable = match self.controller.check_logged(tx, rssi, noise) {
+                    Some(r) => Some(r),
+                    None if !snr.is_finite() => Some(Reason::IgnoredNotFinite),
+                    None => None,
+                };
+                if let Some(r) = unusable {
+                    own_reason = Some(r);
                     (Outcome::Unjudged, None, Observation::Missing { t_ms })
                 } else if snr < required.0 {
                     (Outcome::Lost, Some(Db(snr)), Observation::Lost { t_ms })

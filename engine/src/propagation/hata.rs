@@ -33,6 +33,7 @@ use crate::units::{Db, Hertz, Metres};
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum HataEnvironment {
     /// Open area (farmland, no tall obstacles along the path).
     Open,
@@ -53,6 +54,7 @@ pub enum HataEnvironment {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum Extrapolation {
     /// Refuse anything outside the published range.
     #[default]

@@ -19,6 +19,7 @@ use crate::units::{Db, Hertz, Metres};
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum IndoorEnvironment {
     /// Residential buildings (houses and flats).
     Residential,
@@ -32,6 +33,7 @@ pub enum IndoorEnvironment {
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum FloorLoss {
     /// No value published: only paths on the same floor (n = 0).
     SameFloorOnly,
@@ -272,7 +274,7 @@ pub fn indoor_coefficients(f: Hertz, environment: IndoorEnvironment) -> Result<I
         } else {
             f / row.f_max
         };
-        if nearest.map_or(true, |(_, g)| gap < g) {
+        if nearest.is_none_or(|(_, g)| gap < g) {
             nearest = Some((row, gap));
         }
     }

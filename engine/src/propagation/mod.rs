@@ -45,6 +45,7 @@ use crate::units::{Db, Hertz, Metres};
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum PathLossModel {
     /// Free space, [`free_space_path_loss`].
     FreeSpace,

@@ -27,6 +27,7 @@ use super::free_space::{db20, FSPL_CONSTANT_DB};
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(feature = "serde", serde(rename_all = "kebab-case"))]
 pub enum TwoRayForm {
     /// The phasor sum of the direct and reflected rays, with a real ground
     /// reflection coefficient in [−1, 1] (−1: perfectly conducting ground at

@@ -368,6 +368,27 @@ impl Encoder {
     }
 }
 
+/// Index of the first `0x00` in `data`, 8 bytes per step: a word has a zero
+/// byte iff `(x - 0x01..01) & !x & 0x80..80` is non-zero, and the lowest
+/// set bit of that mask marks the first zero byte (little-endian).
+fn find_zero(data: &[u8]) -> Option<usize> {
+    const LO: u64 = 0x0101_0101_0101_0101;
+    const HI: u64 = 0x8080_8080_8080_8080;
+    let mut chunks = data.chunks_exact(8);
+    let mut base = 0usize;
+    for ch in &mut chunks {
+        let mut w = [0u8; 8];
+        w.copy_from_slice(ch);
+        let x = u64::from_le_bytes(w);
+        let m = x.wrapping_sub(LO) & !x & HI;
+        if m != 0 {
+            return Some(base + (m.trailing_zeros() / 8) as usize);
+        }
+        base += 8;
+    }
+    chunks.remainder().iter().position(|&b| b == 0).map(|i| base + i)
+}
+
 /// COBS-encode `src` into `dst`; returns the encoded length (no delimiter).
 fn cobs_encode(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
     let mut code_at = 0usize;
@@ -413,6 +434,35 @@ fn cobs_valid(src: &[u8]) -> bool {
         }
     }
     true
+}
+
+/// COBS-decode `src`, which holds no `0x00`, into `dst`; returns the
+/// decoded length. Frames of this format never have a code byte 0xFF
+/// (payloads are shorter than 254 bytes), so decoding is one copy that drops
+/// the first code byte, and a `0x00` where each later code byte was; a code
+/// 0xFF goes to the general decoder.
+fn cobs_decode_fast(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
+    let n = src.len().saturating_sub(1);
+    let out = dst.get_mut(..n).ok_or(CodecError::FrameTooLong)?;
+    out.copy_from_slice(src.get(1..).unwrap_or(&[]));
+    let mut i = match src.first() {
+        Some(&0xFF) => return cobs_decode(src, dst),
+        Some(&c) => usize::from(c),
+        None => return Ok(0),
+    };
+    while let Some(&code) = src.get(i) {
+        if code == 0xFF {
+            return cobs_decode(src, dst);
+        }
+        // i >= 1 here: the code byte becomes the 0x00 it stands for.
+        *out.get_mut(i - 1).ok_or(CodecError::Cobs)? = 0;
+        i += usize::from(code);
+    }
+    if i == src.len() {
+        Ok(n)
+    } else {
+        Err(CodecError::Cobs)
+    }
 }
 
 /// COBS-decode `src` into `dst`; returns the decoded length.
@@ -477,6 +527,19 @@ pub fn decode_frame(frame: &mut [u8]) -> Result<Decoded, CodecError> {
     }
     let n = cobs_decode_in_place(frame)?;
     decode_payload(frame.get(..n).ok_or(CodecError::Cobs)?)
+}
+
+/// Decode one piece between delimiters (so without `0x00`), through
+/// `scratch`.
+fn decode_piece(src: &[u8], scratch: &mut [u8]) -> Result<Decoded, CodecError> {
+    if src.len() < MIN_PAYLOAD + 1 {
+        return Err(CodecError::TooShort);
+    }
+    if src.len() > MAX_FRAME - 1 {
+        return Err(CodecError::FrameTooLong);
+    }
+    let n = cobs_decode_fast(src, scratch)?;
+    decode_payload(scratch.get(..n).ok_or(CodecError::Cobs)?)
 }
 
 /// Decode a payload: kind, seq, body, CRC.
@@ -639,7 +702,7 @@ impl<const N: usize> FrameDecoder<N> {
             if data.is_empty() {
                 return None;
             }
-            match data.iter().position(|&b| b == 0) {
+            match find_zero(data) {
                 None => {
                     self.push(data);
                     *input = &[];
@@ -647,8 +710,19 @@ impl<const N: usize> FrameDecoder<N> {
                 }
                 Some(at) => {
                     let (piece, rest) = data.split_at(at);
-                    self.push(piece);
                     *input = rest.get(1..).unwrap_or(&[]);
+                    if self.len == 0 && self.dropped == 0 && !piece.is_empty() {
+                        // The whole piece is in this chunk: decode it where
+                        // it is; only a damaged one is copied for salvage.
+                        if let Ok(d) = decode_piece(piece, &mut self.scratch) {
+                            let offset = self.pos;
+                            self.pos += piece.len() as u64 + 1;
+                            self.start = self.pos;
+                            self.after_damage = false;
+                            return Some(Event::Frame { offset, seq: d.seq, frame: d.frame });
+                        }
+                    }
+                    self.push(piece);
                     self.pos += 1;
                     if let Some(ev) = self.end_piece(1) {
                         return Some(ev);
@@ -738,6 +812,10 @@ impl<const N: usize> FrameDecoder<N> {
                 // An intact frame may sit at the end of the piece.
                 let mut found = None;
                 for s in 1..len.saturating_sub(MIN_PAYLOAD) {
+                    let plausible = self.buf.get(s..len).is_some_and(cobs_valid);
+                    if !plausible {
+                        continue;
+                    }
                     if let Ok(d) = self.try_decode(s, len) {
                         found = Some((s, d));
                         break;
@@ -764,22 +842,12 @@ impl<const N: usize> FrameDecoder<N> {
 
     fn try_decode(&mut self, from: usize, to: usize) -> Result<Decoded, CodecError> {
         let src = self.buf.get(from..to).ok_or(CodecError::Cobs)?;
-        if src.len() < MIN_PAYLOAD + 1 {
-            return Err(CodecError::TooShort);
-        }
-        if src.len() > MAX_FRAME - 1 {
-            return Err(CodecError::FrameTooLong);
-        }
-        if !cobs_valid(src) {
-            return Err(CodecError::Cobs);
-        }
-        let n = cobs_decode(src, &mut self.scratch)?;
-        decode_payload(self.scratch.get(..n).ok_or(CodecError::Cobs)?)
+        decode_piece(src, &mut self.scratch)
     }
 }
 
 #[cfg(test)]
-#[allow(clippy::unwrap_used, clippy::indexing_slicing)]
+#[allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
 mod tests {
     use super::*;
 
@@ -807,6 +875,56 @@ mod tests {
             inplace[..enc.len()].copy_from_slice(enc);
             let m = cobs_decode_in_place(&mut inplace[..enc.len()]).unwrap();
             assert_eq!(&inplace[..m], raw);
+        }
+    }
+
+    #[test]
+    fn fast_cobs_decoder_agrees_with_the_general_one() {
+        // Zero-free inputs (as the stream decoder hands over), from an LCG,
+        // with long runs so that 0xFF codes and bad chains both occur.
+        let mut x: u32 = 1;
+        for len in 0..300usize {
+            for _ in 0..20 {
+                let mut src = [0u8; 300];
+                for b in src.iter_mut().take(len) {
+                    x = x.wrapping_mul(1_103_515_245).wrapping_add(12_345);
+                    let r = (x >> 16) as u8;
+                    *b = if r.is_multiple_of(4) { (r % 12) + 1 } else { r.max(1) };
+                }
+                let src = &src[..len];
+                let mut a = [0u8; 300];
+                let mut b = [0u8; 300];
+                let fa = cobs_decode_fast(src, &mut a);
+                let fb = cobs_decode(src, &mut b);
+                assert_eq!(fa.is_ok(), fb.is_ok(), "{src:?}");
+                if let (Ok(na), Ok(nb)) = (fa, fb) {
+                    assert_eq!(&a[..na], &b[..nb]);
+                }
+                assert_eq!(fb.is_ok(), cobs_valid(src));
+            }
+        }
+    }
+
+    #[test]
+    fn find_zero_agrees_with_a_plain_search() {
+        let mut x: u32 = 7;
+        for len in 0..64usize {
+            for _ in 0..50 {
+                let mut d = [0u8; 64];
+                for b in d.iter_mut().take(len) {
+                    x = x.wrapping_mul(1_103_515_245).wrapping_add(12_345);
+                    let r = (x >> 16) as u8;
+                    // Zeros rare, and 0x80/0x01 bytes that fool naive tricks.
+                    *b = match r % 16 {
+                        0 => 0,
+                        1 => 0x80,
+                        2 => 0x01,
+                        _ => r | 1,
+                    };
+                }
+                let d = &d[..len];
+                assert_eq!(find_zero(d), d.iter().position(|&b| b == 0), "{d:?}");
+            }
         }
     }
 

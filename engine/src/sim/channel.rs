@@ -583,3 +583,71 @@ impl Channel {
         Ok(sample)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cfg() -> ChannelConfig {
+        ChannelConfig {
+            frequency: Hertz(915.0e6),
+            path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: Some(Db(40.0)), exponent: 2.0 },
+            tx_antenna_gain: Dbi(0.0),
+            rx_antenna_gain: Dbi(0.0),
+            trajectory: Trajectory { start: Metres(100.0), speed_m_per_s: 0.0, min: None, max: None },
+            packet_interval_ms: 1000,
+            start_ms: 5000,
+            shadowing: None,
+            fading: FastFading::None,
+            fading_correlation: 0.0,
+            noise: NoiseFloor { mean: Dbm(-100.0), jitter: Db(0.0), bursts: None, burst_rise: Db(0.0) },
+            min_snr: None,
+            feedback_dropouts: None,
+            report_resolution: None,
+            steps: Steps::new(),
+        }
+    }
+
+    #[test]
+    fn quiet_channel_is_the_link_budget() -> Result<()> {
+        // 40 dB at 1 m, n = 2: 80 dB at 100 m; 10 dBm in, −70 dBm out.
+        let mut ch = Channel::new(cfg(), 1)?;
+        let s = ch.packet(Dbm(10.0))?;
+        assert_eq!(s.t_ms, 5000);
+        assert!((s.rssi.0 + 70.0).abs() < 1e-4);
+        assert!((s.snr.0 - 30.0).abs() < 1e-4);
+        assert_eq!(ch.packet(Dbm(10.0))?.t_ms, 6000);
+        Ok(())
+    }
+
+    #[test]
+    fn reflection_keeps_the_distance_in_range() -> Result<()> {
+        let c = ChannelConfig {
+            trajectory: Trajectory {
+                start: Metres(100.0),
+                speed_m_per_s: 30.0,
+                min: Some(Metres(50.0)),
+                max: Some(Metres(120.0)),
+            },
+            ..cfg()
+        };
+        let mut ch = Channel::new(c, 1)?;
+        let d: [f32; 5] = [0; 5].map(|_| ch.packet(Dbm(0.0)).map_or(f32::NAN, |s| s.distance.0));
+        // 100 → 120 (turn, 10 m back) 110 → 80 → 50 (turn) → 80.
+        for (got, want) in d.iter().zip([100.0, 110.0, 80.0, 50.0, 80.0]) {
+            assert!((got - want).abs() < 1e-3, "{d:?}");
+        }
+        Ok(())
+    }
+
+    #[test]
+    fn episode_chain_duty_is_its_stationary_probability() -> Result<()> {
+        let c = Chain::new("x", Some(Episodes { rate_per_hour: 36.0, mean_duration_s: 10.0 }), 1.0)?;
+        let c = c.ok_or(Error::NoSolution("chain"))?;
+        // p_start = 1 − e^−0.01, p_end = 1 − e^−0.1.
+        let ps = 1.0 - libm::expf(-0.01);
+        let pe = 1.0 - libm::expf(-0.1);
+        assert!((c.duty() - ps / (ps + pe)).abs() < 1e-5);
+        Ok(())
+    }
+}

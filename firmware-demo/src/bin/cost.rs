@@ -16,7 +16,7 @@ use headroom::record::codec::{encode_decision, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogRecord};
 use headroom_firmware_demo::clock::{ticks_between, ticks_to_milli_instructions, Clock};
 use headroom_firmware_demo::radio::{Radio, SimRadio};
-use headroom_firmware_demo::{board, host, scenario};
+use headroom_firmware_demo::{board, host, scenario, stack};
 
 /// Readings in the controller's window (the size the targets are set for).
 const WINDOW: usize = 32;
@@ -26,6 +26,7 @@ const N: usize = 128;
 
 #[entry]
 fn main() -> ! {
+    headroom_firmware_demo::stack::paint();
     let ok = run();
     host::exit(ok)
 }
@@ -124,7 +125,12 @@ fn run() -> bool {
     let t0 = clock.now();
     let mut frames_ok = true;
     for (i, r) in recs.iter().enumerate() {
-        let d = DecisionRecord { t_ms: r.t_ms, tx_dbm: -3.0, outcome: 0, reason: 1 };
+        let d = DecisionRecord {
+            t_ms: r.t_ms,
+            tx_dbm: -3.0,
+            outcome: 0,
+            reason: 1,
+        };
         frames_ok &= black_box(encode_decision(i as u16, black_box(&d), &mut buf)).is_ok();
     }
     let encode_ticks = ticks_between(t0, clock.now());
@@ -138,16 +144,33 @@ fn run() -> bool {
     hprintln!("core={}", board::CORE);
     hprintln!("window={}", WINDOW);
     hprintln!("updates_timed={}", N);
-    hprintln!("controller_state_bytes={}", core::mem::size_of::<Controller<WINDOW>>());
-    hprintln!("replay_state_bytes={}", core::mem::size_of::<Replay<WINDOW>>());
+    hprintln!(
+        "controller_state_bytes={}",
+        core::mem::size_of::<Controller<WINDOW>>()
+    );
+    hprintln!(
+        "replay_state_bytes={}",
+        core::mem::size_of::<Replay<WINDOW>>()
+    );
     hprintln!("milli_instructions_per_tick={}", milli);
-    hprintln!("update_mean_milli_instructions={}", per_item(batch, overhead, N));
+    hprintln!(
+        "update_mean_milli_instructions={}",
+        per_item(batch, overhead, N)
+    );
     hprintln!("update_max_ticks={}", max_ticks.saturating_sub(empty_max));
     hprintln!(
         "update_max_instructions_upper={}",
         ticks_to_milli_instructions(u64::from(max_ticks.saturating_sub(empty_max) + 1)) / 1000
     );
-    hprintln!("replay_step_mean_milli_instructions={}", per_item(replay_ticks, overhead, N));
-    hprintln!("encode_decision_mean_milli_instructions={}", per_item(encode_ticks, overhead, N));
+    hprintln!(
+        "replay_step_mean_milli_instructions={}",
+        per_item(replay_ticks, overhead, N)
+    );
+    hprintln!(
+        "encode_decision_mean_milli_instructions={}",
+        per_item(encode_ticks, overhead, N)
+    );
+    hprintln!("stack_peak_bytes={}", stack::peak());
+    hprintln!("stack_available_bytes={}", stack::available());
     true
 }

@@ -23,6 +23,7 @@ const PACKET_GAP_MS: u32 = 1;
 
 #[entry]
 fn main() -> ! {
+    headroom_firmware_demo::stack::paint();
     let ok = run();
     host::exit(ok)
 }
@@ -66,7 +67,12 @@ fn run() -> bool {
     for k in 0..scenario::PACKETS {
         let chosen = ctrl.tx();
         if let Err(e) = radio.set_tx_power(chosen) {
-            defmt::error!("packet {=u32}: radio refused {=f32} dBm: {}", k, chosen.0, e);
+            defmt::error!(
+                "packet {=u32}: radio refused {=f32} dBm: {}",
+                k,
+                chosen.0,
+                e
+            );
             return false;
         }
         if let Err(e) = radio.send(&k.to_le_bytes()) {
@@ -83,9 +89,9 @@ fn run() -> bool {
         };
         let d = ctrl.update(&obs);
         let (outcome, snr) = match obs {
-            Observation::Feedback { rssi, noise, snr, .. } => {
-                (Outcome::Delivered, Some(snr.unwrap_or(rssi - noise)))
-            }
+            Observation::Feedback {
+                rssi, noise, snr, ..
+            } => (Outcome::Delivered, Some(snr.unwrap_or(rssi - noise))),
             Observation::Acked { .. } => (Outcome::Delivered, None),
             Observation::Lost { .. } => (Outcome::Lost, None),
             Observation::Beacon { .. } | Observation::Missing { .. } => (Outcome::Unjudged, None),
@@ -129,6 +135,11 @@ fn run() -> bool {
         saved_db,
         saved_fraction * 100.0,
         summary.power_changes
+    );
+    defmt::info!(
+        "stack (differs by board): {=usize} of {=usize} bytes used",
+        headroom_firmware_demo::stack::peak(),
+        headroom_firmware_demo::stack::available()
     );
     true
 }

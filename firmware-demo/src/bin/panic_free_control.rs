@@ -26,7 +26,9 @@ fn main() -> ! {
 
 fn run() -> bool {
     let cfg = black_box(ControllerConfig::sub_ghz_node());
-    let (Ok(mut ctrl), Ok(mut replay)) = (Controller::<WINDOW>::new(cfg), Replay::<WINDOW>::new(cfg)) else {
+    let (Ok(mut ctrl), Ok(mut replay)) =
+        (Controller::<WINDOW>::new(cfg), Replay::<WINDOW>::new(cfg))
+    else {
         return false;
     };
     for k in 0..black_box(256u32) {
@@ -35,12 +37,27 @@ fn run() -> bool {
         let obs = match black_box(k % 5) {
             0 => Observation::Lost { t_ms },
             1 => Observation::Acked { t_ms },
-            2 => Observation::Beacon { t_ms, beacon_tx: Dbm(a), rssi: Dbm(b) },
+            2 => Observation::Beacon {
+                t_ms,
+                beacon_tx: Dbm(a),
+                rssi: Dbm(b),
+            },
             3 => Observation::Missing { t_ms },
-            _ => Observation::Feedback { t_ms, tx: Dbm(a), rssi: Dbm(b), noise: Dbm(c), snr: Some(Db(a - c)) },
+            _ => Observation::Feedback {
+                t_ms,
+                tx: Dbm(a),
+                rssi: Dbm(b),
+                noise: Dbm(c),
+                snr: Some(Db(a - c)),
+            },
         };
         black_box(ctrl.update(black_box(&obs)));
-        let rec = LogRecord { t_ms, tx_dbm: Some(a), rssi_dbm: Some(b), noise_dbm: Some(c) };
+        let rec = LogRecord {
+            t_ms,
+            tx_dbm: Some(a),
+            rssi_dbm: Some(b),
+            noise_dbm: Some(c),
+        };
         black_box(replay.step(black_box(&rec)));
     }
     let s = replay.summary();

@@ -27,12 +27,21 @@ fn run() -> bool {
         let rec = LogRecord {
             t_ms,
             tx_dbm: Some(probe_f32(k, 1)),
-            rssi_dbm: if k % 3 == 0 { None } else { Some(probe_f32(k, 2)) },
+            rssi_dbm: if k % 3 == 0 {
+                None
+            } else {
+                Some(probe_f32(k, 2))
+            },
             noise_dbm: Some(probe_f32(k, 3)),
         };
         let seq = black_box(k as u16);
         ok &= black_box(encode_record(seq, black_box(&rec), &mut buf)).is_ok();
-        let d = DecisionRecord { t_ms, tx_dbm: probe_f32(k, 4), outcome: k as u8, reason: (k >> 8) as u8 };
+        let d = DecisionRecord {
+            t_ms,
+            tx_dbm: probe_f32(k, 4),
+            outcome: k as u8,
+            reason: (k >> 8) as u8,
+        };
         ok &= black_box(encode_decision(seq, black_box(&d), &mut buf)).is_ok();
         // A buffer too small must be an error, not a panic.
         let small = black_box((k as usize) % 8);

@@ -17,6 +17,7 @@ use headroom::control::{ControllerConfig, Replay};
 use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogHeader};
 use headroom_firmware_demo::host::{self, File, HostError, Mode};
+use headroom_firmware_demo::stack;
 
 /// Readings in the controller's window: the same as the host's replay.
 const WINDOW: usize = 32;
@@ -29,6 +30,7 @@ const WRITE_BUFFER: usize = 512;
 
 #[entry]
 fn main() -> ! {
+    stack::paint();
     let ok = match run() {
         Ok(()) => true,
         Err(e) => {
@@ -105,7 +107,8 @@ impl Output {
 }
 
 fn run() -> Result<(), Failure> {
-    let mut line = [0u8; 2 * host::MAX_PATH + 64];
+    // The program name comes first: QEMU passes the full path of the ELF.
+    let mut line = [0u8; 512];
     let cmdline = host::command_line(&mut line)?;
     let (Some(input), Some(output)) = (host::arg(cmdline, 0), host::arg(cmdline, 1)) else {
         return Err(Failure::Usage);
@@ -113,9 +116,15 @@ fn run() -> Result<(), Failure> {
 
     let mut log = File::open(input, Mode::ReadBinary)?;
     let log_len = log.len()?;
-    let mut out = Output { file: File::open(output, Mode::WriteBinary)?, buf: [0; WRITE_BUFFER], len: 0, bytes: 0 };
+    let mut out = Output {
+        file: File::open(output, Mode::WriteBinary)?,
+        buf: [0; WRITE_BUFFER],
+        len: 0,
+        bytes: 0,
+    };
 
-    let mut replay = Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node()).map_err(|_| Failure::Config)?;
+    let mut replay =
+        Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node()).map_err(|_| Failure::Config)?;
     let mut enc = Encoder::new();
     let mut frame = [0u8; MAX_FRAME];
     out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
@@ -126,7 +135,10 @@ fn run() -> Result<(), Failure> {
     let mut other = 0u64;
     let mut handle = |ev: Event, out: &mut Output, enc: &mut Encoder| -> Result<(), Failure> {
         match ev {
-            Event::Frame { frame: Frame::Record(rec), .. } => {
+            Event::Frame {
+                frame: Frame::Record(rec),
+                ..
+            } => {
                 let s = replay.step(&rec);
                 let d = DecisionRecord {
                     t_ms: s.t_ms,
@@ -136,7 +148,10 @@ fn run() -> Result<(), Failure> {
                 };
                 out.push(enc.decision(&d, &mut frame)?)?;
             }
-            Event::Frame { frame: Frame::Header { .. }, .. } => {}
+            Event::Frame {
+                frame: Frame::Header { .. },
+                ..
+            } => {}
             Event::Frame { .. } => other += 1,
             Event::Damaged { .. } => damaged += 1,
         }
@@ -159,7 +174,7 @@ fn run() -> Result<(), Failure> {
 
     let s = replay.summary();
     hprintln!(
-        "replay: {} bytes in, {} records, {} lost of {} judged, {} unjudged, {} damaged, {} other frames, {} bytes out",
+        "replay: {} bytes in, {} records, {} lost of {} judged, {} unjudged, {} damaged, {} other frames, {} bytes out, stack {} of {} bytes",
         log_len,
         s.records,
         s.lost,
@@ -167,7 +182,9 @@ fn run() -> Result<(), Failure> {
         s.unjudged,
         damaged,
         other,
-        out.bytes
+        out.bytes,
+        stack::peak(),
+        stack::available()
     );
     Ok(())
 }

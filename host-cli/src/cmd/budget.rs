@@ -8,6 +8,7 @@ use serde_json::json;
 use crate::error::CliResult;
 use crate::link::{self, LoadedLink};
 use crate::output::{json_num, Format, Report};
+use crate::plot;
 use crate::quantity;
 
 /// Arguments of `headroom budget`.
@@ -22,6 +23,12 @@ pub struct Args {
     /// Output format.
     #[arg(long, value_enum, default_value_t)]
     pub format: Format,
+    /// Also draw the level diagram to this file (.svg or .png).
+    #[arg(long, value_name = "FILE")]
+    pub plot: Option<PathBuf>,
+    /// Overwrite the --plot file if it exists.
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Put the budget of a loaded link into a report (shared with `solve`).
@@ -60,6 +67,13 @@ pub fn report(l: &LoadedLink) -> CliResult<Report> {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    if let Some(p) = &args.plot {
+        plot::check_destination(p, args.force)?;
+    }
     let l = link::load(&args.link, args.frequency)?;
-    report(&l)?.print(args.format)
+    let rep = report(&l)?;
+    if let Some(p) = &args.plot {
+        plot::budget_plot(p, args.force, &l.name, &l.link)?;
+    }
+    rep.print(args.format)
 }

@@ -10,3 +10,4 @@ pub mod solve;
 pub mod convert;
 pub mod replay;
 pub mod synth;
+pub mod tune;

@@ -37,6 +37,8 @@ pub(super) struct BinaryReader {
     damage: Vec<Damage>,
     other: u64,
     strict: bool,
+    /// Whether the damage found while opening was given as a strict error.
+    strict_reported: bool,
     /// A record read while opening (a log without a header frame).
     first: Option<LogRecord>,
 }
@@ -58,6 +60,7 @@ impl BinaryReader {
             damage: Vec::new(),
             other: 0,
             strict: false,
+            strict_reported: false,
             first: None,
         };
         // Read up to the first intact frame, to know the header.
@@ -87,12 +90,13 @@ impl BinaryReader {
         if let Some(r) = self.first.take() {
             return Some(Ok(r));
         }
-        if self.strict {
+        // Damage found while opening, before strict mode could be set (the
+        // stream may have ended there already: a file with no intact frame).
+        if self.strict && !self.strict_reported {
             if let Some(d) = self.damage.first() {
-                if !self.done {
-                    self.done = true;
-                    return Some(Err(CliError::Input(format!("{}: {d}", self.name))));
-                }
+                self.strict_reported = true;
+                self.done = true;
+                return Some(Err(CliError::Input(format!("{}: {d}", self.name))));
             }
         }
         self.next_inner(false)

@@ -4,6 +4,7 @@
 use std::fmt;
 use std::fs::File;
 use std::io::{self, BufRead, BufReader, Read, Write};
+use std::path::{Path, PathBuf};
 
 use headroom::units::{Db, Dbi, Dbm};
 
@@ -33,35 +34,86 @@ impl fmt::Display for LineTooLong {
 impl std::error::Error for LineTooLong {}
 
 /// Fails the read once a line grows past [`MAX_LINE`], so a file without
-/// newlines cannot make the CSV parser buffer it whole.
+/// newlines cannot make the CSV parser buffer it whole. The bytes before a
+/// too-long line are passed on first, so the rows before it are still read;
+/// the error comes with the next read.
 struct LineLimit<R> {
     inner: R,
     /// Bytes since the last newline.
     run: usize,
     /// Lines finished so far, including those read before the CSV parser.
     lines: u64,
+    /// Line number of a too-long line found in the last chunk.
+    deferred: Option<u64>,
 }
 
 impl<R: Read> Read for LineLimit<R> {
     fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+        if let Some(line) = self.deferred.take() {
+            return Err(too_long(line));
+        }
         let n = self.inner.read(buf)?;
         let chunk = buf.get(..n).unwrap_or(&[]);
-        let mut start = 0usize;
-        for (i, &b) in chunk.iter().enumerate() {
-            if b == b'\n' {
-                if self.run + (i - start) > MAX_LINE {
-                    return Err(too_long(self.lines + 1));
+        match first_long_line(chunk, self.run) {
+            None => {
+                self.lines += count_newlines(chunk);
+                self.run = match chunk.iter().rposition(|&b| b == b'\n') {
+                    Some(last) => n - last - 1,
+                    None => self.run + n,
+                };
+                Ok(n)
+            }
+            Some(start) => {
+                self.lines += count_newlines(chunk.get(..start).unwrap_or(&[]));
+                let line = self.lines + 1;
+                if start == 0 {
+                    Err(too_long(line))
+                } else {
+                    self.deferred = Some(line);
+                    self.run = 0;
+                    Ok(start)
                 }
-                self.lines += 1;
-                self.run = 0;
-                start = i + 1;
             }
         }
-        self.run += n - start;
-        if self.run > MAX_LINE {
-            return Err(too_long(self.lines + 1));
+    }
+}
+
+fn count_newlines(bytes: &[u8]) -> u64 {
+    bytes.iter().filter(|&&b| b == b'\n').count() as u64
+}
+
+/// Where in `chunk` the first line longer than [`MAX_LINE`] starts (0 if it
+/// started in an earlier chunk, `run` bytes ago), if there is one.
+fn first_long_line(chunk: &[u8], run: usize) -> Option<usize> {
+    // Quick test: the first and last lines are short, and every block of
+    // MAX_LINE / 2 bytes holds a newline, so no line between is longer
+    // than MAX_LINE.
+    let first = chunk.iter().position(|&b| b == b'\n');
+    let last = chunk.iter().rposition(|&b| b == b'\n');
+    if let (Some(f), Some(l)) = (first, last) {
+        if run + f <= MAX_LINE
+            && chunk.len() - l - 1 <= MAX_LINE
+            && chunk.chunks_exact(MAX_LINE / 2).all(|b| b.contains(&b'\n'))
+        {
+            return None;
         }
-        Ok(n)
+    }
+    // Exact walk.
+    let mut start = 0usize;
+    let mut carried = run;
+    for (i, &b) in chunk.iter().enumerate() {
+        if b == b'\n' {
+            if carried + (i - start) > MAX_LINE {
+                return Some(start);
+            }
+            start = i + 1;
+            carried = 0;
+        }
+    }
+    if carried + (chunk.len() - start) > MAX_LINE {
+        Some(start)
+    } else {
+        None
     }
 }
 
@@ -78,22 +130,66 @@ struct Columns {
     noise: Option<usize>,
 }
 
+/// Line numbers of byte offsets, for error messages. The CSV parser's own
+/// line count skips comment and blank lines, so this counts newlines in the
+/// file itself, through a second handle, only when an error needs a line,
+/// and onwards from the last offset asked (cost: one pass over the file at
+/// most, however many errors).
+struct LineMap {
+    path: PathBuf,
+    file: Option<BufReader<File>>,
+    /// Offset in the file counted up to, and newlines before it.
+    at: u64,
+    lines: u64,
+    /// Bytes of the file before the CSV parser's input (the comment block).
+    base: u64,
+}
+
+impl LineMap {
+    /// The 1-based line holding byte `csv_byte` of the CSV parser's input.
+    fn line(&mut self, csv_byte: u64) -> u64 {
+        let target = self.base + csv_byte;
+        if target < self.at || self.file.is_none() {
+            self.at = 0;
+            self.lines = 0;
+            self.file = File::open(&self.path).ok().map(BufReader::new);
+        }
+        let Some(f) = self.file.as_mut() else { return 0 };
+        while self.at < target {
+            let buf = match f.fill_buf() {
+                Ok(b) if !b.is_empty() => b,
+                _ => break,
+            };
+            let take = buf.len().min(usize::try_from(target - self.at).unwrap_or(usize::MAX));
+            let part = buf.get(..take).unwrap_or(&[]);
+            self.lines += count_newlines(part);
+            self.at += take as u64;
+            f.consume(take);
+        }
+        self.lines + 1
+    }
+}
+
 pub(super) struct CsvReader {
     name: String,
-    rdr: ::csv::Reader<LineLimit<BufReader<File>>>,
+    rdr: ::csv::Reader<LineLimit<io::Chain<io::Cursor<Vec<u8>>, File>>>,
     rec: ::csv::ByteRecord,
     cols: Columns,
-    /// Lines read before the CSV parser started (the comment block).
-    line_base: u64,
+    lines: LineMap,
     header: Option<LogHeader>,
     done: bool,
 }
 
 impl CsvReader {
-    pub(super) fn new(name: String, file: File) -> CliResult<Self> {
-        let mut input = BufReader::with_capacity(64 * 1024, file);
-        let (header, line_base) = read_preamble(&name, &mut input)?;
-        let limited = LineLimit { inner: input, run: 0, lines: line_base };
+    pub(super) fn new(name: String, path: &Path, file: File) -> CliResult<Self> {
+        let mut input = BufReader::with_capacity(8 * 1024, file);
+        let (header, line_base, base) = read_preamble(&name, &mut input)?;
+        let mut lines = LineMap { path: path.to_path_buf(), file: None, at: 0, lines: 0, base };
+        // The CSV parser buffers by itself: hand it the file directly, after
+        // what the preamble reader had buffered already.
+        let rest = input.buffer().to_vec();
+        let input = io::Cursor::new(rest).chain(input.into_inner());
+        let limited = LineLimit { inner: input, run: 0, lines: line_base, deferred: None };
         let mut rdr = ::csv::ReaderBuilder::new()
             .has_headers(true)
             .flexible(false)
@@ -103,19 +199,22 @@ impl CsvReader {
             .from_reader(limited);
         let names = match rdr.byte_headers() {
             Ok(h) => h.clone(),
-            Err(e) => return Err(csv_error(&name, line_base, e).0),
+            Err(e) => {
+                let at = last_byte(&rdr);
+                return Err(csv_error(&name, &mut lines, at, e).0);
+            }
         };
         if names.is_empty() || (names.len() == 1 && names.get(0) == Some(b"")) {
             return Err(CliError::Input(format!("{name}: no header row (expected columns {})", COLUMNS.join(","))));
         }
-        let header_line = names.position().map_or(line_base + 1, |p| p.line() + line_base);
+        let header_line = lines.line(last_byte(&rdr));
         let cols = find_columns(&name, header_line, &names)?;
         Ok(CsvReader {
             name,
             rdr,
             rec: ::csv::ByteRecord::new(),
             cols,
-            line_base,
+            lines,
             header,
             done: false,
         })
@@ -134,20 +233,27 @@ impl CsvReader {
                 self.done = true;
                 None
             }
-            Ok(true) => Some(self.parse_row()),
+            Ok(true) => match self.parse_row() {
+                Ok(r) => Some(Ok(r)),
+                Err((col, why)) => {
+                    let line = self.lines.line(last_byte(&self.rdr));
+                    Some(Err(CliError::Input(format!("{}:{line}: column {col}: {why}", self.name))))
+                }
+            },
             Err(e) => {
-                let (err, fatal) = csv_error(&self.name, self.line_base, e);
+                let at = last_byte(&self.rdr);
+                let (err, fatal) = csv_error(&self.name, &mut self.lines, at, e);
                 self.done = fatal;
                 Some(Err(err))
             }
         }
     }
 
-    fn parse_row(&self) -> CliResult<LogRecord> {
+    /// The record in `self.rec`, or the bad column and why.
+    fn parse_row(&self) -> Result<LogRecord, (&'static str, String)> {
         let rec = &self.rec;
         let cols = self.cols;
-        let line = rec.position().map_or(0, |p| p.line()) + self.line_base;
-        let bad = |col: &str, why: String| CliError::Input(format!("{}:{line}: column {col}: {why}", self.name));
+        let bad = |col: &'static str, why: String| (col, why);
         let t_cell = unquote(rec.get(cols.t).unwrap_or(b""));
         if t_cell.is_empty() {
             return Err(bad("t_ms", "empty (every row needs a time)".into()));
@@ -155,7 +261,7 @@ impl CsvReader {
         let t_ms = parse_u64(t_cell).ok_or_else(|| {
             bad("t_ms", format!("'{}' is not a whole number of milliseconds", show(t_cell)))
         })?;
-        let float = |idx: Option<usize>, col: &str| -> CliResult<Option<f32>> {
+        let float = |idx: Option<usize>, col: &'static str| -> Result<Option<f32>, (&'static str, String)> {
             let Some(i) = idx else { return Ok(None) };
             let cell = unquote(rec.get(i).unwrap_or(b""));
             if cell.is_empty() {
@@ -175,10 +281,19 @@ impl CsvReader {
 }
 
 /// A CSV parser error as a CLI error, and whether the stream must end.
-fn csv_error(name: &str, line_base: u64, e: ::csv::Error) -> (CliError, bool) {
+/// Offset in the CSV parser's input of the last byte of the row just read.
+/// (A row's own recorded position is where the parser started looking for
+/// it, before skipping blank and comment lines.)
+fn last_byte<R: Read>(rdr: &::csv::Reader<R>) -> u64 {
+    rdr.position().byte().saturating_sub(1)
+}
+
+/// A CSV parser error (`at`: the last byte read) as a CLI error, and
+/// whether the stream must end.
+fn csv_error(name: &str, lines: &mut LineMap, at: u64, e: ::csv::Error) -> (CliError, bool) {
     match e.kind() {
-        ::csv::ErrorKind::UnequalLengths { pos, expected_len, len } => {
-            let line = pos.as_ref().map_or(0, |p| p.line()) + line_base;
+        ::csv::ErrorKind::UnequalLengths { expected_len, len, .. } => {
+            let line = lines.line(at);
             (
                 CliError::Input(format!(
                     "{name}:{line}: row has {len} cell{}, the header row has {expected_len}",
@@ -199,7 +314,8 @@ fn csv_error(name: &str, line_base: u64, e: ::csv::Error) -> (CliError, bool) {
 }
 
 /// Read the `#` comment lines before the header row; parse a header block.
-fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<LogHeader>, u64)> {
+/// Returns the header, the number of lines and of bytes read.
+fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<LogHeader>, u64, u64)> {
     let mut header: Option<LogHeader> = None;
     let mut lines = 0u64;
     let mut total = 0usize;
@@ -247,7 +363,7 @@ fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<L
             parse_header_line(name, lines, text, h)?;
         }
     }
-    Ok((header, lines))
+    Ok((header, lines, total as u64))
 }
 
 fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> CliResult {
@@ -473,6 +589,39 @@ mod tests {
             let ours = parse_f32(s.as_bytes()).map(f32::to_bits);
             assert_eq!(ours, s.parse::<f32>().ok().map(f32::to_bits), "{s}");
         }
+    }
+
+    #[test]
+    fn line_limit_finds_the_long_line_in_any_chunking() {
+        let mut text = Vec::new();
+        for i in 0..3000 {
+            text.extend_from_slice(format!("{i},1\n").as_bytes());
+        }
+        let long_at = text.len();
+        text.extend(std::iter::repeat_n(b'9', MAX_LINE + 1));
+        text.extend_from_slice(b"\n1,2\n");
+        for chunk in [1usize, 7, 100, 4096, 65536] {
+            let mut r = LineLimit { inner: &text[..], run: 0, lines: 0, deferred: None };
+            let mut got = 0usize;
+            let mut buf = vec![0u8; chunk];
+            let err = loop {
+                match r.read(&mut buf) {
+                    Ok(0) => panic!("no error, chunk {chunk}"),
+                    Ok(n) => got += n,
+                    Err(e) => break e,
+                }
+            };
+            // Every byte before the long line was passed on.
+            assert!(got >= long_at, "chunk {chunk}: {got} < {long_at}");
+            let long = err.get_ref().and_then(|x| x.downcast_ref::<LineTooLong>()).map(|l| l.line);
+            assert_eq!(long, Some(3001), "chunk {chunk}");
+        }
+        // Exactly MAX_LINE bytes is fine.
+        let mut ok = vec![b'5'; MAX_LINE];
+        ok.push(b'\n');
+        let mut r = LineLimit { inner: &ok[..], run: 0, lines: 0, deferred: None };
+        let mut sink = Vec::new();
+        assert_eq!(r.read_to_end(&mut sink).unwrap(), MAX_LINE + 1);
     }
 
     #[test]

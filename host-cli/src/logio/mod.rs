@@ -36,10 +36,10 @@
 //! [`LogReader::damage`], unless [`LogReader::set_strict`] is on, which turns
 //! the first damage into an error item that ends the stream.
 //!
-//! Writing goes to a temporary file in the destination's directory;
-//! [`LogWriter::finish`] flushes, fsyncs and moves it into place. An existing
-//! destination is refused unless `force`. A writer dropped without `finish`
-//! removes its temporary file.
+//! Writing goes through [`crate::atomic::AtomicFile`]: a temporary file in
+//! the destination's directory that [`LogWriter::finish`] flushes, fsyncs
+//! and moves into place. An existing destination is refused unless `force`.
+//! A writer dropped without `finish` removes its temporary file.
 //!
 //! Limits against hostile files: a CSV line is at most [`MAX_LINE`] bytes,
 //! the comment block before the header row at most [`MAX_PREAMBLE`] bytes; a
@@ -50,12 +50,12 @@ mod binary;
 mod csv;
 
 use std::fmt;
-use std::fs::{self, File};
-use std::io::{self, BufWriter, Write};
-use std::path::{Path, PathBuf};
+use std::fs::File;
+use std::path::Path;
 
 pub use headroom::record::{LogHeader, LogRecord};
 
+use crate::atomic::AtomicFile;
 use crate::error::{CliError, CliResult};
 
 /// Longest CSV line accepted, in bytes.
@@ -132,8 +132,10 @@ pub struct LogReader {
 }
 
 enum Inner {
-    Csv(csv::CsvReader),
-    Binary(binary::BinaryReader),
+    // Both boxed: the readers' states are hundreds of bytes and differ in
+    // size by as much; one allocation per file opened.
+    Csv(Box<csv::CsvReader>),
+    Binary(Box<binary::BinaryReader>),
 }
 
 /// Open a log, its format told by the extension.
@@ -151,8 +153,8 @@ pub fn open_as(path: &Path, format: Option<LogFormat>) -> CliResult<LogReader> {
         .map_err(|e| CliError::Io(format!("{}: cannot open: {e}", path.display())))?;
     let name = path.display().to_string();
     let inner = match format {
-        LogFormat::Csv => Inner::Csv(csv::CsvReader::new(name, file)?),
-        LogFormat::Binary => Inner::Binary(binary::BinaryReader::new(name, file)?),
+        LogFormat::Csv => Inner::Csv(Box::new(csv::CsvReader::new(name, path, file)?)),
+        LogFormat::Binary => Inner::Binary(Box::new(binary::BinaryReader::new(name, file)?)),
     };
     Ok(LogReader { inner })
 }
@@ -247,8 +249,8 @@ pub fn create_as(
         LogFormat::Binary => Encoder::Binary(Box::new(binary::BinaryEncoder::new())),
     };
     let res = match &mut enc {
-        Encoder::Csv(e) => out.writer().and_then(|w| e.start(w, header.as_ref())),
-        Encoder::Binary(e) => out.writer().and_then(|w| e.start(w, header.as_ref())),
+        Encoder::Csv(e) => e.start(&mut out, header.as_ref()),
+        Encoder::Binary(e) => e.start(&mut out, header.as_ref()),
     };
     res.map_err(|e| out.io_error(e))?;
     Ok(LogWriter { out, enc, written: 0 })
@@ -258,8 +260,8 @@ impl LogWriter {
     /// Append one record.
     pub fn write(&mut self, r: &LogRecord) -> CliResult {
         let res = match &mut self.enc {
-            Encoder::Csv(e) => self.out.writer().and_then(|w| e.write(w, r)),
-            Encoder::Binary(e) => self.out.writer().and_then(|w| e.write(w, r)),
+            Encoder::Csv(e) => e.write(&mut self.out, r),
+            Encoder::Binary(e) => e.write(&mut self.out, r),
         };
         res.map_err(|e| self.out.io_error(e))?;
         self.written += 1;
@@ -277,115 +279,74 @@ impl LogWriter {
     }
 }
 
-/// Output through a temporary file in the destination's directory.
-struct AtomicFile {
-    dest: PathBuf,
-    tmp: PathBuf,
-    file: Option<BufWriter<File>>,
-    force: bool,
-}
+#[cfg(test)]
+mod tests {
+    use super::*;
 
-impl AtomicFile {
-    fn create(dest: &Path, force: bool) -> CliResult<Self> {
-        if !force && fs::symlink_metadata(dest).is_ok() {
-            return Err(CliError::Input(format!(
-                "{}: already exists (use --force to overwrite)",
-                dest.display()
-            )));
-        }
-        let name = dest
-            .file_name()
-            .ok_or_else(|| CliError::Input(format!("{}: not a file name", dest.display())))?;
-        let dir = match dest.parent() {
-            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-            _ => PathBuf::from("."),
-        };
-        let pid = std::process::id();
-        for n in 0..100u32 {
-            let mut tmp_name = std::ffi::OsString::from(".");
-            tmp_name.push(name);
-            tmp_name.push(format!(".tmp-{pid}-{n}"));
-            let tmp = dir.join(tmp_name);
-            match fs::OpenOptions::new().write(true).create_new(true).open(&tmp) {
-                Ok(f) => {
-                    return Ok(AtomicFile {
-                        dest: dest.to_path_buf(),
-                        tmp,
-                        file: Some(BufWriter::with_capacity(64 * 1024, f)),
-                        force,
-                    })
+    fn rec(t_ms: u64) -> LogRecord {
+        LogRecord { t_ms, tx_dbm: Some(10.0), rssi_dbm: Some(-97.5), noise_dbm: None }
+    }
+
+    fn names(dir: &Path) -> Vec<std::ffi::OsString> {
+        std::fs::read_dir(dir).expect("list").map(|e| e.expect("entry").file_name()).collect()
+    }
+
+    #[test]
+    fn a_writer_dropped_without_finish_leaves_no_file_and_no_temp() {
+        for name in ["out.csv", "out.hrlog"] {
+            let dir = tempfile::tempdir().expect("temp dir");
+            let p = dir.path().join(name);
+            {
+                let mut w = create(&p, false, Some(LogHeader::default())).expect("create");
+                // Enough rows to spill the write buffer into the temporary file.
+                for t in 0..20_000 {
+                    w.write(&rec(t)).expect("write");
                 }
-                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => continue,
-                Err(e) => {
-                    return Err(CliError::Io(format!(
-                        "{}: cannot create a temporary file in {}: {e}",
-                        dest.display(),
-                        dir.display()
-                    )))
-                }
+                assert_eq!(names(dir.path()).len(), 1, "{name}: the temporary file while writing");
+                assert!(!p.exists(), "{name}: nothing under the final name before finish");
             }
-        }
-        Err(CliError::Io(format!(
-            "{}: cannot create a temporary file in {}",
-            dest.display(),
-            dir.display()
-        )))
-    }
-
-    fn writer(&mut self) -> io::Result<&mut dyn Write> {
-        match &mut self.file {
-            Some(f) => Ok(f),
-            None => Err(io::Error::other("output already closed")),
+            assert!(names(dir.path()).is_empty(), "{name}: {:?}", names(dir.path()));
         }
     }
 
-    fn io_error(&self, e: io::Error) -> CliError {
-        CliError::Io(format!("{}: cannot write: {e}", self.dest.display()))
-    }
-
-    fn commit(mut self) -> CliResult {
-        let Some(buf) = self.file.take() else {
-            return Err(CliError::Io(format!("{}: output already closed", self.dest.display())));
-        };
-        let file = buf.into_inner().map_err(|e| self.io_error(e.into_error()))?;
-        file.sync_all().map_err(|e| self.io_error(e))?;
-        drop(file);
-        let placed = if self.force {
-            fs::rename(&self.tmp, &self.dest)
-        } else {
-            // A hard link refuses to replace a file that appeared meanwhile.
-            match fs::hard_link(&self.tmp, &self.dest) {
-                Ok(()) => fs::remove_file(&self.tmp),
-                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
-                    return Err(CliError::Input(format!(
-                        "{}: already exists (use --force to overwrite)",
-                        self.dest.display()
-                    )))
-                }
-                // File systems without hard links: plain rename.
-                Err(_) => fs::rename(&self.tmp, &self.dest),
+    #[test]
+    fn finish_keeps_every_record_and_no_temp() {
+        for name in ["out.csv", "out.hrlog"] {
+            let dir = tempfile::tempdir().expect("temp dir");
+            let p = dir.path().join(name);
+            let mut w = create(&p, false, None).expect("create");
+            for t in 0..5_000 {
+                w.write(&rec(t)).expect("write");
             }
-        };
-        placed.map_err(|e| {
-            CliError::Io(format!("{}: cannot move the output into place: {e}", self.dest.display()))
-        })?;
-        self.tmp = PathBuf::new();
-        if let Some(dir) = self.dest.parent() {
-            let dir = if dir.as_os_str().is_empty() { Path::new(".") } else { dir };
-            // Persist the rename; not every platform can open a directory.
-            if let Ok(d) = File::open(dir) {
-                let _ = d.sync_all();
-            }
+            assert_eq!(w.records_written(), 5_000);
+            w.finish().expect("finish");
+            assert_eq!(names(dir.path()), vec![std::ffi::OsString::from(name)]);
+            let got: Vec<_> = open(&p).expect("open").map(|r| r.expect("record")).collect();
+            assert_eq!(got.len(), 5_000, "{name}");
+            assert_eq!(got.last(), Some(&rec(4_999)), "{name}");
+            // The output now exists: a second writer is refused before any work.
+            let e = create(&p, false, None).err().expect("refused");
+            assert_eq!(e.exit_code(), 2, "{name}");
+            assert!(e.to_string().contains("--force"), "{name}: {e}");
         }
-        Ok(())
     }
-}
 
-impl Drop for AtomicFile {
-    fn drop(&mut self) {
-        self.file = None;
-        if !self.tmp.as_os_str().is_empty() {
-            let _ = fs::remove_file(&self.tmp);
-        }
+    #[test]
+    fn strict_reports_damage_of_a_file_with_no_intact_frame() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("garbage.hrlog");
+        std::fs::write(&p, vec![0x55u8; 2000]).expect("seed");
+        // Lenient: no record, one damaged region.
+        let mut log = open(&p).expect("open");
+        assert!(log.by_ref().next().is_none());
+        assert_eq!(log.damage().len(), 1);
+        assert_eq!(log.damage().first().map(|d| d.bytes_skipped), Some(2000));
+        // Strict: that damage is an error item, then the stream ends.
+        let mut log = open(&p).expect("open");
+        log.set_strict(true);
+        let e = log.next().expect("an item").expect_err("damage is an error");
+        assert_eq!(e.exit_code(), 2);
+        assert!(e.to_string().contains("garbage.hrlog: byte 0:"), "{e}");
+        assert!(log.next().is_none());
     }
 }

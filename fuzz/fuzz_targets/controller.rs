@@ -1,0 +1,6 @@
+//! Fuzz target `controller`: see `headroom_fuzz::checks::controller`.
+#![no_main]
+
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    headroom_fuzz::checks::controller_with(data, true);
+});

@@ -1,0 +1,6 @@
+//! Fuzz target `csv_log`: see `headroom_fuzz::cli::csv_log`.
+#![no_main]
+
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    headroom_fuzz::cli::csv_log_with(data, true);
+});

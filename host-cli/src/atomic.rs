@@ -1,0 +1,312 @@
+//! Output that never leaves a half-written file under its final name: the
+//! bytes go to a temporary file in the destination's directory, which
+//! [`AtomicFile::commit`] flushes, syncs and moves into place. An existing
+//! destination is refused unless `force`. A file dropped without `commit`
+//! (an error, an interrupted command) removes its temporary file.
+//!
+//! The one implementation behind every file headroom writes: streamed
+//! (field logs, through [`AtomicFile`] as a [`Write`]) or whole
+//! (plots, through [`write`]).
+
+use std::ffi::OsString;
+use std::fs::{self, File};
+use std::io::{self, BufWriter, Write};
+use std::path::{Path, PathBuf};
+
+use crate::error::{CliError, CliResult};
+
+/// Size of the write buffer in front of the temporary file.
+const BUFFER: usize = 64 * 1024;
+/// Temporary names tried before giving up.
+const TEMP_TRIES: u32 = 100;
+
+fn exists_error(dest: &Path) -> CliError {
+    CliError::Input(format!(
+        "{}: already exists (use --force to overwrite)",
+        dest.display()
+    ))
+}
+
+/// Refuse `dest` early if it exists and `force` is not set, so that a command
+/// fails before doing its work rather than after.
+pub fn check_new(dest: &Path, force: bool) -> CliResult {
+    if !force && fs::symlink_metadata(dest).is_ok() {
+        return Err(exists_error(dest));
+    }
+    if dest.file_name().is_none() {
+        return Err(CliError::Input(format!(
+            "{}: not a file name",
+            dest.display()
+        )));
+    }
+    Ok(())
+}
+
+/// The directory `dest` goes into (`.` for a bare file name).
+fn parent_dir(dest: &Path) -> &Path {
+    match dest.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    }
+}
+
+/// An output file being written under a temporary name; a buffered
+/// [`Write`]. [`AtomicFile::commit`] keeps it, dropping it discards it.
+pub struct AtomicFile {
+    dest: PathBuf,
+    /// The temporary file; `None` once it has been moved or removed.
+    tmp: Option<PathBuf>,
+    /// `None` once closed by `commit` or `drop`.
+    file: Option<BufWriter<File>>,
+    force: bool,
+}
+
+impl AtomicFile {
+    /// Start writing `dest`: checks it as [`check_new`] does, then creates
+    /// a new temporary file beside it (`.NAME.tmp-PID-N`).
+    pub fn create(dest: &Path, force: bool) -> CliResult<AtomicFile> {
+        check_new(dest, force)?;
+        let name = dest
+            .file_name()
+            .ok_or_else(|| CliError::Input(format!("{}: not a file name", dest.display())))?;
+        let dir = parent_dir(dest);
+        let temp_error = |e: Option<io::Error>| {
+            let why = e.map(|e| format!(": {e}")).unwrap_or_default();
+            CliError::Io(format!(
+                "{}: cannot create a temporary file in {}{why}",
+                dest.display(),
+                dir.display()
+            ))
+        };
+        let pid = std::process::id();
+        for n in 0..TEMP_TRIES {
+            let mut tmp_name = OsString::from(".");
+            tmp_name.push(name);
+            tmp_name.push(format!(".tmp-{pid}-{n}"));
+            let tmp = dir.join(tmp_name);
+            match fs::OpenOptions::new().write(true).create_new(true).open(&tmp) {
+                Ok(f) => {
+                    return Ok(AtomicFile {
+                        dest: dest.to_path_buf(),
+                        tmp: Some(tmp),
+                        file: Some(BufWriter::with_capacity(BUFFER, f)),
+                        force,
+                    })
+                }
+                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => continue,
+                Err(e) => return Err(temp_error(Some(e))),
+            }
+        }
+        Err(temp_error(None))
+    }
+
+    /// A write failure as the command's error, naming the final file.
+    pub fn io_error(&self, e: io::Error) -> CliError {
+        CliError::Io(format!("{}: cannot write: {e}", self.dest.display()))
+    }
+
+    /// Flush, fsync and move the file into place. Without `force` the move
+    /// is a hard link, which refuses to replace a file that appeared since
+    /// [`AtomicFile::create`] (an error; that file is left as it is).
+    pub fn commit(mut self) -> CliResult {
+        let Some(buf) = self.file.take() else {
+            return Err(self.io_error(closed()));
+        };
+        let file = buf.into_inner().map_err(|e| self.io_error(e.into_error()))?;
+        file.sync_all().map_err(|e| self.io_error(e))?;
+        drop(file);
+        let Some(tmp) = self.tmp.clone() else {
+            return Err(self.io_error(closed()));
+        };
+        let placed = if self.force {
+            fs::rename(&tmp, &self.dest).map(|()| self.tmp = None)
+        } else {
+            match fs::hard_link(&tmp, &self.dest) {
+                // The output is in place; a temporary name that cannot be
+                // removed now is retried on drop.
+                Ok(()) => {
+                    if fs::remove_file(&tmp).is_ok() {
+                        self.tmp = None;
+                    }
+                    Ok(())
+                }
+                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
+                    return Err(exists_error(&self.dest))
+                }
+                // File systems without hard links: plain rename.
+                Err(_) => fs::rename(&tmp, &self.dest).map(|()| self.tmp = None),
+            }
+        };
+        placed.map_err(|e| {
+            CliError::Io(format!(
+                "{}: cannot move the output into place: {e}",
+                self.dest.display()
+            ))
+        })?;
+        // Persist the rename; not every platform can open a directory.
+        if let Ok(d) = File::open(parent_dir(&self.dest)) {
+            let _ = d.sync_all();
+        }
+        Ok(())
+    }
+
+    fn file(&mut self) -> io::Result<&mut BufWriter<File>> {
+        self.file.as_mut().ok_or_else(closed)
+    }
+}
+
+fn closed() -> io::Error {
+    io::Error::other("output already closed")
+}
+
+impl Write for AtomicFile {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.file()?.write(buf)
+    }
+
+    fn write_all(&mut self, buf: &[u8]) -> io::Result<()> {
+        self.file()?.write_all(buf)
+    }
+
+    /// Writes the buffer to the temporary file (no fsync: that is
+    /// [`AtomicFile::commit`]'s).
+    fn flush(&mut self) -> io::Result<()> {
+        self.file()?.flush()
+    }
+}
+
+impl Drop for AtomicFile {
+    fn drop(&mut self) {
+        // Close without flushing: the buffered bytes are being discarded.
+        if let Some(buf) = self.file.take() {
+            drop(buf.into_parts());
+        }
+        if let Some(tmp) = self.tmp.take() {
+            let _ = fs::remove_file(tmp);
+        }
+    }
+}
+
+/// Write `bytes` to `dest` through a temporary file and a move into place.
+pub fn write(dest: &Path, force: bool, bytes: &[u8]) -> CliResult {
+    let mut out = AtomicFile::create(dest, force)?;
+    out.write_all(bytes).map_err(|e| out.io_error(e))?;
+    out.commit()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn names(dir: &Path) -> Vec<OsString> {
+        let mut v: Vec<_> = fs::read_dir(dir)
+            .expect("list")
+            .map(|e| e.expect("entry").file_name())
+            .collect();
+        v.sort();
+        v
+    }
+
+    #[test]
+    fn writes_refuses_and_overwrites_with_force() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("out.bin");
+        write(&p, false, b"one").expect("first write");
+        assert_eq!(fs::read(&p).expect("read"), b"one");
+        let e = write(&p, false, b"two").expect_err("refused");
+        assert_eq!(e.exit_code(), 2);
+        assert!(e.to_string().contains("--force"), "{e}");
+        assert_eq!(fs::read(&p).expect("read"), b"one");
+        write(&p, true, b"two").expect("forced write");
+        assert_eq!(fs::read(&p).expect("read"), b"two");
+        // No temporary file is left behind.
+        assert_eq!(names(dir.path()), vec![OsString::from("out.bin")]);
+    }
+
+    #[test]
+    fn a_missing_directory_is_an_io_error() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("no-such-dir").join("out.bin");
+        let e = write(&p, false, b"x").expect_err("fails");
+        assert_eq!(e.exit_code(), 1);
+        assert!(e.to_string().contains("temporary file"), "{e}");
+    }
+
+    #[test]
+    fn dropped_without_commit_leaves_no_file_and_no_temp() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("out.csv");
+        {
+            let mut f = AtomicFile::create(&p, false).expect("create");
+            // More than the buffer, so some bytes reach the temporary file.
+            f.write_all(&vec![b'x'; BUFFER * 3 + 7]).expect("write");
+            f.flush().expect("flush");
+            assert_eq!(names(dir.path()).len(), 1, "the temporary file exists while writing");
+            assert!(!p.exists(), "nothing under the final name before commit");
+        }
+        assert!(names(dir.path()).is_empty(), "{:?}", names(dir.path()));
+    }
+
+    #[test]
+    fn dropped_without_commit_leaves_an_existing_file_alone() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("out.csv");
+        fs::write(&p, b"old").expect("seed");
+        {
+            let mut f = AtomicFile::create(&p, true).expect("create");
+            f.write_all(b"new, never kept").expect("write");
+        }
+        assert_eq!(fs::read(&p).expect("read"), b"old");
+        assert_eq!(names(dir.path()), vec![OsString::from("out.csv")]);
+    }
+
+    #[test]
+    fn streamed_output_appears_whole_on_commit() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join("out.log");
+        let mut f = AtomicFile::create(&p, false).expect("create");
+        let mut want = Vec::new();
+        for k in 0..20_000u32 {
+            let line = format!("{k},{}\n", k * 7);
+            f.write_all(line.as_bytes()).expect("write");
+            want.extend_from_slice(line.as_bytes());
+        }
+        assert!(!p.exists(), "nothing under the final name before commit");
+        f.commit().expect("commit");
+        assert_eq!(fs::read(&p).expect("read"), want);
+        assert_eq!(names(dir.path()), vec![OsString::from("out.log")]);
+    }
+
+    #[test]
+    fn a_file_that_appears_meanwhile_is_kept_unless_force() {
+        for force in [false, true] {
+            let dir = tempfile::tempdir().expect("temp dir");
+            let p = dir.path().join("out.bin");
+            let mut f = AtomicFile::create(&p, force).expect("create");
+            f.write_all(b"ours").expect("write");
+            fs::write(&p, b"theirs").expect("someone else writes");
+            let got = f.commit();
+            if force {
+                got.expect("commit");
+                assert_eq!(fs::read(&p).expect("read"), b"ours");
+            } else {
+                let e = got.expect_err("refused");
+                assert_eq!(e.exit_code(), 2);
+                assert!(e.to_string().contains("already exists"), "{e}");
+                assert_eq!(fs::read(&p).expect("read"), b"theirs");
+            }
+            assert_eq!(names(dir.path()), vec![OsString::from("out.bin")], "force {force}");
+        }
+    }
+
+    #[test]
+    fn not_a_file_name_and_an_existing_directory() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let e = AtomicFile::create(Path::new(".."), true).err().expect("refused");
+        assert_eq!(e.exit_code(), 2);
+        assert!(e.to_string().contains("not a file name"), "{e}");
+        // A directory that exists is refused like any existing output.
+        let e = AtomicFile::create(dir.path(), false).err().expect("refused");
+        assert!(e.to_string().contains("already exists"), "{e}");
+    }
+}

@@ -1,0 +1,215 @@
+//! `headroom budget --plot` as a user runs it: the files it writes and the
+//! errors it gives.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_headroom"))
+}
+
+fn example(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("../examples/links")
+        .join(name)
+}
+
+fn run(args: &[&str]) -> Output {
+    bin().args(args).output().expect("runs")
+}
+
+fn s(p: &Path) -> &str {
+    p.to_str().expect("utf-8 path")
+}
+
+/// Every text node of an SVG that must parse as XML.
+fn svg_texts(path: &Path) -> String {
+    let text = std::fs::read_to_string(path).expect("svg written");
+    let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
+    assert_eq!(doc.root_element().tag_name().name(), "svg");
+    doc.descendants()
+        .filter_map(|n| n.text())
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+/// Width and height from a PNG's IHDR chunk, after checking the signature.
+fn png_size(path: &Path) -> (u32, u32) {
+    let b = std::fs::read(path).expect("png written");
+    assert_eq!(b.get(..8), Some(&b"\x89PNG\r\n\x1a\n"[..]), "PNG signature");
+    assert_eq!(b.get(12..16), Some(&b"IHDR"[..]), "IHDR first");
+    let be = |r: std::ops::Range<usize>| {
+        u32::from_be_bytes(b.get(r).and_then(|x| x.try_into().ok()).expect("4 bytes"))
+    };
+    (be(16..20), be(20..24))
+}
+
+/// A number as the plot labels it: one decimal, U+2212 for minus.
+fn label(x: f64) -> String {
+    let t = format!("{x:.1}");
+    match t.strip_prefix('-') {
+        Some(r) => format!("\u{2212}{r}"),
+        None => t,
+    }
+}
+
+fn budget_json(link: &Path) -> serde_json::Value {
+    let out = run(&["budget", s(link), "--format", "json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).expect("JSON")
+}
+
+fn only_files(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .expect("list")
+        .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn svg_level_diagram_carries_the_budget() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    for f in [
+        "orchard-sensor.toml",
+        "smallsat-ground-station.toml",
+        "workshop-mesh.toml",
+    ] {
+        let link = example(f);
+        let plot = dir.path().join(f.replace(".toml", ".svg"));
+        let out = run(&["budget", s(&link), "--plot", s(&plot)]);
+        assert!(
+            out.status.success(),
+            "{f}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        assert!(!out.stdout.is_empty(), "the report is still printed");
+        let texts = svg_texts(&plot);
+        let v = budget_json(&link);
+        let name = v["link"].as_str().expect("name");
+        for needle in [
+            "power (dBm)",
+            "stage along the chain",
+            "noise floor",
+            "EIRP",
+            "path loss",
+            "margin",
+            name,
+        ] {
+            assert!(texts.contains(needle), "{f}: no '{needle}' in the SVG");
+        }
+        for item in v["line_items"].as_array().expect("items") {
+            let n = item["name"].as_str().expect("item name");
+            // Long names are wrapped at spaces: look for the first word.
+            let first = n.split_whitespace().next().expect("a word");
+            assert!(texts.contains(first), "{f}: no item '{n}'");
+        }
+        // The levels and the margin are the engine's numbers.
+        for key in ["tx_power_dbm", "eirp_dbm", "rx_power_dbm"] {
+            let want = format!("{} dBm", label(v[key].as_f64().expect("number")));
+            assert!(texts.contains(&want), "{f}: no '{want}' ({key})");
+        }
+        for key in ["noise_power_dbm", "sensitivity_dbm"] {
+            assert!(
+                texts.contains(&label(v[key].as_f64().expect("number"))),
+                "{f}: {key}"
+            );
+        }
+        let margin = v["margin_db"].as_f64().expect("number");
+        let want = format!("{} dB", label(margin.abs()));
+        assert!(texts.contains(&want), "{f}: no margin '{want}'");
+    }
+    assert_eq!(only_files(dir.path()).len(), 3, "no temporary files left");
+}
+
+#[test]
+fn png_level_diagram_has_its_size() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let plot = dir.path().join("orchard.PNG");
+    let out = run(&[
+        "budget",
+        s(&example("orchard-sensor.toml")),
+        "--plot",
+        s(&plot),
+        "--format",
+        "json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert_eq!(png_size(&plot), (1100, 680));
+}
+
+fn fails_with(args: &[&str], code: i32, needle: &str) {
+    let out = run(args);
+    assert_eq!(out.status.code(), Some(code), "{args:?}");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains(needle), "{args:?}: {err}");
+    assert_eq!(err.trim().lines().count(), 1, "one line: {err}");
+    assert!(!err.contains("panicked"));
+    assert!(out.stdout.is_empty(), "nothing printed on failure");
+}
+
+#[test]
+fn a_bad_extension_is_refused_before_any_work() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let link = example("orchard-sensor.toml");
+    let jpg = dir.path().join("plot.jpg");
+    fails_with(
+        &["budget", s(&link), "--plot", s(&jpg)],
+        2,
+        "unknown plot type '.jpg' (use .svg or .png)",
+    );
+    let bare = dir.path().join("plot");
+    fails_with(
+        &["budget", s(&link), "--plot", s(&bare)],
+        2,
+        "no file extension",
+    );
+    assert!(only_files(dir.path()).is_empty(), "nothing written");
+}
+
+#[test]
+fn an_existing_file_is_kept_unless_forced() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let link = example("orchard-sensor.toml");
+    let plot = dir.path().join("level.svg");
+    std::fs::write(&plot, "keep me").expect("write");
+    fails_with(
+        &["budget", s(&link), "--plot", s(&plot)],
+        2,
+        "already exists (use --force to overwrite)",
+    );
+    assert_eq!(std::fs::read_to_string(&plot).expect("read"), "keep me");
+    let out = run(&["budget", s(&link), "--plot", s(&plot), "--force"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(svg_texts(&plot).contains("power (dBm)"));
+    assert_eq!(only_files(dir.path()), vec!["level.svg".to_string()]);
+}
+
+#[test]
+fn an_unwritable_destination_is_an_io_error() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let plot = dir.path().join("no-such-dir").join("level.svg");
+    fails_with(
+        &[
+            "budget",
+            s(&example("orchard-sensor.toml")),
+            "--plot",
+            s(&plot),
+        ],
+        1,
+        "temporary file",
+    );
+}

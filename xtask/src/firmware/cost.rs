@@ -1,0 +1,75 @@
+//! Instructions per controller update, from the `cost` firmware under
+//! `qemu -icount shift=0` (see firmware-demo/src/bin/cost.rs).
+
+use std::collections::HashMap;
+
+use super::{Board, Ctx};
+
+/// Readings in the controller window the firmware measures.
+pub const WINDOW: usize = 32;
+
+/// What the `cost` firmware reported.
+#[derive(Debug, Clone, Copy)]
+pub struct Cost {
+    /// `size_of::<Controller<32>>()` on the target.
+    pub controller_state_bytes: u64,
+    /// Mean instructions per update × 1000.
+    pub update_mean_milli: u64,
+    /// Upper bound on the slowest single update, instructions.
+    pub update_max_upper: u64,
+    /// Mean instructions per replay step × 1000.
+    pub replay_step_mean_milli: u64,
+    /// Mean instructions per encoded decision frame × 1000.
+    pub encode_mean_milli: u64,
+    /// Peak stack use of the cost firmware, bytes.
+    pub stack_peak_bytes: u64,
+}
+
+/// Run the `cost` firmware on `board` and parse its `key=value` lines.
+pub fn measure(ctx: &Ctx, board: &Board) -> Result<Cost, String> {
+    let elf = ctx.elf(board, "cost");
+    let out = ctx.run_qemu(ctx.qemu(board, &elf, true, None), "cost")?;
+    let text = String::from_utf8_lossy(&out);
+    let map: HashMap<&str, &str> = text
+        .lines()
+        .filter_map(|l| l.split_once('='))
+        .map(|(k, v)| (k.trim(), v.trim()))
+        .collect();
+    let num = |key: &str| -> Result<u64, String> {
+        map.get(key)
+            .ok_or_else(|| format!("cost firmware did not report `{key}`; it printed:\n{text}"))?
+            .parse::<u64>()
+            .map_err(|e| format!("cost firmware: `{key}`: {e}"))
+    };
+    if map.get("board").copied() != Some(board.machine) {
+        return Err(format!(
+            "cost firmware reports board {:?}, expected {}",
+            map.get("board"),
+            board.machine
+        ));
+    }
+    if num("window")? != WINDOW as u64 {
+        return Err(format!(
+            "cost firmware measures a window of {}, expected {WINDOW}",
+            num("window")?
+        ));
+    }
+    let c = Cost {
+        controller_state_bytes: num("controller_state_bytes")?,
+        update_mean_milli: num("update_mean_milli_instructions")?,
+        update_max_upper: num("update_max_instructions_upper")?,
+        replay_step_mean_milli: num("replay_step_mean_milli_instructions")?,
+        encode_mean_milli: num("encode_decision_mean_milli_instructions")?,
+        stack_peak_bytes: num("stack_peak_bytes")?,
+    };
+    if c.update_mean_milli == 0 {
+        return Err("cost firmware measured 0 instructions per update: was -icount active?".into());
+    }
+    println!(
+        "{}: {:.1} instructions per update (mean), ≤ {} (slowest)",
+        board.machine,
+        c.update_mean_milli as f64 / 1000.0,
+        c.update_max_upper
+    );
+    Ok(c)
+}

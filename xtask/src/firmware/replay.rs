@@ -1,0 +1,441 @@
+//! Replay on target against the host, record by record.
+//!
+//! Every field log (the CSV logs in `examples/logs/`, converted with
+//! `headroom convert`, and logs synthesized from every scenario in
+//! `examples/scenarios/` with `headroom synth`) is replayed by the `replay`
+//! firmware on both boards. Its decision frames must match, bit for bit in
+//! the chosen power and exactly in outcome and reason:
+//! - `headroom replay LOG --out decisions.csv` (the host CLI), and
+//! - the engine's `Replay` run here on the decoded log.
+
+use std::env;
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use headroom::control::{ControllerConfig, Outcome, Reason, Replay};
+use headroom::record::codec::{Event, Frame, FrameDecoder};
+use headroom::record::DecisionRecord;
+
+use super::{Ctx, BOARDS};
+use crate::proc::{run_capture, run_inherit, show};
+
+/// Readings in the controller window: the firmware's and the host CLI's.
+const WINDOW: usize = 32;
+
+/// Seed and length of the logs made from the scenarios (the fault
+/// scenarios inject their faults from record 2000 on).
+const SYNTH_SEED: &str = "20261202";
+const SYNTH_RECORDS: &str = "3000";
+
+/// Run the equivalence check on every log and board.
+pub fn run(ctx: &Ctx) -> Result<(), String> {
+    let headroom = build_host_cli(ctx)?;
+    let dir = ctx.work.join("replay");
+    fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+    let logs = gather_logs(ctx, &headroom, &dir)?;
+    if logs.is_empty() {
+        return Err(
+            "no field logs to replay (examples/logs/*.csv, examples/scenarios/*.toml)".into(),
+        );
+    }
+    let mut failures = Vec::new();
+    for log in &logs {
+        let name = log
+            .file_stem()
+            .and_then(|s| s.to_str())
+            .unwrap_or("log")
+            .to_string();
+        match check_log(ctx, &headroom, &dir, log, &name) {
+            Ok(n) => println!("{name}: {n} decisions identical on host, mps2-an386 and microbit"),
+            Err(e) => {
+                println!("{name}: MISMATCH");
+                failures.push(format!("{name}: {e}"));
+            }
+        }
+    }
+    if failures.is_empty() {
+        Ok(())
+    } else {
+        Err(failures.join("\n"))
+    }
+}
+
+fn check_log(
+    ctx: &Ctx,
+    headroom: &Path,
+    dir: &Path,
+    log: &Path,
+    name: &str,
+) -> Result<usize, String> {
+    let bytes = fs::read(log).map_err(|e| format!("{}: {e}", log.display()))?;
+    let engine = engine_replay(&bytes)?;
+
+    let csv = dir.join(format!("{name}.decisions.csv"));
+    // Every setting from the file (the engine's defaults), so that the
+    // log header's radio fields are not applied: the firmware uses
+    // ControllerConfig::sub_ghz_node() as it is.
+    let config = ctx
+        .root
+        .join("examples")
+        .join("controllers")
+        .join("default.toml");
+    let mut cmd = Command::new(headroom);
+    cmd.arg("replay")
+        .arg(log)
+        .arg("--config")
+        .arg(&config)
+        .arg("--out")
+        .arg(&csv);
+    // An old output must not pass for a new one.
+    let _ = fs::remove_file(&csv);
+    let out = run_capture(&mut cmd, ctx.timeout)?;
+    if !out.success {
+        return Err(format!("`{}` failed: {}", show(&cmd), out.stderr.trim()));
+    }
+    let text = fs::read_to_string(&csv).map_err(|e| format!("{}: {e}", csv.display()))?;
+    let cli = parse_cli_csv(&text).map_err(|e| format!("{}: {e}", csv.display()))?;
+    compare(
+        "headroom replay (host CLI)",
+        &cli,
+        "the engine's Replay in xtask",
+        &engine,
+    )?;
+
+    for b in &BOARDS {
+        let out_name = format!("{name}.{}.decisions.hrlog", b.machine);
+        let out_path = dir.join(&out_name);
+        let _ = fs::remove_file(&out_path);
+        let log_name = log
+            .file_name()
+            .and_then(|s| s.to_str())
+            .ok_or("log name is not UTF-8")?;
+        let mut q = ctx.qemu(
+            b,
+            &ctx.elf(b, "replay"),
+            false,
+            Some(&format!("{log_name} {out_name}")),
+        );
+        q.current_dir(log.parent().unwrap_or(dir));
+        let said = ctx.run_qemu(q, &format!("replay of {name} on {}", b.machine))?;
+        let frames = fs::read(log.parent().unwrap_or(dir).join(&out_name))
+            .map_err(|e| format!("{out_name}: {e}"))?;
+        let target = decode_decisions(&frames).map_err(|e| format!("{out_name}: {e}"))?;
+        compare(
+            &format!("firmware on {}", b.machine),
+            &target,
+            "headroom replay (host CLI)",
+            &cli,
+        )
+        .map_err(|e| {
+            format!(
+                "{e}\n  firmware said: {}",
+                String::from_utf8_lossy(&said).trim()
+            )
+        })?;
+    }
+    Ok(engine.len())
+}
+
+/// `cargo build -p headroom-cli` (debug, as the tests build it); its path.
+fn build_host_cli(ctx: &Ctx) -> Result<PathBuf, String> {
+    let cargo = env::var_os("CARGO").unwrap_or_else(|| "cargo".into());
+    run_inherit(Command::new(cargo).current_dir(&ctx.root).args([
+        "build",
+        "--quiet",
+        "-p",
+        "headroom-cli",
+    ]))?;
+    let target = env::var_os("CARGO_TARGET_DIR")
+        .map(PathBuf::from)
+        .map(|p| if p.is_absolute() { p } else { ctx.root.join(p) })
+        .unwrap_or_else(|| ctx.root.join("target"));
+    let exe = target
+        .join("debug")
+        .join(format!("headroom{}", env::consts::EXE_SUFFIX));
+    if exe.exists() {
+        Ok(exe)
+    } else {
+        Err(format!(
+            "built headroom-cli but {} is missing",
+            exe.display()
+        ))
+    }
+}
+
+/// Binary logs to replay, made in `dir`.
+fn gather_logs(ctx: &Ctx, headroom: &Path, dir: &Path) -> Result<Vec<PathBuf>, String> {
+    let mut logs = Vec::new();
+    for csv in files_with(&ctx.root.join("examples").join("logs"), "csv")? {
+        let stem = csv.file_stem().and_then(|s| s.to_str()).unwrap_or("log");
+        let out = dir.join(format!("log-{stem}.hrlog"));
+        let mut c = Command::new(headroom);
+        c.arg("convert").arg(&csv).arg(&out).arg("--force");
+        let o = run_capture(&mut c, ctx.timeout)?;
+        if !o.success {
+            return Err(format!("`{}` failed: {}", show(&c), o.stderr.trim()));
+        }
+        logs.push(out);
+    }
+    let scenarios = ctx.root.join("examples").join("scenarios");
+    let mut tomls = files_with(&scenarios, "toml")?;
+    tomls.extend(files_with(&scenarios.join("faults"), "toml")?);
+    for s in tomls {
+        let stem = s.file_stem().and_then(|s| s.to_str()).unwrap_or("scenario");
+        let fault = s
+            .parent()
+            .and_then(|p| p.file_name())
+            .is_some_and(|n| n == "faults");
+        let out = dir.join(format!(
+            "{}{stem}.hrlog",
+            if fault { "fault-" } else { "synth-" }
+        ));
+        let mut c = Command::new(headroom);
+        c.args(["synth", "--scenario"])
+            .arg(&s)
+            .args([
+                "--seed",
+                SYNTH_SEED,
+                "--records",
+                SYNTH_RECORDS,
+                "--force",
+                "--out",
+            ])
+            .arg(&out);
+        let o = run_capture(&mut c, ctx.timeout)?;
+        if !o.success {
+            return Err(format!("`{}` failed: {}", show(&c), o.stderr.trim()));
+        }
+        logs.push(out);
+    }
+    Ok(logs)
+}
+
+fn files_with(dir: &Path, ext: &str) -> Result<Vec<PathBuf>, String> {
+    if !dir.is_dir() {
+        return Ok(Vec::new());
+    }
+    let mut v: Vec<PathBuf> = fs::read_dir(dir)
+        .map_err(|e| format!("{}: {e}", dir.display()))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.is_file() && p.extension().is_some_and(|x| x == ext))
+        .collect();
+    v.sort();
+    Ok(v)
+}
+
+/// The engine's replay of a binary log, as the firmware's decision frames
+/// would say it.
+fn engine_replay(log: &[u8]) -> Result<Vec<DecisionRecord>, String> {
+    let mut replay = Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node())
+        .map_err(|e| format!("controller settings: {e}"))?;
+    let mut out = Vec::new();
+    let mut dec: FrameDecoder = FrameDecoder::new();
+    let mut input = log;
+    let mut on = |ev: Event| {
+        if let Event::Frame {
+            frame: Frame::Record(r),
+            ..
+        } = ev
+        {
+            let s = replay.step(&r);
+            out.push(DecisionRecord {
+                t_ms: s.t_ms,
+                tx_dbm: s.chosen.0,
+                outcome: s.outcome.code(),
+                reason: s.reason.code(),
+            });
+        }
+    };
+    while let Some(ev) = dec.feed(&mut input) {
+        on(ev);
+    }
+    if let Some(ev) = dec.finish() {
+        on(ev);
+    }
+    Ok(out)
+}
+
+/// The decision frames the firmware wrote. Any damaged byte is an error:
+/// the file went from QEMU to the host without a channel in between.
+fn decode_decisions(bytes: &[u8]) -> Result<Vec<DecisionRecord>, String> {
+    let mut out = Vec::new();
+    let mut dec: FrameDecoder = FrameDecoder::new();
+    let mut input = bytes;
+    let mut err = None;
+    let mut on = |ev: Event| match ev {
+        Event::Frame {
+            frame: Frame::Decision(d),
+            ..
+        } => out.push(d),
+        Event::Frame {
+            frame: Frame::Header { .. },
+            ..
+        } => {}
+        Event::Frame { frame, offset, .. } => {
+            err.get_or_insert(format!("unexpected frame {frame:?} at byte {offset}"));
+        }
+        Event::Damaged { offset, len, error } => {
+            err.get_or_insert(format!("{len} damaged byte(s) at {offset}: {error}"));
+        }
+    };
+    while let Some(ev) = dec.feed(&mut input) {
+        on(ev);
+    }
+    if let Some(ev) = dec.finish() {
+        on(ev);
+    }
+    match err {
+        Some(e) => Err(e),
+        None => Ok(out),
+    }
+}
+
+/// `headroom replay --out` CSV: one row per record with at least the
+/// columns `t_ms`, `chosen_dbm`, `outcome` (name) and `reason` (name).
+fn parse_cli_csv(text: &str) -> Result<Vec<DecisionRecord>, String> {
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty() && !l.starts_with('#'));
+    let (_, header) = lines.next().ok_or("empty CSV")?;
+    let cols: Vec<&str> = header.split(',').map(str::trim).collect();
+    let col = |names: &[&str]| {
+        cols.iter()
+            .position(|c| names.contains(c))
+            .ok_or_else(|| format!("no column {} in header `{header}`", names.join(" or ")))
+    };
+    let i_t = col(&["t_ms"])?;
+    let i_tx = col(&["chosen_dbm", "chosen_tx_dbm", "tx_dbm"])?;
+    let i_out = col(&["outcome"])?;
+    let i_reason = col(&["reason"])?;
+    let mut out = Vec::new();
+    for (n, line) in lines {
+        let f: Vec<&str> = line.split(',').map(str::trim).collect();
+        let get = |i: usize| {
+            f.get(i)
+                .copied()
+                .ok_or_else(|| format!("line {}: too few fields", n + 1))
+        };
+        let t_ms = get(i_t)?
+            .parse::<u64>()
+            .map_err(|e| format!("line {}: t_ms: {e}", n + 1))?;
+        let tx_dbm = get(i_tx)?
+            .parse::<f32>()
+            .map_err(|e| format!("line {}: chosen power: {e}", n + 1))?;
+        let o = get(i_out)?;
+        let outcome = [Outcome::Delivered, Outcome::Lost, Outcome::Unjudged]
+            .into_iter()
+            .find(|x| x.as_str() == o)
+            .ok_or_else(|| format!("line {}: unknown outcome `{o}`", n + 1))?;
+        let r = get(i_reason)?;
+        let reason =
+            Reason::from_name(r).ok_or_else(|| format!("line {}: unknown reason `{r}`", n + 1))?;
+        out.push(DecisionRecord {
+            t_ms,
+            tx_dbm,
+            outcome: outcome.code(),
+            reason: reason.code(),
+        });
+    }
+    Ok(out)
+}
+
+/// Record-by-record comparison; the chosen power must be the same f32 bits.
+fn compare(
+    a_name: &str,
+    a: &[DecisionRecord],
+    b_name: &str,
+    b: &[DecisionRecord],
+) -> Result<(), String> {
+    for (i, (x, y)) in a.iter().zip(b).enumerate() {
+        let same = x.t_ms == y.t_ms
+            && x.tx_dbm.to_bits() == y.tx_dbm.to_bits()
+            && x.outcome == y.outcome
+            && x.reason == y.reason;
+        if !same {
+            return Err(format!(
+                "record {i} differs:\n  {a_name}: {}\n  {b_name}: {}",
+                show_decision(x),
+                show_decision(y)
+            ));
+        }
+    }
+    if a.len() != b.len() {
+        return Err(format!(
+            "{a_name} has {} decisions, {b_name} has {}",
+            a.len(),
+            b.len()
+        ));
+    }
+    Ok(())
+}
+
+fn show_decision(d: &DecisionRecord) -> String {
+    let outcome = Outcome::from_code(d.outcome).map_or("?", Outcome::as_str);
+    let reason = Reason::from_code(d.reason).map_or("?", Reason::as_str);
+    format!(
+        "t_ms={} tx={} dBm (bits {:#010x}) outcome={outcome} reason={reason}",
+        d.t_ms,
+        d.tx_dbm,
+        d.tx_dbm.to_bits()
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn d(t_ms: u64, tx: f32, outcome: u8, reason: u8) -> DecisionRecord {
+        DecisionRecord {
+            t_ms,
+            tx_dbm: tx,
+            outcome,
+            reason,
+        }
+    }
+
+    #[test]
+    fn compare_wants_identical_bits() {
+        let a = [d(0, 14.0, 0, 0), d(1000, 13.0, 1, 2)];
+        assert!(compare("a", &a, "b", &a).is_ok());
+        let mut b = a;
+        b[1].tx_dbm = f32::from_bits(13.0f32.to_bits() + 1);
+        assert!(compare("a", &a, "b", &b).unwrap_err().contains("record 1"));
+        assert!(compare("a", &a, "b", &a[..1])
+            .unwrap_err()
+            .contains("has 2 decisions"));
+        let mut c = a;
+        c[0].reason = 1;
+        assert!(compare("a", &a, "b", &c).is_err());
+    }
+
+    #[test]
+    fn reads_the_cli_csv_by_column_name() {
+        let csv = "t_ms,logged_tx_dbm,chosen_dbm,outcome,reason\n0,14,14,delivered,warm_up\n60000,14,12.5,lost,hold\n";
+        let v = parse_cli_csv(csv).unwrap();
+        assert_eq!(v, vec![d(0, 14.0, 0, 0), d(60000, 12.5, 1, 1)]);
+        assert!(parse_cli_csv("t_ms,outcome\n").is_err());
+        assert!(parse_cli_csv("t_ms,chosen_dbm,outcome,reason\n0,14,fine,hold\n").is_err());
+    }
+
+    #[test]
+    fn firmware_frames_round_trip() {
+        use headroom::record::codec::{Encoder, MAX_FRAME};
+        use headroom::record::LogHeader;
+        let mut enc = Encoder::new();
+        let mut buf = [0u8; MAX_FRAME];
+        let mut bytes = enc
+            .header(&LogHeader::default(), &mut buf)
+            .unwrap()
+            .to_vec();
+        let want = [d(0, -3.0, 0, 1), d(5, 7.0, 2, 10)];
+        for x in &want {
+            bytes.extend_from_slice(enc.decision(x, &mut buf).unwrap());
+        }
+        assert_eq!(decode_decisions(&bytes).unwrap(), want);
+        let last = bytes.len() - 3;
+        bytes[last] ^= 0x40;
+        assert!(decode_decisions(&bytes).unwrap_err().contains("damaged"));
+    }
+}
