@@ -2,5 +2,5 @@
 #![no_main]
 
 libfuzzer_sys::fuzz_target!(|data: &[u8]| {
-    headroom_fuzz::checks::controller_with(data, true);
+    headroom_fuzz::checks::controller(data);
 });

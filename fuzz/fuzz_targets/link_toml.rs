@@ -2,5 +2,5 @@
 #![no_main]
 
 libfuzzer_sys::fuzz_target!(|data: &[u8]| {
-    headroom_fuzz::cli::link_toml(data);
+    headroom_fuzz::cli::link_toml_with(data, true);
 });

@@ -5,14 +5,13 @@
 //! This file uses only `headroom` and `std`: `tests/tests/fuzz_regressions.rs`
 //! compiles it as a module to replay the kept corpus on stable.
 
+use headroom::control::Observation;
 use headroom::control::{
     Controller, ControllerConfig, Decision, LevelTable, Outcome, PowerSteps, Replay, MAX_LEVELS,
     SETTING_LIMIT_DB,
 };
-use headroom::control::Observation;
 use headroom::record::codec::{
-    decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder,
-    MAX_FRAME,
+    decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder, MAX_FRAME,
 };
 use headroom::record::{DecisionRecord, LogHeader, LogRecord};
 use headroom::units::{Db, Dbi, Dbm};
@@ -64,6 +63,11 @@ impl<'a> Bytes<'a> {
     /// The next eight bytes, little-endian.
     pub fn u64(&mut self) -> u64 {
         u64::from(self.u32()) | (u64::from(self.u32()) << 32)
+    }
+
+    /// True for one in `n` values of the next byte (`n` a power of two).
+    pub fn one_in(&mut self, n: u8) -> bool {
+        self.u8() & n.wrapping_sub(1) == 0
     }
 
     /// Up to `n` of the remaining bytes.
@@ -160,7 +164,11 @@ pub fn decode_stream<const N: usize>(stream: &[u8], sizes: &[u8]) -> Vec<Canon> 
         assert!(chunk.is_empty(), "feed returned None with input left");
     }
     let total = stream.len() as u64;
-    assert_eq!(dec.position(), total, "decoder position after the whole stream");
+    assert_eq!(
+        dec.position(),
+        total,
+        "decoder position after the whole stream"
+    );
     while let Some(ev) = dec.finish() {
         out.push(canon(&ev));
         assert!(out.len() <= stream.len() + 2, "finish does not stop");
@@ -177,7 +185,10 @@ pub fn decode_stream<const N: usize>(stream: &[u8], sizes: &[u8]) -> Vec<Canon> 
             Canon::Damaged(offset, len, _) => {
                 assert!(*offset >= last, "events out of order: {out:?}");
                 assert!(*len > 0, "empty damaged region");
-                assert!(offset + len <= total, "damage beyond the stream: {ev:?} of {total}");
+                assert!(
+                    offset + len <= total,
+                    "damage beyond the stream: {ev:?} of {total}"
+                );
                 last = offset + len;
             }
         }
@@ -186,7 +197,11 @@ pub fn decode_stream<const N: usize>(stream: &[u8], sizes: &[u8]) -> Vec<Canon> 
 }
 
 fn frames_only(events: &[Canon]) -> Vec<Canon> {
-    events.iter().filter(|e| matches!(e, Canon::Frame(..))).cloned().collect()
+    events
+        .iter()
+        .filter(|e| matches!(e, Canon::Frame(..)))
+        .cloned()
+        .collect()
 }
 
 /// Target `frame_decoder`: the one-frame decoder and the streaming decoder
@@ -234,34 +249,44 @@ fn check_reencode(d: &Decoded) {
     let e1 = reencode(d.seq, &d.frame);
     let (last, body) = e1.split_last().unwrap_or((&1, &[]));
     assert_eq!(*last, 0, "an encoded frame ends with 0x00");
-    assert!(!body.contains(&0), "an encoded frame holds no 0x00 before its end");
+    assert!(
+        !body.contains(&0),
+        "an encoded frame holds no 0x00 before its end"
+    );
     let mut p = body.to_vec();
     match decode_frame(&mut p) {
         Ok(d2) => {
             assert_eq!(d2.seq, d.seq);
-            assert_eq!(reencode(d2.seq, &d2.frame), e1, "decode(encode(x)) differs from x");
+            assert_eq!(
+                reencode(d2.seq, &d2.frame),
+                e1,
+                "decode(encode(x)) differs from x"
+            );
         }
         Err(e) => panic!("a freshly encoded frame does not decode: {e}"),
     }
 }
 
 fn opt(b: &mut Bytes<'_>, base: f32) -> Option<f32> {
-    if b.u8() % 4 == 0 {
+    if b.one_in(4) {
         None
     } else {
         Some(b.near(base))
     }
 }
 
-/// Frames of a log built from the input, with their byte ranges
-/// `[start, end]` (`end` is the delimiter) in the encoded stream.
-fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<(u64, u64, u16, Vec<u8>)>) {
+/// A frame of a built log: its byte range `[start, end]` in the stream
+/// (`end` is the delimiter), sequence number and bytes.
+type Placed = (u64, u64, u16, Vec<u8>);
+
+/// A log built from the input and its frames.
+fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<Placed>) {
     let mut enc = Encoder::new();
     let mut log = Vec::new();
     let mut frames = Vec::new();
     let mut buf = [0u8; MAX_FRAME];
     let n = usize::from(b.u8() % 64);
-    let with_header = b.u8() % 2 == 0;
+    let with_header = b.one_in(2);
     for i in 0..n + usize::from(with_header) {
         let seq = enc.next_seq();
         let frame = if with_header && i == 0 {
@@ -276,7 +301,7 @@ fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<(u64, u64, u16, Vec<u8>)>) {
                 },
                 version: headroom::record::codec::VERSION,
             }
-        } else if b.u8() % 8 == 0 {
+        } else if b.one_in(8) {
             Frame::Decision(DecisionRecord {
                 t_ms: b.u64(),
                 tx_dbm: b.near(10.0),
@@ -308,15 +333,21 @@ fn clean_log(b: &mut Bytes<'_>, corrupt: bool) {
     let (log, frames) = build_log(b);
     if !corrupt {
         let got = decode_stream::<MAX_FRAME>(&log, &sizes);
-        let want: Vec<Canon> =
-            frames.iter().map(|(s, _, q, bytes)| Canon::Frame(*s, *q, bytes.clone())).collect();
+        let want: Vec<Canon> = frames
+            .iter()
+            .map(|(s, _, q, bytes)| Canon::Frame(*s, *q, bytes.clone()))
+            .collect();
         assert_eq!(got, want, "a clean log does not decode to its frames");
         return;
     }
     // One corruption; `keep(start, end)` says whether a frame survives it
     // and at which offset it is then found.
     let len = log.len() as u64;
-    let at = if len == 0 { 0 } else { u64::from(b.u32()) % (len + 1) };
+    let at = if len == 0 {
+        0
+    } else {
+        u64::from(b.u32()) % (len + 1)
+    };
     let mut bad = log.clone();
     let keep: Box<dyn Fn(u64, u64) -> Option<u64>> = match b.u8() % 4 {
         0 => {
@@ -393,7 +424,9 @@ pub fn config_from(b: &mut Bytes<'_>) -> ControllerConfig {
         let small = |b: &mut Bytes<'_>, base: u16| -> u16 {
             match b.u8() % 3 {
                 0 => b.u16(),
-                _ => base.saturating_add(u16::from(b.u8() % 16)).saturating_sub(8),
+                _ => base
+                    .saturating_add(u16::from(b.u8() % 16))
+                    .saturating_sub(8),
             }
         };
         match field {
@@ -402,7 +435,8 @@ pub fn config_from(b: &mut Bytes<'_>) -> ControllerConfig {
                 c.target_outage = match b.u8() % 4 {
                     0 => f32::from_bits(b.u32()),
                     1 => {
-                        const EDGE: [f32; 9] = [0.0, 1.0, 1e-6, 0.5, 0.500_000_1, 9e-7, f32::NAN, -0.01, 2.0];
+                        const EDGE: [f32; 9] =
+                            [0.0, 1.0, 1e-6, 0.5, 0.500_000_1, 9e-7, f32::NAN, -0.01, 2.0];
                         EDGE[usize::from(b.u8()) % EDGE.len()]
                     }
                     _ => f32::from(b.u8().max(1)) / 512.0,
@@ -424,7 +458,13 @@ pub fn config_from(b: &mut Bytes<'_>) -> ControllerConfig {
             15 => c.min_readings = small(b, c.min_readings),
             16 => c.spread_memory = small(b, 8),
             17 => c.climb_after_losses = small(b, c.climb_after_losses),
-            18 => c.stale_after_ms = if b.u8() % 2 == 0 { b.u32() } else { u32::from(b.u8()) * 100 },
+            18 => {
+                c.stale_after_ms = if b.one_in(2) {
+                    b.u32()
+                } else {
+                    u32::from(b.u8()) * 100
+                }
+            }
             19 => c.rssi_min_dbm = Dbm(b.near(c.rssi_min_dbm.0)),
             20 => c.rssi_max_dbm = Dbm(b.near(c.rssi_max_dbm.0)),
             21 => c.rssi_saturation_dbm = Dbm(b.near(c.rssi_saturation_dbm.0)),
@@ -485,15 +525,27 @@ fn on_grid(cfg: &ControllerConfig, tx: f32) -> bool {
 pub fn check_power(cfg: &ControllerConfig, tx: Dbm, prev: Option<Dbm>, what: &str) {
     let p = tx.0;
     assert!(p.is_finite(), "{what}: power {p} not finite");
-    assert!(p >= cfg.min_tx_dbm.0 - POWER_EPS, "{what}: {p} dBm below min_tx {}", cfg.min_tx_dbm.0);
-    assert!(p <= cfg.max_tx_dbm.0 + POWER_EPS, "{what}: {p} dBm above max_tx {}", cfg.max_tx_dbm.0);
+    assert!(
+        p >= cfg.min_tx_dbm.0 - POWER_EPS,
+        "{what}: {p} dBm below min_tx {}",
+        cfg.min_tx_dbm.0
+    );
+    assert!(
+        p <= cfg.max_tx_dbm.0 + POWER_EPS,
+        "{what}: {p} dBm above max_tx {}",
+        cfg.max_tx_dbm.0
+    );
     assert!(
         p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + POWER_EPS,
         "{what}: EIRP {} dBm above the cap {}",
         p + cfg.antenna_gain_dbi.0,
         cfg.eirp_cap_dbm.0
     );
-    assert!(on_grid(cfg, p), "{what}: {p} dBm is not a supported level of {:?}", cfg.steps);
+    assert!(
+        on_grid(cfg, p),
+        "{what}: {p} dBm is not a supported level of {:?}",
+        cfg.steps
+    );
     if let Some(q) = prev {
         assert!(
             p - q.0 <= cfg.max_step_up_db.0 + POWER_EPS,
@@ -513,7 +565,11 @@ pub fn check_power(cfg: &ControllerConfig, tx: Dbm, prev: Option<Dbm>, what: &st
 fn check_decision<const W: usize>(c: &Controller<W>, d: &Decision, prev: Option<Dbm>) {
     let cfg = c.config();
     check_power(cfg, d.tx, prev, "decision");
-    assert_eq!(d.tx.0.to_bits(), c.tx().0.to_bits(), "decision and controller disagree");
+    assert_eq!(
+        d.tx.0.to_bits(),
+        c.tx().0.to_bits(),
+        "decision and controller disagree"
+    );
     assert!(
         c.is_level(d.tx),
         "the controller does not call its own choice {:?} a level (limits {:?}, min_tx {:?}, steps {:?})",
@@ -523,7 +579,10 @@ fn check_decision<const W: usize>(c: &Controller<W>, d: &Decision, prev: Option<
         cfg.steps
     );
     let (lo, hi) = c.limits();
-    assert!(d.tx.0 >= lo.0 - POWER_EPS && d.tx.0 <= hi.0 + POWER_EPS, "{d:?} outside {lo:?}..{hi:?}");
+    assert!(
+        d.tx.0 >= lo.0 - POWER_EPS && d.tx.0 <= hi.0 + POWER_EPS,
+        "{d:?} outside {lo:?}..{hi:?}"
+    );
     let m = d.margin.0;
     assert!(
         m.is_finite() && m >= cfg.margin_min_db.0 && m <= cfg.margin_max_db.0,
@@ -546,36 +605,20 @@ fn check_decision<const W: usize>(c: &Controller<W>, d: &Decision, prev: Option<
             "mean noise {n:?} outside the plausible range"
         );
     }
-    assert!(usize::from(d.readings) <= W, "{} readings in a window of {W}", d.readings);
+    assert!(
+        usize::from(d.readings) <= W,
+        "{} readings in a window of {W}",
+        d.readings
+    );
 }
 
 /// Target `controller`: a configuration from the input (refused or not,
 /// never a panic), then up to 4096 observations (mode 0) or log records
 /// through a replay (mode 1), checking every decision.
 pub fn controller(data: &[u8]) {
-    controller_with(data, false);
-}
-
-/// Known findings not yet fixed in the engine, each with what it is. The
-/// fuzz target skips inputs that hit them (to look for other failures);
-/// the regression tests do not.
-pub fn known_finding(cfg: &ControllerConfig) -> Option<&'static str> {
-    match cfg.steps {
-        // F1: a uniform step that is positive but tiny (down to subnormal)
-        // is accepted; the highest level becomes +inf and `is_level` NaN.
-        PowerSteps::Uniform(s) if s.0 > 0.0 && s.0 < 1e-3 => Some("F1 tiny uniform step accepted"),
-        _ => None,
-    }
-}
-
-/// [`controller`], skipping the inputs of [`known_finding`]s if `skip_known`.
-pub fn controller_with(data: &[u8], skip_known: bool) {
     let mut b = Bytes::new(data);
     let mode = b.u8();
     let cfg = config_from(&mut b);
-    if skip_known && known_finding(&cfg).is_some() {
-        return;
-    }
     match (mode % 2, (mode / 2) % 3) {
         (0, 0) => observe::<8>(cfg, &mut b),
         (0, 1) => observe::<64>(cfg, &mut b),
@@ -594,7 +637,10 @@ fn new_controller<const W: usize>(cfg: ControllerConfig) -> Option<Controller<W>
             assert!(cfg.validate().is_ok(), "accepted but validate() refuses");
             check_power(&cfg, c.tx(), None, "start");
             let (lo, hi) = c.limits();
-            assert!(lo.0.is_finite() && hi.0.is_finite() && lo.0 <= hi.0, "limits {lo:?}..{hi:?}");
+            assert!(
+                lo.0.is_finite() && hi.0.is_finite() && lo.0 <= hi.0,
+                "limits {lo:?}..{hi:?}"
+            );
             Some(c)
         }
         Err(e) => {
@@ -618,7 +664,9 @@ fn next_t(b: &mut Bytes<'_>, t: u64) -> u64 {
 }
 
 fn observe<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
-    let Some(mut c) = new_controller::<W>(cfg) else { return };
+    let Some(mut c) = new_controller::<W>(cfg) else {
+        return;
+    };
     let mut prev = Some(c.tx());
     let mut t = 0u64;
     for _ in 0..MAX_STEPS {
@@ -634,22 +682,40 @@ fn observe<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
                 let tx = Dbm(c.tx().0 + f32::from(b.u8() as i8) / 32.0);
                 let loss = 60.0 + f32::from(b.u8() / 2);
                 let noise = -116.0 + f32::from(b.u8() as i8) / 8.0;
-                let snr = if b.u8() % 4 == 0 { Some(Db(b.near(tx.0 - loss - noise))) } else { None };
-                Observation::Feedback { t_ms: t, tx, rssi: Dbm(tx.0 - loss), noise: Dbm(noise), snr }
+                let snr = if b.one_in(4) {
+                    Some(Db(b.near(tx.0 - loss - noise)))
+                } else {
+                    None
+                };
+                Observation::Feedback {
+                    t_ms: t,
+                    tx,
+                    rssi: Dbm(tx.0 - loss),
+                    noise: Dbm(noise),
+                    snr,
+                }
             }
             3 => Observation::Feedback {
                 t_ms: t,
                 tx: Dbm(b.near(c.tx().0)),
                 rssi: Dbm(b.near(-90.0)),
                 noise: Dbm(b.near(-115.0)),
-                snr: if b.u8() % 2 == 0 { None } else { Some(Db(b.near(20.0))) },
+                snr: if b.one_in(2) {
+                    None
+                } else {
+                    Some(Db(b.near(20.0)))
+                },
             },
             4 => Observation::Acked { t_ms: t },
             5 => Observation::Lost { t_ms: t },
-            6 => Observation::Beacon { t_ms: t, beacon_tx: Dbm(b.near(14.0)), rssi: Dbm(b.near(-95.0)) },
+            6 => Observation::Beacon {
+                t_ms: t,
+                beacon_tx: Dbm(b.near(14.0)),
+                rssi: Dbm(b.near(-95.0)),
+            },
             7 => Observation::Missing { t_ms: t },
             _ => {
-                if b.u8() % 8 == 0 {
+                if b.one_in(8) {
                     c.reset();
                     check_power(&cfg, c.tx(), None, "after reset");
                     prev = Some(c.tx());
@@ -687,13 +753,24 @@ fn replay<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
         let s = r.step(&rec);
         n += 1;
         if let Some(p) = next {
-            assert_eq!(s.chosen.0.to_bits(), p.0.to_bits(), "chosen is not the last next_tx");
+            assert_eq!(
+                s.chosen.0.to_bits(),
+                p.0.to_bits(),
+                "chosen is not the last next_tx"
+            );
         }
         check_power(&cfg, s.next_tx, Some(s.chosen), "replay");
         assert_eq!(s.t_ms, t);
-        let complete = matches!((rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm), (Some(_), Some(_), Some(_)));
+        let complete = matches!(
+            (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm),
+            (Some(_), Some(_), Some(_))
+        );
         if !complete {
-            assert_eq!(s.outcome, Outcome::Unjudged, "a record with a missing reading was judged");
+            assert_eq!(
+                s.outcome,
+                Outcome::Unjudged,
+                "a record with a missing reading was judged"
+            );
         }
         if let Some(snr) = s.replayed_snr {
             assert!(snr.0.is_finite());
@@ -712,7 +789,10 @@ fn replay<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
         assert!((0.0..=1.0).contains(&f));
     }
     if let (Some(mean), Some(max)) = (sum.mean_tx_dbm(), sum.max_tx_dbm_used) {
-        assert!(mean.0.is_finite() && mean.0 <= max.0 + POWER_EPS, "mean {mean:?} above max {max:?}");
+        assert!(
+            mean.0.is_finite() && mean.0 <= max.0 + POWER_EPS,
+            "mean {mean:?} above max {max:?}"
+        );
         let (lo, hi) = r.controller().limits();
         assert!(max.0 <= hi.0 + POWER_EPS && max.0 >= lo.0 - POWER_EPS);
         if let Some(saving) = sum.energy_saving_db() {

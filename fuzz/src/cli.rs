@@ -20,8 +20,9 @@ fn scratch(name: &str) -> PathBuf {
     dir.join(format!("headroom-fuzz-{}-{name}", std::process::id()))
 }
 
-/// Known finding F2 (host-cli/src/logio/csv.rs, reported): error messages
-/// echo bytes of the file unescaped, control characters and CR included.
+/// Known findings F2 (host-cli/src/logio/csv.rs) and F3
+/// (host-cli/src/link.rs), reported: error messages echo bytes of the file
+/// unescaped, control characters (CR, NUL, ESC...) included.
 /// While fuzzing ([`csv_log_with`] with `skip_known`) such messages are let
 /// through, to look for other failures.
 static SKIP_KNOWN: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
@@ -33,16 +34,28 @@ fn check_message(e: &CliError, file: &str) {
     assert!(!m.trim().is_empty(), "empty error message");
     assert!(!m.contains('\n'), "error message on several lines: {m:?}");
     if !SKIP_KNOWN.load(std::sync::atomic::Ordering::Relaxed) {
-        assert!(!m.chars().any(|c| c.is_control() && c != '\t'), "control characters in the error message: {m:?}");
+        assert!(
+            !m.chars().any(|c| c.is_control() && c != '\t'),
+            "control characters in the error message: {m:?}"
+        );
     }
-    assert!(m.contains(file), "error message does not name the file {file}: {m}");
+    assert!(
+        m.contains(file),
+        "error message does not name the file {file}: {m}"
+    );
     assert!(m.len() < 2048, "error message of {} bytes", m.len());
 }
 
 /// A float's value for comparing logs: NaN as one value (CSV writes every
 /// NaN as `NaN`), everything else bit for bit.
 fn key(x: Option<f32>) -> Option<u32> {
-    x.map(|v| if v.is_nan() { f32::NAN.to_bits() } else { v.to_bits() })
+    x.map(|v| {
+        if v.is_nan() {
+            f32::NAN.to_bits()
+        } else {
+            v.to_bits()
+        }
+    })
 }
 
 fn rec_key(r: &LogRecord, exact: bool) -> (u64, [Option<u32>; 3]) {
@@ -54,12 +67,20 @@ fn header_key(h: &LogHeader) -> (u64, u64, [Option<u32>; 4]) {
     (
         h.device_id,
         h.epoch_ms,
-        [key(h.min_tx.map(|v| v.0)), key(h.max_tx.map(|v| v.0)), key(h.tx_step.map(|v| v.0)), key(h.antenna_gain.map(|v| v.0))],
+        [
+            key(h.min_tx.map(|v| v.0)),
+            key(h.max_tx.map(|v| v.0)),
+            key(h.tx_step.map(|v| v.0)),
+            key(h.antenna_gain.map(|v| v.0)),
+        ],
     )
 }
 
 /// Read a whole log: its header and records; every error item checked.
-fn read_all(path: &PathBuf, format: LogFormat) -> Result<(LogHeader, Vec<LogRecord>, usize), CliError> {
+fn read_all(
+    path: &PathBuf,
+    format: LogFormat,
+) -> Result<(LogHeader, Vec<LogRecord>, usize), CliError> {
     let name = path.display().to_string();
     let log = logio::open_as(path, Some(format));
     let mut log = match log {
@@ -113,7 +134,11 @@ fn round_trip(path: &PathBuf, format: LogFormat, header: &LogHeader, records: &[
     };
     assert_eq!(errors, 0, "a log this tool wrote has bad rows");
     let exact = format == LogFormat::Binary;
-    assert_eq!(header_key(&h2), header_key(header), "header changed through {format}");
+    assert_eq!(
+        header_key(&h2),
+        header_key(header),
+        "header changed through {format}"
+    );
     let a: Vec<_> = records.iter().map(|r| rec_key(r, exact)).collect();
     let b: Vec<_> = back.iter().map(|r| rec_key(r, exact)).collect();
     assert_eq!(a, b, "records changed through {format}");
@@ -133,7 +158,9 @@ pub fn csv_log_with(data: &[u8], skip_known: bool) {
     if std::fs::write(&path, data).is_err() {
         return;
     }
-    let Ok((header, records, _)) = read_all(&path, LogFormat::Csv) else { return };
+    let Ok((header, records, _)) = read_all(&path, LogFormat::Csv) else {
+        return;
+    };
     let records: Vec<LogRecord> = records.into_iter().take(20_000).collect();
     round_trip(&scratch("out.hrlog"), LogFormat::Binary, &header, &records);
     round_trip(&scratch("out.csv"), LogFormat::Csv, &header, &records);
@@ -146,8 +173,7 @@ pub fn link_toml(data: &[u8]) {
     link_toml_with(data, false);
 }
 
-/// [`link_toml`], letting known finding F2 through if `skip_known` (the
-/// TOML parser's messages quote the file too).
+/// [`link_toml`], letting known finding F3 through if `skip_known`.
 pub fn link_toml_with(data: &[u8], skip_known: bool) {
     SKIP_KNOWN.store(skip_known, std::sync::atomic::Ordering::Relaxed);
     let path = scratch("link.toml");
@@ -159,7 +185,11 @@ pub fn link_toml_with(data: &[u8], skip_known: bool) {
         Err(e) => check_message(&e, &name),
         Ok(l) => {
             if let Ok(r) = l.link.evaluate() {
-                assert!(!r.margin.0.is_nan(), "NaN margin from {:?}", String::from_utf8_lossy(data));
+                assert!(
+                    !r.margin.0.is_nan(),
+                    "NaN margin from {:?}",
+                    String::from_utf8_lossy(data)
+                );
             }
             if let (Some(m), Some(d)) = (l.model, l.distance) {
                 let _ = m.path_loss(l.frequency, d);

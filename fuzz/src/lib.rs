@@ -14,13 +14,13 @@
 pub mod checks;
 pub mod cli;
 
+#[path = "../../host-cli/src/atomic.rs"]
+mod atomic;
 #[path = "../../host-cli/src/error.rs"]
 mod error;
-#[path = "../../host-cli/src/quantity.rs"]
-mod quantity;
 #[path = "../../host-cli/src/link.rs"]
 mod link;
 #[path = "../../host-cli/src/logio/mod.rs"]
 mod logio;
-#[path = "../../host-cli/src/atomic.rs"]
-mod atomic;
+#[path = "../../host-cli/src/quantity.rs"]
+mod quantity;

@@ -30,14 +30,24 @@ fn exists_error(dest: &Path) -> CliError {
 /// Refuse `dest` early if it exists and `force` is not set, so that a command
 /// fails before doing its work rather than after.
 pub fn check_new(dest: &Path, force: bool) -> CliResult {
-    if !force && fs::symlink_metadata(dest).is_ok() {
-        return Err(exists_error(dest));
-    }
     if dest.file_name().is_none() {
         return Err(CliError::Input(format!(
             "{}: not a file name",
             dest.display()
         )));
+    }
+    if let Ok(meta) = fs::symlink_metadata(dest) {
+        // Renaming over a device, a directory or a link would replace it
+        // (`--force` onto /dev/null must not delete the device): refuse.
+        if !meta.file_type().is_file() {
+            return Err(CliError::Input(format!(
+                "{}: exists and is not a regular file; give a file name for the output",
+                dest.display()
+            )));
+        }
+        if !force {
+            return Err(exists_error(dest));
+        }
     }
     Ok(())
 }
@@ -196,6 +206,15 @@ pub fn write(dest: &Path, force: bool, bytes: &[u8]) -> CliResult {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_device_is_never_replaced_even_with_force() {
+        for force in [false, true] {
+            let e = super::check_new(std::path::Path::new("/dev/null"), force);
+            assert!(e.is_err(), "force={force}");
+        }
+        assert!(std::path::Path::new("/dev/null").exists());
+    }
+
     use super::*;
 
     fn names(dir: &Path) -> Vec<OsString> {
@@ -305,8 +324,10 @@ mod tests {
         let e = AtomicFile::create(Path::new(".."), true).err().expect("refused");
         assert_eq!(e.exit_code(), 2);
         assert!(e.to_string().contains("not a file name"), "{e}");
-        // A directory that exists is refused like any existing output.
-        let e = AtomicFile::create(dir.path(), false).err().expect("refused");
-        assert!(e.to_string().contains("already exists"), "{e}");
+        // A directory that exists is refused, with or without --force.
+        for force in [false, true] {
+            let e = AtomicFile::create(dir.path(), force).err().expect("refused");
+            assert!(e.to_string().contains("not a regular file"), "{e}");
+        }
     }
 }

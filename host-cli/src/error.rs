@@ -42,3 +42,11 @@ impl From<headroom::Error> for CliError {
 
 /// Shorthand result type of commands.
 pub type CliResult<T = ()> = Result<T, CliError>;
+
+/// `msg` with control characters escaped (`\r`, `\u{0}`), so that bytes
+/// quoted from a hostile file cannot break the one-line error or the terminal.
+pub fn printable(msg: &str) -> String {
+    msg.chars()
+        .map(|c| if c.is_control() { c.escape_default().to_string() } else { c.to_string() })
+        .collect()
+}

@@ -8,7 +8,6 @@ use std::process::ExitCode;
 use clap::{Parser, Subcommand};
 
 mod atomic;
-mod cmd;
 mod error;
 mod link;
 mod logio;
@@ -17,12 +16,21 @@ mod plot;
 mod quantity;
 
 
-const CAUTION: &str = "\
+/// The safety caution shown after every command's help.
+macro_rules! caution {
+    () => {
+        "\
 CAUTION: transmit power, EIRP, duty cycle and RF exposure limits are set by
 regulation and differ by region and band. headroom's numbers are engineering
 estimates: check them against the rules that apply where the radio is used,
 respect RF exposure limits for people nearby, and defer to local regulations
-and licensed practice.";
+and licensed practice."
+    };
+}
+
+const CAUTION: &str = caution!();
+
+mod cmd;
 
 /// Link budgets, path loss, fade margins and adaptive transmit power for
 /// battery-powered radios.
@@ -36,26 +44,34 @@ struct Cli {
 #[derive(Subcommand)]
 enum Command {
     /// Evaluate a link budget described in a TOML file.
+    #[command(after_help = CAUTION)]
     Budget(cmd::budget::Args),
     /// Solve a link for the transmit power, the maximum path loss or the range.
+    #[command(after_help = CAUTION)]
     Solve(cmd::solve::Args),
     /// Path loss of a propagation model at one frequency and distance.
     Pathloss(cmd::pathloss::Args),
     /// Fade margin for an availability, or availability for a margin.
+    #[command(after_help = CAUTION)]
     Fade(cmd::fade::Args),
     /// Thermal noise power and noise temperature of a receiver.
+    #[command(after_help = CAUTION)]
     Noise(cmd::noise::Args),
     /// Required Eb/N0 for a bit error rate.
+    #[command(after_help = CAUTION)]
     Ber(cmd::ber::Args),
     /// Rain attenuation (ITU-R P.838 and P.618).
     Rain(cmd::rain::Args),
     /// Replay a field log through the controller: what would it have chosen?
     Replay(cmd::replay::Args),
     /// Generate a synthetic field log from a channel scenario.
+    #[command(after_help = CAUTION)]
     Synth(cmd::synth::Args),
     /// Convert a field log between CSV and the framed binary format.
+    #[command(after_help = CAUTION)]
     Convert(cmd::convert::Args),
     /// Replay a fleet of logs under a grid of controller settings: the Pareto front of power and loss.
+    #[command(after_help = CAUTION)]
     Tune(cmd::tune::Args),
 }
 
@@ -103,7 +119,7 @@ fn main() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("headroom: error: {e}");
+            eprintln!("headroom: error: {}", error::printable(&e.to_string()));
             ExitCode::from(e.exit_code())
         }
     }

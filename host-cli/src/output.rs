@@ -3,6 +3,9 @@
 use clap::ValueEnum;
 use serde_json::{Map, Value};
 
+use std::fmt::Write as _;
+use std::io::Write as _;
+
 use crate::error::{CliError, CliResult};
 
 /// Output format of the calculator commands.
@@ -41,6 +44,7 @@ impl Report {
 
     /// Print in the chosen format.
     pub fn print(&self, format: Format) -> CliResult {
+        let mut out = String::new();
         match format {
             Format::Json => {
                 let mut m = Map::new();
@@ -49,24 +53,25 @@ impl Report {
                 }
                 let s = serde_json::to_string_pretty(&Value::Object(m))
                     .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
-                println!("{s}");
+                out.push_str(&s);
+                out.push('\n');
             }
             Format::Table => {
                 let width = self.rows.iter().map(|r| r.0.len()).max().unwrap_or(0);
                 for (k, v, unit) in &self.rows {
                     match v {
                         Value::Number(_) | Value::String(_) | Value::Bool(_) | Value::Null => {
-                            println!("{k:<width$}  {}  {unit}", scalar(v));
+                            let _ = writeln!(out, "{k:<width$}  {}  {unit}", scalar(v));
                         }
                         _ => {
-                            println!("{k}:");
-                            print_nested(v, 1);
+                            let _ = writeln!(out, "{k}:");
+                            print_nested(&mut out, v, 1);
                         }
                     }
                 }
             }
         }
-        Ok(())
+        write_stdout(&out)
     }
 }
 
@@ -102,7 +107,7 @@ fn scalar(v: &Value) -> String {
     }
 }
 
-fn print_nested(v: &Value, depth: usize) {
+fn print_nested(out: &mut String, v: &Value, depth: usize) {
     let pad = "  ".repeat(depth);
     match v {
         Value::Array(items) => {
@@ -111,17 +116,31 @@ fn print_nested(v: &Value, depth: usize) {
                     Value::Object(m) => {
                         let line: Vec<String> =
                             m.iter().map(|(k, v)| format!("{k}={}", scalar(v))).collect();
-                        println!("{pad}{}", line.join("  "));
+                        let _ = writeln!(out, "{pad}{}", line.join("  "));
                     }
-                    other => println!("{pad}{}", scalar(other)),
+                    other => {
+                        let _ = writeln!(out, "{pad}{}", scalar(other));
+                    }
                 }
             }
         }
         Value::Object(m) => {
             for (k, v) in m {
-                println!("{pad}{k}  {}", scalar(v));
+                let _ = writeln!(out, "{pad}{k}  {}", scalar(v));
             }
         }
-        other => println!("{pad}{}", scalar(other)),
+        other => {
+            let _ = writeln!(out, "{pad}{}", scalar(other));
+        }
     }
+}
+
+/// Write `text` to stdout; a closed pipe (`| head`) or a full disk is an
+/// error with exit code 1, never a panic.
+pub fn write_stdout(text: &str) -> CliResult {
+    let mut stdout = std::io::stdout().lock();
+    stdout
+        .write_all(text.as_bytes())
+        .and_then(|()| stdout.flush())
+        .map_err(|e| CliError::Io(format!("stdout: cannot write: {e}")))
 }

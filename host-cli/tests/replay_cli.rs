@@ -1,5 +1,6 @@
-//! `headroom replay` end to end: the JSON summary, the decisions CSV,
-//! refusals of bad settings and of overwriting, and readings that are ignored.
+//! `headroom replay` end to end: the JSON summary, the decisions CSV, the
+//! plot, fleets of logs (jsonl, json, table), refusals of bad settings and of
+//! overwriting, and readings that are ignored.
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -194,4 +195,175 @@ fn shipped_config_replays() {
     ]);
     let v = json(&o);
     assert_eq!(v["records"], 30_000);
+}
+
+const SUMMARY_KEYS: [&str; 8] = [
+    "records",
+    "judged",
+    "outage_fraction",
+    "mean_tx_dbm",
+    "energy_saving_db",
+    "power_changes",
+    "max_tx_dbm_used",
+    "ignored_readings",
+];
+
+fn svg_texts(path: &Path) -> String {
+    let text = std::fs::read_to_string(path).expect("svg written");
+    let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
+    assert_eq!(doc.root_element().tag_name().name(), "svg");
+    doc.descendants().filter_map(|n| n.text()).collect::<Vec<_>>().join("\n")
+}
+
+/// Width and height from a PNG's IHDR chunk, after checking the signature.
+fn png_size(path: &Path) -> (u32, u32) {
+    let b = std::fs::read(path).expect("png written");
+    assert_eq!(b.get(..8), Some(&b"\x89PNG\r\n\x1a\n"[..]), "PNG signature");
+    assert_eq!(b.get(12..16), Some(&b"IHDR"[..]), "IHDR first");
+    let be = |r: std::ops::Range<usize>| u32::from_be_bytes(b.get(r).and_then(|x| x.try_into().ok()).expect("4 bytes"));
+    (be(16..20), be(20..24))
+}
+
+#[test]
+fn plot_svg_names_the_log_and_its_series() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let log = small_log(dir.path());
+    let svg = dir.path().join("r.svg");
+    let (log_s, svg_s) = (log.to_string_lossy().into_owned(), svg.to_string_lossy().into_owned());
+    let v = json(&headroom(&[&log_s, "--plot", &svg_s, "--format", "json"]));
+    assert_eq!(v["records"], 6);
+    let t = svg_texts(&svg);
+    assert!(t.contains("replay of bench.csv") && t.contains("6 records"), "{t}");
+    for label in [
+        "received power, logged",
+        "received power, replayed",
+        "noise floor",
+        "packet lost",
+        "transmit power chosen",
+    ] {
+        assert!(t.contains(label), "{label} missing from {t}");
+    }
+    // An existing plot is refused before the replay: nothing printed.
+    let o = headroom(&[&log_s, "--plot", &svg_s]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("already exists"), "{}", stderr(&o));
+    assert!(o.stdout.is_empty());
+    let o = headroom(&[&log_s, "--plot", &svg_s, "--force"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(files(dir.path()), ["bench.csv", "r.svg"]);
+    let o = headroom(&[&log_s, "--plot", &dir.path().join("r.gif").to_string_lossy()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains(".gif"), "{}", stderr(&o));
+}
+
+#[test]
+fn plot_png_of_a_long_log_has_its_size() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let png = dir.path().join("orchard.png");
+    let o = headroom(&[&example("examples/logs/orchard-868.csv"), "--plot", &png.to_string_lossy()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(png_size(&png), (1200, 760));
+}
+
+/// Two logs of our own in a directory, with a file that is not a log.
+fn fleet_dir(dir: &Path) -> (PathBuf, PathBuf) {
+    let a = small_log(dir);
+    let b = dir.join("another.csv");
+    std::fs::write(&b, "t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,10,-100,-117\n1000,10,-101,-117\n2000,10,-130,-117\n")
+        .expect("write log");
+    std::fs::write(dir.join("notes.txt"), "not a log\n").expect("write notes");
+    (b, a)
+}
+
+#[test]
+fn jsonl_one_line_per_log_each_a_separate_device() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let (first, second) = fleet_dir(dir.path());
+    let o = headroom(&[&dir.path().to_string_lossy(), "--format", "jsonl"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let text = String::from_utf8(o.stdout).expect("utf-8");
+    let lines: Vec<serde_json::Value> =
+        text.lines().map(|l| serde_json::from_str(l).expect("each line is JSON")).collect();
+    assert_eq!(lines.len(), 2, "{text}");
+    // Sorted by name: another.csv, then bench.csv.
+    for (line, path) in lines.iter().zip([&first, &second]) {
+        let m = line.as_object().expect("object");
+        let keys: Vec<&str> = m.keys().map(String::as_str).collect();
+        let mut want = vec!["log"];
+        want.extend(SUMMARY_KEYS);
+        assert_eq!(keys, want);
+        assert_eq!(line["log"], path.to_string_lossy().as_ref());
+        // A fresh controller per log: the same numbers as replaying it alone.
+        let mut alone = json(&headroom(&[&path.to_string_lossy(), "--format", "json"]));
+        alone["log"] = line["log"].clone();
+        let mut line = line.clone();
+        line.as_object_mut().expect("object").sort_keys();
+        alone.as_object_mut().expect("object").sort_keys();
+        assert_eq!(line, alone);
+    }
+    assert_eq!(lines[0]["records"], 3);
+    assert_eq!(lines[1]["records"], 6);
+}
+
+#[test]
+fn several_logs_as_json_and_table_carry_a_fleet_total() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let (a, b) = fleet_dir(dir.path());
+    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    let v = json(&headroom(&[&a, &b, "--format", "json"]));
+    let logs = v["logs"].as_array().expect("logs array");
+    assert_eq!(logs.len(), 2);
+    assert_eq!(logs[0]["log"], a.as_str());
+    let fleet = &v["fleet"];
+    let keys: Vec<&str> = fleet.as_object().expect("object").keys().map(String::as_str).collect();
+    assert_eq!(keys, SUMMARY_KEYS);
+    let sum = |k: &str| logs.iter().map(|l| l[k].as_u64().expect("count")).sum::<u64>();
+    assert_eq!(fleet["records"].as_u64(), Some(sum("records")));
+    assert_eq!(fleet["judged"].as_u64(), Some(sum("judged")));
+    assert_eq!(fleet["power_changes"].as_u64(), Some(sum("power_changes")));
+    assert_eq!(fleet["ignored_readings"]["ignored_not_finite"], 1);
+    // Losses add: lost = fraction × judged per log.
+    let lost: f64 = logs
+        .iter()
+        .map(|l| l["outage_fraction"].as_f64().expect("f") * l["judged"].as_f64().expect("n"))
+        .sum();
+    let f = fleet["outage_fraction"].as_f64().expect("fraction");
+    assert!((f - lost / sum("judged") as f64).abs() < 1e-6, "{f}");
+    // The mean of linear powers lies between the logs' means.
+    let means: Vec<f64> = logs.iter().map(|l| l["mean_tx_dbm"].as_f64().expect("mean")).collect();
+    let m = fleet["mean_tx_dbm"].as_f64().expect("mean");
+    assert!(m >= means[0].min(means[1]) - 1e-4 && m <= means[0].max(means[1]) + 1e-4, "{m} {means:?}");
+
+    let o = headroom(&[&a, &b]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let t = String::from_utf8(o.stdout).expect("utf-8");
+    assert!(t.contains(&format!("== {a}")) && t.contains(&format!("== {b}")), "{t}");
+    assert!(t.contains("== fleet (2 logs)"), "{t}");
+}
+
+#[test]
+fn fleet_refusals() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let (a, b) = fleet_dir(dir.path());
+    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    for flag in ["--out", "--plot"] {
+        let dest = dir.path().join("x.svg");
+        let o = headroom(&[&a, &b, flag, &dest.to_string_lossy()]);
+        assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+        assert!(stderr(&o).contains(flag) && stderr(&o).contains("one log"), "{}", stderr(&o));
+        assert!(!dest.exists());
+    }
+    // A file that is not a binary log at all is an error, not 0 records.
+    let junk = dir.path().join("junk.hrlog");
+    std::fs::write(&junk, "not a framed log at all").expect("write");
+    let o = headroom(&[&junk.to_string_lossy()]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("no readable record"), "{}", stderr(&o));
+    assert!(o.stdout.is_empty());
+
+    let empty = dir.path().join("empty");
+    std::fs::create_dir(&empty).expect("mkdir");
+    let o = headroom(&[&empty.to_string_lossy()]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("without .csv or .hrlog"), "{}", stderr(&o));
 }

@@ -12,7 +12,9 @@ use std::hint::black_box;
 use criterion::{criterion_group, criterion_main, BatchSize, Criterion, Throughput};
 use headroom::control::Replay;
 use headroom::fading::{self, FadingModel};
-use headroom::propagation::{self as prop, Extrapolation, HataEnvironment, IndoorEnvironment, SlantPath, TwoRayForm};
+use headroom::propagation::{
+    self as prop, Extrapolation, HataEnvironment, IndoorEnvironment, SlantPath, TwoRayForm,
+};
 use headroom::record::codec::{Encoder, Event, FrameDecoder, MAX_FRAME};
 use headroom::record::{LogHeader, LogRecord};
 use headroom::units::{Db, Hertz, Metres};
@@ -58,7 +60,7 @@ fn propagation(c: &mut Criterion) {
     let d = black_box(Metres(2_500.0));
     let ht = black_box(Metres(30.0));
     let hr = black_box(Metres(1.5));
-    let office = match prop::indoor_coefficients(Hertz(2.4e9), IndoorEnvironment::Office) {
+    let office = match prop::indoor_coefficients(Hertz(1.9e9), IndoorEnvironment::Office) {
         Ok(c) => c,
         Err(e) => panic!("indoor coefficients: {e}"),
     };
@@ -74,35 +76,61 @@ fn propagation(c: &mut Criterion) {
     let mut g = c.benchmark_group("propagation");
     g.throughput(Throughput::Elements(1));
     call!(g, "free_space_path_loss", prop::free_space_path_loss(f, d));
-    call!(g, "log_distance", prop::log_distance(f, d, Metres(1.0), None, black_box(2.9)));
+    call!(
+        g,
+        "log_distance",
+        prop::log_distance(f, d, Metres(1.0), None, black_box(2.9))
+    );
     call!(
         g,
         "okumura_hata",
-        prop::okumura_hata(f, d, ht, hr, HataEnvironment::Suburban, Extrapolation::Refuse)
+        prop::okumura_hata(
+            f,
+            d,
+            ht,
+            hr,
+            HataEnvironment::Suburban,
+            Extrapolation::Refuse
+        )
     );
     call!(
         g,
         "cost231_hata",
-        prop::cost231_hata(black_box(Hertz(1.8e9)), d, ht, hr, false, Extrapolation::Refuse)
+        prop::cost231_hata(
+            black_box(Hertz(1.8e9)),
+            d,
+            ht,
+            hr,
+            false,
+            Extrapolation::Refuse
+        )
     );
     call!(
         g,
         "two_ray_exact",
         prop::two_ray(f, d, ht, hr, TwoRayForm::Exact { reflection: -1.0 })
     );
-    call!(g, "two_ray_asymptotic", prop::two_ray(f, d, ht, hr, TwoRayForm::Asymptotic));
+    call!(
+        g,
+        "two_ray_asymptotic",
+        prop::two_ray(f, d, ht, hr, TwoRayForm::Asymptotic)
+    );
     call!(g, "two_ray_crossover", prop::two_ray_crossover(f, ht, hr));
     call!(
         g,
         "indoor_coefficients",
-        prop::indoor_coefficients(black_box(Hertz(2.4e9)), IndoorEnvironment::Office)
+        prop::indoor_coefficients(black_box(Hertz(1.9e9)), IndoorEnvironment::Office)
     );
     call!(
         g,
         "itu_indoor",
-        prop::itu_indoor(black_box(Hertz(2.4e9)), black_box(Metres(35.0)), 2, &office)
+        prop::itu_indoor(black_box(Hertz(1.9e9)), black_box(Metres(35.0)), 2, &office)
     );
-    call!(g, "rain_coefficients", prop::rain_coefficients(black_box(Hertz(12e9)), 45.0, 33.0));
+    call!(
+        g,
+        "rain_coefficients",
+        prop::rain_coefficients(black_box(Hertz(12e9)), 45.0, 33.0)
+    );
     call!(
         g,
         "rain_specific_attenuation",
@@ -140,15 +168,25 @@ fn fading_fns(c: &mut Criterion) {
             b.iter(|| black_box(fading::margin_for_outage(m, black_box(0.01))))
         });
         for (what, r) in [
-            ("outage_for_margin", fading::outage_for_margin(m, Db(15.0)).map(|_| ())),
-            ("margin_for_availability", fading::margin_for_availability(m, 0.99).map(|_| ())),
+            (
+                "outage_for_margin",
+                fading::outage_for_margin(m, Db(15.0)).map(|_| ()),
+            ),
+            (
+                "margin_for_availability",
+                fading::margin_for_availability(m, 0.99).map(|_| ()),
+            ),
         ] {
             if let Err(e) = r {
                 panic!("{what}/{name}: bench input refused: {e}");
             }
         }
     }
-    call!(g, "area_coverage", fading::area_coverage(black_box(0.9), Db(8.0), 3.5));
+    call!(
+        g,
+        "area_coverage",
+        fading::area_coverage(black_box(0.9), Db(8.0), 3.5)
+    );
     call!(
         g,
         "edge_probability_for_area",
@@ -163,7 +201,13 @@ fn records(n: usize) -> Vec<LogRecord> {
     common::observation_mix(n)
         .iter()
         .map(|o| match *o {
-            Observation::Feedback { t_ms, tx, rssi, noise, .. } => LogRecord {
+            Observation::Feedback {
+                t_ms,
+                tx,
+                rssi,
+                noise,
+                ..
+            } => LogRecord {
                 t_ms,
                 tx_dbm: Some(tx.0),
                 rssi_dbm: Some(rssi.0),
@@ -236,7 +280,11 @@ fn codec_and_replay(c: &mut Criterion) {
             let mut dec = FrameDecoder::<MAX_FRAME>::new();
             let mut input: &[u8] = black_box(&bytes);
             while let Some(ev) = dec.feed(&mut input) {
-                if let Event::Frame { frame: headroom::record::codec::Frame::Record(r), .. } = ev {
+                if let Event::Frame {
+                    frame: headroom::record::codec::Frame::Record(r),
+                    ..
+                } = ev
+                {
                     black_box(rp.step(&r));
                 }
             }
@@ -246,5 +294,11 @@ fn codec_and_replay(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, controller, propagation, fading_fns, codec_and_replay);
+criterion_group!(
+    benches,
+    controller,
+    propagation,
+    fading_fns,
+    codec_and_replay
+);
 criterion_main!(benches);

@@ -19,7 +19,10 @@ mod common;
 const CALLGRIND_MIX_LEN: usize = 65_536;
 
 fn main() -> ExitCode {
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
     let (mode, n) = match args.as_slice() {
         [] => ("update", 1_000usize),
         [mode, n] => match n.parse::<usize>() {
@@ -38,7 +41,10 @@ fn main() -> ExitCode {
     // differences; N may not exceed it (time must not run backwards).
     let mix = common::observation_mix(CALLGRIND_MIX_LEN);
     if n > mix.len() {
-        eprintln!("update_callgrind: N = {n} is more than the {} observations of the mix", mix.len());
+        eprintln!(
+            "update_callgrind: N = {n} is more than the {} observations of the mix",
+            mix.len()
+        );
         return ExitCode::from(2);
     }
     let mut ctl = common::controller();

@@ -280,7 +280,6 @@ fn print_fault_table() {
 /// (25.1 "dBm", above the radio's 22 dBm) are today passed on as replayed
 /// readings `rssi − tx + chosen`, which fall inside the plausible range.
 #[test]
-#[ignore = "needs Replay::step to check the logged tx and rssi before replaying them (control/replay.rs)"]
 fn logged_readings_outside_the_radio_range_are_ignored() {
     for run in runs() {
         for f in &run.faults {

@@ -2,6 +2,7 @@
 
 use core::fmt;
 
+use crate::record::LogHeader;
 use crate::units::{Db, Dbi, Dbm};
 
 /// Largest number of levels a [`LevelTable`] holds.
@@ -12,6 +13,12 @@ pub const MAX_LEVELS: usize = 16;
 /// internal quantities must stay well inside ±1024 dB; ±300 leaves room for
 /// any real radio.
 pub const SETTING_LIMIT_DB: f32 = 300.0;
+
+/// Smallest uniform power step accepted, dB. Real radios step their output
+/// in 0.1 dB or coarser (common practice); 0.01 dB keeps the number of
+/// levels over the widest span (600 dB) at 60 000, far inside the `i32`
+/// level index.
+pub const MIN_UNIFORM_STEP_DB: f32 = 0.01;
 
 /// Largest window the controller accepts (its indices and integer sums are
 /// sized for it).
@@ -260,6 +267,39 @@ impl ControllerConfig {
         Dbm(if by_cap < self.max_tx_dbm.0 { by_cap } else { self.max_tx_dbm.0 })
     }
 
+    /// Take the radio's limits from a log header for the settings that were
+    /// not set explicitly: `min_tx_dbm`, `max_tx_dbm`, `steps` (a uniform
+    /// step of the header's `tx_step`) and `antenna_gain_dbi`, each only when
+    /// the header carries it and `explicit` does not name it. Then, unless
+    /// `start_tx_dbm` was set explicitly, a start power the radio cannot
+    /// produce (outside `[min_tx_dbm, tx_ceiling()]`) becomes
+    /// [`ControllerConfig::tx_ceiling`], so the replay of a log starts at the
+    /// radio's highest allowed power rather than being refused.
+    ///
+    /// Nothing is validated here: [`ControllerConfig::validate`] (or
+    /// `Controller::new`) judges the result and names a bad setting, whether
+    /// it came from the header or not.
+    pub fn apply_log_header(&mut self, header: &LogHeader, explicit: ExplicitSettings) {
+        if let (Some(v), false) = (header.min_tx, explicit.min_tx_dbm) {
+            self.min_tx_dbm = v;
+        }
+        if let (Some(v), false) = (header.max_tx, explicit.max_tx_dbm) {
+            self.max_tx_dbm = v;
+        }
+        if let (Some(v), false) = (header.tx_step, explicit.steps) {
+            self.steps = PowerSteps::Uniform(v);
+        }
+        if let (Some(v), false) = (header.antenna_gain, explicit.antenna_gain_dbi) {
+            self.antenna_gain_dbi = v;
+        }
+        if !explicit.start_tx_dbm {
+            let ceiling = self.tx_ceiling();
+            if self.start_tx_dbm.0 > ceiling.0 || self.start_tx_dbm.0 < self.min_tx_dbm.0 {
+                self.start_tx_dbm = ceiling;
+            }
+        }
+    }
+
     /// Check every setting; the error names the first one that is wrong.
     pub fn validate(&self) -> Result<(), ConfigError> {
         self.validate_inner().map(|_| ())
@@ -390,6 +430,14 @@ impl ControllerConfig {
         let (bottom, top, gap) = match c.steps {
             PowerSteps::Uniform(step) => {
                 let s = positive_db("steps.uniform", step.0)?;
+                if s < MIN_UNIFORM_STEP_DB {
+                    return Err(ConfigError::OutOfRange {
+                        setting: "steps.uniform",
+                        value: s,
+                        min: MIN_UNIFORM_STEP_DB,
+                        max: SETTING_LIMIT_DB,
+                    });
+                }
                 let span = ceiling - c.min_tx_dbm.0;
                 let k = libm::floorf(span / s + GRID_EPS);
                 (c.min_tx_dbm.0, c.min_tx_dbm.0 + k * s, s)
@@ -441,6 +489,42 @@ impl ControllerConfig {
             // rounded down to the top level; nothing to refuse.
         }
         Ok((bottom, top))
+    }
+}
+
+/// Which of the settings a log header can carry were set explicitly (in a
+/// configuration file or by the user), so that
+/// [`ControllerConfig::apply_log_header`] leaves them alone.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ExplicitSettings {
+    /// `min_tx_dbm` was set.
+    pub min_tx_dbm: bool,
+    /// `max_tx_dbm` was set.
+    pub max_tx_dbm: bool,
+    /// `steps` was set.
+    pub steps: bool,
+    /// `antenna_gain_dbi` was set.
+    pub antenna_gain_dbi: bool,
+    /// `start_tx_dbm` was set.
+    pub start_tx_dbm: bool,
+}
+
+impl ExplicitSettings {
+    /// The settings named among `keys` (TOML keys; other keys are ignored).
+    pub fn from_keys<'a, I: IntoIterator<Item = &'a str>>(keys: I) -> Self {
+        let mut e = ExplicitSettings::default();
+        for k in keys {
+            match k {
+                "min_tx_dbm" => e.min_tx_dbm = true,
+                "max_tx_dbm" => e.max_tx_dbm = true,
+                "steps" => e.steps = true,
+                "antenna_gain_dbi" => e.antenna_gain_dbi = true,
+                "start_tx_dbm" => e.start_tx_dbm = true,
+                _ => {}
+            }
+        }
+        e
     }
 }
 
@@ -540,3 +624,54 @@ impl fmt::Display for ConfigError {
 }
 
 impl core::error::Error for ConfigError {}
+
+#[cfg(test)]
+#[allow(clippy::panic)]
+mod tests {
+    use super::*;
+
+    fn header() -> LogHeader {
+        LogHeader {
+            min_tx: Some(Dbm(0.0)),
+            max_tx: Some(Dbm(10.0)),
+            tx_step: Some(Db(2.0)),
+            antenna_gain: Some(Dbi(0.0)),
+            ..LogHeader::default()
+        }
+    }
+
+    #[test]
+    fn log_header_fills_only_the_settings_not_set() {
+        let mut c = ControllerConfig::sub_ghz_node();
+        c.apply_log_header(&header(), ExplicitSettings::default());
+        assert_eq!((c.min_tx_dbm, c.max_tx_dbm), (Dbm(0.0), Dbm(10.0)));
+        assert_eq!(c.steps, PowerSteps::Uniform(Db(2.0)));
+        assert_eq!(c.antenna_gain_dbi, Dbi(0.0));
+        // 14 dBm is above the header radio's 10 dBm: start at the ceiling.
+        assert_eq!(c.start_tx_dbm, Dbm(10.0));
+        assert_eq!(c.validate(), Ok(()));
+
+        let mut c = ControllerConfig::sub_ghz_node();
+        let explicit = ExplicitSettings::from_keys(["max_tx_dbm", "steps", "start_tx_dbm", "other"]);
+        c.apply_log_header(&header(), explicit);
+        assert_eq!((c.min_tx_dbm, c.max_tx_dbm), (Dbm(0.0), Dbm(22.0)));
+        assert_eq!(c.steps, PowerSteps::Uniform(Db(1.0)));
+        assert_eq!(c.start_tx_dbm, Dbm(14.0));
+
+        // An empty header changes nothing.
+        let mut c = ControllerConfig::sub_ghz_node();
+        c.apply_log_header(&LogHeader::default(), ExplicitSettings::default());
+        assert_eq!(c, ControllerConfig::sub_ghz_node());
+    }
+
+    #[test]
+    fn a_bad_header_value_is_named_by_validation() {
+        let mut c = ControllerConfig::sub_ghz_node();
+        let h = LogHeader { tx_step: Some(Db(1e-30)), ..LogHeader::default() };
+        c.apply_log_header(&h, ExplicitSettings::default());
+        match c.validate() {
+            Err(e) => assert_eq!(e.setting(), "steps.uniform"),
+            Ok(()) => panic!("a 1e-30 dB step accepted"),
+        }
+    }
+}

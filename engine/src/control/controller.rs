@@ -20,9 +20,17 @@ const BEACON_TX_RANGE_DBM: (f32, f32) = (-50.0, 60.0);
 /// distribution.
 const MAE_TO_SIGMA: f32 = 1.253_314_1;
 
-/// Gains of the two exponential-filter predictors of the loss to noise: one
-/// follows changes over about eight packets, one over about two.
-const FILTER_GAINS: [f32; 2] = [0.125, 0.5];
+/// Gains of the two exponential-filter predictors of the loss to noise, as
+/// right shifts: 1/8 follows changes over about eight packets, 1/2 over
+/// about two.
+const FILTER_SHIFTS: [u32; 2] = [3, 1];
+
+/// Extra fractional bits of the filters and prediction errors beyond the
+/// readings' 1/32 dB: they run in 1/8192 dB.
+const FINE_BITS: u32 = 8;
+
+/// dB per step of the filters (1/8192 dB).
+const DB_PER_FINE: f32 = 1.0 / (Q_PER_DB * (1u32 << FINE_BITS) as f32);
 
 /// What the device learnt about the packet it just sent (or the beacon it
 /// just heard). One observation per update.
@@ -171,6 +179,29 @@ impl<const W: usize> Window<W> {
     /// 1 / (W · steps per dB): the scale of the sums of a full window.
     const INV_FULL: f32 = 1.0 / (W as f32 * Q_PER_DB);
 
+    /// `W` as an `i32` (`W ≤ MAX_WINDOW = 4096`, checked by `Controller::new`;
+    /// the cast cannot truncate).
+    #[allow(clippy::cast_possible_truncation, clippy::cast_possible_wrap)]
+    const W_I32: i32 = if W > MAX_WINDOW { MAX_WINDOW as i32 } else { W as i32 };
+
+    /// Mean of z in 1/8192 dB, truncated (exact integer arithmetic: the sum
+    /// is at most 4096 · 2¹⁵ in magnitude, the remainder below 4096).
+    fn mean_z_fine(&self) -> Option<i32> {
+        let n = i32::from(self.n);
+        if n == 0 {
+            return None;
+        }
+        let (q, r) = if usize::from(self.n) >= W {
+            // A full window: a constant divisor (a shift for a power of two).
+            let w = Self::W_I32;
+            (self.sum_z.checked_div(w).unwrap_or(0), self.sum_z.checked_rem(w).unwrap_or(0))
+        } else {
+            (self.sum_z / n, self.sum_z % n)
+        };
+        // |q| < 2¹⁵ and |r·256/n| < 256: no wrap can occur.
+        Some(q.wrapping_mul(1 << FINE_BITS).wrapping_add((r << FINE_BITS) / n))
+    }
+
     /// Mean of z and of the noise, dB / dBm.
     fn means(&self) -> Option<(f32, f32)> {
         if self.n == 0 {
@@ -252,9 +283,12 @@ fn to_level_index(k: f32) -> i32 {
 ///
 /// ## Cost
 /// All state is in this fixed-size struct (no allocation); one
-/// [`Controller::update`] per packet, O(1) in `W`, with no logarithm or
-/// exponential; divisions only while the window and the error averages
-/// fill up.
+/// [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
+/// exponential or square root. The window sums, the two filters (shifts in
+/// 1/8192 dB) and the mean-absolute-error trackers (integer sums in
+/// 1/32 dB) are integer arithmetic; floats remain in the plausibility
+/// checks, the mean and the decision. A few integer divisions per update
+/// (none by `W` or `spread_memory` when they are powers of two).
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
@@ -274,15 +308,22 @@ pub struct Controller<const W: usize> {
     clamped_high: bool,
     clamped_low: bool,
     last_reading_ms: Option<u64>,
-    /// Exponential-filter predictors of z, dB.
-    filters: [f32; 2],
-    /// Mean absolute one-step prediction error of the window mean and of
-    /// the two filters, dB.
-    mae: [f32; 3],
+    /// Exponential-filter predictors of z, 1/8192 dB.
+    filters: [i32; 2],
+    /// Absolute one-step prediction errors of the window mean and of the
+    /// two filters, 1/32 dB, summed over the errors seen while fewer than
+    /// `spread_memory` (the mean absolute error is the sum over their
+    /// number), then decaying: `S ← S − S/memory + |e|` (the mean absolute
+    /// error is `S/memory`, an exponential average of weight 1/memory).
+    mae_sum: [u32; 3],
     /// Prediction errors seen since the history started (saturating).
     errors: u16,
-    /// 1 / `spread_memory`, the weight of a new error once `errors` reaches it.
-    inv_memory: f32,
+    /// log2(`spread_memory`) when it is a power of two (a shift instead of
+    /// a division).
+    memory_shift: Option<u32>,
+    /// The last mean absolute error (1/8192 dB) turned into a spread, and
+    /// the spread, dB.
+    spread_cache: (u32, f32),
     window: Window<W>,
 }
 
@@ -325,10 +366,15 @@ impl<const W: usize> Controller<W> {
             clamped_high: false,
             clamped_low: false,
             last_reading_ms: None,
-            filters: [0.0; 2],
-            mae: [0.0; 3],
+            filters: [0; 2],
+            mae_sum: [0; 3],
             errors: 0,
-            inv_memory: 1.0 / f32::from(cfg.spread_memory),
+            memory_shift: if cfg.spread_memory.is_power_of_two() {
+                Some(cfg.spread_memory.trailing_zeros())
+            } else {
+                None
+            },
+            spread_cache: (0, 0.0),
             window: Window::new(),
         };
         let m = c.clamp_margin(0.0);
@@ -384,30 +430,32 @@ impl<const W: usize> Controller<W> {
     /// Drop the readings and the predictors' history.
     fn forget(&mut self) {
         self.window.clear();
-        self.filters = [0.0; 2];
-        self.mae = [0.0; 3];
+        self.filters = [0; 2];
+        self.mae_sum = [0; 3];
         self.errors = 0;
     }
 
     /// Score the predictors on a new reading `z` (already quantised), then
-    /// take it into the window and the filters.
+    /// take it into the window and the filters. Integer arithmetic only.
     fn learn(&mut self, zq: i16, noiseq: i16) {
-        let z = f32::from(zq) * (1.0 / Q_PER_DB);
-        match self.window.means() {
-            Some((mz, _)) => {
+        let z = i32::from(zq) << FINE_BITS;
+        match self.window.mean_z_fine() {
+            Some(mz) => {
                 self.errors = self.errors.saturating_add(1);
-                let w = if self.errors < self.cfg.spread_memory {
-                    1.0 / f32::from(self.errors)
-                } else {
-                    self.inv_memory
-                };
+                let filling = self.errors <= self.cfg.spread_memory;
                 let [f0, f1] = self.filters;
-                let e = [z - mz, z - f0, z - f1];
-                for (m, e) in self.mae.iter_mut().zip(e.iter()) {
-                    *m += w * (e.abs() - *m);
+                // z, the mean and the filters are within ±2²³: the differences
+                // cannot wrap.
+                let e = [z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1)];
+                let (m, k) = (u32::from(self.cfg.spread_memory), self.memory_shift);
+                for (s, e) in self.mae_sum.iter_mut().zip(e.iter()) {
+                    // |e| in 1/32 dB, rounded.
+                    let a = (e.unsigned_abs().saturating_add(1 << (FINE_BITS - 1))) >> FINE_BITS;
+                    let kept = if filling { *s } else { s.saturating_sub(over_memory(*s, m, k)) };
+                    *s = kept.saturating_add(a);
                 }
-                for (f, g) in self.filters.iter_mut().zip(FILTER_GAINS.iter()) {
-                    *f += g * (z - *f);
+                for (f, g) in self.filters.iter_mut().zip(FILTER_SHIFTS.iter()) {
+                    *f = f.wrapping_add(z.wrapping_sub(*f) >> g);
                 }
             }
             None => self.filters = [z; 2],
@@ -416,22 +464,47 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Predicted z for the next packet and its RMS error, from the predictor
-    /// with the smallest mean square error.
-    fn predict(&self) -> Option<(f32, Option<f32>)> {
-        let (mz, _) = self.window.means()?;
+    /// with the smallest mean absolute error; `mz` is the window's mean.
+    fn predict(&mut self, mz: Option<f32>) -> Option<(f32, Option<f32>)> {
+        let mz = mz?;
         if self.errors == 0 {
             return Some((mz, None));
         }
-        let [m0, m1, m2] = self.mae;
+        let [s0, s1, s2] = self.mae_sum;
         let [f0, f1] = self.filters;
-        let (level, mae) = if m0 <= m1 && m0 <= m2 {
-            (mz, m0)
-        } else if m1 <= m2 {
-            (f0, m1)
+        let (level, sum) = if s0 <= s1 && s0 <= s2 {
+            (mz, s0)
+        } else if s1 <= s2 {
+            (f0 as f32 * DB_PER_FINE, s1)
         } else {
-            (f1, m2)
+            (f1 as f32 * DB_PER_FINE, s2)
         };
-        Some((level, Some(MAE_TO_SIGMA * mae)))
+        // Mean absolute error in 1/8192 dB: sum / n with the remainder kept.
+        let n = u32::from(if self.errors < self.cfg.spread_memory {
+            self.errors
+        } else {
+            self.cfg.spread_memory
+        });
+        let fine = match self.memory_shift {
+            // A full memory of a power of two: shifts.
+            Some(k) if n == u32::from(self.cfg.spread_memory) => {
+                let r = sum & n.wrapping_sub(1);
+                (sum >> k).saturating_mul(1 << FINE_BITS).saturating_add((r << FINE_BITS) >> k)
+            }
+            _ => {
+                let q = sum.checked_div(n).unwrap_or(0);
+                let r = sum.checked_rem(n).unwrap_or(0);
+                q.saturating_mul(1 << FINE_BITS).saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
+            }
+        };
+        let sigma = if fine == self.spread_cache.0 {
+            self.spread_cache.1
+        } else {
+            let sg = fine as f32 * (MAE_TO_SIGMA * DB_PER_FINE);
+            self.spread_cache = (fine, sg);
+            sg
+        };
+        Some((level, Some(sigma)))
     }
 
     /// `true` if `p` is one of the levels the controller may choose.
@@ -520,7 +593,7 @@ impl<const W: usize> Controller<W> {
         // 3. The decision.
         let cur = self.tx;
         let means = self.window.means();
-        let prediction = self.predict();
+        let prediction = self.predict(means.map(|(mz, _)| mz));
         let spread = prediction.and_then(|(_, s)| s);
         let n = self.window.n;
         let cfg = &self.cfg;
@@ -591,21 +664,13 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Why a logged record's readings cannot be judged by a replay, if they
-    /// cannot: not finite, or outside the configured plausible ranges (the
-    /// logged transmit power only has to be finite and within ±300 dBm).
+    /// cannot: not finite, a logged transmit power outside the radio's range
+    /// (`min_tx_dbm..max_tx_dbm` with the same 1 dB tolerance as a live
+    /// feedback), a logged RSSI or noise floor outside the configured
+    /// plausible ranges, or a logged RSSI at or above `rssi_saturation_dbm`.
+    /// The same checks, in the same order, as a live feedback.
     pub(crate) fn check_logged(&self, tx: f32, rssi: f32, noise: f32) -> Option<Reason> {
-        let c = &self.cfg;
-        if !(tx.is_finite() && rssi.is_finite() && noise.is_finite()) {
-            return Some(Reason::IgnoredNotFinite);
-        }
-        let lim = super::config::SETTING_LIMIT_DB;
-        if !(-lim..=lim).contains(&tx)
-            || !(c.rssi_min_dbm.0..=c.rssi_max_dbm.0).contains(&rssi)
-            || !(c.noise_min_dbm.0..=c.noise_max_dbm.0).contains(&noise)
-        {
-            return Some(Reason::IgnoredImplausible);
-        }
-        None
+        self.check_feedback(Dbm(tx), Dbm(rssi), Dbm(noise), None).err()
     }
 
     /// Loss to noise and noise floor of a feedback, or why it is unusable.
@@ -708,7 +773,7 @@ impl<const W: usize> Controller<W> {
                 // ceiling without libm.
                 let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step - GRID_EPS;
                 let ki = to_level_index(k);
-                let ki = if (ki as f32) < k { ki + 1 } else { ki };
+                let ki = if (ki as f32) < k { ki.saturating_add(1) } else { ki };
                 self.cfg.min_tx_dbm.0 + ki as f32 * s.0
             }
             PowerSteps::Table(t) => t
@@ -767,6 +832,15 @@ impl<const W: usize> Controller<W> {
         } else {
             (target, false)
         }
+    }
+}
+
+/// `s / m`, rounded; `k = log2(m)` when `m` is a power of two.
+fn over_memory(s: u32, m: u32, k: Option<u32>) -> u32 {
+    let half = s.saturating_add(m >> 1);
+    match k {
+        Some(k) => half >> k,
+        None => half.checked_div(m).unwrap_or(0),
     }
 }
 
@@ -926,6 +1000,47 @@ mod tests {
         };
         assert_eq!(c.update(&late).reason, Reason::HistoryExpired);
         assert_eq!(c.update(&Observation::Missing { t_ms: 4_000_000 }).reason, Reason::NoInformation);
+    }
+
+    #[test]
+    fn tiny_uniform_steps_are_refused_by_name() {
+        for step in [1.0e-39f32, 1.0e-30, 1.0e-6, 0.009] {
+            let mut cfg = ControllerConfig::sub_ghz_node();
+            cfg.steps = PowerSteps::Uniform(Db(step));
+            match Controller::<32>::new(cfg) {
+                Err(e) => assert_eq!(e.setting(), "steps.uniform", "step {step}"),
+                Ok(_) => panic!("step {step} accepted"),
+            }
+        }
+        let mut cfg = ControllerConfig::sub_ghz_node();
+        cfg.steps = PowerSteps::Uniform(Db(0.01));
+        let mut c = match Controller::<32>::new(cfg) {
+            Ok(c) => c,
+            Err(e) => panic!("0.01 dB step refused: {e}"),
+        };
+        assert!(c.is_level(c.tx()));
+        for i in 0..50u64 {
+            let d = c.update(&Observation::Feedback {
+                t_ms: i,
+                tx: c.tx(),
+                rssi: Dbm(c.tx().0 - 100.0),
+                noise: Dbm(-110.0),
+                snr: None,
+            });
+            assert!(c.is_level(d.tx), "{d:?}");
+        }
+    }
+
+    #[test]
+    fn level_rounding_saturates_instead_of_overflowing() {
+        // Unreachable through validation; the arithmetic itself must not
+        // overflow if the index saturates.
+        let mut c = ctl();
+        c.inv_step = f32::MAX;
+        let v = c.level_at_or_above(0.5);
+        assert!(v.is_finite());
+        let v = c.level_at_or_below(0.5);
+        assert!(v.is_finite());
     }
 
     #[test]

@@ -72,6 +72,19 @@ pub struct ReplayStep {
     pub next_tx: Dbm,
 }
 
+impl ReplayStep {
+    /// Received power the packet would have had at the chosen power,
+    /// `rssi − tx + chosen` of `rec`, the record this step replayed (the same
+    /// computation as [`Replay::step`]); `None` when the step was not judged.
+    pub fn replayed_rx(&self, rec: &LogRecord) -> Option<Dbm> {
+        match (self.outcome, rec.tx_dbm, rec.rssi_dbm) {
+            (Outcome::Unjudged, _, _) => None,
+            (_, Some(tx), Some(rssi)) => Some(Dbm(rssi - tx + self.chosen.0)),
+            _ => None,
+        }
+    }
+}
+
 /// Running totals of a replay.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -96,6 +109,9 @@ pub struct Summary {
     pub max_allowed: Dbm,
     sum_mw: f64,
     last_chosen: Option<f32>,
+    /// Σ over merged replays of records × highest allowed level, mW (`None`
+    /// until [`Summary::merge`]).
+    allowed_mw: Option<f64>,
 }
 
 impl Summary {
@@ -112,6 +128,7 @@ impl Summary {
             max_allowed,
             sum_mw: 0.0,
             last_chosen: None,
+            allowed_mw: None,
         }
     }
 
@@ -146,6 +163,39 @@ impl Summary {
         }
     }
 
+    /// Records × highest allowed level in mW: the linear sum behind the
+    /// reference of [`Summary::energy_saving_db`].
+    fn allowed_sum_mw(&self) -> f64 {
+        self.allowed_mw
+            .unwrap_or_else(|| self.records as f64 * f64::from(libm::exp10f(self.max_allowed.0 / 10.0)))
+    }
+
+    /// Add the totals of another replay (another device of a fleet): counts
+    /// and linear power sums add; [`Summary::max_tx_dbm_used`] and
+    /// [`Summary::max_allowed`] become the larger of the two; and
+    /// [`Summary::energy_saving_db`] of the merged totals compares the mean
+    /// power with the mean, in mW over all records, of each device's own
+    /// highest allowed level.
+    pub fn merge(&mut self, other: &Summary) {
+        self.allowed_mw = Some(self.allowed_sum_mw() + other.allowed_sum_mw());
+        self.records += other.records;
+        self.judged += other.judged;
+        self.lost += other.lost;
+        self.unjudged += other.unjudged;
+        self.power_changes += other.power_changes;
+        self.max_tx_dbm_used = match (self.max_tx_dbm_used, other.max_tx_dbm_used) {
+            (Some(a), Some(b)) => Some(if b.0 > a.0 { b } else { a }),
+            (a, b) => a.or(b),
+        };
+        for (a, b) in self.ignored_readings.iter_mut().zip(other.ignored_readings.iter()) {
+            *a += *b;
+        }
+        if other.max_allowed.0 > self.max_allowed.0 {
+            self.max_allowed = other.max_allowed;
+        }
+        self.sum_mw += other.sum_mw;
+    }
+
     /// Lost / judged (`None` before a judged record).
     #[allow(clippy::cast_possible_truncation)] // a fraction in [0, 1]
     pub fn outage_fraction(&self) -> Option<f32> {
@@ -167,9 +217,18 @@ impl Summary {
     }
 
     /// How much lower the mean power is than always sending at
-    /// [`Summary::max_allowed`], dB.
+    /// [`Summary::max_allowed`], dB (for merged totals, at each device's own
+    /// highest allowed level: see [`Summary::merge`]).
+    #[allow(clippy::cast_possible_truncation)] // a level within ±300 dBm
     pub fn energy_saving_db(&self) -> Option<Db> {
-        self.mean_tx_dbm().map(|m| self.max_allowed - m)
+        let mean = self.mean_tx_dbm()?;
+        match self.allowed_mw {
+            None => Some(self.max_allowed - mean),
+            Some(a) if a > 0.0 && self.records > 0 => {
+                Some(Dbm(libm::log10(a / self.records as f64) as f32 * 10.0) - mean)
+            }
+            Some(_) => None,
+        }
     }
 
     /// Readings ignored for reason `r`.
@@ -190,16 +249,19 @@ impl Summary {
 /// 4. a delivered packet gives the controller the replayed feedback
 ///    (sent at `chosen`, received at the replayed power, the logged noise);
 ///    a lost one gives it a loss and no readings;
-/// 5. a record with a missing reading, or one that is NaN, infinite or
-///    outside the configured plausible range (`rssi_min_dbm..rssi_max_dbm`,
-///    `noise_min_dbm..noise_max_dbm`), cannot be judged: it is counted apart
+/// 5. a record with a missing reading, or whose *logged* readings would be
+///    refused as a live feedback (NaN or infinite; a transmit power outside
+///    the radio's `min_tx_dbm..max_tx_dbm` by more than 1 dB; an RSSI or
+///    noise floor outside `rssi_min_dbm..rssi_max_dbm`,
+///    `noise_min_dbm..noise_max_dbm`; an RSSI at or above
+///    `rssi_saturation_dbm`), cannot be judged: it is counted apart
 ///    (the reason in [`Summary::ignored_readings`] for the bad ones) and
 ///    passed to the controller as an observation of nothing
 ///    ([`Observation::Missing`]).
 ///
-/// A logged reading that was clipped by a saturated receiver gives a
-/// replayed received power that is only a lower bound, so the replay is
-/// pessimistic for it.
+/// A logged reading clipped by a receiver just below its saturation level
+/// gives a replayed received power that is only a lower bound, so the
+/// replay is pessimistic for it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Replay<const W: usize> {
@@ -334,5 +396,75 @@ mod tests {
         assert!((m - 7.403_627).abs() < 1e-4, "{m}");
         assert_eq!(s.power_changes, 1);
         assert_eq!(s.outage_fraction(), None);
+    }
+
+    #[test]
+    fn merged_summaries_add_linear_power() {
+        let step = |p: f32, outcome| ReplayStep {
+            t_ms: 0,
+            chosen: Dbm(p),
+            replayed_snr: None,
+            outcome,
+            path_loss_estimate: None,
+            margin: Db(0.0),
+            reason: Reason::Hold,
+            next_tx: Dbm(p),
+        };
+        let mut a = Summary::new(Dbm(10.0));
+        a.add(&step(10.0, Outcome::Lost));
+        let mut b = Summary::new(Dbm(14.0));
+        b.add(&step(0.0, Outcome::Delivered));
+        b.add(&step(0.0, Outcome::Delivered));
+        a.merge(&b);
+        assert_eq!((a.records, a.judged, a.lost, a.power_changes), (3, 3, 1, 0));
+        assert_eq!(a.max_tx_dbm_used, Some(Dbm(10.0)));
+        assert_eq!(a.max_allowed, Dbm(14.0));
+        // (10 + 1 + 1) mW / 3 = 4 mW = 6.0206 dBm.
+        let m = a.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
+        assert!((m - 6.020_6).abs() < 1e-3, "{m}");
+        assert!(a.outage_fraction().is_some_and(|f| (f - 1.0 / 3.0).abs() < 1e-6));
+        // Reference: (1 × 10 mW + 2 × 25.119 mW) / 3 = 20.079 mW = 13.027 dBm,
+        // less the mean 6.0206 dBm.
+        let e = a.energy_saving_db().map_or(f32::NAN, |d| d.0);
+        assert!((e - (13.027_4 - 6.020_6)).abs() < 1e-3, "{e}");
+    }
+
+    #[test]
+    fn replayed_rx_is_the_logged_channel_at_the_chosen_power() {
+        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
+            Ok(r) => r,
+            Err(e) => panic!("{e}"),
+        };
+        let rec0 = rec(0, 10.0, -105.0, -110.0);
+        let s = r.step(&rec0);
+        // −105 − 10 + 14 = −101 dBm.
+        assert_eq!(s.replayed_rx(&rec0), Some(Dbm(-101.0)));
+        let gap = LogRecord { t_ms: 1, tx_dbm: Some(10.0), rssi_dbm: None, noise_dbm: Some(-110.0) };
+        let s = r.step(&gap);
+        assert_eq!(s.replayed_rx(&gap), None);
+    }
+
+    #[test]
+    fn logged_readings_the_radio_cannot_produce_are_not_judged() {
+        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
+            Ok(r) => r,
+            Err(e) => panic!("{e}"),
+        };
+        // sub_ghz_node: tx −9..22 dBm (±1 dB), RSSI saturates at 0 dBm.
+        let cases = [
+            (rec(0, 10.0, 0.0, -110.0), Reason::IgnoredSaturated), // at the ceiling
+            (rec(1, 10.0, 3.2e-11, -110.0), Reason::IgnoredSaturated), // RSSI in mW
+            (rec(2, 25.1, -100.0, -110.0), Reason::IgnoredImplausible), // tx in mW
+            (rec(3, -10.5, -100.0, -110.0), Reason::IgnoredImplausible), // below min_tx
+        ];
+        for (rec, why) in cases {
+            let s = r.step(&rec);
+            assert_eq!((s.outcome, s.reason), (Outcome::Unjudged, why), "{rec:?}");
+        }
+        // Within the tolerance: judged.
+        let s = r.step(&rec(4, 23.0, -100.0, -110.0));
+        assert_ne!(s.outcome, Outcome::Unjudged, "{s:?}");
+        assert_eq!(r.summary().ignored(Reason::IgnoredSaturated), 2);
+        assert_eq!(r.summary().ignored(Reason::IgnoredImplausible), 2);
     }
 }

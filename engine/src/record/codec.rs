@@ -202,7 +202,9 @@ struct WireHeader {
     magic: [u8; 4],
     major: u8,
     minor: u8,
+    #[serde(serialize_with = "leb128::serialize")]
     device_id: u64,
+    #[serde(serialize_with = "leb128::serialize")]
     epoch_ms: u64,
     min_tx_dbm: Option<f32>,
     max_tx_dbm: Option<f32>,
@@ -212,6 +214,7 @@ struct WireHeader {
 
 #[derive(Serialize, Deserialize)]
 struct WireRecord {
+    #[serde(serialize_with = "leb128::serialize")]
     t_ms: u64,
     tx_dbm: Option<f32>,
     rssi_dbm: Option<f32>,
@@ -220,10 +223,52 @@ struct WireRecord {
 
 #[derive(Serialize, Deserialize)]
 struct WireDecision {
+    #[serde(serialize_with = "leb128::serialize")]
     t_ms: u64,
     tx_dbm: f32,
     outcome: u8,
     reason: u8,
+}
+
+/// The `u64` fields written as LEB128 varint bytes, exactly as postcard
+/// writes a `u64` (so the wire format is postcard's), but through a fixed
+/// array and a byte tuple: postcard's own `u64` varint writer indexes its
+/// scratch array in a way the optimiser cannot prove in bounds, which left
+/// a panic path in the encoder. Reading uses postcard's `u64` decoder.
+mod leb128 {
+    use serde::ser::{SerializeTuple, Serializer};
+
+    /// Most bytes of a `u64` varint: ceil(64 / 7).
+    pub(super) const MAX_LEN: usize = 10;
+
+    /// The varint bytes of `v` and how many of them are used.
+    pub(super) fn encode(v: u64) -> ([u8; MAX_LEN], usize) {
+        let mut out = [0u8; MAX_LEN];
+        let mut rest = v;
+        let mut used = 0usize;
+        for slot in out.iter_mut() {
+            // Low 7 bits; the cast keeps them (rest & 0x7F < 128).
+            let low = (rest & 0x7F) as u8;
+            rest >>= 7;
+            used += 1;
+            if rest == 0 {
+                *slot = low;
+                break;
+            }
+            *slot = low | 0x80;
+        }
+        (out, used)
+    }
+
+    pub(super) fn serialize<S: Serializer>(v: &u64, s: S) -> Result<S::Ok, S::Error> {
+        let (bytes, used) = encode(*v);
+        // postcard writes a tuple as its elements, without a length.
+        let mut t = s.serialize_tuple(used)?;
+        for b in bytes.iter().take(used) {
+            t.serialize_element(b)?;
+        }
+        t.end()
+    }
 }
 
 /// Encode one frame with sequence number `seq` into `buf`; returns the
@@ -547,15 +592,15 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
     if p.len() < MIN_PAYLOAD {
         return Err(CodecError::TooShort);
     }
-    let (content, crc) = p.split_at(p.len() - 4);
-    let mut want = [0u8; 4];
-    want.copy_from_slice(crc);
+    let (content, crc) = p.split_at_checked(p.len() - 4).ok_or(CodecError::TooShort)?;
+    let &[c0, c1, c2, c3] = crc else { return Err(CodecError::TooShort) };
+    let want = [c0, c1, c2, c3];
     let mut c = Crc32c::new();
     c.update(content);
     if c.value() != u32::from_le_bytes(want) {
         return Err(CodecError::Crc);
     }
-    let (head, body) = content.split_at(3);
+    let (head, body) = content.split_at_checked(3).ok_or(CodecError::TooShort)?;
     let &[kind, s0, s1] = head else { return Err(CodecError::TooShort) };
     let seq = u16::from_le_bytes([s0, s1]);
     // Bytes after the fields this version knows are ignored (newer minors
@@ -709,7 +754,12 @@ impl<const N: usize> FrameDecoder<N> {
                     return None;
                 }
                 Some(at) => {
-                    let (piece, rest) = data.split_at(at);
+                    let Some((piece, rest)) = data.split_at_checked(at) else {
+                        // find_zero returns an index inside `data`.
+                        self.push(data);
+                        *input = &[];
+                        return None;
+                    };
                     *input = rest.get(1..).unwrap_or(&[]);
                     if self.len == 0 && self.dropped == 0 && !piece.is_empty() {
                         // The whole piece is in this chunk: decode it where
@@ -796,8 +846,10 @@ impl<const N: usize> FrameDecoder<N> {
                 None
             };
         }
-        if self.dropped > 0 {
-            // Put the ring in order: oldest kept byte first.
+        if self.dropped > 0 && self.ring < N {
+            // Put the ring in order: oldest kept byte first (`ring` is
+            // always below N; the guard makes that visible to the
+            // optimiser).
             self.buf.rotate_left(self.ring);
         }
         let len = self.len;
@@ -950,6 +1002,36 @@ mod tests {
             let d = decode_frame(&mut buf[..n - 1]).unwrap();
             assert_eq!(d, Decoded { seq, frame: f });
         }
+    }
+
+    #[test]
+    fn own_varint_writes_what_postcard_writes() {
+        // The wire format is postcard's u64 varint; our writer must agree
+        // with postcard's own for every length 1..=10.
+        let mut values = [0u64; 3 * 10 + 2];
+        for k in 0..10u32 {
+            let edge = 1u64.checked_shl(7 * k).unwrap_or(0);
+            values[3 * k as usize] = edge;
+            values[3 * k as usize + 1] = edge.wrapping_sub(1);
+            values[3 * k as usize + 2] = edge.wrapping_add(1);
+        }
+        values[30] = u64::MAX;
+        values[31] = 1500;
+        for v in values {
+            let mut ours = [0u8; 16];
+            let mut theirs = [0u8; 16];
+            let a = postcard::to_slice(&WireDecision { t_ms: v, tx_dbm: 1.0, outcome: 2, reason: 3 }, &mut ours)
+                .unwrap()
+                .len();
+            // postcard's own u64 writer, for comparison.
+            let b = postcard::to_slice(&(v, 1.0f32, 2u8, 3u8), &mut theirs).unwrap().len();
+            assert_eq!(&ours[..a], &theirs[..b], "t_ms = {v}");
+            let (back, _) = postcard::take_from_bytes::<WireDecision>(&ours[..a]).unwrap();
+            assert_eq!(back.t_ms, v);
+        }
+        // The documented example: 1500 = dc 0b.
+        assert_eq!(leb128::encode(1500), ([0xdc, 0x0b, 0, 0, 0, 0, 0, 0, 0, 0], 2));
+        assert_eq!(leb128::encode(u64::MAX).1, leb128::MAX_LEN);
     }
 
     #[test]

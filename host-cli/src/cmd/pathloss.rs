@@ -87,11 +87,11 @@ pub enum Extrapolate {
 /// Frequencies take Hz, kHz, MHz or GHz (`868MHz`); distances and heights take
 /// mm, cm, m or km (`3km`), a bare number being metres; losses are in dB.
 #[derive(clap::Args, Debug)]
-#[command(after_help = "Units: frequencies in Hz, kHz, MHz or GHz (868MHz); distances and heights in \
+#[command(after_help = concat!("Units: frequencies in Hz, kHz, MHz or GHz (868MHz); distances and heights in \
 mm, cm, m or km (3km; a bare number is metres); losses in dB. The result is path_loss_db, the \
 basic transmission loss between isotropic antennas (median loss for Hata and COST 231). Inputs \
 outside a model's published validity range are refused; for Hata and COST 231 --extrapolate \
-names an extension instead.")]
+names an extension instead.", "\n\n", caution!()))]
 pub struct Args {
     /// Propagation model.
     #[arg(long, value_enum)]

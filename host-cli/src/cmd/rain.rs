@@ -19,10 +19,10 @@ use crate::quantity;
 /// --rain-height, --station-height and --latitude as well; --rain-rate is
 /// then the rate exceeded for 0.01 % of an average year (R0.01).
 #[derive(clap::Args, Debug)]
-#[command(after_help = "Specific attenuation (ITU-R P.838-3) needs --frequency, --rain-rate, --elevation \
+#[command(after_help = concat!("Specific attenuation (ITU-R P.838-3) needs --frequency, --rain-rate, --elevation \
 and --tilt. The slant-path attenuation (ITU-R P.618-13) needs --exceeded-percent, --rain-height, \
 --station-height and --latitude together, and then reads --rain-rate as R0.01, the rate exceeded \
-for 0.01 % of an average year.")]
+for 0.01 % of an average year.", "\n\n", caution!()))]
 pub struct Args {
     /// Carrier frequency, e.g. 12GHz (bare number: Hz). P.838: 1-1000 GHz;
     /// slant path (P.618): 1-55 GHz.

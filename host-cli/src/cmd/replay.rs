@@ -2,37 +2,70 @@
 //! and say what it would have chosen, and lost.
 //!
 //! The replay semantics are the engine's (`headroom::control::Replay`), the
-//! same code the firmware runs on target. The logs named on the command line
-//! are replayed one after the other as one stream, through one controller.
+//! same code the firmware runs on target. Each log named on the command line
+//! (a directory stands for its `.csv` and `.hrlog` files, sorted by name) is
+//! one device: it is replayed on its own, through a fresh controller
+//! configured from its own header. With several logs, `--format jsonl` prints
+//! one summary line per log; `table` and `json` print each log's summary and
+//! a fleet total (counts and linear mW sums added over the logs by the
+//! engine's `Summary::merge`).
 //!
 //! The controller's settings come, in increasing precedence, from: the
 //! defaults of `ControllerConfig::sub_ghz_node`; the radio fields of the
-//! first log's header (`min_tx_dbm`, `max_tx_dbm`, `tx_step_db`,
+//! log's header (`min_tx_dbm`, `max_tx_dbm`, `tx_step_db`,
 //! `antenna_gain_dbi`) for the keys the TOML file does not set; the TOML
 //! file of `--config` (keys = the field names of `ControllerConfig`, see
 //! `examples/controllers/default.toml`); the flags.
 
-use std::fs::{self, File};
-use std::io::{self, BufWriter, Write};
+use std::fs;
+use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use headroom::control::{ControllerConfig, PowerSteps, Reason, Replay, ReplayStep, Summary};
-use headroom::record::LogHeader;
+use headroom::control::{ControllerConfig, ExplicitSettings, PowerSteps, Reason, Replay, ReplayStep, Summary};
+use headroom::record::{LogHeader, LogRecord};
 use headroom::units::{Db, Dbi, Dbm};
 use serde_json::{Map, Value};
 
+use crate::atomic::AtomicFile;
 use crate::error::{CliError, CliResult};
 use crate::logio;
-use crate::output::{json_num, Format, Report};
+use crate::output::{json_num, Report};
+use crate::plot::{self, ReplaySeries};
 use crate::quantity;
 
 /// Window of the controller used by the host replay (readings).
 pub const WINDOW: usize = 32;
 
+/// How the summaries are printed.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, clap::ValueEnum)]
+pub enum ReplayFormat {
+    /// Aligned `key  value` lines; with several logs one block per log, then the fleet.
+    #[default]
+    Table,
+    /// One JSON object; with several logs `{"logs": [...], "fleet": {...}}`.
+    Json,
+    /// One JSON object per line, one line per log, each with its `log` path.
+    Jsonl,
+}
+
+const AFTER_HELP: &str = concat!("\
+Several logs: each log (or each .csv/.hrlog file of a directory, sorted by \
+name) is one device, replayed separately with a fresh controller set up from \
+its own header. `--format jsonl` prints one line per log (the summary keys \
+plus `log`); `table` prints one block per log then a `fleet` block; `json` \
+prints {\"logs\": [...], \"fleet\": {...}} (one log: the summary object \
+alone). The fleet total adds counts and linear powers (mW) over the logs; its \
+energy saving compares the mean power with each log's own highest allowed \
+level, averaged in mW. --out and --plot take one log. The first log that \
+cannot be read stops the command with an error (jsonl lines already printed \
+stay valid).", "\n\n", caution!());
+
 /// Arguments of `headroom replay`.
 #[derive(clap::Args)]
+#[command(after_help = AFTER_HELP)]
 pub struct Args {
-    /// Field logs (`.csv` or `.hrlog`), replayed in order as one stream.
+    /// Field logs (`.csv` or `.hrlog`) or directories of them; each log is
+    /// replayed separately (one device per log).
     #[arg(value_name = "LOG", required = true)]
     logs: Vec<PathBuf>,
     /// Controller settings (TOML; keys as in examples/controllers/default.toml).
@@ -60,18 +93,22 @@ pub struct Args {
     #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, value_name = "S")]
     start_tx_dbm: Option<Dbm>,
     /// Uniform step between the radio's powers (replaces any level table).
-    #[arg(long, value_parser = quantity::db, value_name = "D")]
+    #[arg(long, value_parser = quantity::db, allow_hyphen_values = true, value_name = "D")]
     tx_step_db: Option<Db>,
     /// Write one CSV row per record: t_ms, chosen_tx_dbm, replayed_snr_db,
-    /// outcome, path_loss_db, margin_db, reason.
+    /// outcome, path_loss_db, margin_db, reason (one log only).
     #[arg(long, value_name = "decisions.csv")]
     out: Option<PathBuf>,
-    /// Replace `--out` if it exists.
+    /// Draw received power (logged and replayed), noise floor, lost packets,
+    /// chosen power and margin against time; `.svg` or `.png` (one log only).
+    #[arg(long, value_name = "FILE.svg|FILE.png")]
+    plot: Option<PathBuf>,
+    /// Replace the files of `--out` and `--plot` if they exist.
     #[arg(long)]
     force: bool,
     /// Format of the summary.
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    #[arg(long, value_enum, default_value_t = ReplayFormat::Table)]
+    format: ReplayFormat,
 }
 
 /// A probability as `0.01` or `1%`.
@@ -83,69 +120,173 @@ pub(crate) fn probability(s: &str) -> Result<f32, String> {
     }
 }
 
+/// The logs named by `args`: files as given, directories as their `.csv` and
+/// `.hrlog` files sorted by name.
+pub(crate) fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
+    let mut logs = Vec::new();
+    for a in args {
+        if !a.is_dir() {
+            logs.push(a.clone());
+            continue;
+        }
+        let entries = fs::read_dir(a)
+            .map_err(|e| CliError::Io(format!("{}: cannot list the directory: {e}", a.display())))?;
+        let mut found = Vec::new();
+        for e in entries {
+            let e = e.map_err(|e| CliError::Io(format!("{}: cannot list the directory: {e}", a.display())))?;
+            let p = e.path();
+            let ext = p.extension().and_then(|x| x.to_str()).map(str::to_ascii_lowercase);
+            if matches!(ext.as_deref(), Some("csv" | "hrlog")) && p.is_file() {
+                found.push(p);
+            }
+        }
+        if found.is_empty() {
+            return Err(CliError::arg(
+                "LOG",
+                format!("{}: a directory without .csv or .hrlog logs", a.display()),
+            ));
+        }
+        found.sort();
+        logs.extend(found);
+    }
+    Ok(logs)
+}
+
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
-    // Open the first log early: its header may carry the radio's limits.
-    let mut logs = args.logs.iter();
-    let first_path = logs
-        .next()
-        .ok_or_else(|| CliError::arg("LOG", "name at least one log"))?;
-    let first = logio::open(first_path)?;
-    let cfg = build_config(&args, first.header())?;
+    let logs = expand_logs(&args.logs)?;
+    if logs.len() > 1 {
+        for (flag, set) in [("--out", args.out.is_some()), ("--plot", args.plot.is_some())] {
+            if set {
+                return Err(CliError::arg(
+                    flag,
+                    format!("takes one log, {} were named: replay them one at a time", logs.len()),
+                ));
+            }
+        }
+    }
+    // Refuse an existing plot before the work, not after.
+    if let Some(p) = &args.plot {
+        plot::check_destination(p, args.force)?;
+    }
+    let mut rows: Vec<(String, Summary)> = Vec::new();
+    let mut fleet: Option<Summary> = None;
+    for path in &logs {
+        let s = replay_log(path, &args)?;
+        if args.format == ReplayFormat::Jsonl {
+            let mut m = Map::new();
+            m.insert("log".into(), path.display().to_string().into());
+            m.extend(fields(&s));
+            let line = serde_json::to_string(&Value::Object(m))
+                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            print_line(&line)?;
+        }
+        match fleet.as_mut() {
+            Some(f) => f.merge(&s),
+            None => fleet = Some(s),
+        }
+        rows.push((path.display().to_string(), s));
+    }
+    let Some(fleet) = fleet else {
+        return Err(CliError::arg("LOG", "name at least one log"));
+    };
+    match (args.format, rows.as_slice()) {
+        (ReplayFormat::Jsonl, _) => Ok(()),
+        (ReplayFormat::Json, [(_, one)]) => print_json(&Value::Object(fields(one).collect())),
+        (ReplayFormat::Table, [(_, one)]) => report(one).print(crate::output::Format::Table),
+        (ReplayFormat::Json, _) => {
+            let logs: Vec<Value> = rows
+                .iter()
+                .map(|(p, s)| {
+                    let mut m = Map::new();
+                    m.insert("log".into(), p.clone().into());
+                    m.extend(fields(s));
+                    Value::Object(m)
+                })
+                .collect();
+            let mut m = Map::new();
+            m.insert("logs".into(), Value::Array(logs));
+            m.insert("fleet".into(), Value::Object(fields(&fleet).collect()));
+            print_json(&Value::Object(m))
+        }
+        (ReplayFormat::Table, _) => {
+            for (p, s) in &rows {
+                print_line(&format!("== {p}"))?;
+                report(s).print(crate::output::Format::Table)?;
+                print_line("")?;
+            }
+            print_line(&format!("== fleet ({} logs)", rows.len()))?;
+            report(&fleet).print(crate::output::Format::Table)
+        }
+    }
+}
+
+/// One line on stdout, flushed; a closed pipe is an error, not a panic.
+fn print_line(line: &str) -> CliResult {
+    let mut stdout = io::stdout().lock();
+    writeln!(stdout, "{line}")
+        .and_then(|()| stdout.flush())
+        .map_err(|e| CliError::Io(format!("stdout: cannot write: {e}")))
+}
+
+fn print_json(v: &Value) -> CliResult {
+    let s = serde_json::to_string_pretty(v).map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+    print_line(&s)
+}
+
+/// Replay one log (one device) with a fresh controller set up from `args`
+/// and the log's header; writes `--out` and `--plot` if asked.
+fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
+    let mut reader = logio::open(path)?;
+    let cfg = build_config(args, reader.header())?;
     let mut replay = Replay::<WINDOW>::new(cfg)
         .map_err(|e| CliError::Input(format!("controller settings: {e}")))?;
-
     let mut out = match &args.out {
         Some(p) => Some(DecisionWriter::create(p, args.force)?),
         None => None,
     };
-    let mut last_t: Option<(u64, &Path)> = None;
-    replay_one(first_path, first, &mut replay, &mut out, &mut last_t)?;
-    for path in logs {
-        let reader = logio::open(path)?;
-        replay_one(path, reader, &mut replay, &mut out, &mut last_t)?;
-    }
-    if let Some(w) = out {
-        w.finish()?;
-    }
-    report(replay.summary()).print(args.format)
-}
-
-fn replay_one<'a>(
-    path: &'a Path,
-    mut reader: logio::LogReader,
-    replay: &mut Replay<WINDOW>,
-    out: &mut Option<DecisionWriter>,
-    last_t: &mut Option<(u64, &'a Path)>,
-) -> CliResult {
-    let mut first = true;
+    let mut series = args.plot.as_ref().map(|_| ReplaySeries::default());
     for rec in &mut reader {
         let rec = rec?;
-        if first {
-            if let Some((t, prev)) = *last_t {
-                if rec.t_ms < t {
-                    eprintln!(
-                        "headroom: warning: {} starts at t_ms {} before {} ends (t_ms {t}): the logs are \
-                         replayed as one stream, so its readings until then count as stale; replay the \
-                         logs of different devices separately",
-                        path.display(),
-                        rec.t_ms,
-                        prev.display()
-                    );
-                }
-            }
-            first = false;
-        }
-        *last_t = Some((rec.t_ms, path));
         let step = replay.step(&rec);
         if let Some(w) = out.as_mut() {
             w.row(&step)?;
+        }
+        if let Some(s) = series.as_mut() {
+            push_series(s, &rec, &step);
         }
     }
     for d in reader.damage() {
         eprintln!("headroom: warning: {}: {d}", path.display());
     }
-    Ok(())
+    if replay.summary().records == 0 && !reader.damage().is_empty() {
+        return Err(CliError::Input(format!(
+            "{}: no readable record, only damaged bytes: is it a headroom log?",
+            path.display()
+        )));
+    }
+    if let Some(w) = out {
+        w.finish()?;
+    }
+    if let (Some(p), Some(s)) = (&args.plot, &series) {
+        if s.t_ms.is_empty() {
+            return Err(CliError::arg("--plot", format!("{}: the log has no records to draw", path.display())));
+        }
+        let name = path.file_name().map_or_else(|| path.display().to_string(), |n| n.to_string_lossy().into_owned());
+        plot::replay_plot(p, args.force, &format!("replay of {name}"), s)?;
+    }
+    Ok(*replay.summary())
+}
+
+/// One record's values for the plot, as logged or as the engine replayed them.
+fn push_series(s: &mut ReplaySeries, rec: &LogRecord, step: &ReplayStep) {
+    s.t_ms.push(step.t_ms);
+    s.logged_rx_dbm.push(rec.rssi_dbm);
+    s.replayed_rx_dbm.push(step.replayed_rx(rec).map(|d| d.0));
+    s.noise_floor_dbm.push(rec.noise_dbm);
+    s.tx_power_dbm.push(Some(step.chosen.0));
+    s.margin_db.push(Some(step.margin.0));
+    s.lost.push(step.outcome == headroom::control::Outcome::Lost);
 }
 
 /// Defaults, then the log header, then the TOML file, then the flags.
@@ -156,26 +297,7 @@ fn build_config(args: &Args, header: Option<&LogHeader>) -> CliResult<Controller
     };
     let set = |k: &str| keys.iter().any(|x| x == k);
     if let Some(h) = header {
-        if let (Some(v), false) = (h.min_tx, set("min_tx_dbm")) {
-            cfg.min_tx_dbm = v;
-        }
-        if let (Some(v), false) = (h.max_tx, set("max_tx_dbm")) {
-            cfg.max_tx_dbm = v;
-        }
-        if let (Some(v), false) = (h.tx_step, set("steps")) {
-            cfg.steps = PowerSteps::Uniform(v);
-        }
-        if let (Some(v), false) = (h.antenna_gain, set("antenna_gain_dbi")) {
-            cfg.antenna_gain_dbi = v;
-        }
-        // A start power the header's radio cannot produce would be refused:
-        // start at its highest allowed power instead, unless set.
-        if !set("start_tx_dbm") {
-            let ceiling = cfg.tx_ceiling();
-            if cfg.start_tx_dbm.0 > ceiling.0 || cfg.start_tx_dbm.0 < cfg.min_tx_dbm.0 {
-                cfg.start_tx_dbm = ceiling;
-            }
-        }
+        cfg.apply_log_header(h, ExplicitSettings::from_keys(keys.iter().map(String::as_str)));
     }
     if let Some(v) = args.required_snr_db {
         cfg.required_snr_db = v;
@@ -257,67 +379,50 @@ fn one_line(s: &str) -> String {
     }
 }
 
-fn report(s: &Summary) -> Report {
+/// The summary keys in their documented order.
+fn fields(s: &Summary) -> impl Iterator<Item = (String, Value)> {
     let opt = |x: Option<f32>| x.map_or(Value::Null, json_num);
     let mut ignored = Map::new();
     for r in Reason::ALL.iter().filter(|r| r.is_ignored_reading()) {
         ignored.insert(r.as_str().to_string(), s.ignored(*r).into());
     }
+    [
+        ("records", s.records.into()),
+        ("judged", s.judged.into()),
+        ("outage_fraction", opt(s.outage_fraction())),
+        ("mean_tx_dbm", opt(s.mean_tx_dbm().map(|d| d.0))),
+        ("energy_saving_db", opt(s.energy_saving_db().map(|d| d.0))),
+        ("power_changes", s.power_changes.into()),
+        ("max_tx_dbm_used", opt(s.max_tx_dbm_used.map(|d| d.0))),
+        ("ignored_readings", Value::Object(ignored)),
+    ]
+    .into_iter()
+    .map(|(k, v)| (k.to_string(), v))
+}
+
+fn report(s: &Summary) -> Report {
     let mut rep = Report::new();
-    rep.value("records", s.records.into())
-        .value("judged", s.judged.into())
-        .value("outage_fraction", opt(s.outage_fraction()))
-        .value("mean_tx_dbm", opt(s.mean_tx_dbm().map(|d| d.0)))
-        .value("energy_saving_db", opt(s.energy_saving_db().map(|d| d.0)))
-        .value("power_changes", s.power_changes.into())
-        .value("max_tx_dbm_used", opt(s.max_tx_dbm_used.map(|d| d.0)))
-        .value("ignored_readings", Value::Object(ignored));
+    for (k, v) in fields(s) {
+        rep.value(&k, v);
+    }
     rep
 }
 
-/// The `--out` CSV, written to a temporary file and moved into place.
+/// The `--out` CSV, written through [`AtomicFile`]: nothing under the final
+/// name until the replay is complete.
 struct DecisionWriter {
-    dest: PathBuf,
-    tmp: PathBuf,
-    file: Option<BufWriter<File>>,
-    force: bool,
+    file: AtomicFile,
 }
 
 impl DecisionWriter {
     fn create(dest: &Path, force: bool) -> CliResult<Self> {
-        if !force && fs::symlink_metadata(dest).is_ok() {
-            return Err(CliError::arg(
-                "--out",
-                format!("{}: already exists (use --force to overwrite)", dest.display()),
-            ));
-        }
-        let name = dest
-            .file_name()
-            .ok_or_else(|| CliError::arg("--out", format!("{}: not a file name", dest.display())))?;
-        let dir = match dest.parent() {
-            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-            _ => PathBuf::from("."),
-        };
-        let mut tmp_name = std::ffi::OsString::from(".");
-        tmp_name.push(name);
-        tmp_name.push(format!(".tmp-{}", std::process::id()));
-        let tmp = dir.join(tmp_name);
-        let f = fs::OpenOptions::new()
-            .write(true)
-            .create_new(true)
-            .open(&tmp)
-            .map_err(|e| CliError::Io(format!("{}: cannot create a temporary file: {e}", tmp.display())))?;
-        let mut w = DecisionWriter { dest: dest.to_path_buf(), tmp, file: Some(BufWriter::new(f)), force };
+        let mut w = DecisionWriter { file: AtomicFile::create(dest, force)? };
         w.write_line("t_ms,chosen_tx_dbm,replayed_snr_db,outcome,path_loss_db,margin_db,reason")?;
         Ok(w)
     }
 
     fn write_line(&mut self, line: &str) -> CliResult {
-        let r = match &mut self.file {
-            Some(f) => writeln!(f, "{line}"),
-            None => Err(io::Error::other("output already closed")),
-        };
-        r.map_err(|e| CliError::Io(format!("{}: cannot write: {e}", self.dest.display())))
+        writeln!(self.file, "{line}").map_err(|e| self.file.io_error(e))
     }
 
     fn row(&mut self, s: &ReplayStep) -> CliResult {
@@ -335,41 +440,8 @@ impl DecisionWriter {
         self.write_line(&line)
     }
 
-    fn finish(mut self) -> CliResult {
-        let io_err = |dest: &Path, e: io::Error| CliError::Io(format!("{}: cannot write: {e}", dest.display()));
-        let Some(buf) = self.file.take() else {
-            return Err(CliError::Io(format!("{}: output already closed", self.dest.display())));
-        };
-        let file = buf.into_inner().map_err(|e| io_err(&self.dest, e.into_error()))?;
-        file.sync_all().map_err(|e| io_err(&self.dest, e))?;
-        drop(file);
-        let placed = if self.force {
-            fs::rename(&self.tmp, &self.dest)
-        } else {
-            // A hard link refuses to replace a file that appeared meanwhile.
-            match fs::hard_link(&self.tmp, &self.dest) {
-                Ok(()) => fs::remove_file(&self.tmp),
-                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
-                    return Err(CliError::arg(
-                        "--out",
-                        format!("{}: already exists (use --force to overwrite)", self.dest.display()),
-                    ))
-                }
-                Err(_) => fs::rename(&self.tmp, &self.dest),
-            }
-        };
-        placed.map_err(|e| CliError::Io(format!("{}: cannot move into place: {e}", self.dest.display())))?;
-        self.tmp = PathBuf::new();
-        Ok(())
-    }
-}
-
-impl Drop for DecisionWriter {
-    fn drop(&mut self) {
-        self.file = None;
-        if !self.tmp.as_os_str().is_empty() {
-            let _ = fs::remove_file(&self.tmp);
-        }
+    fn finish(self) -> CliResult {
+        self.file.commit()
     }
 }
 

@@ -788,7 +788,9 @@ pub fn run(args: Args) -> CliResult {
                 let (tx, loss) = t.key()?;
                 #[allow(clippy::cast_possible_truncation)]
                 let (tx, loss) = (tx as f32, loss as f32);
-                Some((tx, loss, result.label(k), loss <= target))
+                // Short labels: the candidate numbers of the table and JSON.
+                let label = if k == 0 { "default".to_string() } else { format!("#{k}") };
+                Some((tx, loss, label, loss <= target))
             })
             .collect();
         let title = format!("headroom tune: {} settings over {} logs", candidates, logs.len());

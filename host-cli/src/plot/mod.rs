@@ -23,9 +23,7 @@ mod pareto;
 mod replay;
 
 pub use budget::budget_plot;
-#[allow(unused_imports)] // called by `headroom tune`
 pub use pareto::pareto_plot;
-#[allow(unused_imports)] // called by `headroom replay`
 pub use replay::{replay_plot, ReplaySeries};
 
 /// The file types a plot can be written as.

@@ -125,6 +125,15 @@ pub fn pareto_plot<L: AsRef<str>>(
     save(path, force, &fig)
 }
 
+/// log10 for choosing label precision (printing only).
+fn libm_free_log10(x: f64) -> f64 {
+    if x > 0.0 {
+        x.log10()
+    } else {
+        0.0
+    }
+}
+
 impl Figure for ParetoFigure {
     fn size(&self) -> (u32, u32) {
         (1000, 640)
@@ -132,7 +141,7 @@ impl Figure for ParetoFigure {
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult<DB> {
         let (x0, x1) = finite_range(self.points.iter().map(|p| p.tx_dbm)).unwrap_or((0.0, 20.0));
-        let (_, y1) = finite_range(
+        let (y0, y1) = finite_range(
             self.points
                 .iter()
                 .map(|p| p.loss_pct)
@@ -140,7 +149,12 @@ impl Figure for ParetoFigure {
         )
         .unwrap_or((0.0, 10.0));
         let x = padded(x0, x1, 0.08, 0.5);
-        let y = 0.0..(y1 * 1.12).max(0.1);
+        // Zoom on the points (and the target line) rather than starting at 0 %:
+        // settings of one sweep often differ by hundredths of a percent.
+        let span = (y1 - y0).max(0.02 * y1.max(0.1));
+        let y = (y0 - 0.25 * span).max(0.0)..(y1 + 0.25 * span);
+        // Enough decimals to tell the grid lines apart.
+        let y_decimals = (1.0 - libm_free_log10(span / 10.0).floor()).clamp(1.0, 4.0) as usize;
         let mut chart = ChartBuilder::on(root)
             .caption(&self.title, (FONT, 22))
             .margin(16)
@@ -153,7 +167,7 @@ impl Figure for ParetoFigure {
             .x_desc("mean transmit power (dBm)")
             .y_desc("packets lost (%)")
             .x_label_formatter(&|v| signed(*v, 1))
-            .y_label_formatter(&|v| format!("{v:.1}"))
+            .y_label_formatter(&|v| format!("{v:.*}", y_decimals))
             .axis_desc_style((FONT, 16))
             .label_style((FONT, 14))
             .light_line_style(RGBColor(235, 235, 235))

@@ -7,9 +7,6 @@
 //! bucket, in the order they occurred, so that a single-record spike stays
 //! visible while the drawing holds at most two points per column.
 
-// Until `headroom replay` calls this module, only its tests do.
-#![cfg_attr(not(test), allow(dead_code))]
-
 use std::path::Path;
 
 use plotters::coord::Shift;

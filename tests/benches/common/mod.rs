@@ -63,7 +63,11 @@ pub fn observation_mix(n: usize) -> Vec<Observation> {
             if rssi - noise < required {
                 Observation::Lost { t_ms }
             } else {
-                let snr = if k % 2 == 0 { Some(Db(rssi - noise)) } else { None };
+                let snr = if k % 2 == 0 {
+                    Some(Db(rssi - noise))
+                } else {
+                    None
+                };
                 Observation::Feedback {
                     t_ms,
                     tx,
