@@ -238,7 +238,14 @@ impl<const N: usize> Link<N> {
         requirement: Requirement,
         fade: FadeAllowance,
     ) -> Self {
-        Link { tx_power, path_loss, items: Vec::new(), noise, requirement, fade }
+        Link {
+            tx_power,
+            path_loss,
+            items: Vec::new(),
+            noise,
+            requirement,
+            fade,
+        }
     }
 
     /// Add a named gain (or, negative, a loss).
@@ -247,13 +254,20 @@ impl<const N: usize> Link<N> {
         let mut n = String::new();
         n.push_str(name).map_err(|()| BudgetError::NameTooLong)?;
         self.items
-            .push(LineItem { name: n, side, gain })
+            .push(LineItem {
+                name: n,
+                side,
+                gain,
+            })
             .map_err(|_| BudgetError::CapacityFull)
     }
 
     /// Sum of the gains on one side.
     pub fn side_total(&self, side: Side) -> Db {
-        self.items.iter().filter(|i| i.side == side).fold(Db(0.0), |a, i| a + i.gain)
+        self.items
+            .iter()
+            .filter(|i| i.side == side)
+            .fold(Db(0.0), |a, i| a + i.gain)
     }
 
     /// The C/N the requirement asks for, and the bit rate it names if any.
@@ -266,7 +280,11 @@ impl<const N: usize> Link<N> {
                 let rb_over_b = ratio_db("bit rate", positive("bit rate", bit_rate_bps)? / b)?;
                 Ok((ebn0 + rb_over_b, Some(bit_rate_bps)))
             }
-            Requirement::Modulation { modulation, ber, bit_rate_bps } => {
+            Requirement::Modulation {
+                modulation,
+                ber,
+                bit_rate_bps,
+            } => {
                 let ebn0 = required_ebn0(modulation, probability("ber", ber)?)?;
                 let rb_over_b = ratio_db("bit rate", positive("bit rate", bit_rate_bps)? / b)?;
                 Ok((ebn0 + rb_over_b, Some(bit_rate_bps)))
@@ -279,9 +297,10 @@ impl<const N: usize> Link<N> {
         match self.fade {
             FadeAllowance::None => Ok(Db(0.0)),
             FadeAllowance::Fixed(m) => Ok(Db(non_negative("fade margin", m.0)?)),
-            FadeAllowance::Model { model, availability } => {
-                margin_for_availability(model, probability("availability", availability)?)
-            }
+            FadeAllowance::Model {
+                model,
+                availability,
+            } => margin_for_availability(model, probability("availability", availability)?),
         }
     }
 
@@ -346,18 +365,37 @@ impl<const N: usize> Link<N> {
             eirp - self.path_loss + self.side_total(Side::Path) + self.side_total(Side::Receiver);
         let fixed = |stage, name, level| Level { stage, name, level };
         let running = move |side: Side, start: Dbm| {
-            self.items.iter().filter(move |i| i.side == side).scan(start, move |acc, i| {
-                *acc += i.gain;
-                Some(Level { stage: Stage::Item(side), name: i.name.as_str(), level: *acc })
-            })
+            self.items
+                .iter()
+                .filter(move |i| i.side == side)
+                .scan(start, move |acc, i| {
+                    *acc += i.gain;
+                    Some(Level {
+                        stage: Stage::Item(side),
+                        name: i.name.as_str(),
+                        level: *acc,
+                    })
+                })
         };
-        let chain = core::iter::once(fixed(Stage::TransmitterOutput, "transmitter output", self.tx_power))
-            .chain(running(Side::Transmitter, self.tx_power))
-            .chain(core::iter::once(fixed(Stage::Eirp, "EIRP", eirp)))
-            .chain(core::iter::once(fixed(Stage::PathLoss, "path loss", after_loss)))
-            .chain(running(Side::Path, after_loss))
-            .chain(running(Side::Receiver, after_path))
-            .chain(core::iter::once(fixed(Stage::ReceiverInput, "receiver input", rx_power)));
+        let chain = core::iter::once(fixed(
+            Stage::TransmitterOutput,
+            "transmitter output",
+            self.tx_power,
+        ))
+        .chain(running(Side::Transmitter, self.tx_power))
+        .chain(core::iter::once(fixed(Stage::Eirp, "EIRP", eirp)))
+        .chain(core::iter::once(fixed(
+            Stage::PathLoss,
+            "path loss",
+            after_loss,
+        )))
+        .chain(running(Side::Path, after_loss))
+        .chain(running(Side::Receiver, after_path))
+        .chain(core::iter::once(fixed(
+            Stage::ReceiverInput,
+            "receiver input",
+            rx_power,
+        )));
         if !rx_power.is_finite() {
             return Err(Error::NoSolution("budget"));
         }
@@ -421,7 +459,10 @@ pub fn free_space_frequency_scaling(
     f2: Hertz,
     antennas: AntennaScaling,
 ) -> Result<Db, Error> {
-    let r = ratio_db("frequency", positive("frequency", f2.0)? / positive("frequency", f1.0)?)?;
+    let r = ratio_db(
+        "frequency",
+        positive("frequency", f2.0)? / positive("frequency", f1.0)?,
+    )?;
     let k = match antennas {
         AntennaScaling::FixedGains => 0.0,
         AntennaScaling::OneFixedAperture => 1.0,
@@ -449,7 +490,11 @@ mod tests {
         let mut l = Link::new(
             Dbm(14.0),
             Db(120.0),
-            NoiseSpec { bandwidth: Hertz(125e3), noise_figure: Db(6.0), antenna_temperature: None },
+            NoiseSpec {
+                bandwidth: Hertz(125e3),
+                noise_figure: Db(6.0),
+                antenna_temperature: None,
+            },
             Requirement::CarrierToNoise(Db(-7.5)),
             FadeAllowance::Fixed(Db(10.0)),
         );
@@ -485,7 +530,16 @@ mod tests {
         let names: Vec<&str, 16> = lv.iter().map(|x| x.name).collect();
         assert_eq!(
             names.as_slice(),
-            ["transmitter output", "antenna", "cable", "EIRP", "path loss", "foliage", "antenna", "receiver input"]
+            [
+                "transmitter output",
+                "antenna",
+                "cable",
+                "EIRP",
+                "path loss",
+                "foliage",
+                "antenna",
+                "receiver input"
+            ]
         );
         let at = |k: usize| lv.get(k).map(|x| x.level.0).unwrap_or(f32::NAN);
         assert_eq!(at(0), 14.0);
@@ -498,7 +552,10 @@ mod tests {
         assert!((at(5) - (15.65 - 126.0)).abs() < 1e-4);
         // The last item's running sum lands on the received power.
         assert!((at(6) - at(7)).abs() < 1e-4);
-        assert_eq!(lv.get(6).map(|x| x.stage), Some(Stage::Item(Side::Receiver)));
+        assert_eq!(
+            lv.get(6).map(|x| x.stage),
+            Some(Stage::Item(Side::Receiver))
+        );
         let mut bad = l.clone();
         bad.path_loss = Db(f32::INFINITY);
         assert!(bad.levels().is_err());
@@ -524,25 +581,37 @@ mod tests {
         let mut l: Link<1> = Link::new(
             Dbm(0.0),
             Db(100.0),
-            NoiseSpec { bandwidth: Hertz(1e3), noise_figure: Db(3.0), antenna_temperature: None },
+            NoiseSpec {
+                bandwidth: Hertz(1e3),
+                noise_figure: Db(3.0),
+                antenna_temperature: None,
+            },
             Requirement::CarrierToNoise(Db(10.0)),
             FadeAllowance::None,
         );
         assert_eq!(l.push("a", Side::Path, Db(-1.0)), Ok(()));
-        assert_eq!(l.push("b", Side::Path, Db(-1.0)), Err(BudgetError::CapacityFull));
+        assert_eq!(
+            l.push("b", Side::Path, Db(-1.0)),
+            Err(BudgetError::CapacityFull)
+        );
         let long = "x".repeat(ITEM_NAME_LEN + 1);
         let mut l2: Link<4> = Link::new(Dbm(0.0), Db(100.0), l.noise, l.requirement, l.fade);
-        assert_eq!(l2.push(&long, Side::Path, Db(0.0)), Err(BudgetError::NameTooLong));
+        assert_eq!(
+            l2.push(&long, Side::Path, Db(0.0)),
+            Err(BudgetError::NameTooLong)
+        );
         assert!(l2.push("nan", Side::Path, Db(f32::NAN)).is_err());
     }
 
     #[test]
     fn frequency_scaling() {
-        let s = free_space_frequency_scaling(Hertz(868e6), Hertz(2.4e9), AntennaScaling::FixedGains)
-            .unwrap_or(Db(f32::NAN));
+        let s =
+            free_space_frequency_scaling(Hertz(868e6), Hertz(2.4e9), AntennaScaling::FixedGains)
+                .unwrap_or(Db(f32::NAN));
         assert!((s.0 + 20.0 * libm::log10f(2.4e9 / 868e6)).abs() < 1e-4);
-        let s = free_space_frequency_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::OneFixedAperture)
-            .unwrap_or(Db(f32::NAN));
+        let s =
+            free_space_frequency_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::OneFixedAperture)
+                .unwrap_or(Db(f32::NAN));
         assert!(s.0.abs() < 1e-5);
         let r = free_space_range_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::FixedGains)
             .unwrap_or(f32::NAN);

@@ -46,7 +46,12 @@ impl fmt::Display for Error {
             Error::ProbabilityOutOfRange(p) => {
                 write!(f, "{p}: must be a probability strictly between 0 and 1")
             }
-            Error::OutOfValidity { param, value, min, max } => write!(
+            Error::OutOfValidity {
+                param,
+                value,
+                min,
+                max,
+            } => write!(
                 f,
                 "{param}: {value} is outside the model's published validity range {min}..{max}"
             ),
@@ -111,7 +116,12 @@ pub fn within(name: &'static str, x: f32, min: f32, max: f32) -> Result<f32> {
     if x >= min && x <= max {
         Ok(x)
     } else {
-        Err(Error::OutOfValidity { param: name, value: x, min, max })
+        Err(Error::OutOfValidity {
+            param: name,
+            value: x,
+            min,
+            max,
+        })
     }
 }
 
@@ -134,7 +144,10 @@ mod tests {
         assert_eq!(finite("x", f32::NAN), Err(Error::NotFinite("x")));
         assert_eq!(positive("d", 0.0), Err(Error::NotPositive("d")));
         assert_eq!(non_negative("h", -1.0), Err(Error::Negative("h")));
-        assert_eq!(probability("p", 1.0), Err(Error::ProbabilityOutOfRange("p")));
+        assert_eq!(
+            probability("p", 1.0),
+            Err(Error::ProbabilityOutOfRange("p"))
+        );
         assert!(within("f", 2000.0, 150.0, 1500.0).is_err());
         assert_eq!(within("f", 900.0, 150.0, 1500.0), Ok(900.0));
     }

@@ -48,16 +48,16 @@
 #![forbid(unsafe_code)]
 #![warn(missing_docs)]
 
-pub mod error;
-pub mod units;
-pub mod special;
-pub mod propagation;
-pub mod noise;
-pub mod modulation;
-pub mod fading;
 pub mod budget;
 pub mod control;
+pub mod error;
+pub mod fading;
+pub mod modulation;
+pub mod noise;
+pub mod propagation;
 pub mod record;
 pub mod sim;
+pub mod special;
+pub mod units;
 
 pub use error::Error;

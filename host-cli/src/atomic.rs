@@ -94,7 +94,11 @@ impl AtomicFile {
             tmp_name.push(name);
             tmp_name.push(format!(".tmp-{pid}-{n}"));
             let tmp = dir.join(tmp_name);
-            match fs::OpenOptions::new().write(true).create_new(true).open(&tmp) {
+            match fs::OpenOptions::new()
+                .write(true)
+                .create_new(true)
+                .open(&tmp)
+            {
                 Ok(f) => {
                     return Ok(AtomicFile {
                         dest: dest.to_path_buf(),
@@ -122,7 +126,9 @@ impl AtomicFile {
         let Some(buf) = self.file.take() else {
             return Err(self.io_error(closed()));
         };
-        let file = buf.into_inner().map_err(|e| self.io_error(e.into_error()))?;
+        let file = buf
+            .into_inner()
+            .map_err(|e| self.io_error(e.into_error()))?;
         file.sync_all().map_err(|e| self.io_error(e))?;
         drop(file);
         let Some(tmp) = self.tmp.clone() else {
@@ -260,7 +266,11 @@ mod tests {
             // More than the buffer, so some bytes reach the temporary file.
             f.write_all(&vec![b'x'; BUFFER * 3 + 7]).expect("write");
             f.flush().expect("flush");
-            assert_eq!(names(dir.path()).len(), 1, "the temporary file exists while writing");
+            assert_eq!(
+                names(dir.path()).len(),
+                1,
+                "the temporary file exists while writing"
+            );
             assert!(!p.exists(), "nothing under the final name before commit");
         }
         assert!(names(dir.path()).is_empty(), "{:?}", names(dir.path()));
@@ -314,19 +324,27 @@ mod tests {
                 assert!(e.to_string().contains("already exists"), "{e}");
                 assert_eq!(fs::read(&p).expect("read"), b"theirs");
             }
-            assert_eq!(names(dir.path()), vec![OsString::from("out.bin")], "force {force}");
+            assert_eq!(
+                names(dir.path()),
+                vec![OsString::from("out.bin")],
+                "force {force}"
+            );
         }
     }
 
     #[test]
     fn not_a_file_name_and_an_existing_directory() {
         let dir = tempfile::tempdir().expect("temp dir");
-        let e = AtomicFile::create(Path::new(".."), true).err().expect("refused");
+        let e = AtomicFile::create(Path::new(".."), true)
+            .err()
+            .expect("refused");
         assert_eq!(e.exit_code(), 2);
         assert!(e.to_string().contains("not a file name"), "{e}");
         // A directory that exists is refused, with or without --force.
         for force in [false, true] {
-            let e = AtomicFile::create(dir.path(), force).err().expect("refused");
+            let e = AtomicFile::create(dir.path(), force)
+                .err()
+                .expect("refused");
             assert!(e.to_string().contains("not a regular file"), "{e}");
         }
     }

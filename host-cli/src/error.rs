@@ -47,6 +47,12 @@ pub type CliResult<T = ()> = Result<T, CliError>;
 /// quoted from a hostile file cannot break the one-line error or the terminal.
 pub fn printable(msg: &str) -> String {
     msg.chars()
-        .map(|c| if c.is_control() { c.escape_default().to_string() } else { c.to_string() })
+        .map(|c| {
+            if c.is_control() {
+                c.escape_default().to_string()
+            } else {
+                c.to_string()
+            }
+        })
         .collect()
 }

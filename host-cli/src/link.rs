@@ -13,8 +13,7 @@ use headroom::fading::FadingModel;
 use headroom::modulation::Modulation;
 use headroom::propagation::{
     indoor_coefficients, Extrapolation, FloorLoss, HataEnvironment, IndoorCoefficients,
-    IndoorEnvironment, PathLossModel,
-    TwoRayForm,
+    IndoorEnvironment, PathLossModel, TwoRayForm,
 };
 use headroom::units::{Db, Dbm, Hertz, Metres};
 use serde::Deserialize;
@@ -272,10 +271,16 @@ pub fn fading(name: &str, k_factor: Option<Db>, sigma: Option<Db>) -> Result<Fad
         "rician" => FadingModel::Rician {
             k_factor: k_factor.ok_or("model 'rician' needs a K factor")?,
         },
-        "lognormal" => FadingModel::LogNormal { sigma: sigma.ok_or("model 'lognormal' needs sigma")? },
-        "composite" => FadingModel::Composite { sigma: sigma.ok_or("model 'composite' needs sigma")? },
+        "lognormal" => FadingModel::LogNormal {
+            sigma: sigma.ok_or("model 'lognormal' needs sigma")?,
+        },
+        "composite" => FadingModel::Composite {
+            sigma: sigma.ok_or("model 'composite' needs sigma")?,
+        },
         other => {
-            return Err(format!("unknown fading model '{other}' (rayleigh, rician, lognormal, composite)"))
+            return Err(format!(
+                "unknown fading model '{other}' (rayleigh, rician, lognormal, composite)"
+            ))
         }
     })
 }
@@ -407,8 +412,9 @@ impl PathSpec {
 pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
     let text = std::fs::read_to_string(path)
         .map_err(|e| CliError::Input(format!("{}: cannot read: {e}", path.display())))?;
-    let file: LinkFile = toml::from_str(&text)
-        .map_err(|e| CliError::Input(format!("{}: {}", path.display(), one_line(&e.to_string()))))?;
+    let file: LinkFile = toml::from_str(&text).map_err(|e| {
+        CliError::Input(format!("{}: {}", path.display(), one_line(&e.to_string())))
+    })?;
     let ctx = |e: CliError| match e {
         CliError::Input(m) => CliError::Input(format!("{}: {m}", path.display())),
         other => other,
@@ -417,7 +423,11 @@ pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
 }
 
 fn one_line(s: &str) -> String {
-    s.lines().map(str::trim).filter(|l| !l.is_empty()).collect::<Vec<_>>().join(" ")
+    s.lines()
+        .map(str::trim)
+        .filter(|l| !l.is_empty())
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
@@ -425,7 +435,11 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
         Some(f) => f,
         None => parse("frequency", &file.frequency, quantity::frequency)?,
     };
-    let tx_power: Dbm = parse("transmitter.power", &file.transmitter.power, quantity::power)?;
+    let tx_power: Dbm = parse(
+        "transmitter.power",
+        &file.transmitter.power,
+        quantity::power,
+    )?;
     let model = file.path.model(frequency)?;
     let distance = match &file.path.distance {
         Some(q) => Some(parse("path.distance", q, quantity::distance)?),
@@ -434,43 +448,69 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
     let path_loss = match (&model, distance) {
         (None, _) => parse(
             "path.loss",
-            file.path.loss.as_ref().ok_or_else(|| CliError::arg("path.loss", "required by path model 'fixed'"))?,
+            file.path
+                .loss
+                .as_ref()
+                .ok_or_else(|| CliError::arg("path.loss", "required by path model 'fixed'"))?,
             quantity::db,
         )?,
-        (Some(m), Some(d)) => m.path_loss(frequency, d).map_err(|e| CliError::arg("path", e))?,
-        (Some(_), None) => return Err(CliError::arg("path.distance", "required by this path model")),
+        (Some(m), Some(d)) => m
+            .path_loss(frequency, d)
+            .map_err(|e| CliError::arg("path", e))?,
+        (Some(_), None) => {
+            return Err(CliError::arg(
+                "path.distance",
+                "required by this path model",
+            ))
+        }
     };
     let noise = NoiseSpec {
-        bandwidth: parse("receiver.bandwidth", &file.receiver.bandwidth, quantity::frequency)?,
-        noise_figure: parse("receiver.noise_figure", &file.receiver.noise_figure, quantity::db)?,
+        bandwidth: parse(
+            "receiver.bandwidth",
+            &file.receiver.bandwidth,
+            quantity::frequency,
+        )?,
+        noise_figure: parse(
+            "receiver.noise_figure",
+            &file.receiver.noise_figure,
+            quantity::db,
+        )?,
         antenna_temperature: match &file.receiver.antenna_temperature {
-            Some(q) => Some(parse("receiver.antenna_temperature", q, quantity::temperature)?),
+            Some(q) => Some(parse(
+                "receiver.antenna_temperature",
+                q,
+                quantity::temperature,
+            )?),
             None => None,
         },
     };
     let r = &file.requirement;
     let bit_rate = || -> CliResult<f32> {
-        r.bit_rate
-            .map(|b| b as f32)
-            .ok_or_else(|| CliError::arg("requirement.bit_rate", "required with ebn0 or modulation"))
+        r.bit_rate.map(|b| b as f32).ok_or_else(|| {
+            CliError::arg("requirement.bit_rate", "required with ebn0 or modulation")
+        })
     };
     let requirement = match (&r.snr, &r.ebn0, &r.modulation) {
-        (Some(q), None, None) => Requirement::CarrierToNoise(parse("requirement.snr", q, quantity::db)?),
+        (Some(q), None, None) => {
+            Requirement::CarrierToNoise(parse("requirement.snr", q, quantity::db)?)
+        }
         (None, Some(q), None) => Requirement::EbN0 {
             ebn0: parse("requirement.ebn0", q, quantity::db)?,
             bit_rate_bps: bit_rate()?,
         },
         (None, None, Some(m)) => Requirement::Modulation {
-            modulation: modulation(m, r.order).map_err(|e| CliError::arg("requirement.modulation", e))?,
-            ber: r.ber.ok_or_else(|| CliError::arg("requirement.ber", "required with modulation"))? as f32,
+            modulation: modulation(m, r.order)
+                .map_err(|e| CliError::arg("requirement.modulation", e))?,
+            ber: r
+                .ber
+                .ok_or_else(|| CliError::arg("requirement.ber", "required with modulation"))?
+                as f32,
             bit_rate_bps: bit_rate()?,
         },
-        _ => {
-            return Err(CliError::arg(
-                "requirement",
-                "give exactly one of snr, ebn0 (with bit_rate) or modulation (with ber and bit_rate)",
-            ))
-        }
+        _ => return Err(CliError::arg(
+            "requirement",
+            "give exactly one of snr, ebn0 (with bit_rate) or modulation (with ber and bit_rate)",
+        )),
     };
     let fade = match &file.fade {
         None => FadeAllowance::None,
@@ -487,13 +527,17 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
                 };
                 FadeAllowance::Model {
                     model: fading(m, k, s).map_err(|e| CliError::arg("fade.model", e))?,
-                    availability: f
-                        .availability
-                        .ok_or_else(|| CliError::arg("fade.availability", "required with fade.model"))?
-                        as f32,
+                    availability: f.availability.ok_or_else(|| {
+                        CliError::arg("fade.availability", "required with fade.model")
+                    })? as f32,
                 }
             }
-            _ => return Err(CliError::arg("fade", "give either margin or model (with availability)")),
+            _ => {
+                return Err(CliError::arg(
+                    "fade",
+                    "give either margin or model (with availability)",
+                ))
+            }
         },
     };
     let mut link = Link::new(tx_power, path_loss, noise, requirement, fade);
@@ -503,21 +547,36 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
             "tx" => Side::Transmitter,
             "path" => Side::Path,
             "rx" => Side::Receiver,
-            other => return Err(CliError::arg(&key, format!("side '{other}' is not tx, path or rx"))),
+            other => {
+                return Err(CliError::arg(
+                    &key,
+                    format!("side '{other}' is not tx, path or rx"),
+                ))
+            }
         };
         let gain = match (&item.gain, &item.loss) {
             (Some(q), None) => Db(parse(&key, q, quantity::gain)?.0),
             (None, Some(q)) => -parse(&key, q, quantity::db)?,
             _ => return Err(CliError::arg(&key, "give exactly one of gain or loss")),
         };
-        link.push(&item.name, side, gain).map_err(|e| CliError::arg(&key, e))?;
+        link.push(&item.name, side, gain)
+            .map_err(|e| CliError::arg(&key, e))?;
     }
     let target_margin = match file.solve.as_ref().and_then(|s| s.target_margin.as_ref()) {
         Some(q) => parse("solve.target_margin", q, quantity::db)?,
         None => Db(0.0),
     };
     let name = file.name.unwrap_or_else(|| {
-        path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default()
+        path.file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default()
     });
-    Ok(LoadedLink { name, frequency, distance, model, link, target_margin })
+    Ok(LoadedLink {
+        name,
+        frequency,
+        distance,
+        model,
+        link,
+        target_margin,
+    })
 }

@@ -15,7 +15,6 @@ mod output;
 mod plot;
 mod quantity;
 
-
 /// The safety caution shown after every command's help.
 macro_rules! caution {
     () => {
@@ -81,7 +80,10 @@ fn main() -> ExitCode {
         Err(e) => {
             use clap::error::ErrorKind;
             if matches!(e.kind(), ErrorKind::DisplayHelp | ErrorKind::DisplayVersion)
-                || matches!(e.kind(), ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand)
+                || matches!(
+                    e.kind(),
+                    ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand
+                )
             {
                 let _ = e.print();
                 return if e.kind() == ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand {
@@ -99,7 +101,10 @@ fn main() -> ExitCode {
                 .filter(|l| !l.is_empty() && !l.starts_with("For more information"))
                 .collect();
             let msg = msg.join(" ");
-            eprintln!("headroom: {} (see 'headroom --help')", msg.trim_start_matches("error: "));
+            eprintln!(
+                "headroom: {} (see 'headroom --help')",
+                msg.trim_start_matches("error: ")
+            );
             return ExitCode::from(2);
         }
     };

@@ -81,8 +81,12 @@ pub fn json_num(x: f32) -> Value {
     if !x.is_finite() {
         return Value::Null;
     }
-    let v: f64 = format!("{:.6e}", f64::from(x)).parse().unwrap_or(f64::from(x));
-    serde_json::Number::from_f64(v).map(Value::Number).unwrap_or(Value::Null)
+    let v: f64 = format!("{:.6e}", f64::from(x))
+        .parse()
+        .unwrap_or(f64::from(x));
+    serde_json::Number::from_f64(v)
+        .map(Value::Number)
+        .unwrap_or(Value::Null)
 }
 
 fn scalar(v: &Value) -> String {
@@ -114,8 +118,10 @@ fn print_nested(out: &mut String, v: &Value, depth: usize) {
             for item in items {
                 match item {
                     Value::Object(m) => {
-                        let line: Vec<String> =
-                            m.iter().map(|(k, v)| format!("{k}={}", scalar(v))).collect();
+                        let line: Vec<String> = m
+                            .iter()
+                            .map(|(k, v)| format!("{k}={}", scalar(v)))
+                            .collect();
                         let _ = writeln!(out, "{pad}{}", line.join("  "));
                     }
                     other => {

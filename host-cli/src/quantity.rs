@@ -17,7 +17,8 @@ fn split(s: &str) -> Result<(f64, &str), String> {
                 || c == '+'
                 || c == '-'
                 || ((c == 'e' || c == 'E')
-                    && s[i + 1..].starts_with(|d: char| d.is_ascii_digit() || d == '-' || d == '+')))
+                    && s[i + 1..]
+                        .starts_with(|d: char| d.is_ascii_digit() || d == '-' || d == '+')))
         })
         .map(|(i, _)| i)
         .unwrap_or(s.len());
@@ -48,7 +49,11 @@ pub fn frequency(s: &str) -> Result<Hertz, String> {
         "khz" => 1e3,
         "mhz" => 1e6,
         "ghz" => 1e9,
-        _ => return Err(format!("unknown frequency unit '{unit}' (use Hz, kHz, MHz or GHz)")),
+        _ => {
+            return Err(format!(
+                "unknown frequency unit '{unit}' (use Hz, kHz, MHz or GHz)"
+            ))
+        }
     };
     Ok(Hertz(to_f32(x * scale, s)?))
 }
@@ -61,7 +66,11 @@ pub fn distance(s: &str) -> Result<Metres, String> {
         "mm" => 1e-3,
         "cm" => 1e-2,
         "km" => 1e3,
-        _ => return Err(format!("unknown length unit '{unit}' (use m, km, cm or mm)")),
+        _ => {
+            return Err(format!(
+                "unknown length unit '{unit}' (use m, km, cm or mm)"
+            ))
+        }
     };
     Ok(Metres(to_f32(x * scale, s)?))
 }
@@ -75,7 +84,9 @@ pub fn power(s: &str) -> Result<Dbm, String> {
         "dBW" | "dbw" => Ok(Dbm(x32 + 30.0)),
         "mW" | "mw" => Dbm::from_milliwatts(Milliwatts(x32)).map_err(|e| e.to_string()),
         "W" | "w" => Dbm::from_watts(Watts(x32)).map_err(|e| e.to_string()),
-        _ => Err(format!("unknown power unit '{unit}' (use dBm, dBW, mW or W)")),
+        _ => Err(format!(
+            "unknown power unit '{unit}' (use dBm, dBW, mW or W)"
+        )),
     }
 }
 

@@ -8,21 +8,42 @@ fn bin() -> Command {
 }
 
 fn example(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples/links").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("../examples/links")
+        .join(name)
 }
 
 fn json(args: &[&str]) -> serde_json::Value {
-    let out = bin().args(args).args(["--format", "json"]).output().expect("runs");
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = bin()
+        .args(args)
+        .args(["--format", "json"])
+        .output()
+        .expect("runs");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     serde_json::from_slice(&out.stdout).expect("one JSON object")
 }
 
 #[test]
 fn every_example_link_evaluates_with_the_fixed_keys() {
-    for f in ["orchard-sensor.toml", "smallsat-ground-station.toml", "workshop-mesh.toml"] {
+    for f in [
+        "orchard-sensor.toml",
+        "smallsat-ground-station.toml",
+        "workshop-mesh.toml",
+    ] {
         let p = example(f);
         let v = json(&["budget", p.to_str().expect("utf-8 path")]);
-        for key in ["eirp_dbm", "rx_power_dbm", "noise_power_dbm", "cn_db", "margin_db", "line_items"] {
+        for key in [
+            "eirp_dbm",
+            "rx_power_dbm",
+            "noise_power_dbm",
+            "cn_db",
+            "margin_db",
+            "line_items",
+        ] {
             assert!(v.get(key).is_some(), "{f}: no {key} in {v}");
         }
         let eirp = v["eirp_dbm"].as_f64().expect("number");
@@ -41,9 +62,15 @@ fn solve_closes_the_loop_through_the_budget() {
     let margin = b["margin_db"].as_f64().expect("number");
     let tx0 = b["tx_power_dbm"].as_f64().expect("number");
     // Margin is linear in transmit power (all in dB): tx = tx0 + (5 − margin).
-    assert!((tx - (tx0 + 5.0 - margin)).abs() < 1e-3, "{tx} vs {tx0} {margin}");
+    assert!(
+        (tx - (tx0 + 5.0 - margin)).abs() < 1e-3,
+        "{tx} vs {tx0} {margin}"
+    );
     let r = json(&["solve", p, "--for", "range"]);
-    assert!(r["range_m"].as_f64().expect("number") > 1400.0, "margin is positive, so range exceeds the distance");
+    assert!(
+        r["range_m"].as_f64().expect("number") > 1400.0,
+        "margin is positive, so range exceeds the distance"
+    );
     let pl = json(&["solve", p, "--for", "path-loss", "--target-margin", "0"]);
     let pl0 = b["path_loss_db"].as_f64().expect("number");
     assert!((pl["path_loss_db"].as_f64().expect("number") - (pl0 + margin)).abs() < 1e-3);
@@ -76,6 +103,12 @@ fn bad_link_files_get_one_line_errors() {
     fails_with(&["budget", "/no/such/link.toml"], "cannot read");
     let short = write("short.toml", &good.replace("\"1.4km\"", "\"10m\""));
     fails_with(&["budget", &short], "distance");
-    let fixed = write("fixed.toml", &good.replace("model = \"log-distance\"", "model = \"fixed\"\nloss = \"120dB\""));
+    let fixed = write(
+        "fixed.toml",
+        &good.replace(
+            "model = \"log-distance\"",
+            "model = \"fixed\"\nloss = \"120dB\"",
+        ),
+    );
     fails_with(&["solve", &fixed, "--for", "range"], "path.model");
 }

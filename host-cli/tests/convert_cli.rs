@@ -56,7 +56,14 @@ fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
     let f = enc.header(&h, &mut buf).unwrap();
     spans.push((0, f.len()));
     bytes.extend_from_slice(f);
-    let specials = [f32::NAN, f32::INFINITY, f32::NEG_INFINITY, -0.0, f32::MIN_POSITIVE / 8.0, f32::MAX];
+    let specials = [
+        f32::NAN,
+        f32::INFINITY,
+        f32::NEG_INFINITY,
+        -0.0,
+        f32::MIN_POSITIVE / 8.0,
+        f32::MAX,
+    ];
     for i in 0..n {
         let r = LogRecord {
             t_ms: 250 * i,
@@ -86,16 +93,32 @@ fn binary_to_csv_to_binary_is_byte_identical() {
     let (bytes, _) = engine_log(&a, 500);
     let o = headroom(&[&a, &c]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert!(stderr(&o).contains("converted 500 record(s)"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("converted 500 record(s)"),
+        "{}",
+        stderr(&o)
+    );
     let o = headroom(&[&c, &b]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert_eq!(std::fs::read(&b).unwrap(), bytes, "engine-written frames survive csv and back");
+    assert_eq!(
+        std::fs::read(&b).unwrap(),
+        bytes,
+        "engine-written frames survive csv and back"
+    );
     let o = headroom(&[&b, &c2]);
     assert!(o.status.success(), "{}", stderr(&o));
     let csv = std::fs::read_to_string(&c).unwrap();
     assert_eq!(std::fs::read_to_string(&c2).unwrap(), csv);
-    assert!(csv.starts_with("# headroom-log 1.0\n# device_id: 7001\n"), "{csv}");
-    assert!(csv.contains(",NaN,") && csv.contains(",inf,") && csv.contains(",-inf,") && csv.contains(",-0,"));
+    assert!(
+        csv.starts_with("# headroom-log 1.0\n# device_id: 7001\n"),
+        "{csv}"
+    );
+    assert!(
+        csv.contains(",NaN,")
+            && csv.contains(",inf,")
+            && csv.contains(",-inf,")
+            && csv.contains(",-0,")
+    );
 }
 
 #[test]
@@ -132,10 +155,17 @@ fn columns_in_any_order_extra_ignored_and_format_override() {
     assert!(o.status.success(), "{}", stderr(&o));
     let o = headroom_flags(&[&b, &c], &["--from", "binary"]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert_eq!(std::fs::read_to_string(&c).unwrap(), "t_ms,tx_dbm,rssi_dbm,noise_dbm\n5,,-80,\n6,,,\n");
+    assert_eq!(
+        std::fs::read_to_string(&c).unwrap(),
+        "t_ms,tx_dbm,rssi_dbm,noise_dbm\n5,,-80,\n6,,,\n"
+    );
     let o = headroom(&[&a, &c]);
     assert_eq!(o.status.code(), Some(2));
-    assert!(stderr(&o).contains("cannot tell the log format"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("cannot tell the log format"),
+        "{}",
+        stderr(&o)
+    );
 }
 
 #[test]
@@ -147,7 +177,11 @@ fn overwrite_is_refused_without_force() {
     std::fs::write(&b, b"keep me").unwrap();
     let o = headroom(&[&a, &b]);
     assert_eq!(o.status.code(), Some(2));
-    assert!(stderr(&o).contains("already exists (use --force to overwrite)"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("already exists (use --force to overwrite)"),
+        "{}",
+        stderr(&o)
+    );
     assert_eq!(std::fs::read(&b).unwrap(), b"keep me");
     let o = headroom_flags(&[&a, &b], &["--force"]);
     assert!(o.status.success(), "{}", stderr(&o));
@@ -165,13 +199,24 @@ fn a_bad_cell_names_line_and_column() {
     let a = dir.path().join("log.csv");
     let b = dir.path().join("log.hrlog");
     // Line 1 is a comment, line 2 the header row, the bad cell on line 5.
-    std::fs::write(&a, "# from the roof node\nt_ms,tx_dbm,rssi_dbm\n0,10,-90\n1000,10,-91\n2000,10,abc\n").unwrap();
+    std::fs::write(
+        &a,
+        "# from the roof node\nt_ms,tx_dbm,rssi_dbm\n0,10,-90\n1000,10,-91\n2000,10,abc\n",
+    )
+    .unwrap();
     let o = headroom(&[&a, &b]);
     assert_eq!(o.status.code(), Some(2));
     let err = stderr(&o);
-    assert!(err.contains("log.csv:5: column rssi_dbm: 'abc' is not a number"), "{err}");
+    assert!(
+        err.contains("log.csv:5: column rssi_dbm: 'abc' is not a number"),
+        "{err}"
+    );
     assert_eq!(err.lines().count(), 1, "{err}");
-    assert_eq!(files(dir.path()), vec!["log.csv"], "no output, no temporary file");
+    assert_eq!(
+        files(dir.path()),
+        vec!["log.csv"],
+        "no output, no temporary file"
+    );
 }
 
 #[test]
@@ -180,12 +225,24 @@ fn csv_input_errors_are_clear() {
     let out = dir.path().join("o.hrlog");
     let cases: [(&str, &str); 9] = [
         // Line numbers count comment and blank lines too.
-        ("# c\n\nt_ms,rssi_dbm\n1,2\n# mid\n\n3,x\n", "7: column rssi_dbm: 'x' is not a number"),
-        ("# x\n\nt_ms,a\n# y\n1,2\n\n3\n", "7: row has 1 cell, the header row has 2"),
+        (
+            "# c\n\nt_ms,rssi_dbm\n1,2\n# mid\n\n3,x\n",
+            "7: column rssi_dbm: 'x' is not a number",
+        ),
+        (
+            "# x\n\nt_ms,a\n# y\n1,2\n\n3\n",
+            "7: row has 1 cell, the header row has 2",
+        ),
         ("\n\nt_ms,T_MS\n", "3: column t_ms appears twice"),
         ("tx_dbm,rssi_dbm\n1,2\n", "1: missing required column t_ms"),
-        ("t_ms,rssi_dbm\n1,2\n3\n", "3: row has 1 cell, the header row has 2"),
-        ("t_ms,rssi_dbm\n1.5,2\n", "2: column t_ms: '1.5' is not a whole number of milliseconds"),
+        (
+            "t_ms,rssi_dbm\n1,2\n3\n",
+            "3: row has 1 cell, the header row has 2",
+        ),
+        (
+            "t_ms,rssi_dbm\n1.5,2\n",
+            "2: column t_ms: '1.5' is not a whole number of milliseconds",
+        ),
         ("t_ms,rssi_dbm\n,2\n", "2: column t_ms: empty"),
         ("", "no header row"),
         ("t_ms,t_ms\n1,2\n", "1: column t_ms appears twice"),
@@ -205,7 +262,11 @@ fn csv_input_errors_are_clear() {
     std::fs::write(&a, text).unwrap();
     let o = headroom(&[&a, &out]);
     assert_eq!(o.status.code(), Some(2));
-    assert!(stderr(&o).contains("long.csv:3: line is longer than 4096 bytes"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("long.csv:3: line is longer than 4096 bytes"),
+        "{}",
+        stderr(&o)
+    );
     assert!(!out.exists());
 }
 
@@ -239,10 +300,19 @@ fn damaged_binary_converts_every_intact_frame() {
     assert!(o.status.success(), "{}", stderr(&o));
     let err = stderr(&o);
     assert!(
-        err.contains(&format!("byte {s}: skipped {} damaged bytes (10 frames lost)", e - s)),
+        err.contains(&format!(
+            "byte {s}: skipped {} damaged bytes (10 frames lost)",
+            e - s
+        )),
         "{err}"
     );
-    assert!(err.contains(&format!("byte {}: skipped 5 damaged bytes (1 frame lost)", last.0)), "{err}");
+    assert!(
+        err.contains(&format!(
+            "byte {}: skipped 5 damaged bytes (1 frame lost)",
+            last.0
+        )),
+        "{err}"
+    );
     assert!(err.contains("converted 289 record(s)"), "{err}");
     // Every intact record is there, unchanged.
     let want: Vec<String> = std::fs::read_to_string(&clean)
@@ -255,7 +325,11 @@ fn damaged_binary_converts_every_intact_frame() {
         })
         .map(|(_, l)| l.to_string())
         .collect();
-    let got: Vec<String> = std::fs::read_to_string(&c).unwrap().lines().map(String::from).collect();
+    let got: Vec<String> = std::fs::read_to_string(&c)
+        .unwrap()
+        .lines()
+        .map(String::from)
+        .collect();
     assert_eq!(got, want);
     // The input was not touched.
     assert_eq!(std::fs::read(&a).unwrap(), bytes);
@@ -264,7 +338,11 @@ fn damaged_binary_converts_every_intact_frame() {
     let c2 = dir.path().join("strict.csv");
     let o = headroom_flags(&[&a, &c2], &["--strict"]);
     assert_eq!(o.status.code(), Some(2));
-    assert!(stderr(&o).contains(&format!("hurt.hrlog: byte {s}: damaged")), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains(&format!("hurt.hrlog: byte {s}: damaged")),
+        "{}",
+        stderr(&o)
+    );
     assert!(!c2.exists());
 }
 
@@ -285,6 +363,13 @@ fn not_a_log_is_damage_not_a_crash() {
     std::fs::write(&a, &junk).unwrap();
     let o = headroom(&[&a, &c]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert!(stderr(&o).contains("converted 0 record(s)"), "{}", stderr(&o));
-    assert_eq!(std::fs::read_to_string(&c).unwrap(), "t_ms,tx_dbm,rssi_dbm,noise_dbm\n");
+    assert!(
+        stderr(&o).contains("converted 0 record(s)"),
+        "{}",
+        stderr(&o)
+    );
+    assert_eq!(
+        std::fs::read_to_string(&c).unwrap(),
+        "t_ms,tx_dbm,rssi_dbm,noise_dbm\n"
+    );
 }

@@ -56,7 +56,11 @@ fn small_log(dir: &Path) -> PathBuf {
 
 #[test]
 fn json_summary_has_exactly_the_documented_keys() {
-    let o = headroom(&[&example("examples/logs/orchard-868.csv"), "--format", "json"]);
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--format",
+        "json",
+    ]);
     let v = json(&o);
     let m = v.as_object().expect("object");
     let mut keys: Vec<&str> = m.keys().map(String::as_str).collect();
@@ -88,7 +92,12 @@ fn json_summary_has_exactly_the_documented_keys() {
     let saving = v["energy_saving_db"].as_f64().expect("saving");
     assert!((saving - (14.0 - mean)).abs() < 1e-3, "{saving} vs {mean}");
     let ignored = v["ignored_readings"].as_object().expect("object");
-    for k in ["ignored_not_finite", "ignored_implausible", "ignored_saturated", "ignored_stale"] {
+    for k in [
+        "ignored_not_finite",
+        "ignored_implausible",
+        "ignored_saturated",
+        "ignored_stale",
+    ] {
         assert!(ignored.contains_key(k), "{k}");
     }
 }
@@ -98,7 +107,10 @@ fn decisions_csv_one_row_per_record_and_no_overwrite() {
     let dir = tempfile::tempdir().expect("tempdir");
     let log = small_log(dir.path());
     let out = dir.path().join("decisions.csv");
-    let (log_s, out_s) = (log.to_string_lossy().into_owned(), out.to_string_lossy().into_owned());
+    let (log_s, out_s) = (
+        log.to_string_lossy().into_owned(),
+        out.to_string_lossy().into_owned(),
+    );
     let v = json(&headroom(&[&log_s, "--out", &out_s, "--format", "json"]));
     assert_eq!(v["records"], 6);
     // The NaN, missing and implausible (-400 dBm) readings cannot be judged.
@@ -107,15 +119,30 @@ fn decisions_csv_one_row_per_record_and_no_overwrite() {
     assert_eq!(v["ignored_readings"]["ignored_implausible"], 1);
     let text = std::fs::read_to_string(&out).expect("decisions written");
     let lines: Vec<&str> = text.lines().collect();
-    assert_eq!(lines[0], "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,path_loss_db,margin_db,reason");
+    assert_eq!(
+        lines[0],
+        "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,path_loss_db,margin_db,reason"
+    );
     assert_eq!(lines.len(), 7);
     // First record at the start power 14 dBm: 14 - 14 - 95 + 117 = 22 dB.
     let first: Vec<&str> = lines[1].split(',').collect();
     assert_eq!(&first[..4], &["0", "14", "22", "delivered"]);
     assert_eq!(first[6], "warm_up");
-    assert!(lines[3].contains(",unjudged,") && lines[3].ends_with("ignored_not_finite"), "{}", lines[3]);
-    assert!(lines[4].contains(",unjudged,") && lines[4].ends_with("no_information"), "{}", lines[4]);
-    assert!(lines[5].contains(",unjudged,") && lines[5].ends_with("ignored_implausible"), "{}", lines[5]);
+    assert!(
+        lines[3].contains(",unjudged,") && lines[3].ends_with("ignored_not_finite"),
+        "{}",
+        lines[3]
+    );
+    assert!(
+        lines[4].contains(",unjudged,") && lines[4].ends_with("no_information"),
+        "{}",
+        lines[4]
+    );
+    assert!(
+        lines[5].contains(",unjudged,") && lines[5].ends_with("ignored_implausible"),
+        "{}",
+        lines[5]
+    );
     // The 5000 ms packet: -125 at 14 dBm, replayed at the same power: SNR -8 dB, lost.
     assert!(lines[6].contains(",lost,"), "{}", lines[6]);
 
@@ -155,7 +182,10 @@ fn bad_settings_are_one_line_errors_naming_the_setting() {
     assert_eq!(o.status.code(), Some(2));
     let e = stderr(&o);
     assert_eq!(e.trim_end().lines().count(), 1, "{e}");
-    assert!(e.contains("min_tx_dbm") && e.contains("--min-tx-dbm"), "{e}");
+    assert!(
+        e.contains("min_tx_dbm") && e.contains("--min-tx-dbm"),
+        "{e}"
+    );
 
     let o = headroom(&[&log, "--target-outage", "1.5"]);
     assert_eq!(o.status.code(), Some(2));
@@ -176,7 +206,13 @@ fn bad_settings_are_one_line_errors_naming_the_setting() {
 
     // Flags override the file: the file is fine, the flag makes it contradictory.
     std::fs::write(&cfg, "min_tx_dbm = -9.0\n").expect("write");
-    let o = headroom(&[&log, "--config", &cfg.to_string_lossy(), "--max-tx-dbm", "-20"]);
+    let o = headroom(&[
+        &log,
+        "--config",
+        &cfg.to_string_lossy(),
+        "--max-tx-dbm",
+        "-20",
+    ]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("min_tx_dbm"), "{}", stderr(&o));
 
@@ -212,7 +248,10 @@ fn svg_texts(path: &Path) -> String {
     let text = std::fs::read_to_string(path).expect("svg written");
     let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
     assert_eq!(doc.root_element().tag_name().name(), "svg");
-    doc.descendants().filter_map(|n| n.text()).collect::<Vec<_>>().join("\n")
+    doc.descendants()
+        .filter_map(|n| n.text())
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 /// Width and height from a PNG's IHDR chunk, after checking the signature.
@@ -220,7 +259,9 @@ fn png_size(path: &Path) -> (u32, u32) {
     let b = std::fs::read(path).expect("png written");
     assert_eq!(b.get(..8), Some(&b"\x89PNG\r\n\x1a\n"[..]), "PNG signature");
     assert_eq!(b.get(12..16), Some(&b"IHDR"[..]), "IHDR first");
-    let be = |r: std::ops::Range<usize>| u32::from_be_bytes(b.get(r).and_then(|x| x.try_into().ok()).expect("4 bytes"));
+    let be = |r: std::ops::Range<usize>| {
+        u32::from_be_bytes(b.get(r).and_then(|x| x.try_into().ok()).expect("4 bytes"))
+    };
     (be(16..20), be(20..24))
 }
 
@@ -229,11 +270,17 @@ fn plot_svg_names_the_log_and_its_series() {
     let dir = tempfile::tempdir().expect("tempdir");
     let log = small_log(dir.path());
     let svg = dir.path().join("r.svg");
-    let (log_s, svg_s) = (log.to_string_lossy().into_owned(), svg.to_string_lossy().into_owned());
+    let (log_s, svg_s) = (
+        log.to_string_lossy().into_owned(),
+        svg.to_string_lossy().into_owned(),
+    );
     let v = json(&headroom(&[&log_s, "--plot", &svg_s, "--format", "json"]));
     assert_eq!(v["records"], 6);
     let t = svg_texts(&svg);
-    assert!(t.contains("replay of bench.csv") && t.contains("6 records"), "{t}");
+    assert!(
+        t.contains("replay of bench.csv") && t.contains("6 records"),
+        "{t}"
+    );
     for label in [
         "received power, logged",
         "received power, replayed",
@@ -251,7 +298,11 @@ fn plot_svg_names_the_log_and_its_series() {
     let o = headroom(&[&log_s, "--plot", &svg_s, "--force"]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert_eq!(files(dir.path()), ["bench.csv", "r.svg"]);
-    let o = headroom(&[&log_s, "--plot", &dir.path().join("r.gif").to_string_lossy()]);
+    let o = headroom(&[
+        &log_s,
+        "--plot",
+        &dir.path().join("r.gif").to_string_lossy(),
+    ]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains(".gif"), "{}", stderr(&o));
 }
@@ -260,7 +311,11 @@ fn plot_svg_names_the_log_and_its_series() {
 fn plot_png_of_a_long_log_has_its_size() {
     let dir = tempfile::tempdir().expect("tempdir");
     let png = dir.path().join("orchard.png");
-    let o = headroom(&[&example("examples/logs/orchard-868.csv"), "--plot", &png.to_string_lossy()]);
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--plot",
+        &png.to_string_lossy(),
+    ]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert_eq!(png_size(&png), (1200, 760));
 }
@@ -269,8 +324,11 @@ fn plot_png_of_a_long_log_has_its_size() {
 fn fleet_dir(dir: &Path) -> (PathBuf, PathBuf) {
     let a = small_log(dir);
     let b = dir.join("another.csv");
-    std::fs::write(&b, "t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,10,-100,-117\n1000,10,-101,-117\n2000,10,-130,-117\n")
-        .expect("write log");
+    std::fs::write(
+        &b,
+        "t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,10,-100,-117\n1000,10,-101,-117\n2000,10,-130,-117\n",
+    )
+    .expect("write log");
     std::fs::write(dir.join("notes.txt"), "not a log\n").expect("write notes");
     (b, a)
 }
@@ -282,8 +340,10 @@ fn jsonl_one_line_per_log_each_a_separate_device() {
     let o = headroom(&[&dir.path().to_string_lossy(), "--format", "jsonl"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let text = String::from_utf8(o.stdout).expect("utf-8");
-    let lines: Vec<serde_json::Value> =
-        text.lines().map(|l| serde_json::from_str(l).expect("each line is JSON")).collect();
+    let lines: Vec<serde_json::Value> = text
+        .lines()
+        .map(|l| serde_json::from_str(l).expect("each line is JSON"))
+        .collect();
     assert_eq!(lines.len(), 2, "{text}");
     // Sorted by name: another.csv, then bench.csv.
     for (line, path) in lines.iter().zip([&first, &second]) {
@@ -309,15 +369,27 @@ fn jsonl_one_line_per_log_each_a_separate_device() {
 fn several_logs_as_json_and_table_carry_a_fleet_total() {
     let dir = tempfile::tempdir().expect("tempdir");
     let (a, b) = fleet_dir(dir.path());
-    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    let (a, b) = (
+        a.to_string_lossy().into_owned(),
+        b.to_string_lossy().into_owned(),
+    );
     let v = json(&headroom(&[&a, &b, "--format", "json"]));
     let logs = v["logs"].as_array().expect("logs array");
     assert_eq!(logs.len(), 2);
     assert_eq!(logs[0]["log"], a.as_str());
     let fleet = &v["fleet"];
-    let keys: Vec<&str> = fleet.as_object().expect("object").keys().map(String::as_str).collect();
+    let keys: Vec<&str> = fleet
+        .as_object()
+        .expect("object")
+        .keys()
+        .map(String::as_str)
+        .collect();
     assert_eq!(keys, SUMMARY_KEYS);
-    let sum = |k: &str| logs.iter().map(|l| l[k].as_u64().expect("count")).sum::<u64>();
+    let sum = |k: &str| {
+        logs.iter()
+            .map(|l| l[k].as_u64().expect("count"))
+            .sum::<u64>()
+    };
     assert_eq!(fleet["records"].as_u64(), Some(sum("records")));
     assert_eq!(fleet["judged"].as_u64(), Some(sum("judged")));
     assert_eq!(fleet["power_changes"].as_u64(), Some(sum("power_changes")));
@@ -330,14 +402,23 @@ fn several_logs_as_json_and_table_carry_a_fleet_total() {
     let f = fleet["outage_fraction"].as_f64().expect("fraction");
     assert!((f - lost / sum("judged") as f64).abs() < 1e-6, "{f}");
     // The mean of linear powers lies between the logs' means.
-    let means: Vec<f64> = logs.iter().map(|l| l["mean_tx_dbm"].as_f64().expect("mean")).collect();
+    let means: Vec<f64> = logs
+        .iter()
+        .map(|l| l["mean_tx_dbm"].as_f64().expect("mean"))
+        .collect();
     let m = fleet["mean_tx_dbm"].as_f64().expect("mean");
-    assert!(m >= means[0].min(means[1]) - 1e-4 && m <= means[0].max(means[1]) + 1e-4, "{m} {means:?}");
+    assert!(
+        m >= means[0].min(means[1]) - 1e-4 && m <= means[0].max(means[1]) + 1e-4,
+        "{m} {means:?}"
+    );
 
     let o = headroom(&[&a, &b]);
     assert!(o.status.success(), "{}", stderr(&o));
     let t = String::from_utf8(o.stdout).expect("utf-8");
-    assert!(t.contains(&format!("== {a}")) && t.contains(&format!("== {b}")), "{t}");
+    assert!(
+        t.contains(&format!("== {a}")) && t.contains(&format!("== {b}")),
+        "{t}"
+    );
     assert!(t.contains("== fleet (2 logs)"), "{t}");
 }
 
@@ -345,12 +426,19 @@ fn several_logs_as_json_and_table_carry_a_fleet_total() {
 fn fleet_refusals() {
     let dir = tempfile::tempdir().expect("tempdir");
     let (a, b) = fleet_dir(dir.path());
-    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    let (a, b) = (
+        a.to_string_lossy().into_owned(),
+        b.to_string_lossy().into_owned(),
+    );
     for flag in ["--out", "--plot"] {
         let dest = dir.path().join("x.svg");
         let o = headroom(&[&a, &b, flag, &dest.to_string_lossy()]);
         assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-        assert!(stderr(&o).contains(flag) && stderr(&o).contains("one log"), "{}", stderr(&o));
+        assert!(
+            stderr(&o).contains(flag) && stderr(&o).contains("one log"),
+            "{}",
+            stderr(&o)
+        );
         assert!(!dest.exists());
     }
     // A file that is not a binary log at all is an error, not 0 records.
@@ -365,5 +453,9 @@ fn fleet_refusals() {
     std::fs::create_dir(&empty).expect("mkdir");
     let o = headroom(&[&empty.to_string_lossy()]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-    assert!(stderr(&o).contains("without .csv or .hrlog"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("without .csv or .hrlog"),
+        "{}",
+        stderr(&o)
+    );
 }

@@ -43,11 +43,13 @@ fn example(rel: &str) -> String {
 }
 
 fn f(v: &Value, k: &str) -> f64 {
-    v[k].as_f64().unwrap_or_else(|| panic!("{k} is not a number in {v}"))
+    v[k].as_f64()
+        .unwrap_or_else(|| panic!("{k} is not a number in {v}"))
 }
 
 fn u(v: &Value, k: &str) -> u64 {
-    v[k].as_u64().unwrap_or_else(|| panic!("{k} is not a count in {v}"))
+    v[k].as_u64()
+        .unwrap_or_else(|| panic!("{k} is not a count in {v}"))
 }
 
 /// A log of our own: a node 14 dBm into a link that fades slowly by ±9 dB
@@ -76,8 +78,12 @@ fn synthetic_log(dir: &Path, name: &str, records: u32, shift: f32) -> PathBuf {
 
 fn fleet(dir: &Path) -> Vec<String> {
     vec![
-        synthetic_log(dir, "a.csv", 2500, 0.0).to_string_lossy().into_owned(),
-        synthetic_log(dir, "b.csv", 1800, -4.0).to_string_lossy().into_owned(),
+        synthetic_log(dir, "a.csv", 2500, 0.0)
+            .to_string_lossy()
+            .into_owned(),
+        synthetic_log(dir, "b.csv", 1800, -4.0)
+            .to_string_lossy()
+            .into_owned(),
     ]
 }
 
@@ -107,7 +113,8 @@ fn front_is_non_dominated_and_best_meets_the_target() {
     assert_eq!(v["points"].as_array().map(Vec::len), Some(12));
     let all = points(&v);
     let key = |p: &Value| (f(p, "mean_tx_dbm"), f(p, "outage_fraction"));
-    let dominates = |a: (f64, f64), b: (f64, f64)| a.0 <= b.0 && a.1 <= b.1 && (a.0 < b.0 || a.1 < b.1);
+    let dominates =
+        |a: (f64, f64), b: (f64, f64)| a.0 <= b.0 && a.1 <= b.1 && (a.0 < b.0 || a.1 < b.1);
     // on_front is exactly "no candidate dominates it", and "front" lists those.
     let mut on_front = BTreeSet::new();
     for p in &all {
@@ -119,7 +126,10 @@ fn front_is_non_dominated_and_best_meets_the_target() {
     }
     let front: Vec<&Value> = v["front"].as_array().expect("front").iter().collect();
     assert_eq!(
-        front.iter().map(|p| u(p, "candidate")).collect::<BTreeSet<_>>(),
+        front
+            .iter()
+            .map(|p| u(p, "candidate"))
+            .collect::<BTreeSet<_>>(),
         on_front
     );
     assert!(
@@ -135,7 +145,11 @@ fn front_is_non_dominated_and_best_meets_the_target() {
     assert_eq!(best["meets_target"], true);
     assert_eq!(best["on_front"], true);
     for p in &all {
-        assert_eq!(p["meets_target"], f(p, "outage_fraction") <= 0.05 + 1e-9, "{p}");
+        assert_eq!(
+            p["meets_target"],
+            f(p, "outage_fraction") <= 0.05 + 1e-9,
+            "{p}"
+        );
         if p["meets_target"] == true {
             assert!(
                 f(p, "mean_tx_dbm") >= f(best, "mean_tx_dbm"),
@@ -196,7 +210,10 @@ fn agrees_with_replay_log_by_log() {
             assert_eq!(line["ignored_readings"], want["ignored_readings"]);
             assert_eq!(line["max_tx_dbm_used"], want["max_tx_dbm_used"]);
             for k in ["outage_fraction", "mean_tx_dbm", "energy_saving_db"] {
-                assert!((f(line, k) - f(want, k)).abs() < 1e-4, "{k}: {line} vs {want}");
+                assert!(
+                    (f(line, k) - f(want, k)).abs() < 1e-4,
+                    "{k}: {line} vs {want}"
+                );
             }
             // Every key of replay's summary is in the line.
             for k in want.as_object().expect("object").keys() {
@@ -223,7 +240,10 @@ fn fleet_totals_are_sums_of_the_lines() {
     let v = json(&tune(&b));
     for p in points(&v) {
         let cand = u(&p, "candidate");
-        let mine: Vec<&Value> = per_log.iter().filter(|l| u(l, "candidate") == cand).collect();
+        let mine: Vec<&Value> = per_log
+            .iter()
+            .filter(|l| u(l, "candidate") == cand)
+            .collect();
         assert_eq!(mine.len(), 2);
         let sum = |k: &str| mine.iter().map(|l| u(l, k)).sum::<u64>();
         assert_eq!(u(&p, "records"), sum("records"));
@@ -287,7 +307,13 @@ fn directories_are_expanded_sorted_and_flat() {
     std::fs::create_dir(&sub).expect("mkdir");
     synthetic_log(&sub, "c.csv", 300, 0.0);
     let d = dir.path().to_string_lossy().into_owned();
-    let v = json(&tune(&[d.as_str(), "--sweep", "deadband_db=1", "--format", "json"]));
+    let v = json(&tune(&[
+        d.as_str(),
+        "--sweep",
+        "deadband_db=1",
+        "--format",
+        "json",
+    ]));
     let names: Vec<String> = v["logs"]
         .as_array()
         .expect("logs")
@@ -305,7 +331,11 @@ fn directories_are_expanded_sorted_and_flat() {
     let e = empty.path().to_string_lossy().into_owned();
     let o = tune(&[e.as_str(), "--sweep", "deadband_db=1"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-    assert!(stderr(&o).contains("no .csv or .hrlog file"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("no .csv or .hrlog file"),
+        "{}",
+        stderr(&o)
+    );
 }
 
 /// Without a sweep only the default is replayed: one line per log.
@@ -317,7 +347,9 @@ fn no_sweep_replays_the_default_per_log() {
     args.extend(["--format", "jsonl"]);
     let out = lines(&tune(&args));
     assert_eq!(out.len(), 2);
-    assert!(out.iter().all(|l| l["candidate"] == 0 && l["default"] == true));
+    assert!(out
+        .iter()
+        .all(|l| l["candidate"] == 0 && l["default"] == true));
     args.truncate(logs.len());
     args.extend(["--format", "json"]);
     let v = json(&tune(&args));
@@ -332,7 +364,11 @@ fn refused(args: &[&str], needle: &str) {
     let o = tune(args);
     let e = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{args:?}: {e}");
-    assert_eq!(e.trim_end().lines().count(), 1, "{args:?}: not one line: {e}");
+    assert_eq!(
+        e.trim_end().lines().count(),
+        1,
+        "{args:?}: not one line: {e}"
+    );
     assert!(e.contains(needle), "{args:?}: '{e}' lacks '{needle}'");
     assert!(!e.contains("panicked"), "{e}");
     assert!(o.stdout.is_empty(), "{args:?}: printed a result");
@@ -363,11 +399,20 @@ fn bad_sweeps_are_refused_in_one_line() {
     );
     refused(&[l, "--sweep", "margin_step_db=0.25..1"], "needs a step");
     refused(&[l, "--sweep", "margin_step_db"], "NAME=FROM..TO:STEP");
-    refused(&[l, "--sweep", "margin_step_db=abc"], "'abc' is not a number");
+    refused(
+        &[l, "--sweep", "margin_step_db=abc"],
+        "'abc' is not a number",
+    );
     refused(&[l, "--sweep", "steps.table=1"], "is not a setting");
     refused(&[l, "--sweep", "steps=1"], "cannot be swept");
-    refused(&[l, "--sweep", "min_readings=2.5"], "min_readings takes whole numbers");
-    refused(&[l, "--sweep", "margin_step_db=21"], "margin_step_db: 21 is outside");
+    refused(
+        &[l, "--sweep", "min_readings=2.5"],
+        "min_readings takes whole numbers",
+    );
+    refused(
+        &[l, "--sweep", "margin_step_db=21"],
+        "margin_step_db: 21 is outside",
+    );
     refused(
         &[l, "--sweep", "deadband_db=1", "--sweep", "deadband_db=2"],
         "swept twice",
@@ -382,7 +427,10 @@ fn bad_sweeps_are_refused_in_one_line() {
         ],
         "at most 10000",
     );
-    refused(&[l, "--sweep", "deadband_db=1", "--threads", "0"], "--threads");
+    refused(
+        &[l, "--sweep", "deadband_db=1", "--threads", "0"],
+        "--threads",
+    );
     refused(
         &[l, "--sweep", "deadband_db=1", "--target-outage", "0"],
         "target_outage",
@@ -422,10 +470,14 @@ fn plot_is_written_and_not_replaced_without_force() {
 /// than the default and loses no more packets.
 #[test]
 fn demo_fleet_has_a_setting_that_beats_the_default() {
-    let logs: Vec<String> = ["orchard-868.csv", "cattle-collar-915.csv", "workshop-mesh-2g4.csv"]
-        .iter()
-        .map(|n| example(&format!("examples/logs/{n}")))
-        .collect();
+    let logs: Vec<String> = [
+        "orchard-868.csv",
+        "cattle-collar-915.csv",
+        "workshop-mesh-2g4.csv",
+    ]
+    .iter()
+    .map(|n| example(&format!("examples/logs/{n}")))
+    .collect();
     let mut args: Vec<&str> = logs.iter().map(String::as_str).collect();
     args.extend(["--sweep", "climb_after_losses=1..3:2", "--format", "json"]);
     let o = tune(&args);

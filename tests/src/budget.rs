@@ -49,11 +49,19 @@ pub struct RefBudget {
 /// Evaluate the reference budget.
 pub fn evaluate(l: &RefLink) -> RefBudget {
     let eirp = l.tx_dbm + l.tx_gains_db.iter().sum::<f64>();
-    let rx = eirp - l.path_loss_db + l.path_gains_db.iter().sum::<f64>() + l.rx_gains_db.iter().sum::<f64>();
+    let rx = eirp - l.path_loss_db
+        + l.path_gains_db.iter().sum::<f64>()
+        + l.rx_gains_db.iter().sum::<f64>();
     let f_lin = 10f64.powf(l.noise_figure_db / 10.0);
     let t_sys = l.antenna_k.unwrap_or(T0) + (f_lin - 1.0) * T0;
     let noise_w = K_BOLTZMANN * t_sys * l.bandwidth_hz;
     let noise_dbm = 10.0 * (noise_w / 1e-3).log10();
     let cn = rx - noise_dbm;
-    RefBudget { eirp_dbm: eirp, rx_dbm: rx, noise_dbm, cn_db: cn, margin_db: cn - l.required_cn_db - l.fade_db }
+    RefBudget {
+        eirp_dbm: eirp,
+        rx_dbm: rx,
+        noise_dbm,
+        cn_db: cn,
+        margin_db: cn - l.required_cn_db - l.fade_db,
+    }
 }

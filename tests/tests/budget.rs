@@ -2,8 +2,7 @@
 //! `tests/src/budget.rs`, and against check values of the trade.
 
 use headroom::budget::{
-    free_space_frequency_scaling, AntennaScaling, FadeAllowance, Link, NoiseSpec, Requirement,
-    Side,
+    free_space_frequency_scaling, AntennaScaling, FadeAllowance, Link, NoiseSpec, Requirement, Side,
 };
 use headroom::units::{Db, Dbm, Hertz, Kelvin};
 use headroom_tests::budget::{evaluate, RefLink};
@@ -25,15 +24,26 @@ fn both(
     ta: Option<f32>,
     req: f32,
     fade: f32,
-) -> (headroom::budget::BudgetResult, headroom_tests::budget::RefBudget) {
+) -> (
+    headroom::budget::BudgetResult,
+    headroom_tests::budget::RefBudget,
+) {
     let mut l: Link<16> = Link::new(
         Dbm(tx),
         Db(pl),
-        NoiseSpec { bandwidth: Hertz(bw), noise_figure: Db(nf), antenna_temperature: ta.map(Kelvin) },
+        NoiseSpec {
+            bandwidth: Hertz(bw),
+            noise_figure: Db(nf),
+            antenna_temperature: ta.map(Kelvin),
+        },
         Requirement::CarrierToNoise(Db(req)),
         FadeAllowance::Fixed(Db(fade)),
     );
-    for (side, gains) in [(Side::Transmitter, tx_gains), (Side::Path, path_gains), (Side::Receiver, rx_gains)] {
+    for (side, gains) in [
+        (Side::Transmitter, tx_gains),
+        (Side::Path, path_gains),
+        (Side::Receiver, rx_gains),
+    ] {
         for g in gains {
             assert_eq!(l.push("item", side, Db(*g)), Ok(()));
         }
@@ -96,7 +106,11 @@ fn noise_floor_of_a_125_khz_receiver() {
     // kT0 = −173.98 dBm/Hz at T0 = 290 K (common practice, from k = 1.380649e−23 J/K);
     // + 10·log10(125 kHz) = 50.97 dB, + NF 6 dB: −117.01 dBm.
     let (e, _) = both(14.0, &[], 120.0, &[], &[], 125e3, 6.0, None, 0.0, 0.0);
-    assert!((e.noise_power.0 + 117.01).abs() < 0.01, "{:?}", e.noise_power);
+    assert!(
+        (e.noise_power.0 + 117.01).abs() < 0.01,
+        "{:?}",
+        e.noise_power
+    );
     // Sensitivity is the noise floor plus the required C/N (definition).
     assert!((e.sensitivity.0 - e.noise_power.0).abs() < 1e-4);
 }
@@ -108,7 +122,11 @@ fn cold_sky_antenna_lowers_the_noise() {
     let (e, r) = both(0.0, &[], 100.0, &[], &[], 1.0, 1.0, Some(50.0), 0.0, 0.0);
     assert!((e.system_temperature.0 - 125.09).abs() < 0.05);
     assert!((f64::from(e.noise_power.0) - r.noise_dbm).abs() < MAX_ERROR_DB);
-    assert!((e.noise_power.0 + 177.62).abs() < 0.01, "{:?}", e.noise_power);
+    assert!(
+        (e.noise_power.0 + 177.62).abs() < 0.01,
+        "{:?}",
+        e.noise_power
+    );
 }
 
 #[test]
@@ -117,8 +135,15 @@ fn eb_n0_and_required_cn_from_a_bit_rate() {
     let l: Link<2> = Link::new(
         Dbm(-100.0),
         Db(0.0),
-        NoiseSpec { bandwidth: Hertz(9600.0), noise_figure: Db(3.0), antenna_temperature: None },
-        Requirement::EbN0 { ebn0: Db(10.0), bit_rate_bps: 9600.0 },
+        NoiseSpec {
+            bandwidth: Hertz(9600.0),
+            noise_figure: Db(3.0),
+            antenna_temperature: None,
+        },
+        Requirement::EbN0 {
+            ebn0: Db(10.0),
+            bit_rate_bps: 9600.0,
+        },
         FadeAllowance::None,
     );
     let r = l.evaluate().expect("valid");
@@ -133,7 +158,11 @@ fn bad_inputs_are_refused() {
         Link::new(
             Dbm(0.0),
             Db(100.0),
-            NoiseSpec { bandwidth: Hertz(1e3), noise_figure: Db(3.0), antenna_temperature: None },
+            NoiseSpec {
+                bandwidth: Hertz(1e3),
+                noise_figure: Db(3.0),
+                antenna_temperature: None,
+            },
             Requirement::CarrierToNoise(Db(10.0)),
             FadeAllowance::None,
         )
@@ -148,7 +177,10 @@ fn bad_inputs_are_refused() {
     l.fade = FadeAllowance::Fixed(Db(-3.0));
     assert!(l.evaluate().is_err());
     let mut l = base();
-    l.requirement = Requirement::EbN0 { ebn0: Db(10.0), bit_rate_bps: 0.0 };
+    l.requirement = Requirement::EbN0 {
+        ebn0: Db(10.0),
+        bit_rate_bps: 0.0,
+    };
     assert!(l.evaluate().is_err());
     let mut l = base();
     l.path_loss = Db(f32::INFINITY);
@@ -158,10 +190,12 @@ fn bad_inputs_are_refused() {
 #[test]
 fn range_scales_inversely_with_frequency_when_gains_are_fixed() {
     // Friis: Pr ∝ Gt·Gr·λ²; with G = 4πA/λ² for a fixed aperture (common practice).
-    let fixed_gains = free_space_frequency_scaling(Hertz(868e6), Hertz(2.44e9), AntennaScaling::FixedGains)
-        .expect("valid");
+    let fixed_gains =
+        free_space_frequency_scaling(Hertz(868e6), Hertz(2.44e9), AntennaScaling::FixedGains)
+            .expect("valid");
     assert!((fixed_gains.0 + 8.977).abs() < 0.01, "{fixed_gains:?}");
-    let apertures = free_space_frequency_scaling(Hertz(868e6), Hertz(2.44e9), AntennaScaling::FixedApertures)
-        .expect("valid");
+    let apertures =
+        free_space_frequency_scaling(Hertz(868e6), Hertz(2.44e9), AntennaScaling::FixedApertures)
+            .expect("valid");
     assert!((apertures.0 - 8.977).abs() < 0.01, "{apertures:?}");
 }

@@ -2,8 +2,8 @@
 //! check values, and recovery from truncation, flipped bytes and garbage.
 
 use headroom::record::codec::{
-    decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder, MAX_FRAME,
-    VERSION,
+    decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder,
+    MAX_FRAME, VERSION,
 };
 use headroom::record::crc::{crc32c, Crc32c, CHECK};
 use headroom::record::{DecisionRecord, LogHeader, LogRecord};
@@ -22,8 +22,16 @@ fn record(i: u64) -> LogRecord {
     LogRecord {
         t_ms: 1_000 * i + (i % 7),
         tx_dbm: Some(14.0 - 0.5 * (i % 20) as f32),
-        rssi_dbm: if i % 5 == 3 { None } else { Some(-97.25 + (i % 11) as f32) },
-        noise_dbm: if i.is_multiple_of(3) { Some(-118.5) } else { None },
+        rssi_dbm: if i % 5 == 3 {
+            None
+        } else {
+            Some(-97.25 + (i % 11) as f32)
+        },
+        noise_dbm: if i.is_multiple_of(3) {
+            Some(-118.5)
+        } else {
+            None
+        },
     }
 }
 
@@ -131,17 +139,32 @@ fn crc32c_rfc3720_vectors() {
 fn every_kind_round_trips() {
     let mut buf = [0u8; MAX_FRAME];
     let frames = [
-        Frame::Header { header: header(), version: VERSION },
-        Frame::Header { header: LogHeader::default(), version: VERSION },
+        Frame::Header {
+            header: header(),
+            version: VERSION,
+        },
+        Frame::Header {
+            header: LogHeader::default(),
+            version: VERSION,
+        },
         Frame::Record(LogRecord::default()),
         Frame::Record(record(12)),
-        Frame::Decision(DecisionRecord { t_ms: u64::MAX, tx_dbm: -3.5, outcome: 255, reason: 0 }),
+        Frame::Decision(DecisionRecord {
+            t_ms: u64::MAX,
+            tx_dbm: -3.5,
+            outcome: 255,
+            reason: 0,
+        }),
     ];
     for (i, f) in frames.iter().enumerate() {
         let seq = (i as u16).wrapping_mul(40_000);
         let wire = encode_frame(seq, f, &mut buf).unwrap().to_vec();
         assert_eq!(wire.last(), Some(&0));
-        assert_eq!(wire.iter().filter(|&&b| b == 0).count(), 1, "only the delimiter is 0x00");
+        assert_eq!(
+            wire.iter().filter(|&&b| b == 0).count(),
+            1,
+            "only the delimiter is 0x00"
+        );
         assert!(wire.len() <= MAX_FRAME);
         let mut body = wire[..wire.len() - 1].to_vec();
         assert_eq!(decode_frame(&mut body), Ok(Decoded { seq, frame: *f }));
@@ -153,7 +176,12 @@ fn a_full_record_frame_is_compact() {
     // Kind 1 + seq 2 + varint t (3 bytes for 1e6 ms) + 3 x (tag + f32) + CRC 4
     // = 25, plus one COBS overhead byte and the delimiter.
     let mut buf = [0u8; MAX_FRAME];
-    let r = LogRecord { t_ms: 1_000_000, tx_dbm: Some(1.0), rssi_dbm: Some(-1.0), noise_dbm: Some(2.0) };
+    let r = LogRecord {
+        t_ms: 1_000_000,
+        tx_dbm: Some(1.0),
+        rssi_dbm: Some(-1.0),
+        noise_dbm: Some(2.0),
+    };
     let n = encode_frame(7, &Frame::Record(r), &mut buf).unwrap().len();
     assert_eq!(n, 27);
 }
@@ -161,7 +189,9 @@ fn a_full_record_frame_is_compact() {
 #[test]
 fn a_buffer_too_small_is_an_error_at_every_size() {
     let mut big = [0u8; MAX_FRAME];
-    let need = encode_frame(3, &Frame::Record(record(3)), &mut big).unwrap().len();
+    let need = encode_frame(3, &Frame::Record(record(3)), &mut big)
+        .unwrap()
+        .len();
     for size in 0..need {
         let mut buf = vec![0u8; size];
         assert_eq!(
@@ -170,7 +200,10 @@ fn a_buffer_too_small_is_an_error_at_every_size() {
             "size {size}"
         );
     }
-    assert_eq!(encode_frame(0, &Frame::Other { kind: 9 }, &mut big), Err(CodecError::UnknownKind(9)));
+    assert_eq!(
+        encode_frame(0, &Frame::Other { kind: 9 }, &mut big),
+        Err(CodecError::UnknownKind(9))
+    );
 }
 
 #[test]
@@ -178,9 +211,16 @@ fn a_newer_major_version_is_refused() {
     // Patch the header's major version (kind 0, seq, then magic and major)
     // and re-seal it with a correct CRC, as a newer writer would.
     let mut buf = [0u8; MAX_FRAME];
-    let wire = encode_frame(0, &Frame::Header { header: header(), version: VERSION }, &mut buf)
-        .unwrap()
-        .to_vec();
+    let wire = encode_frame(
+        0,
+        &Frame::Header {
+            header: header(),
+            version: VERSION,
+        },
+        &mut buf,
+    )
+    .unwrap()
+    .to_vec();
     let mut payload = cobs_decode_for_test(&wire[..wire.len() - 1]);
     assert_eq!(&payload[3..7], b"hrlg");
     payload[7] = 2;
@@ -190,7 +230,10 @@ fn a_newer_major_version_is_refused() {
     let mut again = cobs_encode_for_test(&payload);
     assert_eq!(
         decode_frame(&mut again),
-        Err(CodecError::UnknownVersion { major: 2, minor: VERSION.minor })
+        Err(CodecError::UnknownVersion {
+            major: 2,
+            minor: VERSION.minor
+        })
     );
     // A newer minor version with an appended field still decodes.
     let mut payload = cobs_decode_for_test(&wire[..wire.len() - 1]);
@@ -201,7 +244,10 @@ fn a_newer_major_version_is_refused() {
     payload.extend_from_slice(&crc.to_le_bytes());
     let mut again = cobs_encode_for_test(&payload);
     match decode_frame(&mut again) {
-        Ok(Decoded { frame: Frame::Header { header: h, version }, .. }) => {
+        Ok(Decoded {
+            frame: Frame::Header { header: h, version },
+            ..
+        }) => {
             assert_eq!(h, header());
             assert_eq!(version.minor, VERSION.minor + 1);
         }
@@ -243,7 +289,14 @@ fn an_unknown_kind_with_a_good_crc_is_skipped_not_damage() {
     let mut wire = cobs_encode_for_test(&payload);
     wire.push(0);
     let evs = events(&wire, 3);
-    assert_eq!(evs, vec![Event::Frame { offset: 0, seq: 5, frame: Frame::Other { kind: 7 } }]);
+    assert_eq!(
+        evs,
+        vec![Event::Frame {
+            offset: 0,
+            seq: 5,
+            frame: Frame::Other { kind: 7 }
+        }]
+    );
 }
 
 #[test]
@@ -279,7 +332,9 @@ fn truncation_at_every_byte() {
     for cut in 0..=l.bytes.len() {
         let evs = events(&l.bytes[..cut], 5);
         let (frames, damage) = split(&evs);
-        let whole: Vec<usize> = (0..l.spans.len()).filter(|&k| l.spans[k].1 <= cut).collect();
+        let whole: Vec<usize> = (0..l.spans.len())
+            .filter(|&k| l.spans[k].1 <= cut)
+            .collect();
         assert_eq!(frames.len(), whole.len(), "cut {cut}");
         for (k, (seq, off)) in whole.iter().zip(&frames) {
             assert_eq!((*seq as usize, *off as usize), (*k, l.spans[*k].0));
@@ -289,7 +344,13 @@ fn truncation_at_every_byte() {
             assert!(damage.is_empty(), "cut {cut}");
         } else {
             assert_eq!(damage, vec![(start as u64, cut as u64)], "cut {cut}");
-            assert!(matches!(evs.last(), Some(Event::Damaged { error: CodecError::Truncated, .. })));
+            assert!(matches!(
+                evs.last(),
+                Some(Event::Damaged {
+                    error: CodecError::Truncated,
+                    ..
+                })
+            ));
         }
     }
 }
@@ -332,7 +393,9 @@ fn a_garbage_block_in_the_middle() {
     bytes[e - 1] = 0x5A; // and the last delimiter is gone too
     let (frames, damage) = split(&events(&bytes, 1000));
     let seqs: Vec<usize> = frames.iter().map(|f| f.0 as usize).collect();
-    let want: Vec<usize> = (0..l.spans.len()).filter(|i| !(40..=49).contains(i)).collect();
+    let want: Vec<usize> = (0..l.spans.len())
+        .filter(|i| !(40..=49).contains(i))
+        .collect();
     assert_eq!(seqs, want);
     assert_eq!(damage, vec![(s as u64, e as u64)]);
     // Frame 50 is found right where it starts.
@@ -365,9 +428,14 @@ fn any_f32() -> impl Strategy<Value = Option<f32>> {
 }
 
 fn any_record() -> impl Strategy<Value = LogRecord> {
-    (any::<u64>(), any_f32(), any_f32(), any_f32()).prop_map(|(t_ms, tx_dbm, rssi_dbm, noise_dbm)| {
-        LogRecord { t_ms, tx_dbm, rssi_dbm, noise_dbm }
-    })
+    (any::<u64>(), any_f32(), any_f32(), any_f32()).prop_map(
+        |(t_ms, tx_dbm, rssi_dbm, noise_dbm)| LogRecord {
+            t_ms,
+            tx_dbm,
+            rssi_dbm,
+            noise_dbm,
+        },
+    )
 }
 
 proptest! {

@@ -29,10 +29,19 @@ fn wild() -> impl Strategy<Value = f32> {
 /// from the power the controller chose and a path loss.
 #[derive(Debug, Clone)]
 enum Stim {
-    Feedback { pl: f32, noise: f32, wild_rssi: Option<f32>, wild_tx: Option<f32>, snr: Option<f32> },
+    Feedback {
+        pl: f32,
+        noise: f32,
+        wild_rssi: Option<f32>,
+        wild_tx: Option<f32>,
+        snr: Option<f32>,
+    },
     Acked,
     Lost(u16),
-    Beacon { tx: f32, rssi: f32 },
+    Beacon {
+        tx: f32,
+        rssi: f32,
+    },
     Missing,
 }
 
@@ -72,7 +81,13 @@ fn dt() -> impl Strategy<Value = i64> {
 /// A controller configuration, valid or not (invalid ones are skipped).
 fn config() -> impl Strategy<Value = ControllerConfig> {
     (
-        (-20.0f32..10.0, 0.0f32..30.0, -2.0f32..40.0, -3.0f32..10.0, 0.0f32..1.0),
+        (
+            -20.0f32..10.0,
+            0.0f32..30.0,
+            -2.0f32..40.0,
+            -3.0f32..10.0,
+            0.0f32..1.0,
+        ),
         (0.25f32..4.0, 1.0f32..4.0, 1.0f32..4.0, 0.0f32..3.0),
         (0.001f32..0.3, 0.05f32..2.0, 2u16..16, 1u16..6, 1u16..600),
         prop::option::weighted(0.3, prop::collection::vec(-25.0f32..35.0, 1..16)),
@@ -89,7 +104,10 @@ fn config() -> impl Strategy<Value = ControllerConfig> {
                 Some(mut levels) => {
                     levels.sort_by(|a, b| a.total_cmp(b));
                     levels.dedup_by(|a, b| (*a - *b).abs() < 0.01);
-                    let gap = levels.windows(2).map(|w| w[1] - w[0]).fold(0.0f32, f32::max);
+                    let gap = levels
+                        .windows(2)
+                        .map(|w| w[1] - w[0])
+                        .fold(0.0f32, f32::max);
                     let l: Vec<Dbm> = levels.into_iter().map(Dbm).collect();
                     match LevelTable::new(&l) {
                         Ok(t) => (PowerSteps::Table(t), gap),
@@ -133,8 +151,16 @@ fn on_grid(cfg: &ControllerConfig, p: f32) -> bool {
 /// The invariants of one chosen power, after `prev`.
 fn check(cfg: &ControllerConfig, prev: f32, p: f32) -> Result<(), TestCaseError> {
     prop_assert!(p.is_finite(), "power {p} not finite");
-    prop_assert!(p >= cfg.min_tx_dbm.0 - EPS, "power {p} below min {}", cfg.min_tx_dbm.0);
-    prop_assert!(p <= cfg.max_tx_dbm.0 + EPS, "power {p} above max {}", cfg.max_tx_dbm.0);
+    prop_assert!(
+        p >= cfg.min_tx_dbm.0 - EPS,
+        "power {p} below min {}",
+        cfg.min_tx_dbm.0
+    );
+    prop_assert!(
+        p <= cfg.max_tx_dbm.0 + EPS,
+        "power {p} above max {}",
+        cfg.max_tx_dbm.0
+    );
     prop_assert!(
         p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + EPS,
         "EIRP {} above cap {}",
@@ -143,30 +169,45 @@ fn check(cfg: &ControllerConfig, prev: f32, p: f32) -> Result<(), TestCaseError>
     );
     prop_assert!(on_grid(cfg, p), "power {p} not on the grid {:?}", cfg.steps);
     prop_assert!(p - prev <= cfg.max_step_up_db.0 + EPS, "rise {prev} -> {p}");
-    prop_assert!(prev - p <= cfg.max_step_down_db.0 + EPS, "fall {prev} -> {p}");
+    prop_assert!(
+        prev - p <= cfg.max_step_down_db.0 + EPS,
+        "fall {prev} -> {p}"
+    );
     Ok(())
 }
 
-fn drive<const W: usize>(cfg: ControllerConfig, script: &[(i64, Stim)]) -> Result<(), TestCaseError> {
+fn drive<const W: usize>(
+    cfg: ControllerConfig,
+    script: &[(i64, Stim)],
+) -> Result<(), TestCaseError> {
     let Ok(mut c) = Controller::<W>::new(cfg) else {
         return Ok(());
     };
     let mut prev = c.tx().0;
     check(&cfg, prev, prev)?;
     let mut t: u64 = 1_000_000_000;
-    let feed = |c: &mut Controller<W>, obs: Observation, prev: &mut f32| -> Result<(), TestCaseError> {
-        let d = c.update(&obs);
-        check(&cfg, *prev, d.tx.0)?;
-        prop_assert_eq!(d.tx, c.tx());
-        prop_assert!(d.margin.0.is_finite());
-        prop_assert!(d.margin.0 >= cfg.margin_min_db.0 - EPS && d.margin.0 <= cfg.margin_max_db.0 + EPS);
-        *prev = d.tx.0;
-        Ok(())
-    };
+    let feed =
+        |c: &mut Controller<W>, obs: Observation, prev: &mut f32| -> Result<(), TestCaseError> {
+            let d = c.update(&obs);
+            check(&cfg, *prev, d.tx.0)?;
+            prop_assert_eq!(d.tx, c.tx());
+            prop_assert!(d.margin.0.is_finite());
+            prop_assert!(
+                d.margin.0 >= cfg.margin_min_db.0 - EPS && d.margin.0 <= cfg.margin_max_db.0 + EPS
+            );
+            *prev = d.tx.0;
+            Ok(())
+        };
     for (dt, s) in script {
         t = t.saturating_add_signed(*dt);
         match *s {
-            Stim::Feedback { pl, noise, wild_rssi, wild_tx, snr } => {
+            Stim::Feedback {
+                pl,
+                noise,
+                wild_rssi,
+                wild_tx,
+                snr,
+            } => {
                 let tx = wild_tx.unwrap_or(c.tx().0);
                 let rssi = wild_rssi.unwrap_or(c.tx().0 + 4.3 - pl);
                 let obs = Observation::Feedback {
@@ -185,7 +226,11 @@ fn drive<const W: usize>(cfg: ControllerConfig, script: &[(i64, Stim)]) -> Resul
                 }
             }
             Stim::Beacon { tx, rssi } => {
-                let obs = Observation::Beacon { t_ms: t, beacon_tx: Dbm(tx), rssi: Dbm(rssi) };
+                let obs = Observation::Beacon {
+                    t_ms: t,
+                    beacon_tx: Dbm(tx),
+                    rssi: Dbm(rssi),
+                };
                 feed(&mut c, obs, &mut prev)?;
             }
             Stim::Missing => feed(&mut c, Observation::Missing { t_ms: t }, &mut prev)?,
@@ -258,23 +303,126 @@ proptest! {
 fn contradictory_settings_are_refused_by_name() {
     let base = ControllerConfig::sub_ghz_node();
     let cases: Vec<(ControllerConfig, &str)> = vec![
-        (ControllerConfig { min_tx_dbm: Dbm(23.0), ..base }, "min_tx_dbm"),
-        (ControllerConfig { eirp_cap_dbm: Dbm(-10.0), ..base }, "eirp_cap_dbm"),
-        (ControllerConfig { target_outage: 0.0, ..base }, "target_outage"),
-        (ControllerConfig { target_outage: 1.0, ..base }, "target_outage"),
-        (ControllerConfig { target_outage: f32::NAN, ..base }, "target_outage"),
-        (ControllerConfig { required_snr_db: Db(f32::NAN), ..base }, "required_snr_db"),
-        (ControllerConfig { antenna_gain_dbi: Dbi(f32::INFINITY), ..base }, "antenna_gain_dbi"),
-        (ControllerConfig { steps: PowerSteps::Uniform(Db(0.0)), ..base }, "steps.uniform"),
-        (ControllerConfig { steps: PowerSteps::Uniform(Db(-1.0)), ..base }, "steps.uniform"),
-        (ControllerConfig { max_step_up_db: Db(0.0), ..base }, "max_step_up_db"),
-        (ControllerConfig { max_step_down_db: Db(0.5), ..base }, "max_step_down_db"),
-        (ControllerConfig { start_tx_dbm: Dbm(20.0), ..base }, "start_tx_dbm"),
-        (ControllerConfig { margin_min_db: Db(5.0), margin_max_db: Db(1.0), ..base }, "margin_min_db"),
-        (ControllerConfig { min_readings: 0, ..base }, "min_readings"),
-        (ControllerConfig { spread_memory: 0, ..base }, "spread_memory"),
-        (ControllerConfig { stale_after_ms: 0, ..base }, "stale_after_ms"),
-        (ControllerConfig { rssi_min_dbm: Dbm(30.0), ..base }, "rssi_min_dbm"),
+        (
+            ControllerConfig {
+                min_tx_dbm: Dbm(23.0),
+                ..base
+            },
+            "min_tx_dbm",
+        ),
+        (
+            ControllerConfig {
+                eirp_cap_dbm: Dbm(-10.0),
+                ..base
+            },
+            "eirp_cap_dbm",
+        ),
+        (
+            ControllerConfig {
+                target_outage: 0.0,
+                ..base
+            },
+            "target_outage",
+        ),
+        (
+            ControllerConfig {
+                target_outage: 1.0,
+                ..base
+            },
+            "target_outage",
+        ),
+        (
+            ControllerConfig {
+                target_outage: f32::NAN,
+                ..base
+            },
+            "target_outage",
+        ),
+        (
+            ControllerConfig {
+                required_snr_db: Db(f32::NAN),
+                ..base
+            },
+            "required_snr_db",
+        ),
+        (
+            ControllerConfig {
+                antenna_gain_dbi: Dbi(f32::INFINITY),
+                ..base
+            },
+            "antenna_gain_dbi",
+        ),
+        (
+            ControllerConfig {
+                steps: PowerSteps::Uniform(Db(0.0)),
+                ..base
+            },
+            "steps.uniform",
+        ),
+        (
+            ControllerConfig {
+                steps: PowerSteps::Uniform(Db(-1.0)),
+                ..base
+            },
+            "steps.uniform",
+        ),
+        (
+            ControllerConfig {
+                max_step_up_db: Db(0.0),
+                ..base
+            },
+            "max_step_up_db",
+        ),
+        (
+            ControllerConfig {
+                max_step_down_db: Db(0.5),
+                ..base
+            },
+            "max_step_down_db",
+        ),
+        (
+            ControllerConfig {
+                start_tx_dbm: Dbm(20.0),
+                ..base
+            },
+            "start_tx_dbm",
+        ),
+        (
+            ControllerConfig {
+                margin_min_db: Db(5.0),
+                margin_max_db: Db(1.0),
+                ..base
+            },
+            "margin_min_db",
+        ),
+        (
+            ControllerConfig {
+                min_readings: 0,
+                ..base
+            },
+            "min_readings",
+        ),
+        (
+            ControllerConfig {
+                spread_memory: 0,
+                ..base
+            },
+            "spread_memory",
+        ),
+        (
+            ControllerConfig {
+                stale_after_ms: 0,
+                ..base
+            },
+            "stale_after_ms",
+        ),
+        (
+            ControllerConfig {
+                rssi_min_dbm: Dbm(30.0),
+                ..base
+            },
+            "rssi_min_dbm",
+        ),
     ];
     for (cfg, name) in cases {
         match cfg.validate() {
@@ -286,7 +434,10 @@ fn contradictory_settings_are_refused_by_name() {
             Ok(()) => panic!("{name}: accepted {cfg:?}"),
         }
     }
-    assert!(Controller::<0>::new(base).is_err(), "a window of zero is refused");
+    assert!(
+        Controller::<0>::new(base).is_err(),
+        "a window of zero is refused"
+    );
     let table = LevelTable::new(&[Dbm(0.0), Dbm(-3.0)]);
     assert!(table.is_err(), "descending table refused");
     assert!(LevelTable::new(&[]).is_err());

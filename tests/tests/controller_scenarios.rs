@@ -45,8 +45,12 @@ enum Kind {
     InterferenceBursts,
 }
 
-const KINDS: [Kind; 4] =
-    [Kind::StaticRayleigh, Kind::MovingRicianShadowed, Kind::Steps, Kind::InterferenceBursts];
+const KINDS: [Kind; 4] = [
+    Kind::StaticRayleigh,
+    Kind::MovingRicianShadowed,
+    Kind::Steps,
+    Kind::InterferenceBursts,
+];
 
 /// Packet index of the path-loss steps of [`Kind::Steps`]: +20 dB, then −20 dB.
 const STEP_UP_AT: u64 = 50_000;
@@ -74,9 +78,17 @@ impl Kind {
         let fade = |r1: f32, r10: f32| if one { r1 } else { r10 };
         // (distance start, speed, min, max, shadowing, fading, bursts, rise, S0)
         let (start, speed, min, max, shadowing, fading, bursts, rise, s0) = match self {
-            Kind::StaticRayleigh => {
-                (100.0, 0.0, None, None, None, FastFading::Rayleigh, None, 0.0, 8.0 + fade(20.0, 10.0) - 2.5)
-            }
+            Kind::StaticRayleigh => (
+                100.0,
+                0.0,
+                None,
+                None,
+                None,
+                FastFading::Rayleigh,
+                None,
+                0.0,
+                8.0 + fade(20.0, 10.0) - 2.5,
+            ),
             Kind::MovingRicianShadowed => (
                 80.0,
                 1.5,
@@ -92,9 +104,17 @@ impl Kind {
                 0.0,
                 8.0 + fade(11.0, 5.0) - 2.5,
             ),
-            Kind::Steps => {
-                (100.0, 0.0, None, None, None, FastFading::Rayleigh, None, 0.0, 8.0 + fade(20.0, 10.0) + 7.5)
-            }
+            Kind::Steps => (
+                100.0,
+                0.0,
+                None,
+                None,
+                None,
+                FastFading::Rayleigh,
+                None,
+                0.0,
+                8.0 + fade(20.0, 10.0) + 7.5,
+            ),
             Kind::InterferenceBursts => (
                 100.0,
                 0.0,
@@ -102,7 +122,10 @@ impl Kind {
                 None,
                 None,
                 FastFading::Rician { k_db: 3.0 },
-                Some(Episodes { rate_per_hour: 4.0, mean_duration_s: 120.0 }),
+                Some(Episodes {
+                    rate_per_hour: 4.0,
+                    mean_duration_s: 120.0,
+                }),
                 12.0,
                 8.0 + fade(15.0, 7.0) + 3.5,
             ),
@@ -121,21 +144,37 @@ impl Kind {
             },
             tx_antenna_gain: Dbi(2.15),
             rx_antenna_gain: Dbi(2.15),
-            trajectory: Trajectory { start: Metres(start), speed_m_per_s: speed, min, max },
+            trajectory: Trajectory {
+                start: Metres(start),
+                speed_m_per_s: speed,
+                min,
+                max,
+            },
             packet_interval_ms: 10_000,
             start_ms: 0,
             shadowing,
             fading,
             fading_correlation: 0.0,
-            noise: NoiseFloor { mean: Dbm(-117.0), jitter: Db(1.0), bursts, burst_rise: Db(rise) },
+            noise: NoiseFloor {
+                mean: Dbm(-117.0),
+                jitter: Db(1.0),
+                bursts,
+                burst_rise: Db(rise),
+            },
             min_snr: None,
             feedback_dropouts: None,
             report_resolution: Some(Db(1.0)),
             steps: Default::default(),
         };
         if self == Kind::Steps {
-            let up = cfg.steps.push(PathLossStep { at_packet: STEP_UP_AT, change: Db(20.0) });
-            let down = cfg.steps.push(PathLossStep { at_packet: STEP_DOWN_AT, change: Db(-20.0) });
+            let up = cfg.steps.push(PathLossStep {
+                at_packet: STEP_UP_AT,
+                change: Db(20.0),
+            });
+            let down = cfg.steps.push(PathLossStep {
+                at_packet: STEP_DOWN_AT,
+                change: Db(-20.0),
+            });
             assert!(up.is_ok() && down.is_ok());
         }
         cfg
@@ -143,12 +182,17 @@ impl Kind {
 
     fn log(self, target: f32, seed: u64) -> Vec<LogRecord> {
         let mut ch = Channel::new(self.channel(target), seed).expect("scenario channel is valid");
-        (0..PACKETS).map(|_| ch.packet(Dbm(LOG_TX)).expect("packet").record()).collect()
+        (0..PACKETS)
+            .map(|_| ch.packet(Dbm(LOG_TX)).expect("packet").record())
+            .collect()
     }
 }
 
 fn config(target: f32) -> ControllerConfig {
-    ControllerConfig { target_outage: target, ..ControllerConfig::sub_ghz_node() }
+    ControllerConfig {
+        target_outage: target,
+        ..ControllerConfig::sub_ghz_node()
+    }
 }
 
 /// Result of one policy over one log.
@@ -200,7 +244,9 @@ fn run_best_snr(log: &[LogRecord], cfg: &ControllerConfig) -> Run {
     let (mut judged, mut lost, mut sum_mw, mut run) = (0usize, 0usize, 0.0f64, 0u32);
     for rec in log {
         sum_mw += 10f64.powf(f64::from(tx) / 10.0);
-        let Some((ok, snr)) = judge(rec, tx, req) else { continue };
+        let Some((ok, snr)) = judge(rec, tx, req) else {
+            continue;
+        };
         judged += 1;
         if ok {
             run = 0;
@@ -221,7 +267,10 @@ fn run_best_snr(log: &[LogRecord], cfg: &ControllerConfig) -> Run {
             }
         }
     }
-    Run { loss: lost as f64 / judged as f64, mean_dbm: mean_dbm(sum_mw, log.len()) }
+    Run {
+        loss: lost as f64 / judged as f64,
+        mean_dbm: mean_dbm(sum_mw, log.len()),
+    }
 }
 
 /// Baseline 2 with a given margin: exponentially filtered loss to noise plus
@@ -237,7 +286,9 @@ fn run_filtered(log: &[LogRecord], cfg: &ControllerConfig, margin: f32) -> Run {
     let (mut judged, mut lost, mut sum_mw) = (0usize, 0usize, 0.0f64);
     for rec in log {
         sum_mw += 10f64.powf(f64::from(tx) / 10.0);
-        let Some((ok, snr)) = judge(rec, tx, req) else { continue };
+        let Some((ok, snr)) = judge(rec, tx, req) else {
+            continue;
+        };
         judged += 1;
         if ok {
             let z = tx - snr;
@@ -253,7 +304,10 @@ fn run_filtered(log: &[LogRecord], cfg: &ControllerConfig, margin: f32) -> Run {
             tx = (lo + ((want - lo) / 1.0).ceil() * 1.0).clamp(lo, hi);
         }
     }
-    Run { loss: lost as f64 / judged as f64, mean_dbm: mean_dbm(sum_mw, log.len()) }
+    Run {
+        loss: lost as f64 / judged as f64,
+        mean_dbm: mean_dbm(sum_mw, log.len()),
+    }
 }
 
 /// Baseline 2 with the margin chosen in hindsight: the smallest margin
@@ -282,7 +336,10 @@ fn always_max(log: &[LogRecord], cfg: &ControllerConfig) -> Run {
             lost += usize::from(!ok);
         }
     }
-    Run { loss: lost as f64 / judged as f64, mean_dbm: f64::from(hi) }
+    Run {
+        loss: lost as f64 / judged as f64,
+        mean_dbm: f64::from(hi),
+    }
 }
 
 struct Row {
@@ -305,7 +362,15 @@ fn evaluate(kind: Kind, seed: u64) -> Vec<Row> {
             let best = run_best_snr(&log, &cfg);
             let (filt, filt_margin) = run_filtered_tuned(&log, &cfg);
             let max = always_max(&log, &cfg);
-            Row { kind, target, ctl, best, filt, filt_margin, max }
+            Row {
+                kind,
+                target,
+                ctl,
+                best,
+                filt,
+                filt_margin,
+                max,
+            }
         })
         .collect()
 }
@@ -339,10 +404,16 @@ fn comparison_table() {
             );
             let t = f64::from(r.target);
             if (r.ctl.loss - t).abs() > 0.3 * t {
-                failures.push(format!("{:?} {t}: controller loss {:.4}", r.kind, r.ctl.loss));
+                failures.push(format!(
+                    "{:?} {t}: controller loss {:.4}",
+                    r.kind, r.ctl.loss
+                ));
             }
             if r.ctl.mean_dbm > r.max.mean_dbm - 3.0 {
-                failures.push(format!("{:?} {t}: mean power {:.2} not well below max", r.kind, r.ctl.mean_dbm));
+                failures.push(format!(
+                    "{:?} {t}: mean power {:.2} not well below max",
+                    r.kind, r.ctl.mean_dbm
+                ));
             }
             if r.ctl.mean_dbm > r.filt.mean_dbm + FILTER_TOLERANCE_DB {
                 failures.push(format!(
@@ -351,7 +422,10 @@ fn comparison_table() {
                 ));
             }
             if matches!(r.kind, Kind::StaticRayleigh) && t == 0.01 && r.best.loss < 3.0 * t {
-                failures.push(format!("best-SNR baseline unexpectedly meets 1 %: {:.4}", r.best.loss));
+                failures.push(format!(
+                    "best-SNR baseline unexpectedly meets 1 %: {:.4}",
+                    r.best.loss
+                ));
             }
         }
     }
@@ -374,24 +448,41 @@ fn recovers_after_a_20_db_step() {
         let log = Kind::Steps.log(target, 77);
         let (_, lost) = run_controller(&log, target);
         let t = f64::from(target);
-        let rate = |a: usize, b: usize| lost[a..b].iter().filter(|&&l| l).count() as f64 / (b - a) as f64;
+        let rate =
+            |a: usize, b: usize| lost[a..b].iter().filter(|&&l| l).count() as f64 / (b - a) as f64;
         let up = STEP_UP_AT as usize;
         let down = STEP_DOWN_AT as usize;
         let burst = lost[up..up + 50].iter().filter(|&&l| l).count();
-        assert!(burst <= first_50_max, "target {target}: {burst} of the 50 packets after the step lost");
+        assert!(
+            burst <= first_50_max,
+            "target {target}: {burst} of the 50 packets after the step lost"
+        );
         let early = rate(up + 50, up + 1050);
-        assert!(early <= 1.3 * t, "target {target}: loss {early:.4} in packets 50..1050 after the step");
+        assert!(
+            early <= 1.3 * t,
+            "target {target}: loss {early:.4} in packets 50..1050 after the step"
+        );
         let settled = rate(up + 2000, down);
-        assert!((settled - t).abs() <= 0.3 * t, "target {target}: loss {settled:.4} after recovery");
+        assert!(
+            (settled - t).abs() <= 0.3 * t,
+            "target {target}: loss {settled:.4} after recovery"
+        );
         let after_down = rate(down, down + 1000);
-        assert!(after_down <= 1.3 * t, "target {target}: loss {after_down:.4} after the -20 dB step");
+        assert!(
+            after_down <= 1.3 * t,
+            "target {target}: loss {after_down:.4} after the -20 dB step"
+        );
     }
 }
 
 /// The same seed gives the same replay, bit for bit.
 #[test]
 fn replay_is_deterministic() {
-    let log: Vec<LogRecord> = Kind::MovingRicianShadowed.log(0.01, 5).into_iter().take(5_000).collect();
+    let log: Vec<LogRecord> = Kind::MovingRicianShadowed
+        .log(0.01, 5)
+        .into_iter()
+        .take(5_000)
+        .collect();
     let run = |log: &[LogRecord]| {
         let mut r = Replay::<W>::new(config(0.01)).expect("valid");
         log.iter().map(|rec| r.step(rec)).collect::<Vec<_>>()

@@ -60,8 +60,9 @@ fn config() -> ControllerConfig {
 }
 
 fn replay(sc: &Scenario) -> (Vec<LogRecord>, Vec<ReplayStep>) {
-    let mut synth = Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, SEED)
-        .expect("scenario is valid");
+    let mut synth =
+        Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, SEED)
+            .expect("scenario is valid");
     let mut rp = Replay::<32>::new(config()).expect("controller settings are valid");
     let mut records = Vec::with_capacity(RECORDS);
     let mut steps = Vec::with_capacity(RECORDS);
@@ -80,17 +81,30 @@ fn runs() -> Vec<Run> {
         .filter(|p| p.extension().is_some_and(|e| e == "toml"))
         .collect();
     files.sort();
-    assert!(files.len() >= 8, "expected the eight fault scenarios, found {}", files.len());
+    assert!(
+        files.len() >= 8,
+        "expected the eight fault scenarios, found {}",
+        files.len()
+    );
     files
         .iter()
         .map(|p| {
             let text = std::fs::read_to_string(p).expect("readable scenario");
-            let sc: Scenario = toml::from_str(&text)
-                .unwrap_or_else(|e| panic!("{}: {e}", p.display()));
+            let sc: Scenario =
+                toml::from_str(&text).unwrap_or_else(|e| panic!("{}: {e}", p.display()));
             assert!(!sc.faults.is_empty(), "{} has no fault", p.display());
             let (records, steps) = replay(&sc);
-            let name = p.file_stem().and_then(|s| s.to_str()).unwrap_or("?").to_string();
-            Run { name, faults: sc.faults, records, steps }
+            let name = p
+                .file_stem()
+                .and_then(|s| s.to_str())
+                .unwrap_or("?")
+                .to_string();
+            Run {
+                name,
+                faults: sc.faults,
+                records,
+                steps,
+            }
         })
         .collect()
 }
@@ -98,7 +112,10 @@ fn runs() -> Vec<Run> {
 fn is_ignored(r: Reason) -> bool {
     matches!(
         r,
-        Reason::IgnoredNotFinite | Reason::IgnoredImplausible | Reason::IgnoredSaturated | Reason::IgnoredStale
+        Reason::IgnoredNotFinite
+            | Reason::IgnoredImplausible
+            | Reason::IgnoredSaturated
+            | Reason::IgnoredStale
     )
 }
 
@@ -120,10 +137,14 @@ fn ignored_in(steps: &[ReplayStep], start: usize, end: usize) -> Vec<(Reason, us
 /// [`RECOVERY_WINDOW`] judged packets is at most `RECOVERY_FACTOR × target`;
 /// `None` if it never is.
 fn packets_to_recover(steps: &[ReplayStep], end: usize) -> Option<usize> {
-    let limit = (RECOVERY_FACTOR * config().target_outage * RECOVERY_WINDOW as f32).floor() as usize;
+    let limit =
+        (RECOVERY_FACTOR * config().target_outage * RECOVERY_WINDOW as f32).floor() as usize;
     (end..steps.len()).find_map(|k| {
-        let judged: Vec<&ReplayStep> =
-            steps[k..].iter().filter(|s| s.outcome != Outcome::Unjudged).take(RECOVERY_WINDOW).collect();
+        let judged: Vec<&ReplayStep> = steps[k..]
+            .iter()
+            .filter(|s| s.outcome != Outcome::Unjudged)
+            .take(RECOVERY_WINDOW)
+            .collect();
         if judged.len() < RECOVERY_WINDOW {
             return None;
         }
@@ -134,7 +155,10 @@ fn packets_to_recover(steps: &[ReplayStep], end: usize) -> Option<usize> {
 
 /// Lost over judged packets.
 fn loss_rate(steps: &[ReplayStep]) -> f32 {
-    let judged = steps.iter().filter(|s| s.outcome != Outcome::Unjudged).count();
+    let judged = steps
+        .iter()
+        .filter(|s| s.outcome != Outcome::Unjudged)
+        .count();
     let lost = steps.iter().filter(|s| s.outcome == Outcome::Lost).count();
     if judged == 0 {
         0.0
@@ -171,14 +195,28 @@ fn controller_invariants_hold_through_every_fault() {
             let ctx = format!("{} record {k}", run.name);
             for p in [s.chosen, s.next_tx] {
                 assert!(p.is_finite(), "{ctx}: power {p:?}");
-                assert!(p.0 >= lo.0 - 1e-4 && p.0 <= hi.0 + 1e-4, "{ctx}: {} outside {lo:?}..{hi:?}", p.0);
-                assert!(p.0 <= cfg.max_tx_dbm.0 + 1e-4, "{ctx}: above the radio's maximum");
-                assert!(p.0 + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + 1e-3, "{ctx}: above the EIRP cap");
+                assert!(
+                    p.0 >= lo.0 - 1e-4 && p.0 <= hi.0 + 1e-4,
+                    "{ctx}: {} outside {lo:?}..{hi:?}",
+                    p.0
+                );
+                assert!(
+                    p.0 <= cfg.max_tx_dbm.0 + 1e-4,
+                    "{ctx}: above the radio's maximum"
+                );
+                assert!(
+                    p.0 + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + 1e-3,
+                    "{ctx}: above the EIRP cap"
+                );
                 assert!(c.is_level(p), "{ctx}: {} is not on the power grid", p.0);
             }
             let up = s.next_tx.0 - s.chosen.0;
             assert!(up <= cfg.max_step_up_db.0 + 1e-3, "{ctx}: step up {up} dB");
-            assert!(-up <= cfg.max_step_down_db.0 + 1e-3, "{ctx}: step down {} dB", -up);
+            assert!(
+                -up <= cfg.max_step_down_db.0 + 1e-3,
+                "{ctx}: step down {} dB",
+                -up
+            );
             assert!(s.margin.is_finite());
         }
     }
@@ -194,13 +232,31 @@ fn unusable_readings_are_ignored_with_a_reason() {
             let ctx = format!("{}: {}", run.name, kind_name(&f.kind));
             match f.kind {
                 FaultKind::NotANumber { .. } | FaultKind::Infinite { .. } => {
-                    let present = run.records[a..b].iter().filter(|r| r.rssi_dbm.is_some()).count();
+                    let present = run.records[a..b]
+                        .iter()
+                        .filter(|r| r.rssi_dbm.is_some())
+                        .count();
                     assert_eq!(count(Reason::IgnoredNotFinite), present, "{ctx}");
-                    assert!(run.steps[a..b].iter().all(|s| s.outcome == Outcome::Unjudged), "{ctx}");
+                    assert!(
+                        run.steps[a..b]
+                            .iter()
+                            .all(|s| s.outcome == Outcome::Unjudged),
+                        "{ctx}"
+                    );
                 }
                 FaultKind::FeedbackDropout => {
-                    assert!(run.steps[a..b].iter().all(|s| s.outcome == Outcome::Unjudged), "{ctx}");
-                    assert!(run.steps[a..b].iter().all(|s| s.reason == Reason::NoInformation), "{ctx}");
+                    assert!(
+                        run.steps[a..b]
+                            .iter()
+                            .all(|s| s.outcome == Outcome::Unjudged),
+                        "{ctx}"
+                    );
+                    assert!(
+                        run.steps[a..b]
+                            .iter()
+                            .all(|s| s.reason == Reason::NoInformation),
+                        "{ctx}"
+                    );
                 }
                 FaultKind::BackwardsTimestamp { .. } => {
                     assert_eq!(count(Reason::IgnoredStale), b - a, "{ctx}");
@@ -216,7 +272,12 @@ fn loss_rate_returns_to_target_after_every_fault() {
     for run in runs() {
         // The clean stretch before the first fault (after a warm-up of
         // 500 packets) is at target.
-        let first = run.faults.iter().map(|f| f.start as usize).min().unwrap_or(0);
+        let first = run
+            .faults
+            .iter()
+            .map(|f| f.start as usize)
+            .min()
+            .unwrap_or(0);
         let rate = loss_rate(&run.steps[500..first]);
         assert!(
             rate <= RECOVERY_FACTOR * config().target_outage,
@@ -245,10 +306,18 @@ fn print_fault_table() {
             let ignored = if ignored.is_empty() {
                 "0".to_string()
             } else {
-                ignored.iter().map(|(r, n)| format!("{n} {}", r.as_str())).collect::<Vec<_>>().join(", ")
+                ignored
+                    .iter()
+                    .map(|(r, n)| format!("{n} {}", r.as_str()))
+                    .collect::<Vec<_>>()
+                    .join(", ")
             };
-            let rec = packets_to_recover(&run.steps, b).map_or("never".to_string(), |n| n.to_string());
-            let lost = run.steps[a..b].iter().filter(|s| s.outcome == Outcome::Lost).count();
+            let rec =
+                packets_to_recover(&run.steps, b).map_or("never".to_string(), |n| n.to_string());
+            let lost = run.steps[a..b]
+                .iter()
+                .filter(|s| s.outcome == Outcome::Lost)
+                .count();
             println!(
                 "| {} | {} | {}..{} | {} | {} | {} |",
                 run.name,
@@ -286,7 +355,10 @@ fn logged_readings_outside_the_radio_range_are_ignored() {
             let (a, b) = (f.start as usize, f.end() as usize);
             let ignored: usize = ignored_in(&run.steps, a, b).iter().map(|(_, n)| n).sum();
             let ctx = format!("{}: {}", run.name, kind_name(&f.kind));
-            if matches!(f.kind, FaultKind::Saturation { .. } | FaultKind::Milliwatts { .. }) {
+            if matches!(
+                f.kind,
+                FaultKind::Saturation { .. } | FaultKind::Milliwatts { .. }
+            ) {
                 assert_eq!(ignored, b - a, "{ctx}");
             }
         }

@@ -18,16 +18,30 @@ use proptest::prelude::*;
 fn base() -> ChannelConfig {
     ChannelConfig {
         frequency: Hertz(868.0e6),
-        path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: None, exponent: 3.0 },
+        path_loss: PathLossModel::LogDistance {
+            d0: Metres(1.0),
+            pl_d0: None,
+            exponent: 3.0,
+        },
         tx_antenna_gain: Dbi(2.0),
         rx_antenna_gain: Dbi(3.0),
-        trajectory: Trajectory { start: Metres(500.0), speed_m_per_s: 0.0, min: None, max: None },
+        trajectory: Trajectory {
+            start: Metres(500.0),
+            speed_m_per_s: 0.0,
+            min: None,
+            max: None,
+        },
         packet_interval_ms: 1000,
         start_ms: 0,
         shadowing: None,
         fading: FastFading::None,
         fading_correlation: 0.0,
-        noise: NoiseFloor { mean: Dbm(-117.0), jitter: Db(0.0), bursts: None, burst_rise: Db(0.0) },
+        noise: NoiseFloor {
+            mean: Dbm(-117.0),
+            jitter: Db(0.0),
+            bursts: None,
+            burst_rise: Db(0.0),
+        },
         min_snr: None,
         feedback_dropouts: None,
         report_resolution: None,
@@ -38,7 +52,16 @@ fn base() -> ChannelConfig {
 /// Everything switched on, for the determinism checks.
 fn busy() -> ChannelConfig {
     let mut steps = Steps::new();
-    for s in [PathLossStep { at_packet: 300, change: Db(20.0) }, PathLossStep { at_packet: 600, change: Db(-20.0) }] {
+    for s in [
+        PathLossStep {
+            at_packet: 300,
+            change: Db(20.0),
+        },
+        PathLossStep {
+            at_packet: 600,
+            change: Db(-20.0),
+        },
+    ] {
         assert!(steps.push(s).is_ok());
     }
     ChannelConfig {
@@ -58,11 +81,17 @@ fn busy() -> ChannelConfig {
         noise: NoiseFloor {
             mean: Dbm(-117.0),
             jitter: Db(1.0),
-            bursts: Some(Episodes { rate_per_hour: 20.0, mean_duration_s: 60.0 }),
+            bursts: Some(Episodes {
+                rate_per_hour: 20.0,
+                mean_duration_s: 60.0,
+            }),
             burst_rise: Db(15.0),
         },
         min_snr: Some(Db(-10.0)),
-        feedback_dropouts: Some(Episodes { rate_per_hour: 10.0, mean_duration_s: 30.0 }),
+        feedback_dropouts: Some(Episodes {
+            rate_per_hour: 10.0,
+            mean_duration_s: 30.0,
+        }),
         report_resolution: Some(Db(1.0)),
         steps,
         ..base()
@@ -71,7 +100,9 @@ fn busy() -> ChannelConfig {
 
 fn run(cfg: &ChannelConfig, seed: u64, n: usize, tx: f32) -> Vec<ChannelSample> {
     let mut ch = Channel::new(cfg.clone(), seed).expect("valid configuration");
-    (0..n).map(|_| ch.packet(Dbm(tx)).expect("finite packet")).collect()
+    (0..n)
+        .map(|_| ch.packet(Dbm(tx)).expect("finite packet"))
+        .collect()
 }
 
 fn mean(x: &[f64]) -> f64 {
@@ -93,7 +124,9 @@ fn autocorrelation(x: &[f64], lag: usize) -> f64 {
 }
 
 fn fading_power(s: &[ChannelSample]) -> Vec<f64> {
-    s.iter().map(|s| 10f64.powf(f64::from(s.fading.0) / 10.0)).collect()
+    s.iter()
+        .map(|s| 10f64.powf(f64::from(s.fading.0) / 10.0))
+        .collect()
 }
 
 fn fraction_below(x: &[f64], t: f64) -> f64 {
@@ -122,7 +155,9 @@ fn synth_records_are_deterministic_and_follow_the_pattern() {
     let power = PowerPattern::cycle(&[Dbm(2.0), Dbm(8.0), Dbm(14.0)], 4).expect("valid pattern");
     let make = |seed| {
         let mut s = Synth::<4>::new(busy(), power.clone(), &[], seed).expect("valid scenario");
-        (0..1000).map(|_| s.next_record().expect("record").1).collect::<Vec<_>>()
+        (0..1000)
+            .map(|_| s.next_record().expect("record").1)
+            .collect::<Vec<_>>()
     };
     let a = make(9);
     assert_eq!(a, make(9));
@@ -138,10 +173,16 @@ fn synth_records_are_deterministic_and_follow_the_pattern() {
 fn switching_one_process_off_leaves_the_others_unchanged() {
     // Each process draws from its own PCG32 stream.
     let with = run(&busy(), 77, 2000, 10.0);
-    let cfg = ChannelConfig { feedback_dropouts: None, ..busy() };
+    let cfg = ChannelConfig {
+        feedback_dropouts: None,
+        ..busy()
+    };
     let without = run(&cfg, 77, 2000, 10.0);
     for (a, b) in with.iter().zip(&without) {
-        assert_eq!((a.shadowing, a.fading, a.noise), (b.shadowing, b.fading, b.noise));
+        assert_eq!(
+            (a.shadowing, a.fading, a.noise),
+            (b.shadowing, b.fading, b.noise)
+        );
     }
 }
 
@@ -154,7 +195,11 @@ fn quiet_link_matches_the_reference_path_loss() {
     let s = run(&base(), 1, 3, 14.0);
     let pl = reference::log_distance_db(868.0e6, 500.0, 1.0, None, 3.0);
     for x in &s {
-        assert!((f64::from(x.true_path_loss.0) - pl).abs() < 0.01, "{} vs {pl}", x.true_path_loss.0);
+        assert!(
+            (f64::from(x.true_path_loss.0) - pl).abs() < 0.01,
+            "{} vs {pl}",
+            x.true_path_loss.0
+        );
         let rssi = 14.0 + 2.0 + 3.0 - pl;
         assert!((f64::from(x.rssi.0) - rssi).abs() < 0.01);
         assert_eq!(x.noise, Dbm(-117.0));
@@ -172,10 +217,21 @@ fn hata_trajectory_is_checked_against_its_validity_range() {
         env: HataEnvironment::Open,
         ext: Extrapolation::Refuse,
     };
-    let ok = ChannelConfig { path_loss: hata, trajectory: Trajectory { start: Metres(1200.0), ..base().trajectory }, ..base() };
+    let ok = ChannelConfig {
+        path_loss: hata,
+        trajectory: Trajectory {
+            start: Metres(1200.0),
+            ..base().trajectory
+        },
+        ..base()
+    };
     let s = run(&ok, 3, 1, 14.0);
     let want = reference::hata_db(868.0, 1.2, 30.0, 1.5, reference::HataEnv::Open);
-    assert!((f64::from(s[0].model_loss.0) - want).abs() < 0.02, "{} vs {want}", s[0].model_loss.0);
+    assert!(
+        (f64::from(s[0].model_loss.0) - want).abs() < 0.02,
+        "{} vs {want}",
+        s[0].model_loss.0
+    );
     // Hata 1980 is published for 1-20 km: a trajectory reaching 25 km is refused.
     let far = ChannelConfig {
         trajectory: Trajectory {
@@ -186,7 +242,10 @@ fn hata_trajectory_is_checked_against_its_validity_range() {
         },
         ..ok
     };
-    assert!(matches!(Channel::new(far, 1), Err(Error::OutOfValidity { .. })));
+    assert!(matches!(
+        Channel::new(far, 1),
+        Err(Error::OutOfValidity { .. })
+    ));
 }
 
 #[test]
@@ -218,8 +277,18 @@ fn trajectory_moves_at_its_speed_and_turns_at_the_ends() {
 #[test]
 fn scheduled_steps_change_the_loss_exactly() {
     let mut steps = Steps::new();
-    assert!(steps.push(PathLossStep { at_packet: 5, change: Db(20.0) }).is_ok());
-    assert!(steps.push(PathLossStep { at_packet: 8, change: Db(-20.0) }).is_ok());
+    assert!(steps
+        .push(PathLossStep {
+            at_packet: 5,
+            change: Db(20.0)
+        })
+        .is_ok());
+    assert!(steps
+        .push(PathLossStep {
+            at_packet: 8,
+            change: Db(-20.0)
+        })
+        .is_ok());
     let s = run(&ChannelConfig { steps, ..base() }, 1, 10, 0.0);
     for (k, x) in s.iter().enumerate() {
         let want = if (5..8).contains(&k) { 20.0 } else { 0.0 };
@@ -260,7 +329,15 @@ fn rayleigh_power_is_exponential() {
     // |h|² of a zero-mean complex Gaussian gain is exponential with mean 1:
     // P(|h|² < x) = 1 − exp(−x) (common practice).
     let n = 200_000;
-    let p = fading_power(&run(&ChannelConfig { fading: FastFading::Rayleigh, ..base() }, 11, n, 0.0));
+    let p = fading_power(&run(
+        &ChannelConfig {
+            fading: FastFading::Rayleigh,
+            ..base()
+        },
+        11,
+        n,
+        0.0,
+    ));
     let m = mean(&p);
     assert!((m - 1.0).abs() < 0.02, "mean power {m}");
     // Variance of an exponential with mean 1 is 1.
@@ -271,7 +348,10 @@ fn rayleigh_power_is_exponential() {
         // Binomial standard error at n = 200 000 is ≤ 0.0011; deep fades are
         // held to 10 % relative (≈ 4.5 standard errors at x = 0.01).
         let tol = (0.1 * want).min(0.005);
-        assert!((got - want).abs() < tol, "P(power < {x}) = {got}, closed form {want}");
+        assert!(
+            (got - want).abs() < tol,
+            "P(power < {x}) = {got}, closed form {want}"
+        );
     }
     // Independent packets: no lag-1 correlation.
     assert!(autocorrelation(&p, 1).abs() < 0.01);
@@ -282,13 +362,23 @@ fn correlated_rayleigh_keeps_its_marginal_and_has_power_correlation_rho_squared(
     // For a complex Gaussian g with correlation ρ between packets, the power
     // |g|² has correlation |ρ|² (Isserlis' theorem; common practice).
     let rho = 0.9;
-    let cfg = ChannelConfig { fading: FastFading::Rayleigh, fading_correlation: rho, ..base() };
+    let cfg = ChannelConfig {
+        fading: FastFading::Rayleigh,
+        fading_correlation: rho,
+        ..base()
+    };
     let p = fading_power(&run(&cfg, 12, 400_000, 0.0));
     assert!((mean(&p) - 1.0).abs() < 0.02);
     let r1 = autocorrelation(&p, 1);
-    assert!((r1 - f64::from(rho * rho)).abs() < 0.02, "lag-1 power correlation {r1}");
+    assert!(
+        (r1 - f64::from(rho * rho)).abs() < 0.02,
+        "lag-1 power correlation {r1}"
+    );
     let got = fraction_below(&p, 0.1);
-    assert!((got - (1.0 - (-0.1f64).exp())).abs() < 0.006, "P(power < 0.1) = {got}");
+    assert!(
+        (got - (1.0 - (-0.1f64).exp())).abs() < 0.006,
+        "P(power < 0.1) = {got}"
+    );
 }
 
 #[test]
@@ -297,7 +387,10 @@ fn rician_k_is_recovered_from_the_power_moments() {
     // with γ = Var/mean², K = √(1−γ)/(1 − √(1−γ)) (the moment method of
     // Greenstein, Michelson and Erceg, IEEE Commun. Lett. 3(6), 1999; from memory).
     for (seed, k_db) in [(21u64, 6.0f32), (22, 10.0), (23, 0.0)] {
-        let cfg = ChannelConfig { fading: FastFading::Rician { k_db }, ..base() };
+        let cfg = ChannelConfig {
+            fading: FastFading::Rician { k_db },
+            ..base()
+        };
         let p = fading_power(&run(&cfg, seed, 200_000, 0.0));
         let m = mean(&p);
         assert!((m - 1.0).abs() < 0.01, "K {k_db} dB: mean power {m}");
@@ -332,7 +425,10 @@ fn rician_power_cdf(k: f64, x: f64) -> f64 {
 #[test]
 fn rician_power_follows_the_rice_distribution() {
     let k_db = 6.0f32;
-    let cfg = ChannelConfig { fading: FastFading::Rician { k_db }, ..base() };
+    let cfg = ChannelConfig {
+        fading: FastFading::Rician { k_db },
+        ..base()
+    };
     let p = fading_power(&run(&cfg, 31, 200_000, 0.0));
     let k = 10f64.powf(f64::from(k_db) / 10.0);
     // The quadrature itself: the whole density integrates to 1.
@@ -341,7 +437,10 @@ fn rician_power_follows_the_rice_distribution() {
         let want = rician_power_cdf(k, x);
         let got = fraction_below(&p, x);
         let tol = (0.1 * want).clamp(0.0008, 0.005);
-        assert!((got - want).abs() < tol, "P(power < {x}) = {got}, closed form {want}");
+        assert!(
+            (got - want).abs() < tol,
+            "P(power < {x}) = {got}, closed form {want}"
+        );
     }
 }
 
@@ -357,17 +456,27 @@ fn shadowing_has_its_sigma_and_gudmundson_correlation() {
             min: Some(Metres(100.0)),
             max: Some(Metres(20_000.0)),
         },
-        shadowing: Some(Shadowing { sigma: Db(8.0), decorrelation_distance: Metres(50.0), time_constant_s: None }),
+        shadowing: Some(Shadowing {
+            sigma: Db(8.0),
+            decorrelation_distance: Metres(50.0),
+            time_constant_s: None,
+        }),
         ..base()
     };
-    let s: Vec<f64> = run(&cfg, 41, 300_000, 0.0).iter().map(|x| f64::from(x.shadowing.0)).collect();
+    let s: Vec<f64> = run(&cfg, 41, 300_000, 0.0)
+        .iter()
+        .map(|x| f64::from(x.shadowing.0))
+        .collect();
     let sd = variance(&s).sqrt();
     assert!((sd - 8.0).abs() < 0.2, "sigma {sd}");
     assert!(mean(&s).abs() < 0.2);
     for lag in [1usize, 2, 5, 10] {
         let want = (-(10.0 * lag as f64) / 50.0).exp();
         let got = autocorrelation(&s, lag);
-        assert!((got - want).abs() < 0.02, "lag {lag}: {got} vs exp(-Δd/d_corr) = {want}");
+        assert!(
+            (got - want).abs() < 0.02,
+            "lag {lag}: {got} vs exp(-Δd/d_corr) = {want}"
+        );
     }
     // A log-normal shadowing is Gaussian in dB: P(|s| > σ) = erfc(1/√2) ≈ 0.3173.
     let outside = s.iter().filter(|v| v.abs() > 8.0).count() as f64 / s.len() as f64;
@@ -378,7 +487,11 @@ fn shadowing_has_its_sigma_and_gudmundson_correlation() {
 #[test]
 fn static_node_shadowing_changes_only_with_its_time_constant() {
     let frozen = ChannelConfig {
-        shadowing: Some(Shadowing { sigma: Db(4.0), decorrelation_distance: Metres(50.0), time_constant_s: None }),
+        shadowing: Some(Shadowing {
+            sigma: Db(4.0),
+            decorrelation_distance: Metres(50.0),
+            time_constant_s: None,
+        }),
         ..base()
     };
     let s = run(&frozen, 5, 100, 0.0);
@@ -392,7 +505,10 @@ fn static_node_shadowing_changes_only_with_its_time_constant() {
         }),
         ..base()
     };
-    let v: Vec<f64> = run(&slow, 6, 400_000, 0.0).iter().map(|x| f64::from(x.shadowing.0)).collect();
+    let v: Vec<f64> = run(&slow, 6, 400_000, 0.0)
+        .iter()
+        .map(|x| f64::from(x.shadowing.0))
+        .collect();
     let r1 = autocorrelation(&v, 1);
     assert!((r1 - (-1.0f64 / 20.0).exp()).abs() < 0.01, "{r1}");
     assert!((variance(&v).sqrt() - 4.0).abs() < 0.25);
@@ -430,7 +546,10 @@ fn noise_bursts_have_the_configured_duty_and_length() {
         noise: NoiseFloor {
             mean: Dbm(-110.0),
             jitter: Db(0.0),
-            bursts: Some(Episodes { rate_per_hour: 6.0, mean_duration_s: 120.0 }),
+            bursts: Some(Episodes {
+                rate_per_hour: 6.0,
+                mean_duration_s: 120.0,
+            }),
             burst_rise: Db(15.0),
         },
         ..base()
@@ -444,7 +563,10 @@ fn noise_bursts_have_the_configured_duty_and_length() {
     assert!((f64::from(ch.noise_burst_duty()) - want).abs() < 1e-5);
     let lens = runs(&flags);
     let m = lens.iter().sum::<usize>() as f64 / lens.len() as f64;
-    assert!((m / mean_len - 1.0).abs() < 0.05, "mean burst {m} packets vs {mean_len}");
+    assert!(
+        (m / mean_len - 1.0).abs() < 0.05,
+        "mean burst {m} packets vs {mean_len}"
+    );
     for x in &s {
         let want = if x.in_noise_burst { -95.0 } else { -110.0 };
         assert_eq!(x.noise, Dbm(want));
@@ -454,10 +576,18 @@ fn noise_bursts_have_the_configured_duty_and_length() {
 #[test]
 fn noise_jitter_has_its_sigma() {
     let cfg = ChannelConfig {
-        noise: NoiseFloor { mean: Dbm(-100.0), jitter: Db(1.5), bursts: None, burst_rise: Db(0.0) },
+        noise: NoiseFloor {
+            mean: Dbm(-100.0),
+            jitter: Db(1.5),
+            bursts: None,
+            burst_rise: Db(0.0),
+        },
         ..base()
     };
-    let v: Vec<f64> = run(&cfg, 61, 200_000, 0.0).iter().map(|x| f64::from(x.noise.0)).collect();
+    let v: Vec<f64> = run(&cfg, 61, 200_000, 0.0)
+        .iter()
+        .map(|x| f64::from(x.noise.0))
+        .collect();
     assert!((mean(&v) + 100.0).abs() < 0.02);
     assert!((variance(&v).sqrt() - 1.5).abs() < 0.02);
     assert!(autocorrelation(&v, 1).abs() < 0.01);
@@ -467,7 +597,10 @@ fn noise_jitter_has_its_sigma() {
 fn feedback_dropouts_remove_reports_at_the_configured_duty() {
     let cfg = ChannelConfig {
         packet_interval_ms: 5000,
-        feedback_dropouts: Some(Episodes { rate_per_hour: 4.0, mean_duration_s: 60.0 }),
+        feedback_dropouts: Some(Episodes {
+            rate_per_hour: 4.0,
+            mean_duration_s: 60.0,
+        }),
         ..base()
     };
     let s = run(&cfg, 71, 500_000, 0.0);
@@ -486,19 +619,48 @@ fn feedback_dropouts_remove_reports_at_the_configured_duty() {
 #[test]
 fn bad_configurations_are_refused_with_the_parameter_named() {
     let cases: Vec<(ChannelConfig, Error)> = vec![
-        (ChannelConfig { frequency: Hertz(f32::NAN), ..base() }, Error::NotFinite("frequency")),
-        (ChannelConfig { packet_interval_ms: 0, ..base() }, Error::NotPositive("packet_interval_ms")),
         (
-            ChannelConfig { trajectory: Trajectory { start: Metres(-5.0), ..base().trajectory }, ..base() },
+            ChannelConfig {
+                frequency: Hertz(f32::NAN),
+                ..base()
+            },
+            Error::NotFinite("frequency"),
+        ),
+        (
+            ChannelConfig {
+                packet_interval_ms: 0,
+                ..base()
+            },
+            Error::NotPositive("packet_interval_ms"),
+        ),
+        (
+            ChannelConfig {
+                trajectory: Trajectory {
+                    start: Metres(-5.0),
+                    ..base().trajectory
+                },
+                ..base()
+            },
             Error::NotPositive("trajectory.start"),
         ),
         (
-            ChannelConfig { fading: FastFading::Rician { k_db: f32::INFINITY }, ..base() },
+            ChannelConfig {
+                fading: FastFading::Rician {
+                    k_db: f32::INFINITY,
+                },
+                ..base()
+            },
             Error::NotFinite("fading.k_db"),
         ),
         (
             ChannelConfig {
-                noise: NoiseFloor { bursts: Some(Episodes { rate_per_hour: 1.0, mean_duration_s: 0.0 }), ..base().noise },
+                noise: NoiseFloor {
+                    bursts: Some(Episodes {
+                        rate_per_hour: 1.0,
+                        mean_duration_s: 0.0,
+                    }),
+                    ..base().noise
+                },
                 ..base()
             },
             Error::NotPositive("noise.bursts"),
@@ -508,12 +670,32 @@ fn bad_configurations_are_refused_with_the_parameter_named() {
         assert_eq!(Channel::new(cfg, 1).err(), Some(want));
     }
     let outside = ChannelConfig {
-        trajectory: Trajectory { start: Metres(50.0), speed_m_per_s: 1.0, min: Some(Metres(100.0)), max: Some(Metres(200.0)) },
+        trajectory: Trajectory {
+            start: Metres(50.0),
+            speed_m_per_s: 1.0,
+            min: Some(Metres(100.0)),
+            max: Some(Metres(200.0)),
+        },
         ..base()
     };
-    assert!(matches!(Channel::new(outside, 1), Err(Error::OutOfValidity { param: "trajectory.start", .. })));
-    let corr = ChannelConfig { fading_correlation: 1.0, ..base() };
-    assert!(matches!(Channel::new(corr, 1), Err(Error::OutOfValidity { param: "fading_correlation", .. })));
+    assert!(matches!(
+        Channel::new(outside, 1),
+        Err(Error::OutOfValidity {
+            param: "trajectory.start",
+            ..
+        })
+    ));
+    let corr = ChannelConfig {
+        fading_correlation: 1.0,
+        ..base()
+    };
+    assert!(matches!(
+        Channel::new(corr, 1),
+        Err(Error::OutOfValidity {
+            param: "fading_correlation",
+            ..
+        })
+    ));
     let mut ch = Channel::new(base(), 1).expect("valid");
     assert_eq!(ch.packet(Dbm(f32::NAN)).err(), Some(Error::NotFinite("tx")));
 }
@@ -570,15 +752,29 @@ fn channel_drives_the_controller_in_a_closed_loop() {
     // missing report is an unknown outcome.
     let cc = ControllerConfig::sub_ghz_node();
     let cfg = ChannelConfig {
-        path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: None, exponent: 3.0 },
+        path_loss: PathLossModel::LogDistance {
+            d0: Metres(1.0),
+            pl_d0: None,
+            exponent: 3.0,
+        },
         tx_antenna_gain: Dbi(cc.antenna_gain_dbi.0),
         rx_antenna_gain: Dbi(cc.far_antenna_gain_dbi.0),
-        trajectory: Trajectory { start: Metres(300.0), ..base().trajectory },
+        trajectory: Trajectory {
+            start: Metres(300.0),
+            ..base().trajectory
+        },
         packet_interval_ms: 60_000,
-        shadowing: Some(Shadowing { sigma: Db(3.0), decorrelation_distance: Metres(50.0), time_constant_s: Some(3600.0) }),
+        shadowing: Some(Shadowing {
+            sigma: Db(3.0),
+            decorrelation_distance: Metres(50.0),
+            time_constant_s: Some(3600.0),
+        }),
         fading: FastFading::Rician { k_db: 6.0 },
         min_snr: Some(cc.required_snr_db),
-        feedback_dropouts: Some(Episodes { rate_per_hour: 0.5, mean_duration_s: 300.0 }),
+        feedback_dropouts: Some(Episodes {
+            rate_per_hour: 0.5,
+            mean_duration_s: 300.0,
+        }),
         report_resolution: Some(Db(1.0)),
         ..base()
     };
@@ -590,7 +786,13 @@ fn channel_drives_the_controller_in_a_closed_loop() {
         let s = ch.packet(tx).expect("finite");
         let obs = match (s.received, s.reported_rssi, s.reported_noise) {
             (false, _, _) => Observation::Lost { t_ms: s.t_ms },
-            (true, Some(rssi), Some(noise)) => Observation::Feedback { t_ms: s.t_ms, tx, rssi, noise, snr: None },
+            (true, Some(rssi), Some(noise)) => Observation::Feedback {
+                t_ms: s.t_ms,
+                tx,
+                rssi,
+                noise,
+                snr: None,
+            },
             _ => Observation::Missing { t_ms: s.t_ms },
         };
         ctl.update(&obs);

@@ -47,7 +47,10 @@ impl LevelTable {
                 max: MAX_LEVELS as f32,
             });
         }
-        let mut t = LevelTable { levels: [Dbm(0.0); MAX_LEVELS], len: 0 };
+        let mut t = LevelTable {
+            levels: [Dbm(0.0); MAX_LEVELS],
+            len: 0,
+        };
         for (slot, l) in t.levels.iter_mut().zip(levels.iter()) {
             *slot = *l;
         }
@@ -109,7 +112,10 @@ mod level_serde {
     impl<'de> Visitor<'de> for LevelsVisitor {
         type Value = LevelTable;
         fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-            write!(f, "a list of 1 to {MAX_LEVELS} ascending transmit powers in dBm")
+            write!(
+                f,
+                "a list of 1 to {MAX_LEVELS} ascending transmit powers in dBm"
+            )
         }
         fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<LevelTable, A::Error> {
             let mut levels = [Dbm(0.0); MAX_LEVELS];
@@ -264,7 +270,11 @@ impl ControllerConfig {
     /// (before rounding down to a supported level).
     pub fn tx_ceiling(&self) -> Dbm {
         let by_cap = self.eirp_cap_dbm.0 - self.antenna_gain_dbi.0;
-        Dbm(if by_cap < self.max_tx_dbm.0 { by_cap } else { self.max_tx_dbm.0 })
+        Dbm(if by_cap < self.max_tx_dbm.0 {
+            by_cap
+        } else {
+            self.max_tx_dbm.0
+        })
     }
 
     /// Take the radio's limits from a log header for the settings that were
@@ -310,7 +320,9 @@ impl ControllerConfig {
         let c = self;
         check_level("required_snr_db", c.required_snr_db.0)?;
         if !c.target_outage.is_finite() {
-            return Err(ConfigError::NotFinite { setting: "target_outage" });
+            return Err(ConfigError::NotFinite {
+                setting: "target_outage",
+            });
         }
         if !(c.target_outage > 0.0 && c.target_outage < 1.0) {
             return Err(ConfigError::OutOfRange {
@@ -345,7 +357,8 @@ impl ControllerConfig {
         if c.min_tx_dbm.0 + c.antenna_gain_dbi.0 > c.eirp_cap_dbm.0 {
             return Err(ConfigError::Inconsistent {
                 setting: "eirp_cap_dbm",
-                why: "is below the lowest EIRP the radio can produce (min_tx_dbm + antenna_gain_dbi)",
+                why:
+                    "is below the lowest EIRP the radio can produce (min_tx_dbm + antenna_gain_dbi)",
             });
         }
         let ceiling = c.tx_ceiling().0;
@@ -359,7 +372,9 @@ impl ControllerConfig {
         let down = positive_db("max_step_down_db", c.max_step_down_db.0)?;
         check_level("deadband_db", c.deadband_db.0)?;
         if c.deadband_db.0 < 0.0 {
-            return Err(ConfigError::Negative { setting: "deadband_db" });
+            return Err(ConfigError::Negative {
+                setting: "deadband_db",
+            });
         }
         let mstep = positive_db("margin_step_db", c.margin_step_db.0)?;
         if mstep > 20.0 {
@@ -387,13 +402,19 @@ impl ControllerConfig {
             });
         }
         if c.spread_memory == 0 {
-            return Err(ConfigError::NotPositive { setting: "spread_memory" });
+            return Err(ConfigError::NotPositive {
+                setting: "spread_memory",
+            });
         }
         if c.climb_after_losses == 0 {
-            return Err(ConfigError::NotPositive { setting: "climb_after_losses" });
+            return Err(ConfigError::NotPositive {
+                setting: "climb_after_losses",
+            });
         }
         if c.stale_after_ms == 0 {
-            return Err(ConfigError::NotPositive { setting: "stale_after_ms" });
+            return Err(ConfigError::NotPositive {
+                setting: "stale_after_ms",
+            });
         }
         check_level("rssi_min_dbm", c.rssi_min_dbm.0)?;
         check_level("rssi_max_dbm", c.rssi_max_dbm.0)?;
@@ -613,10 +634,20 @@ impl fmt::Display for ConfigError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             ConfigError::NotFinite { setting } => write!(f, "{setting}: must be a finite number"),
-            ConfigError::NotPositive { setting } => write!(f, "{setting}: must be greater than zero"),
+            ConfigError::NotPositive { setting } => {
+                write!(f, "{setting}: must be greater than zero")
+            }
             ConfigError::Negative { setting } => write!(f, "{setting}: must not be negative"),
-            ConfigError::OutOfRange { setting, value, min, max } => {
-                write!(f, "{setting}: {value} is outside the allowed range {min}..{max}")
+            ConfigError::OutOfRange {
+                setting,
+                value,
+                min,
+                max,
+            } => {
+                write!(
+                    f,
+                    "{setting}: {value} is outside the allowed range {min}..{max}"
+                )
             }
             ConfigError::Inconsistent { setting, why } => write!(f, "{setting}: {why}"),
         }
@@ -652,7 +683,8 @@ mod tests {
         assert_eq!(c.validate(), Ok(()));
 
         let mut c = ControllerConfig::sub_ghz_node();
-        let explicit = ExplicitSettings::from_keys(["max_tx_dbm", "steps", "start_tx_dbm", "other"]);
+        let explicit =
+            ExplicitSettings::from_keys(["max_tx_dbm", "steps", "start_tx_dbm", "other"]);
         c.apply_log_header(&header(), explicit);
         assert_eq!((c.min_tx_dbm, c.max_tx_dbm), (Dbm(0.0), Dbm(22.0)));
         assert_eq!(c.steps, PowerSteps::Uniform(Db(1.0)));
@@ -667,7 +699,10 @@ mod tests {
     #[test]
     fn a_bad_header_value_is_named_by_validation() {
         let mut c = ControllerConfig::sub_ghz_node();
-        let h = LogHeader { tx_step: Some(Db(1e-30)), ..LogHeader::default() };
+        let h = LogHeader {
+            tx_step: Some(Db(1e-30)),
+            ..LogHeader::default()
+        };
         c.apply_log_header(&h, ExplicitSettings::default());
         match c.validate() {
             Err(e) => assert_eq!(e.setting(), "steps.uniform"),

@@ -146,7 +146,14 @@ struct Window<const W: usize> {
 
 impl<const W: usize> Window<W> {
     const fn new() -> Self {
-        Window { z: [0; W], noise: [0; W], head: 0, n: 0, sum_z: 0, sum_noise: 0 }
+        Window {
+            z: [0; W],
+            noise: [0; W],
+            head: 0,
+            n: 0,
+            sum_z: 0,
+            sum_noise: 0,
+        }
     }
 
     fn clear(&mut self) {
@@ -172,7 +179,11 @@ impl<const W: usize> Window<W> {
                 self.n += 1;
             }
             let next = head + 1;
-            self.head = if next >= W { 0 } else { u16::try_from(next).unwrap_or(0) };
+            self.head = if next >= W {
+                0
+            } else {
+                u16::try_from(next).unwrap_or(0)
+            };
         }
     }
 
@@ -182,7 +193,11 @@ impl<const W: usize> Window<W> {
     /// `W` as an `i32` (`W ≤ MAX_WINDOW = 4096`, checked by `Controller::new`;
     /// the cast cannot truncate).
     #[allow(clippy::cast_possible_truncation, clippy::cast_possible_wrap)]
-    const W_I32: i32 = if W > MAX_WINDOW { MAX_WINDOW as i32 } else { W as i32 };
+    const W_I32: i32 = if W > MAX_WINDOW {
+        MAX_WINDOW as i32
+    } else {
+        W as i32
+    };
 
     /// Mean of z in 1/8192 dB, truncated (exact integer arithmetic: the sum
     /// is at most 4096 · 2¹⁵ in magnitude, the remainder below 4096).
@@ -194,12 +209,18 @@ impl<const W: usize> Window<W> {
         let (q, r) = if usize::from(self.n) >= W {
             // A full window: a constant divisor (a shift for a power of two).
             let w = Self::W_I32;
-            (self.sum_z.checked_div(w).unwrap_or(0), self.sum_z.checked_rem(w).unwrap_or(0))
+            (
+                self.sum_z.checked_div(w).unwrap_or(0),
+                self.sum_z.checked_rem(w).unwrap_or(0),
+            )
         } else {
             (self.sum_z / n, self.sum_z % n)
         };
         // |q| < 2¹⁵ and |r·256/n| < 256: no wrap can occur.
-        Some(q.wrapping_mul(1 << FINE_BITS).wrapping_add((r << FINE_BITS) / n))
+        Some(
+            q.wrapping_mul(1 << FINE_BITS)
+                .wrapping_add((r << FINE_BITS) / n),
+        )
     }
 
     /// Mean of z and of the noise, dB / dBm.
@@ -451,7 +472,11 @@ impl<const W: usize> Controller<W> {
                 for (s, e) in self.mae_sum.iter_mut().zip(e.iter()) {
                     // |e| in 1/32 dB, rounded.
                     let a = (e.unsigned_abs().saturating_add(1 << (FINE_BITS - 1))) >> FINE_BITS;
-                    let kept = if filling { *s } else { s.saturating_sub(over_memory(*s, m, k)) };
+                    let kept = if filling {
+                        *s
+                    } else {
+                        s.saturating_sub(over_memory(*s, m, k))
+                    };
                     *s = kept.saturating_add(a);
                 }
                 for (f, g) in self.filters.iter_mut().zip(FILTER_SHIFTS.iter()) {
@@ -489,12 +514,15 @@ impl<const W: usize> Controller<W> {
             // A full memory of a power of two: shifts.
             Some(k) if n == u32::from(self.cfg.spread_memory) => {
                 let r = sum & n.wrapping_sub(1);
-                (sum >> k).saturating_mul(1 << FINE_BITS).saturating_add((r << FINE_BITS) >> k)
+                (sum >> k)
+                    .saturating_mul(1 << FINE_BITS)
+                    .saturating_add((r << FINE_BITS) >> k)
             }
             _ => {
                 let q = sum.checked_div(n).unwrap_or(0);
                 let r = sum.checked_rem(n).unwrap_or(0);
-                q.saturating_mul(1 << FINE_BITS).saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
+                q.saturating_mul(1 << FINE_BITS)
+                    .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
             }
         };
         let sigma = if fine == self.spread_cache.0 {
@@ -559,10 +587,16 @@ impl<const W: usize> Controller<W> {
 
         // 2. The reading, if any.
         let reading = match *obs {
-            Observation::Feedback { tx, rssi, noise, snr, .. } => {
-                Some(self.check_feedback(tx, rssi, noise, snr))
-            }
-            Observation::Beacon { beacon_tx, rssi, .. } => Some(self.check_beacon(beacon_tx, rssi)),
+            Observation::Feedback {
+                tx,
+                rssi,
+                noise,
+                snr,
+                ..
+            } => Some(self.check_feedback(tx, rssi, noise, snr)),
+            Observation::Beacon {
+                beacon_tx, rssi, ..
+            } => Some(self.check_beacon(beacon_tx, rssi)),
             _ => None,
         };
         let mut ignored: Option<Reason> = None;
@@ -600,7 +634,10 @@ impl<const W: usize> Controller<W> {
         let mut wanted: Option<f32> = None;
         let (target, mut reason) = if self.loss_run >= climb_after {
             self.mode = Mode::Climb;
-            (self.level_at_or_below(cur + cfg.max_step_up_db.0), Reason::Climb)
+            (
+                self.level_at_or_below(cur + cfg.max_step_up_db.0),
+                Reason::Climb,
+            )
         } else if n < cfg.min_readings {
             self.mode = Mode::WarmUp;
             (cur, Reason::WarmUp)
@@ -670,7 +707,8 @@ impl<const W: usize> Controller<W> {
     /// plausible ranges, or a logged RSSI at or above `rssi_saturation_dbm`.
     /// The same checks, in the same order, as a live feedback.
     pub(crate) fn check_logged(&self, tx: f32, rssi: f32, noise: f32) -> Option<Reason> {
-        self.check_feedback(Dbm(tx), Dbm(rssi), Dbm(noise), None).err()
+        self.check_feedback(Dbm(tx), Dbm(rssi), Dbm(noise), None)
+            .err()
     }
 
     /// Loss to noise and noise floor of a feedback, or why it is unusable.
@@ -704,7 +742,9 @@ impl<const W: usize> Controller<W> {
         }
         let snr = match snr {
             Some(s) => {
-                if s.0 < c.rssi_min_dbm.0 - c.noise_max_dbm.0 || s.0 > c.rssi_max_dbm.0 - c.noise_min_dbm.0 {
+                if s.0 < c.rssi_min_dbm.0 - c.noise_max_dbm.0
+                    || s.0 > c.rssi_max_dbm.0 - c.noise_min_dbm.0
+                {
                     return Err(Reason::IgnoredImplausible);
                 }
                 s.0
@@ -773,7 +813,11 @@ impl<const W: usize> Controller<W> {
                 // ceiling without libm.
                 let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step - GRID_EPS;
                 let ki = to_level_index(k);
-                let ki = if (ki as f32) < k { ki.saturating_add(1) } else { ki };
+                let ki = if (ki as f32) < k {
+                    ki.saturating_add(1)
+                } else {
+                    ki
+                };
                 self.cfg.min_tx_dbm.0 + ki as f32 * s.0
             }
             PowerSteps::Table(t) => t
@@ -926,7 +970,10 @@ mod tests {
         // On the 1 dB grid, at or above the requirement, within the deadband.
         assert!(d.tx.0 >= w - 1e-4 && d.tx.0 < w + 1.0 + 1.0, "{d:?}");
         // Path loss reported with both 2.15 dBi antennas: 100 + 4.3 dB.
-        assert!(d.path_loss.is_some_and(|pl| (pl.0 - 104.3).abs() < 0.05), "{d:?}");
+        assert!(
+            d.path_loss.is_some_and(|pl| (pl.0 - 104.3).abs() < 0.05),
+            "{d:?}"
+        );
     }
 
     #[test]
@@ -978,9 +1025,18 @@ mod tests {
             noise: Dbm(noise),
             snr: None,
         };
-        assert_eq!(c.update(&fb(f32::NAN, -110.0)).reason, Reason::IgnoredNotFinite);
-        assert_eq!(c.update(&fb(-90.0, f32::INFINITY)).reason, Reason::IgnoredNotFinite);
-        assert_eq!(c.update(&fb(-500.0, -110.0)).reason, Reason::IgnoredImplausible);
+        assert_eq!(
+            c.update(&fb(f32::NAN, -110.0)).reason,
+            Reason::IgnoredNotFinite
+        );
+        assert_eq!(
+            c.update(&fb(-90.0, f32::INFINITY)).reason,
+            Reason::IgnoredNotFinite
+        );
+        assert_eq!(
+            c.update(&fb(-500.0, -110.0)).reason,
+            Reason::IgnoredImplausible
+        );
         assert_eq!(c.update(&fb(5.0, -110.0)).reason, Reason::IgnoredSaturated);
         assert_eq!(c.update(&fb(-90.0, -110.0)).reason, Reason::WarmUp);
         let old = Observation::Feedback {
@@ -999,7 +1055,10 @@ mod tests {
             snr: None,
         };
         assert_eq!(c.update(&late).reason, Reason::HistoryExpired);
-        assert_eq!(c.update(&Observation::Missing { t_ms: 4_000_000 }).reason, Reason::NoInformation);
+        assert_eq!(
+            c.update(&Observation::Missing { t_ms: 4_000_000 }).reason,
+            Reason::NoInformation
+        );
     }
 
     #[test]
@@ -1049,7 +1108,10 @@ mod tests {
         assert!(Controller::<0>::new(cfg).is_err());
         assert!(matches!(
             Controller::<4>::new(cfg),
-            Err(ConfigError::Inconsistent { setting: "min_readings", .. })
+            Err(ConfigError::Inconsistent {
+                setting: "min_readings",
+                ..
+            })
         ));
     }
 }

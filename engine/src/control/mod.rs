@@ -25,7 +25,10 @@ mod controller;
 mod reason;
 mod replay;
 
-pub use config::{ConfigError, ControllerConfig, ExplicitSettings, LevelTable, PowerSteps, MAX_LEVELS, MAX_WINDOW, MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB};
+pub use config::{
+    ConfigError, ControllerConfig, ExplicitSettings, LevelTable, PowerSteps, MAX_LEVELS,
+    MAX_WINDOW, MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB,
+};
 pub use controller::{Controller, Decision, Mode, Observation};
 pub use reason::Reason;
 pub use replay::{Outcome, Replay, ReplayStep, Summary};

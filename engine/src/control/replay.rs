@@ -166,8 +166,9 @@ impl Summary {
     /// Records × highest allowed level in mW: the linear sum behind the
     /// reference of [`Summary::energy_saving_db`].
     fn allowed_sum_mw(&self) -> f64 {
-        self.allowed_mw
-            .unwrap_or_else(|| self.records as f64 * f64::from(libm::exp10f(self.max_allowed.0 / 10.0)))
+        self.allowed_mw.unwrap_or_else(|| {
+            self.records as f64 * f64::from(libm::exp10f(self.max_allowed.0 / 10.0))
+        })
     }
 
     /// Add the totals of another replay (another device of a fleet): counts
@@ -187,7 +188,11 @@ impl Summary {
             (Some(a), Some(b)) => Some(if b.0 > a.0 { b } else { a }),
             (a, b) => a.or(b),
         };
-        for (a, b) in self.ignored_readings.iter_mut().zip(other.ignored_readings.iter()) {
+        for (a, b) in self
+            .ignored_readings
+            .iter_mut()
+            .zip(other.ignored_readings.iter())
+        {
             *a += *b;
         }
         if other.max_allowed.0 > self.max_allowed.0 {
@@ -212,7 +217,9 @@ impl Summary {
         if self.records == 0 || self.sum_mw <= 0.0 || self.sum_mw.is_nan() {
             None
         } else {
-            Some(Dbm(libm::log10(self.sum_mw / self.records as f64) as f32 * 10.0))
+            Some(Dbm(
+                libm::log10(self.sum_mw / self.records as f64) as f32 * 10.0
+            ))
         }
     }
 
@@ -274,7 +281,10 @@ impl<const W: usize> Replay<W> {
     pub fn new(cfg: ControllerConfig) -> Result<Self, ConfigError> {
         let controller = Controller::<W>::new(cfg)?;
         let summary = Summary::new(controller.limits().1);
-        Ok(Replay { controller, summary })
+        Ok(Replay {
+            controller,
+            summary,
+        })
     }
 
     /// Replay one record (see [`Replay`] for the semantics).
@@ -342,7 +352,12 @@ mod tests {
     use super::*;
 
     fn rec(t_ms: u64, tx: f32, rssi: f32, noise: f32) -> LogRecord {
-        LogRecord { t_ms, tx_dbm: Some(tx), rssi_dbm: Some(rssi), noise_dbm: Some(noise) }
+        LogRecord {
+            t_ms,
+            tx_dbm: Some(tx),
+            rssi_dbm: Some(rssi),
+            noise_dbm: Some(noise),
+        }
     }
 
     #[test]
@@ -360,14 +375,22 @@ mod tests {
         // −108 at 10 dBm: replayed SNR 6 dB < 8: lost.
         let s = r.step(&rec(1, 10.0, -108.0, -110.0));
         assert_eq!(s.outcome, Outcome::Lost);
-        let s = r.step(&LogRecord { t_ms: 2, tx_dbm: Some(10.0), rssi_dbm: None, noise_dbm: Some(-110.0) });
+        let s = r.step(&LogRecord {
+            t_ms: 2,
+            tx_dbm: Some(10.0),
+            rssi_dbm: None,
+            noise_dbm: Some(-110.0),
+        });
         assert_eq!(s.outcome, Outcome::Unjudged);
         assert_eq!(s.reason, Reason::NoInformation);
         let s = r.step(&rec(3, 10.0, f32::NAN, -110.0));
         assert_eq!(s.outcome, Outcome::Unjudged);
         assert_eq!(s.reason, Reason::IgnoredNotFinite);
         let sum = r.summary();
-        assert_eq!((sum.records, sum.judged, sum.lost, sum.unjudged), (4, 2, 1, 2));
+        assert_eq!(
+            (sum.records, sum.judged, sum.lost, sum.unjudged),
+            (4, 2, 1, 2)
+        );
         assert_eq!(sum.outage_fraction(), Some(0.5));
         assert_eq!(sum.ignored(Reason::IgnoredNotFinite), 1);
         assert_eq!(sum.max_tx_dbm_used, Some(Dbm(14.0)));
@@ -422,7 +445,9 @@ mod tests {
         // (10 + 1 + 1) mW / 3 = 4 mW = 6.0206 dBm.
         let m = a.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
         assert!((m - 6.020_6).abs() < 1e-3, "{m}");
-        assert!(a.outage_fraction().is_some_and(|f| (f - 1.0 / 3.0).abs() < 1e-6));
+        assert!(a
+            .outage_fraction()
+            .is_some_and(|f| (f - 1.0 / 3.0).abs() < 1e-6));
         // Reference: (1 × 10 mW + 2 × 25.119 mW) / 3 = 20.079 mW = 13.027 dBm,
         // less the mean 6.0206 dBm.
         let e = a.energy_saving_db().map_or(f32::NAN, |d| d.0);
@@ -439,7 +464,12 @@ mod tests {
         let s = r.step(&rec0);
         // −105 − 10 + 14 = −101 dBm.
         assert_eq!(s.replayed_rx(&rec0), Some(Dbm(-101.0)));
-        let gap = LogRecord { t_ms: 1, tx_dbm: Some(10.0), rssi_dbm: None, noise_dbm: Some(-110.0) };
+        let gap = LogRecord {
+            t_ms: 1,
+            tx_dbm: Some(10.0),
+            rssi_dbm: None,
+            noise_dbm: Some(-110.0),
+        };
         let s = r.step(&gap);
         assert_eq!(s.replayed_rx(&gap), None);
     }

@@ -274,11 +274,17 @@ mod leb128 {
 /// Encode one frame with sequence number `seq` into `buf`; returns the
 /// frame's bytes, final `0x00` included. A header frame is written with
 /// this encoder's [`VERSION`] whatever `version` it holds.
-pub fn encode_frame<'b>(seq: u16, frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+pub fn encode_frame<'b>(
+    seq: u16,
+    frame: &Frame,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
     let mut payload = [0u8; MAX_PAYLOAD];
     let (kind, body_len) = {
         let (head, rest) = payload.split_at_mut(3);
-        let body = rest.get_mut(..MAX_PAYLOAD - MIN_PAYLOAD).ok_or(CodecError::BufferTooSmall)?;
+        let body = rest
+            .get_mut(..MAX_PAYLOAD - MIN_PAYLOAD)
+            .ok_or(CodecError::BufferTooSmall)?;
         let (kind, used) = match frame {
             Frame::Header { header: h, .. } => (
                 KIND_HEADER,
@@ -329,7 +335,9 @@ pub fn encode_frame<'b>(seq: u16, frame: &Frame, buf: &'b mut [u8]) -> Result<&'
             ),
             Frame::Other { kind } => return Err(CodecError::UnknownKind(*kind)),
         };
-        let [k, s0, s1] = head else { return Err(CodecError::BufferTooSmall) };
+        let [k, s0, s1] = head else {
+            return Err(CodecError::BufferTooSmall);
+        };
         *k = kind;
         [*s0, *s1] = seq.to_le_bytes();
         (kind, used)
@@ -341,7 +349,9 @@ pub fn encode_frame<'b>(seq: u16, frame: &Frame, buf: &'b mut [u8]) -> Result<&'
         .get_mut(crc_at..crc_at + 4)
         .ok_or(CodecError::BufferTooSmall)?
         .copy_from_slice(&crc.to_le_bytes());
-    let payload = payload.get(..crc_at + 4).ok_or(CodecError::BufferTooSmall)?;
+    let payload = payload
+        .get(..crc_at + 4)
+        .ok_or(CodecError::BufferTooSmall)?;
     let n = cobs_encode(payload, buf)?;
     let delim = buf.get_mut(n).ok_or(CodecError::BufferTooSmall)?;
     *delim = 0;
@@ -350,11 +360,22 @@ pub fn encode_frame<'b>(seq: u16, frame: &Frame, buf: &'b mut [u8]) -> Result<&'
 
 /// Encode a header frame (sequence number 0) into `buf`.
 pub fn encode_header<'b>(header: &LogHeader, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
-    encode_frame(0, &Frame::Header { header: *header, version: VERSION }, buf)
+    encode_frame(
+        0,
+        &Frame::Header {
+            header: *header,
+            version: VERSION,
+        },
+        buf,
+    )
 }
 
 /// Encode a record frame with sequence number `seq` into `buf`.
-pub fn encode_record<'b>(seq: u16, record: &LogRecord, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+pub fn encode_record<'b>(
+    seq: u16,
+    record: &LogRecord,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
     encode_frame(seq, &Frame::Record(*record), buf)
 }
 
@@ -394,12 +415,26 @@ impl Encoder {
     }
 
     /// Encode a header frame.
-    pub fn header<'b>(&mut self, header: &LogHeader, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
-        self.frame(&Frame::Header { header: *header, version: VERSION }, buf)
+    pub fn header<'b>(
+        &mut self,
+        header: &LogHeader,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
+        self.frame(
+            &Frame::Header {
+                header: *header,
+                version: VERSION,
+            },
+            buf,
+        )
     }
 
     /// Encode a record frame.
-    pub fn record<'b>(&mut self, record: &LogRecord, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+    pub fn record<'b>(
+        &mut self,
+        record: &LogRecord,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
         self.frame(&Frame::Record(*record), buf)
     }
 
@@ -431,7 +466,11 @@ fn find_zero(data: &[u8]) -> Option<usize> {
         }
         base += 8;
     }
-    chunks.remainder().iter().position(|&b| b == 0).map(|i| base + i)
+    chunks
+        .remainder()
+        .iter()
+        .position(|&b| b == 0)
+        .map(|i| base + i)
 }
 
 /// COBS-encode `src` into `dst`; returns the encoded length (no delimiter).
@@ -523,7 +562,9 @@ fn cobs_decode(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
         if block.contains(&0) {
             return Err(CodecError::Cobs);
         }
-        dst.get_mut(out..out + n).ok_or(CodecError::FrameTooLong)?.copy_from_slice(block);
+        dst.get_mut(out..out + n)
+            .ok_or(CodecError::FrameTooLong)?
+            .copy_from_slice(block);
         out += n;
         i += 1 + n;
         if code != 0xFF && i < src.len() {
@@ -592,8 +633,12 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
     if p.len() < MIN_PAYLOAD {
         return Err(CodecError::TooShort);
     }
-    let (content, crc) = p.split_at_checked(p.len() - 4).ok_or(CodecError::TooShort)?;
-    let &[c0, c1, c2, c3] = crc else { return Err(CodecError::TooShort) };
+    let (content, crc) = p
+        .split_at_checked(p.len() - 4)
+        .ok_or(CodecError::TooShort)?;
+    let &[c0, c1, c2, c3] = crc else {
+        return Err(CodecError::TooShort);
+    };
     let want = [c0, c1, c2, c3];
     let mut c = Crc32c::new();
     c.update(content);
@@ -601,18 +646,24 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
         return Err(CodecError::Crc);
     }
     let (head, body) = content.split_at_checked(3).ok_or(CodecError::TooShort)?;
-    let &[kind, s0, s1] = head else { return Err(CodecError::TooShort) };
+    let &[kind, s0, s1] = head else {
+        return Err(CodecError::TooShort);
+    };
     let seq = u16::from_le_bytes([s0, s1]);
     // Bytes after the fields this version knows are ignored (newer minors
     // append fields).
     let frame = match kind {
         KIND_HEADER => {
-            let (h, _) = postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
+            let (h, _) =
+                postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
             if h.magic != MAGIC {
                 return Err(CodecError::BadMagic);
             }
             if h.major != VERSION.major {
-                return Err(CodecError::UnknownVersion { major: h.major, minor: h.minor });
+                return Err(CodecError::UnknownVersion {
+                    major: h.major,
+                    minor: h.minor,
+                });
             }
             Frame::Header {
                 header: LogHeader {
@@ -623,11 +674,15 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
                     tx_step: h.tx_step_db.map(Db),
                     antenna_gain: h.antenna_gain_dbi.map(Dbi),
                 },
-                version: Version { major: h.major, minor: h.minor },
+                version: Version {
+                    major: h.major,
+                    minor: h.minor,
+                },
             }
         }
         KIND_RECORD => {
-            let (r, _) = postcard::take_from_bytes::<WireRecord>(body).map_err(|_| CodecError::Payload)?;
+            let (r, _) =
+                postcard::take_from_bytes::<WireRecord>(body).map_err(|_| CodecError::Payload)?;
             Frame::Record(LogRecord {
                 t_ms: r.t_ms,
                 tx_dbm: r.tx_dbm,
@@ -769,7 +824,11 @@ impl<const N: usize> FrameDecoder<N> {
                             self.pos += piece.len() as u64 + 1;
                             self.start = self.pos;
                             self.after_damage = false;
-                            return Some(Event::Frame { offset, seq: d.seq, frame: d.frame });
+                            return Some(Event::Frame {
+                                offset,
+                                seq: d.seq,
+                                frame: d.frame,
+                            });
                         }
                     }
                     self.push(piece);
@@ -841,7 +900,11 @@ impl<const N: usize> FrameDecoder<N> {
         if self.len == 0 && self.dropped == 0 {
             self.reset_piece();
             return if self.after_damage {
-                Some(Event::Damaged { offset, len: delim, error: CodecError::TooShort })
+                Some(Event::Damaged {
+                    offset,
+                    len: delim,
+                    error: CodecError::TooShort,
+                })
             } else {
                 None
             };
@@ -859,7 +922,11 @@ impl<const N: usize> FrameDecoder<N> {
             self.try_decode(0, len)
         };
         let ev = match whole {
-            Ok(d) => Some(Event::Frame { offset, seq: d.seq, frame: d.frame }),
+            Ok(d) => Some(Event::Frame {
+                offset,
+                seq: d.seq,
+                frame: d.frame,
+            }),
             Err(error) => {
                 // An intact frame may sit at the end of the piece.
                 let mut found = None;
@@ -881,9 +948,17 @@ impl<const N: usize> FrameDecoder<N> {
                             seq: d.seq,
                             frame: d.frame,
                         });
-                        Some(Event::Damaged { offset, len: skipped, error })
+                        Some(Event::Damaged {
+                            offset,
+                            len: skipped,
+                            error,
+                        })
                     }
-                    None => Some(Event::Damaged { offset, len: total, error }),
+                    None => Some(Event::Damaged {
+                        offset,
+                        len: total,
+                        error,
+                    }),
                 }
             }
         };
@@ -899,12 +974,21 @@ impl<const N: usize> FrameDecoder<N> {
 }
 
 #[cfg(test)]
-#[allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#[allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 mod tests {
     use super::*;
 
     fn rec(t: u64) -> LogRecord {
-        LogRecord { t_ms: t, tx_dbm: Some(10.0), rssi_dbm: Some(-90.25), noise_dbm: None }
+        LogRecord {
+            t_ms: t,
+            tx_dbm: Some(10.0),
+            rssi_dbm: Some(-90.25),
+            noise_dbm: None,
+        }
     }
 
     #[test]
@@ -941,7 +1025,11 @@ mod tests {
                 for b in src.iter_mut().take(len) {
                     x = x.wrapping_mul(1_103_515_245).wrapping_add(12_345);
                     let r = (x >> 16) as u8;
-                    *b = if r.is_multiple_of(4) { (r % 12) + 1 } else { r.max(1) };
+                    *b = if r.is_multiple_of(4) {
+                        (r % 12) + 1
+                    } else {
+                        r.max(1)
+                    };
                 }
                 let src = &src[..len];
                 let mut a = [0u8; 300];
@@ -992,9 +1080,23 @@ mod tests {
             antenna_gain: Some(Dbi(2.15)),
         };
         for (seq, f) in [
-            (0u16, Frame::Header { header: h, version: VERSION }),
+            (
+                0u16,
+                Frame::Header {
+                    header: h,
+                    version: VERSION,
+                },
+            ),
             (1, Frame::Record(rec(7))),
-            (65535, Frame::Decision(DecisionRecord { t_ms: 9, tx_dbm: 3.5, outcome: 2, reason: 7 })),
+            (
+                65535,
+                Frame::Decision(DecisionRecord {
+                    t_ms: 9,
+                    tx_dbm: 3.5,
+                    outcome: 2,
+                    reason: 7,
+                }),
+            ),
         ] {
             let n = encode_frame(seq, &f, &mut buf).unwrap().len();
             assert_eq!(buf[n - 1], 0);
@@ -1020,24 +1122,40 @@ mod tests {
         for v in values {
             let mut ours = [0u8; 16];
             let mut theirs = [0u8; 16];
-            let a = postcard::to_slice(&WireDecision { t_ms: v, tx_dbm: 1.0, outcome: 2, reason: 3 }, &mut ours)
+            let a = postcard::to_slice(
+                &WireDecision {
+                    t_ms: v,
+                    tx_dbm: 1.0,
+                    outcome: 2,
+                    reason: 3,
+                },
+                &mut ours,
+            )
+            .unwrap()
+            .len();
+            // postcard's own u64 writer, for comparison.
+            let b = postcard::to_slice(&(v, 1.0f32, 2u8, 3u8), &mut theirs)
                 .unwrap()
                 .len();
-            // postcard's own u64 writer, for comparison.
-            let b = postcard::to_slice(&(v, 1.0f32, 2u8, 3u8), &mut theirs).unwrap().len();
             assert_eq!(&ours[..a], &theirs[..b], "t_ms = {v}");
             let (back, _) = postcard::take_from_bytes::<WireDecision>(&ours[..a]).unwrap();
             assert_eq!(back.t_ms, v);
         }
         // The documented example: 1500 = dc 0b.
-        assert_eq!(leb128::encode(1500), ([0xdc, 0x0b, 0, 0, 0, 0, 0, 0, 0, 0], 2));
+        assert_eq!(
+            leb128::encode(1500),
+            ([0xdc, 0x0b, 0, 0, 0, 0, 0, 0, 0, 0], 2)
+        );
         assert_eq!(leb128::encode(u64::MAX).1, leb128::MAX_LEN);
     }
 
     #[test]
     fn small_buffer_is_an_error() {
         let mut buf = [0u8; 8];
-        assert_eq!(encode_record(1, &rec(1), &mut buf), Err(CodecError::BufferTooSmall));
+        assert_eq!(
+            encode_record(1, &rec(1), &mut buf),
+            Err(CodecError::BufferTooSmall)
+        );
     }
 
     #[test]
@@ -1077,8 +1195,17 @@ mod tests {
             k += 1;
         }
         assert_eq!(k, 3);
-        assert!(matches!(events[0], Some(Event::Frame { offset: 0, seq: 0, .. })));
-        assert!(matches!(events[1], Some(Event::Damaged { offset, len: 5, .. }) if offset == first as u64));
+        assert!(matches!(
+            events[0],
+            Some(Event::Frame {
+                offset: 0,
+                seq: 0,
+                ..
+            })
+        ));
+        assert!(
+            matches!(events[1], Some(Event::Damaged { offset, len: 5, .. }) if offset == first as u64)
+        );
         assert!(matches!(events[2], Some(Event::Frame { seq: 1, .. })));
     }
 }

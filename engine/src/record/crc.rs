@@ -26,7 +26,11 @@ const fn make_table() -> [u32; 256] {
         let mut c = i;
         let mut k = 0;
         while k < 8 {
-            c = if c & 1 != 0 { (c >> 1) ^ POLY_REFLECTED } else { c >> 1 };
+            c = if c & 1 != 0 {
+                (c >> 1) ^ POLY_REFLECTED
+            } else {
+                c >> 1
+            };
             k += 1;
         }
         table[i as usize] = c;
@@ -136,7 +140,11 @@ pub fn crc32c(bytes: &[u8]) -> u32 {
 }
 
 #[cfg(test)]
-#[allow(clippy::unwrap_used, clippy::indexing_slicing, clippy::cast_possible_truncation)]
+#[allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
 mod tests {
     use super::*;
 
@@ -164,7 +172,11 @@ mod tests {
             for &b in data {
                 c ^= u32::from(b);
                 for _ in 0..8 {
-                    c = if c & 1 != 0 { (c >> 1) ^ POLY_REFLECTED } else { c >> 1 };
+                    c = if c & 1 != 0 {
+                        (c >> 1) ^ POLY_REFLECTED
+                    } else {
+                        c >> 1
+                    };
                 }
             }
             !c

@@ -6,8 +6,8 @@ use crate::error::{finite, non_negative, positive, within, Error, Result};
 use crate::record::LogRecord;
 use crate::units::{Db, Dbi, Dbm, Hertz, Metres};
 
-use crate::propagation::PathLossModel;
 use super::rng::{Normal, Pcg32};
+use crate::propagation::PathLossModel;
 
 /// Most scheduled path-loss steps a [`ChannelConfig`] holds.
 pub const MAX_STEPS: usize = 16;
@@ -81,7 +81,10 @@ pub struct Shadowing {
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
-#[cfg_attr(feature = "serde", serde(rename_all = "snake_case", deny_unknown_fields))]
+#[cfg_attr(
+    feature = "serde",
+    serde(rename_all = "snake_case", deny_unknown_fields)
+)]
 pub enum FastFading {
     /// No fast fading: the gain is 0 dB.
     None,
@@ -299,7 +302,11 @@ impl Chain {
 
     fn advance(&mut self, rng: &mut Pcg32) -> bool {
         let u = rng.uniform();
-        self.on = if self.on { u >= self.p_end } else { u < self.p_start };
+        self.on = if self.on {
+            u >= self.p_end
+        } else {
+            u < self.p_start
+        };
         self.on
     }
 
@@ -347,7 +354,12 @@ pub struct Channel {
 #[cfg(feature = "defmt")]
 impl defmt::Format for Channel {
     fn format(&self, f: defmt::Formatter<'_>) {
-        defmt::write!(f, "Channel {{ packet: {}, distance_m: {} }}", self.index, self.distance);
+        defmt::write!(
+            f,
+            "Channel {{ packet: {}, distance_m: {} }}",
+            self.index,
+            self.distance
+        );
     }
 }
 
@@ -380,7 +392,10 @@ impl Channel {
             None => (0.0, 1.0, 1.0),
             Some(s) => {
                 let sigma = within("shadowing.sigma", s.sigma.0, 0.0, 30.0)?;
-                let dcorr = positive("shadowing.decorrelation_distance", s.decorrelation_distance.0)?;
+                let dcorr = positive(
+                    "shadowing.decorrelation_distance",
+                    s.decorrelation_distance.0,
+                )?;
                 let rho_t = match s.time_constant_s {
                     None => 1.0,
                     Some(tau) => libm::expf(-dt_s / positive("shadowing.time_constant_s", tau)?),
@@ -426,7 +441,11 @@ impl Channel {
             index: 0,
             dt_s,
             distance: start,
-            phase: if speed >= 0.0 { start - d_min } else { 2.0 * (d_max - d_min) - (start - d_min) },
+            phase: if speed >= 0.0 {
+                start - d_min
+            } else {
+                2.0 * (d_max - d_min) - (start - d_min)
+            },
             speed,
             d_min,
             d_max,
@@ -483,7 +502,11 @@ impl Channel {
         let period = 2.0 * span;
         let y = self.phase + step;
         self.phase = (y - period * libm::floorf(y / period)).clamp(0.0, period);
-        let offset = if self.phase <= span { self.phase } else { period - self.phase };
+        let offset = if self.phase <= span {
+            self.phase
+        } else {
+            period - self.phase
+        };
         self.distance = (self.d_min + offset).clamp(self.d_min, self.d_max);
         step
     }
@@ -507,7 +530,10 @@ impl Channel {
 
         // Fast fading: h = los + scale·g, g complex Gaussian of unit power.
         let (a, b) = self.rng_fading.pair();
-        let w = (a * core::f32::consts::FRAC_1_SQRT_2, b * core::f32::consts::FRAC_1_SQRT_2);
+        let w = (
+            a * core::f32::consts::FRAC_1_SQRT_2,
+            b * core::f32::consts::FRAC_1_SQRT_2,
+        );
         self.scatter = if first || self.fading_rho == 0.0 {
             w
         } else {
@@ -520,7 +546,10 @@ impl Channel {
         let fading_power = (re * re + im * im).max(MIN_FADING_POWER);
         let fading = Db(10.0 * libm::log10f(fading_power));
 
-        let model_loss = self.cfg.path_loss.path_loss(self.cfg.frequency, Metres(self.distance))?;
+        let model_loss = self
+            .cfg
+            .path_loss
+            .path_loss(self.cfg.frequency, Metres(self.distance))?;
         let step_loss = Db(self
             .cfg
             .steps
@@ -529,15 +558,19 @@ impl Channel {
             .map(|s| s.change.0)
             .sum());
         let true_path_loss = model_loss + step_loss + Db(shadowing);
-        let rssi = tx + self.cfg.tx_antenna_gain + self.cfg.rx_antenna_gain - true_path_loss
-            + fading;
+        let rssi =
+            tx + self.cfg.tx_antenna_gain + self.cfg.rx_antenna_gain - true_path_loss + fading;
 
         let jitter = self.rng_noise.sample() * self.cfg.noise.jitter.0;
         let in_noise_burst = match self.bursts.as_mut() {
             Some(c) => c.advance(&mut self.rng_bursts),
             None => false,
         };
-        let rise = if in_noise_burst { self.cfg.noise.burst_rise.0 } else { 0.0 };
+        let rise = if in_noise_burst {
+            self.cfg.noise.burst_rise.0
+        } else {
+            0.0
+        };
         let noise = Dbm(self.cfg.noise.mean.0 + jitter + rise);
         let snr = rssi - noise;
         let received = match self.cfg.min_snr {
@@ -591,16 +624,30 @@ mod tests {
     fn cfg() -> ChannelConfig {
         ChannelConfig {
             frequency: Hertz(915.0e6),
-            path_loss: PathLossModel::LogDistance { d0: Metres(1.0), pl_d0: Some(Db(40.0)), exponent: 2.0 },
+            path_loss: PathLossModel::LogDistance {
+                d0: Metres(1.0),
+                pl_d0: Some(Db(40.0)),
+                exponent: 2.0,
+            },
             tx_antenna_gain: Dbi(0.0),
             rx_antenna_gain: Dbi(0.0),
-            trajectory: Trajectory { start: Metres(100.0), speed_m_per_s: 0.0, min: None, max: None },
+            trajectory: Trajectory {
+                start: Metres(100.0),
+                speed_m_per_s: 0.0,
+                min: None,
+                max: None,
+            },
             packet_interval_ms: 1000,
             start_ms: 5000,
             shadowing: None,
             fading: FastFading::None,
             fading_correlation: 0.0,
-            noise: NoiseFloor { mean: Dbm(-100.0), jitter: Db(0.0), bursts: None, burst_rise: Db(0.0) },
+            noise: NoiseFloor {
+                mean: Dbm(-100.0),
+                jitter: Db(0.0),
+                bursts: None,
+                burst_rise: Db(0.0),
+            },
             min_snr: None,
             feedback_dropouts: None,
             report_resolution: None,
@@ -642,7 +689,14 @@ mod tests {
 
     #[test]
     fn episode_chain_duty_is_its_stationary_probability() -> Result<()> {
-        let c = Chain::new("x", Some(Episodes { rate_per_hour: 36.0, mean_duration_s: 10.0 }), 1.0)?;
+        let c = Chain::new(
+            "x",
+            Some(Episodes {
+                rate_per_hour: 36.0,
+                mean_duration_s: 10.0,
+            }),
+            1.0,
+        )?;
         let c = c.ok_or(Error::NoSolution("chain"))?;
         // p_start = 1 − e^−0.01, p_end = 1 − e^−0.1.
         let ps = 1.0 - libm::expf(-0.01);

@@ -21,7 +21,10 @@ pub const MAX_FAULTS: usize = 16;
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
-#[cfg_attr(feature = "serde", serde(rename_all = "snake_case", deny_unknown_fields))]
+#[cfg_attr(
+    feature = "serde",
+    serde(rename_all = "snake_case", deny_unknown_fields)
+)]
 pub enum Field {
     /// `tx_dbm`.
     Tx,
@@ -35,7 +38,10 @@ pub enum Field {
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
-#[cfg_attr(feature = "serde", serde(rename_all = "snake_case", deny_unknown_fields))]
+#[cfg_attr(
+    feature = "serde",
+    serde(rename_all = "snake_case", deny_unknown_fields)
+)]
 pub enum FaultKind {
     /// No report came back: RSSI and noise are missing.
     FeedbackDropout,
@@ -148,7 +154,12 @@ pub struct FaultInjector<const N: usize = MAX_FAULTS> {
 #[cfg(feature = "defmt")]
 impl<const N: usize> defmt::Format for FaultInjector<N> {
     fn format(&self, f: defmt::Formatter<'_>) {
-        defmt::write!(f, "FaultInjector {{ record: {}, faults: {} }}", self.index, self.faults.as_slice());
+        defmt::write!(
+            f,
+            "FaultInjector {{ record: {}, faults: {} }}",
+            self.index,
+            self.faults.as_slice()
+        );
     }
 }
 
@@ -168,7 +179,13 @@ impl<const N: usize> FaultInjector<N> {
                 });
             }
         }
-        Ok(FaultInjector { faults: v, index: 0, last_rssi: None, stuck: [None; N], prev_t: None })
+        Ok(FaultInjector {
+            faults: v,
+            index: 0,
+            last_rssi: None,
+            stuck: [None; N],
+            prev_t: None,
+        })
     }
 
     /// The faults, in order.
@@ -240,7 +257,11 @@ impl<const N: usize> FaultInjector<N> {
                 }
                 FaultKind::Infinite { field, negative } => {
                     let v = column(&mut out, field);
-                    let inf = if negative { f32::NEG_INFINITY } else { f32::INFINITY };
+                    let inf = if negative {
+                        f32::NEG_INFINITY
+                    } else {
+                        f32::INFINITY
+                    };
                     *v = v.map(|_| inf);
                 }
             }
@@ -283,19 +304,31 @@ mod tests {
 
     #[test]
     fn faults_act_only_inside_their_window() {
-        let f = [Fault { kind: FaultKind::PathLossStep { change: Db(20.0) }, start: 2, length: 3 }];
+        let f = [Fault {
+            kind: FaultKind::PathLossStep { change: Db(20.0) },
+            start: 2,
+            length: 3,
+        }];
         let out = run(&f, 7);
         assert_eq!(out.len(), 7);
         for (i, r) in out.iter().enumerate() {
             let clean = rec(i as u64).rssi_dbm.unwrap_or(0.0);
-            let want = if (2..5).contains(&i) { clean - 20.0 } else { clean };
+            let want = if (2..5).contains(&i) {
+                clean - 20.0
+            } else {
+                clean
+            };
             assert_eq!(r.rssi_dbm, Some(want), "record {i}");
         }
     }
 
     #[test]
     fn stuck_rssi_repeats_the_last_clean_value() {
-        let f = [Fault { kind: FaultKind::StuckRssi, start: 3, length: 4 }];
+        let f = [Fault {
+            kind: FaultKind::StuckRssi,
+            start: 3,
+            length: 4,
+        }];
         let out = run(&f, 9);
         assert_eq!(out.len(), 9);
         for r in out.get(3..7).unwrap_or(&[]) {
@@ -307,8 +340,16 @@ mod tests {
     #[test]
     fn time_stamps_repeat_and_go_back() {
         let f = [
-            Fault { kind: FaultKind::DuplicateTimestamp, start: 1, length: 1 },
-            Fault { kind: FaultKind::BackwardsTimestamp { by_ms: 5000 }, start: 4, length: 1 },
+            Fault {
+                kind: FaultKind::DuplicateTimestamp,
+                start: 1,
+                length: 1,
+            },
+            Fault {
+                kind: FaultKind::BackwardsTimestamp { by_ms: 5000 },
+                start: 4,
+                length: 1,
+            },
         ];
         let out = run(&f, 6);
         let t: std::vec::Vec<u64> = out.iter().map(|r| r.t_ms).collect();
@@ -318,27 +359,59 @@ mod tests {
     #[test]
     fn wrong_units_and_non_finite_values() {
         let f = [
-            Fault { kind: FaultKind::Milliwatts { field: Field::Tx }, start: 0, length: 1 },
-            Fault { kind: FaultKind::NotANumber { field: Field::Rssi }, start: 1, length: 1 },
-            Fault { kind: FaultKind::Infinite { field: Field::Noise, negative: true }, start: 2, length: 1 },
-            Fault { kind: FaultKind::Saturation { level: Dbm(-25.0) }, start: 3, length: 1 },
+            Fault {
+                kind: FaultKind::Milliwatts { field: Field::Tx },
+                start: 0,
+                length: 1,
+            },
+            Fault {
+                kind: FaultKind::NotANumber { field: Field::Rssi },
+                start: 1,
+                length: 1,
+            },
+            Fault {
+                kind: FaultKind::Infinite {
+                    field: Field::Noise,
+                    negative: true,
+                },
+                start: 2,
+                length: 1,
+            },
+            Fault {
+                kind: FaultKind::Saturation { level: Dbm(-25.0) },
+                start: 3,
+                length: 1,
+            },
         ];
         let out = run(&f, 4);
         // 10 dBm is 10 mW (definition of dBm).
         let tx = out.first().and_then(|r| r.tx_dbm).unwrap_or(0.0);
         assert!((tx - 10.0).abs() < 1e-4);
         assert!(out.get(1).and_then(|r| r.rssi_dbm).is_some_and(f32::is_nan));
-        assert_eq!(out.get(2).and_then(|r| r.noise_dbm), Some(f32::NEG_INFINITY));
+        assert_eq!(
+            out.get(2).and_then(|r| r.noise_dbm),
+            Some(f32::NEG_INFINITY)
+        );
         assert_eq!(out.get(3).and_then(|r| r.rssi_dbm), Some(-25.0));
     }
 
     #[test]
     fn refuses_bad_fault_lists() {
-        let f = Fault { kind: FaultKind::FeedbackDropout, start: 0, length: 1 };
+        let f = Fault {
+            kind: FaultKind::FeedbackDropout,
+            start: 0,
+            length: 1,
+        };
         assert!(FaultInjector::<2>::new(&[f, f, f]).is_err());
         let zero = Fault { length: 0, ..f };
-        assert_eq!(FaultInjector::<2>::new(&[zero]), Err(Error::NotPositive("fault.length")));
-        let nan = Fault { kind: FaultKind::NoiseBurst { rise: Db(f32::NAN) }, ..f };
+        assert_eq!(
+            FaultInjector::<2>::new(&[zero]),
+            Err(Error::NotPositive("fault.length"))
+        );
+        let nan = Fault {
+            kind: FaultKind::NoiseBurst { rise: Db(f32::NAN) },
+            ..f
+        };
         assert!(FaultInjector::<2>::new(&[nan]).is_err());
     }
 }

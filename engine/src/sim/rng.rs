@@ -31,7 +31,10 @@ impl Pcg32 {
     /// reference `pcg32_srandom_r(seed, stream)`. Different streams with the
     /// same seed give unrelated sequences.
     pub fn new(seed: u64, stream: u64) -> Self {
-        let mut g = Pcg32 { state: 0, increment: (stream << 1) | 1 };
+        let mut g = Pcg32 {
+            state: 0,
+            increment: (stream << 1) | 1,
+        };
         g.step();
         g.state = g.state.wrapping_add(seed);
         g.step();
@@ -40,7 +43,10 @@ impl Pcg32 {
 
     #[inline]
     fn step(&mut self) {
-        self.state = self.state.wrapping_mul(PCG_MULTIPLIER).wrapping_add(self.increment);
+        self.state = self
+            .state
+            .wrapping_mul(PCG_MULTIPLIER)
+            .wrapping_add(self.increment);
     }
 
     /// The next 32 random bits.
@@ -97,7 +103,10 @@ pub struct Normal {
 impl Normal {
     /// Normal draws from a PCG32 seeded with (`seed`, `stream`).
     pub fn new(seed: u64, stream: u64) -> Self {
-        Normal { rng: Pcg32::new(seed, stream), spare: None }
+        Normal {
+            rng: Pcg32::new(seed, stream),
+            spare: None,
+        }
     }
 
     /// A pair of independent standard normal draws (both halves of one
@@ -139,7 +148,14 @@ mod tests {
         // First six outputs of pcg32_srandom_r(42, 54) in O'Neill's
         // pcg32-demo.c (pcg-c-basic distribution), "Round 1".
         let mut g = Pcg32::new(42, 54);
-        let want = [0xa15c_02b7_u32, 0x7b47_f409, 0xba1d_3330, 0x83d2_f293, 0xbfa4_784b, 0xcbed_606e];
+        let want = [
+            0xa15c_02b7_u32,
+            0x7b47_f409,
+            0xba1d_3330,
+            0x83d2_f293,
+            0xbfa4_784b,
+            0xcbed_606e,
+        ];
         for w in want {
             assert_eq!(g.next_u32(), w);
         }
@@ -158,7 +174,10 @@ mod tests {
         // Mean 1/2 with standard error 1/sqrt(12 n) ≈ 0.0009.
         assert!((sum / f64::from(n) - 0.5).abs() < 0.005);
         // The extreme cells are exactly representable and inside (0, 1).
-        let (lo, hi) = (std::hint::black_box(1.0f32), std::hint::black_box(16_777_215.0f32));
+        let (lo, hi) = (
+            std::hint::black_box(1.0f32),
+            std::hint::black_box(16_777_215.0f32),
+        );
         assert!(lo * TWO_POW_MINUS_24 > 0.0);
         assert!(hi * TWO_POW_MINUS_24 < 1.0);
     }

@@ -53,7 +53,10 @@ impl PowerPattern {
         let mut levels_dbm = Vec::new();
         // Capacity is at least 1, so the push cannot fail.
         let _ = levels_dbm.push(p);
-        PowerPattern { levels_dbm, hold_packets: 1 }
+        PowerPattern {
+            levels_dbm,
+            hold_packets: 1,
+        }
     }
 
     /// A pattern cycling through `levels`, `hold_packets` packets each;
@@ -70,7 +73,10 @@ impl PowerPattern {
                 });
             }
         }
-        let p = PowerPattern { levels_dbm, hold_packets };
+        let p = PowerPattern {
+            levels_dbm,
+            hold_packets,
+        };
         p.check()?;
         Ok(p)
     }
@@ -114,7 +120,12 @@ pub struct Synth<const F: usize = MAX_FAULTS> {
 
 impl<const F: usize> Synth<F> {
     /// Check everything and start at packet 0.
-    pub fn new(channel: ChannelConfig, power: PowerPattern, faults: &[Fault], seed: u64) -> Result<Self> {
+    pub fn new(
+        channel: ChannelConfig,
+        power: PowerPattern,
+        faults: &[Fault],
+        seed: u64,
+    ) -> Result<Self> {
         power.check()?;
         Ok(Synth {
             channel: Channel::new(channel, seed)?,
@@ -145,6 +156,11 @@ impl<const F: usize> Synth<F> {
 #[cfg(feature = "defmt")]
 impl<const F: usize> defmt::Format for Synth<F> {
     fn format(&self, f: defmt::Formatter<'_>) {
-        defmt::write!(f, "Synth {{ channel: {}, faults: {} }}", self.channel, self.faults);
+        defmt::write!(
+            f,
+            "Synth {{ channel: {}, faults: {} }}",
+            self.channel,
+            self.faults
+        );
     }
 }

@@ -32,7 +32,10 @@ pub fn run(args: Args) -> CliResult {
     if same_file(&args.input, &args.output) {
         return Err(CliError::arg(
             "OUTPUT",
-            format!("{} is the input file; write to another file", args.output.display()),
+            format!(
+                "{} is the input file; write to another file",
+                args.output.display()
+            ),
         ));
     }
     let mut input = match args.from {
@@ -42,8 +45,14 @@ pub fn run(args: Args) -> CliResult {
     input.set_strict(args.strict);
     let header = input.header().copied();
     let (to, mut output) = match args.to {
-        None => (LogFormat::from_path(&args.output)?, logio::create(&args.output, args.force, header)?),
-        Some(to) => (to, logio::create_as(&args.output, Some(to), args.force, header)?),
+        None => (
+            LogFormat::from_path(&args.output)?,
+            logio::create(&args.output, args.force, header)?,
+        ),
+        Some(to) => (
+            to,
+            logio::create_as(&args.output, Some(to), args.force, header)?,
+        ),
     };
     for rec in &mut input {
         output.write(&rec?)?;

@@ -2,12 +2,12 @@
 
 pub mod ber;
 pub mod budget;
+pub mod convert;
 pub mod fade;
 pub mod noise;
 pub mod pathloss;
 pub mod rain;
-pub mod solve;
-pub mod convert;
 pub mod replay;
+pub mod solve;
 pub mod synth;
 pub mod tune;

@@ -21,7 +21,9 @@ use std::fs;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use headroom::control::{ControllerConfig, ExplicitSettings, PowerSteps, Reason, Replay, ReplayStep, Summary};
+use headroom::control::{
+    ControllerConfig, ExplicitSettings, PowerSteps, Reason, Replay, ReplayStep, Summary,
+};
 use headroom::record::{LogHeader, LogRecord};
 use headroom::units::{Db, Dbi, Dbm};
 use serde_json::{Map, Value};
@@ -48,7 +50,8 @@ pub enum ReplayFormat {
     Jsonl,
 }
 
-const AFTER_HELP: &str = concat!("\
+const AFTER_HELP: &str = concat!(
+    "\
 Several logs: each log (or each .csv/.hrlog file of a directory, sorted by \
 name) is one device, replayed separately with a fresh controller set up from \
 its own header. `--format jsonl` prints one line per log (the summary keys \
@@ -58,7 +61,10 @@ alone). The fleet total adds counts and linear powers (mW) over the logs; its \
 energy saving compares the mean power with each log's own highest allowed \
 level, averaged in mW. --out and --plot take one log. The first log that \
 cannot be read stops the command with an error (jsonl lines already printed \
-stay valid).", "\n\n", caution!());
+stay valid).",
+    "\n\n",
+    caution!()
+);
 
 /// Arguments of `headroom replay`.
 #[derive(clap::Args)]
@@ -129,13 +135,19 @@ pub(crate) fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
             logs.push(a.clone());
             continue;
         }
-        let entries = fs::read_dir(a)
-            .map_err(|e| CliError::Io(format!("{}: cannot list the directory: {e}", a.display())))?;
+        let entries = fs::read_dir(a).map_err(|e| {
+            CliError::Io(format!("{}: cannot list the directory: {e}", a.display()))
+        })?;
         let mut found = Vec::new();
         for e in entries {
-            let e = e.map_err(|e| CliError::Io(format!("{}: cannot list the directory: {e}", a.display())))?;
+            let e = e.map_err(|e| {
+                CliError::Io(format!("{}: cannot list the directory: {e}", a.display()))
+            })?;
             let p = e.path();
-            let ext = p.extension().and_then(|x| x.to_str()).map(str::to_ascii_lowercase);
+            let ext = p
+                .extension()
+                .and_then(|x| x.to_str())
+                .map(str::to_ascii_lowercase);
             if matches!(ext.as_deref(), Some("csv" | "hrlog")) && p.is_file() {
                 found.push(p);
             }
@@ -156,11 +168,17 @@ pub(crate) fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
 pub fn run(args: Args) -> CliResult {
     let logs = expand_logs(&args.logs)?;
     if logs.len() > 1 {
-        for (flag, set) in [("--out", args.out.is_some()), ("--plot", args.plot.is_some())] {
+        for (flag, set) in [
+            ("--out", args.out.is_some()),
+            ("--plot", args.plot.is_some()),
+        ] {
             if set {
                 return Err(CliError::arg(
                     flag,
-                    format!("takes one log, {} were named: replay them one at a time", logs.len()),
+                    format!(
+                        "takes one log, {} were named: replay them one at a time",
+                        logs.len()
+                    ),
                 ));
             }
         }
@@ -230,7 +248,8 @@ fn print_line(line: &str) -> CliResult {
 }
 
 fn print_json(v: &Value) -> CliResult {
-    let s = serde_json::to_string_pretty(v).map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+    let s = serde_json::to_string_pretty(v)
+        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
     print_line(&s)
 }
 
@@ -270,9 +289,15 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
     }
     if let (Some(p), Some(s)) = (&args.plot, &series) {
         if s.t_ms.is_empty() {
-            return Err(CliError::arg("--plot", format!("{}: the log has no records to draw", path.display())));
+            return Err(CliError::arg(
+                "--plot",
+                format!("{}: the log has no records to draw", path.display()),
+            ));
         }
-        let name = path.file_name().map_or_else(|| path.display().to_string(), |n| n.to_string_lossy().into_owned());
+        let name = path.file_name().map_or_else(
+            || path.display().to_string(),
+            |n| n.to_string_lossy().into_owned(),
+        );
         plot::replay_plot(p, args.force, &format!("replay of {name}"), s)?;
     }
     Ok(*replay.summary())
@@ -286,7 +311,8 @@ fn push_series(s: &mut ReplaySeries, rec: &LogRecord, step: &ReplayStep) {
     s.noise_floor_dbm.push(rec.noise_dbm);
     s.tx_power_dbm.push(Some(step.chosen.0));
     s.margin_db.push(Some(step.margin.0));
-    s.lost.push(step.outcome == headroom::control::Outcome::Lost);
+    s.lost
+        .push(step.outcome == headroom::control::Outcome::Lost);
 }
 
 /// Defaults, then the log header, then the TOML file, then the flags.
@@ -297,7 +323,10 @@ fn build_config(args: &Args, header: Option<&LogHeader>) -> CliResult<Controller
     };
     let set = |k: &str| keys.iter().any(|x| x == k);
     if let Some(h) = header {
-        cfg.apply_log_header(h, ExplicitSettings::from_keys(keys.iter().map(String::as_str)));
+        cfg.apply_log_header(
+            h,
+            ExplicitSettings::from_keys(keys.iter().map(String::as_str)),
+        );
     }
     if let Some(v) = args.required_snr_db {
         cfg.required_snr_db = v;
@@ -360,11 +389,19 @@ fn flag_for(setting: &str) -> Option<&'static str> {
 pub(crate) fn load_toml(path: &Path) -> CliResult<(ControllerConfig, Vec<String>)> {
     let text = fs::read_to_string(path)
         .map_err(|e| CliError::Io(format!("{}: cannot read: {e}", path.display())))?;
-    let table: toml::Table = toml::from_str(&text)
-        .map_err(|e| CliError::arg("--config", format!("{}: {}", path.display(), one_line(&e.to_string()))))?;
+    let table: toml::Table = toml::from_str(&text).map_err(|e| {
+        CliError::arg(
+            "--config",
+            format!("{}: {}", path.display(), one_line(&e.to_string())),
+        )
+    })?;
     let keys = table.keys().cloned().collect();
-    let cfg: ControllerConfig = toml::from_str(&text)
-        .map_err(|e| CliError::arg("--config", format!("{}: {}", path.display(), one_line(&e.to_string()))))?;
+    let cfg: ControllerConfig = toml::from_str(&text).map_err(|e| {
+        CliError::arg(
+            "--config",
+            format!("{}: {}", path.display(), one_line(&e.to_string())),
+        )
+    })?;
     Ok((cfg, keys))
 }
 
@@ -416,7 +453,9 @@ struct DecisionWriter {
 
 impl DecisionWriter {
     fn create(dest: &Path, force: bool) -> CliResult<Self> {
-        let mut w = DecisionWriter { file: AtomicFile::create(dest, force)? };
+        let mut w = DecisionWriter {
+            file: AtomicFile::create(dest, force)?,
+        };
         w.write_line("t_ms,chosen_tx_dbm,replayed_snr_db,outcome,path_loss_db,margin_db,reason")?;
         Ok(w)
     }
@@ -460,14 +499,18 @@ mod tests {
         let back: toml::Table = toml::from_str(&round).expect("round trip");
         // Every field of the config is documented in the example.
         for k in back.keys() {
-            assert!(table.contains_key(k), "examples/controllers/default.toml lacks {k}");
+            assert!(
+                table.contains_key(k),
+                "examples/controllers/default.toml lacks {k}"
+            );
         }
     }
 
     #[test]
     fn level_tables_and_typos() {
         let cfg: ControllerConfig =
-            toml::from_str("steps = { table = [-9, 0, 5, 10, 14] }\nmax_step_down_db = 9").expect("table");
+            toml::from_str("steps = { table = [-9, 0, 5, 10, 14] }\nmax_step_down_db = 9")
+                .expect("table");
         match cfg.steps {
             PowerSteps::Table(t) => assert_eq!(t.levels().len(), 5),
             other => panic!("{other:?}"),

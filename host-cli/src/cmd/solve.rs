@@ -73,11 +73,17 @@ pub fn run(args: Args) -> CliResult {
         }
         Unknown::Range => {
             let model = l.model.as_ref().ok_or_else(|| {
-                CliError::arg("path.model", "'fixed' has no distance dependence: give a model to solve for range")
+                CliError::arg(
+                    "path.model",
+                    "'fixed' has no distance dependence: give a model to solve for range",
+                )
             })?;
             rep.num("target_margin_db", target.0, "dB");
             rep.num("path_loss_db", l.link.max_path_loss(target)?.0, "dB");
-            let d = l.link.max_range(model, l.frequency, target).map_err(|e| CliError::arg("range", e))?;
+            let d = l
+                .link
+                .max_range(model, l.frequency, target)
+                .map_err(|e| CliError::arg("range", e))?;
             rep.num("range_m", d.0, "m");
         }
     }

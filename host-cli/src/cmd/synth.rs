@@ -151,12 +151,18 @@ impl Radio {
         let max = fin("radio.max_tx_dbm", self.max_tx_dbm)?;
         if let (Some(a), Some(b)) = (min, max) {
             if a > b {
-                return Err(CliError::arg("radio.min_tx_dbm", "is above radio.max_tx_dbm"));
+                return Err(CliError::arg(
+                    "radio.min_tx_dbm",
+                    "is above radio.max_tx_dbm",
+                ));
             }
         }
         let step = fin("radio.tx_step_db", self.tx_step_db)?;
         if step.is_some_and(|s| s <= 0.0) {
-            return Err(CliError::arg("radio.tx_step_db", "must be greater than zero"));
+            return Err(CliError::arg(
+                "radio.tx_step_db",
+                "must be greater than zero",
+            ));
         }
         Ok(LogHeader {
             device_id: self.device_id,
@@ -164,8 +170,7 @@ impl Radio {
             min_tx: min.map(Dbm),
             max_tx: max.map(Dbm),
             tx_step: step.map(Db),
-            antenna_gain: fin("radio.antenna_gain_dbi", self.antenna_gain_dbi)?
-                .map(Dbi),
+            antenna_gain: fin("radio.antenna_gain_dbi", self.antenna_gain_dbi)?.map(Dbi),
         })
     }
 }
@@ -183,7 +188,10 @@ pub fn load_scenario(path: &Path) -> CliResult<Scenario> {
 /// Parse a scenario from TOML text; errors name the line.
 pub fn parse_scenario(text: &str) -> CliResult<Scenario> {
     let sc: Scenario = toml::from_str(text).map_err(|e| {
-        let line = e.span().map(|s| text.get(..s.start).map_or(1, |t| t.matches('\n').count() + 1));
+        let line = e.span().map(|s| {
+            text.get(..s.start)
+                .map_or(1, |t| t.matches('\n').count() + 1)
+        });
         let msg = e.message().trim().replace('\n', " ");
         match line {
             Some(l) => CliError::Input(format!("line {l}: {msg}")),
@@ -191,7 +199,10 @@ pub fn parse_scenario(text: &str) -> CliResult<Scenario> {
         }
     })?;
     if sc.faults.len() > MAX_FAULTS {
-        return Err(CliError::arg("faults", format!("at most {MAX_FAULTS} faults")));
+        return Err(CliError::arg(
+            "faults",
+            format!("at most {MAX_FAULTS} faults"),
+        ));
     }
     check_power(&sc.power, sc.radio.as_ref())?;
     if let Some(r) = &sc.radio {
@@ -223,11 +234,14 @@ pub fn simulate(
     records: u64,
     mut sink: impl FnMut(&headroom::record::LogRecord) -> CliResult,
 ) -> CliResult<Tally> {
-    let mut synth = Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, seed)
-        .map_err(|e| CliError::arg("scenario", e))?;
+    let mut synth =
+        Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, seed)
+            .map_err(|e| CliError::arg("scenario", e))?;
     let mut tally = Tally::default();
     for k in 0..records {
-        let (s, rec) = synth.next_record().map_err(|e| CliError::arg("scenario", e))?;
+        let (s, rec) = synth
+            .next_record()
+            .map_err(|e| CliError::arg("scenario", e))?;
         tally.lost += u64::from(!s.received);
         tally.feedback_lost += u64::from(s.feedback_lost);
         tally.in_noise_burst += u64::from(s.in_noise_burst);
@@ -241,7 +255,10 @@ pub fn simulate(
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
     if args.records == 0 || args.records > MAX_RECORDS {
-        return Err(CliError::arg("--records", format!("must be between 1 and {MAX_RECORDS}")));
+        return Err(CliError::arg(
+            "--records",
+            format!("must be between 1 and {MAX_RECORDS}"),
+        ));
     }
     let sc = load_scenario(&args.scenario)?;
     let header = sc.radio.as_ref().map(Radio::header).transpose()?;
@@ -303,10 +320,16 @@ length = 2
     #[test]
     fn errors_name_the_line_and_field() {
         let bad = MINIMAL.replace("hold_packets = 3", "hold_packets = 3\ncolour = 1");
-        let e = parse_scenario(&bad).err().map(|e| e.to_string()).unwrap_or_default();
+        let e = parse_scenario(&bad)
+            .err()
+            .map(|e| e.to_string())
+            .unwrap_or_default();
         assert!(e.contains("line 12") && e.contains("colour"), "{e}");
         let bad = MINIMAL.replace("levels_dbm = [2.0, 14.0]", "levels_dbm = []");
-        let e = parse_scenario(&bad).err().map(|e| e.to_string()).unwrap_or_default();
+        let e = parse_scenario(&bad)
+            .err()
+            .map(|e| e.to_string())
+            .unwrap_or_default();
         assert!(e.contains("power.levels_dbm"), "{e}");
         assert!(!e.contains('\n'));
     }
@@ -324,7 +347,8 @@ length = 2
         let dir = tempfile::tempdir().expect("temporary directory");
         let scenarios = Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/scenarios/faults");
         for name in ["non-finite", "wrong-unit", "timestamps"] {
-            let sc = load_scenario(&scenarios.join(format!("{name}.toml"))).expect("scenario loads");
+            let sc =
+                load_scenario(&scenarios.join(format!("{name}.toml"))).expect("scenario loads");
             for ext in ["csv", "hrlog"] {
                 let out = dir.path().join(format!("{name}.{ext}"));
                 let mut want = Vec::new();
@@ -337,13 +361,19 @@ length = 2
                 w.finish().expect("written");
                 // Refuses to overwrite without --force.
                 assert!(logio::create(&out, false, None).is_err());
-                let got: Vec<_> = logio::open(&out).expect("open").map(|r| r.expect("record")).collect();
+                let got: Vec<_> = logio::open(&out)
+                    .expect("open")
+                    .map(|r| r.expect("record"))
+                    .collect();
                 assert_eq!(got.len(), want.len(), "{name}.{ext}");
                 for (g, w) in got.iter().zip(&want) {
                     assert_eq!(g.t_ms, w.t_ms);
                     assert!(same(g.tx_dbm, w.tx_dbm), "{name}.{ext}: {g:?} vs {w:?}");
                     assert!(same(g.rssi_dbm, w.rssi_dbm), "{name}.{ext}: {g:?} vs {w:?}");
-                    assert!(same(g.noise_dbm, w.noise_dbm), "{name}.{ext}: {g:?} vs {w:?}");
+                    assert!(
+                        same(g.noise_dbm, w.noise_dbm),
+                        "{name}.{ext}: {g:?} vs {w:?}"
+                    );
                 }
             }
         }

@@ -127,11 +127,14 @@ pub struct Sweep {
     values: Vec<f64>,
 }
 
-const SWEEP_FORM: &str = "expected NAME=FROM..TO:STEP, NAME=A,B,C or NAME=A (e.g. margin_step_db=0.25..1:0.25)";
+const SWEEP_FORM: &str =
+    "expected NAME=FROM..TO:STEP, NAME=A,B,C or NAME=A (e.g. margin_step_db=0.25..1:0.25)";
 
 fn sweep_number(s: &str) -> Result<f64, String> {
     let t = s.trim();
-    let x: f64 = t.parse().map_err(|_| format!("'{t}' is not a number ({SWEEP_FORM})"))?;
+    let x: f64 = t
+        .parse()
+        .map_err(|_| format!("'{t}' is not a number ({SWEEP_FORM})"))?;
     if x.is_finite() {
         Ok(x)
     } else {
@@ -161,7 +164,9 @@ fn parse_sweep(s: &str) -> Result<Sweep, String> {
             return Err(format!("range '{spec}': FROM {from} is above TO {to}"));
         }
         if step <= 0.0 {
-            return Err(format!("range '{spec}': STEP {step} must be greater than zero"));
+            return Err(format!(
+                "range '{spec}': STEP {step} must be greater than zero"
+            ));
         }
         // Values FROM + k·STEP up to TO, TO included when it is on the grid
         // to within rounding.
@@ -249,7 +254,10 @@ fn locate(v: &Value, name: &str) -> CliResult<Target> {
 fn put(v: &mut Value, t: &Target, name: &str, x: f64) -> CliResult {
     let new = if t.integer {
         if x.fract() != 0.0 || x.abs() > 9.0e15 {
-            return Err(CliError::arg("--sweep", format!("{name} takes whole numbers, not {x}")));
+            return Err(CliError::arg(
+                "--sweep",
+                format!("{name} takes whole numbers, not {x}"),
+            ));
         }
         #[allow(clippy::cast_possible_truncation)] // whole and within ±9e15
         Value::from(x as i64)
@@ -258,9 +266,12 @@ fn put(v: &mut Value, t: &Target, name: &str, x: f64) -> CliResult {
     };
     let mut at = v;
     for part in &t.path {
-        at = at
-            .get_mut(part)
-            .ok_or_else(|| CliError::arg("--sweep", format!("'{name}' is not a setting of the controller here")))?;
+        at = at.get_mut(part).ok_or_else(|| {
+            CliError::arg(
+                "--sweep",
+                format!("'{name}' is not a setting of the controller here"),
+            )
+        })?;
     }
     *at = new;
     Ok(())
@@ -280,7 +291,10 @@ impl Grid {
         let mut targets = Vec::with_capacity(sweeps.len());
         for (k, s) in sweeps.iter().enumerate() {
             if sweeps.iter().take(k).any(|o| o.name == s.name) {
-                return Err(CliError::arg("--sweep", format!("'{}' is swept twice", s.name)));
+                return Err(CliError::arg(
+                    "--sweep",
+                    format!("'{}' is swept twice", s.name),
+                ));
             }
             targets.push(locate(base, &s.name)?);
             len = len.saturating_mul(s.values.len());
@@ -293,7 +307,11 @@ impl Grid {
                 ),
             ));
         }
-        Ok(Grid { sweeps, targets, len })
+        Ok(Grid {
+            sweeps,
+            targets,
+            len,
+        })
     }
 
     /// The values of combination `k` (0-based), first sweep slowest.
@@ -337,16 +355,26 @@ impl Grid {
     }
 
     /// The config of combination `k` on top of `base` (`None`: the default).
-    fn config(&self, base: &ControllerConfig, start_set: bool, k: Option<usize>) -> CliResult<ControllerConfig> {
+    fn config(
+        &self,
+        base: &ControllerConfig,
+        start_set: bool,
+        k: Option<usize>,
+    ) -> CliResult<ControllerConfig> {
         let mut cfg = *base;
         if let Some(k) = k {
-            let mut v = serde_json::to_value(base)
-                .map_err(|e| CliError::Input(format!("controller settings: cannot serialise: {e}")))?;
+            let mut v = serde_json::to_value(base).map_err(|e| {
+                CliError::Input(format!("controller settings: cannot serialise: {e}"))
+            })?;
             for ((s, t), x) in self.sweeps.iter().zip(&self.targets).zip(self.values(k)) {
                 put(&mut v, t, &s.name, x)?;
             }
-            cfg = serde_json::from_value(v)
-                .map_err(|e| CliError::arg("--sweep", format!("{}: the controller refuses it: {e}", self.label(k))))?;
+            cfg = serde_json::from_value(v).map_err(|e| {
+                CliError::arg(
+                    "--sweep",
+                    format!("{}: the controller refuses it: {e}", self.label(k)),
+                )
+            })?;
         }
         if !start_set && !self.swept("start_tx_dbm") {
             let ceiling = cfg.tx_ceiling();
@@ -355,7 +383,10 @@ impl Grid {
             }
         }
         cfg.validate().map_err(|e| match k {
-            Some(k) => CliError::arg("--sweep", format!("{}: the controller refuses it: {e}", self.label(k))),
+            Some(k) => CliError::arg(
+                "--sweep",
+                format!("{}: the controller refuses it: {e}", self.label(k)),
+            ),
             None => CliError::Input(format!("controller settings: {e}")),
         })?;
         Ok(cfg)
@@ -492,7 +523,10 @@ impl Totals {
         m.insert("records".into(), self.records.into());
         m.insert("judged".into(), self.judged.into());
         m.insert("lost".into(), self.lost.into());
-        m.insert("outage_fraction".into(), opt(self.outage().map(|x| x as f32)));
+        m.insert(
+            "outage_fraction".into(),
+            opt(self.outage().map(|x| x as f32)),
+        );
         m.insert("mean_tx_dbm".into(), opt(self.mean_tx().map(|d| d.0)));
         m.insert("energy_saving_db".into(), opt(self.saving_db()));
         m.insert("power_changes".into(), self.power_changes.into());
@@ -547,7 +581,10 @@ fn pareto_front(points: &[Option<(f64, f64)>]) -> Vec<bool> {
 
 /// The candidate of least power among those whose point passes `keep`;
 /// ties to the lower loss, then the lower index.
-fn cheapest(points: &[Option<(f64, f64)>], keep: impl Fn(usize, &(f64, f64)) -> bool) -> Option<usize> {
+fn cheapest(
+    points: &[Option<(f64, f64)>],
+    keep: impl Fn(usize, &(f64, f64)) -> bool,
+) -> Option<usize> {
     points
         .iter()
         .enumerate()
@@ -581,10 +618,12 @@ fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
     let mut out = Vec::new();
     for p in args {
         if p.is_dir() {
-            let rd = std::fs::read_dir(p).map_err(|e| CliError::Io(format!("{}: cannot list: {e}", p.display())))?;
+            let rd = std::fs::read_dir(p)
+                .map_err(|e| CliError::Io(format!("{}: cannot list: {e}", p.display())))?;
             let mut found = Vec::new();
             for entry in rd {
-                let entry = entry.map_err(|e| CliError::Io(format!("{}: cannot list: {e}", p.display())))?;
+                let entry = entry
+                    .map_err(|e| CliError::Io(format!("{}: cannot list: {e}", p.display())))?;
                 let path = entry.path();
                 let is_log = matches!(
                     path.extension().and_then(|e| e.to_str()),
@@ -678,7 +717,9 @@ pub fn run(args: Args) -> CliResult {
         ProgressBar::with_draw_target(Some(jobs as u64), ProgressDrawTarget::hidden())
     } else {
         let b = ProgressBar::new(jobs as u64);
-        if let Ok(style) = ProgressStyle::with_template("{elapsed_precise} [{bar:40}] {pos}/{len} replays, eta {eta}") {
+        if let Ok(style) = ProgressStyle::with_template(
+            "{elapsed_precise} [{bar:40}] {pos}/{len} replays, eta {eta}",
+        ) {
             b.set_style(style.progress_chars("=> "));
         }
         b
@@ -737,7 +778,10 @@ pub fn run(args: Args) -> CliResult {
                 f.add(&d.totals);
             }
             if args.format == TuneFormat::Jsonl {
-                let path = logs.get(log).map(|p| p.display().to_string()).unwrap_or_default();
+                let path = logs
+                    .get(log)
+                    .map(|p| p.display().to_string())
+                    .unwrap_or_default();
                 let line = jsonl_line(&grid, cand, &path, &d.totals)?;
                 writeln!(out, "{line}").map_err(|e| CliError::Io(format!("stdout: {e}")))?;
             }
@@ -777,7 +821,8 @@ pub fn run(args: Args) -> CliResult {
                 .map_err(|e| CliError::Io(format!("stdout: {e}")))?;
         }
     }
-    out.flush().map_err(|e| CliError::Io(format!("stdout: {e}")))?;
+    out.flush()
+        .map_err(|e| CliError::Io(format!("stdout: {e}")))?;
     drop(out);
 
     if let Some(p) = &args.plot {
@@ -789,11 +834,19 @@ pub fn run(args: Args) -> CliResult {
                 #[allow(clippy::cast_possible_truncation)]
                 let (tx, loss) = (tx as f32, loss as f32);
                 // Short labels: the candidate numbers of the table and JSON.
-                let label = if k == 0 { "default".to_string() } else { format!("#{k}") };
+                let label = if k == 0 {
+                    "default".to_string()
+                } else {
+                    format!("#{k}")
+                };
                 Some((tx, loss, label, loss <= target))
             })
             .collect();
-        let title = format!("headroom tune: {} settings over {} logs", candidates, logs.len());
+        let title = format!(
+            "headroom tune: {} settings over {} logs",
+            candidates,
+            logs.len()
+        );
         plot::pareto_plot(p, args.force, &title, &pts, target)?;
     }
     Ok(())
@@ -806,12 +859,20 @@ fn jsonl_line(grid: &Grid, cand: usize, log: &str, t: &Totals) -> CliResult<Stri
     m.insert("default".into(), (cand == 0).into());
     m.insert(
         "settings".into(),
-        Value::Object(cand.checked_sub(1).map(|k| grid.settings_json(k)).unwrap_or_default()),
+        Value::Object(
+            cand.checked_sub(1)
+                .map(|k| grid.settings_json(k))
+                .unwrap_or_default(),
+        ),
     );
     t.json(&mut m);
     m.insert("tx_mw_sum".into(), Value::from(t.tx_mw_sum));
-    m.insert("max_allowed_mw_sum".into(), Value::from(t.max_allowed_mw_sum));
-    serde_json::to_string(&Value::Object(m)).map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
+    m.insert(
+        "max_allowed_mw_sum".into(),
+        Value::from(t.max_allowed_mw_sum),
+    );
+    serde_json::to_string(&Value::Object(m))
+        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
 }
 
 /// Everything the table, the JSON and the plot show.
@@ -842,7 +903,11 @@ impl TuneResult<'_> {
 
     /// The default's value of each swept setting, if the same for every log.
     fn default_values(&self) -> Vec<Option<Value>> {
-        let values: Vec<Option<Value>> = self.bases.iter().map(|b| serde_json::to_value(b).ok()).collect();
+        let values: Vec<Option<Value>> = self
+            .bases
+            .iter()
+            .map(|b| serde_json::to_value(b).ok())
+            .collect();
         self.grid
             .targets
             .iter()
@@ -884,7 +949,10 @@ impl TuneResult<'_> {
         m.insert("settings".into(), Value::Object(settings));
         let t = self.fleet.get(cand).copied().unwrap_or(Totals::ZERO);
         m.insert("meets_target".into(), self.meets(&t).into());
-        m.insert("on_front".into(), self.front.get(cand).copied().unwrap_or(false).into());
+        m.insert(
+            "on_front".into(),
+            self.front.get(cand).copied().unwrap_or(false).into(),
+        );
         t.json(&mut m);
         Value::Object(m)
     }
@@ -929,25 +997,47 @@ impl TuneResult<'_> {
         let mut m = Map::new();
         m.insert(
             "logs".into(),
-            Value::Array(self.logs.iter().map(|p| Value::from(p.display().to_string())).collect()),
+            Value::Array(
+                self.logs
+                    .iter()
+                    .map(|p| Value::from(p.display().to_string()))
+                    .collect(),
+            ),
         );
         m.insert(
             "swept".into(),
-            Value::Array(self.grid.sweeps.iter().map(|s| Value::from(s.name.clone())).collect()),
+            Value::Array(
+                self.grid
+                    .sweeps
+                    .iter()
+                    .map(|s| Value::from(s.name.clone()))
+                    .collect(),
+            ),
         );
         m.insert("combinations".into(), self.grid.len.into());
         m.insert("target_outage".into(), json_num(self.target));
         m.insert("default".into(), self.point(0));
-        m.insert("best".into(), self.best.map_or(Value::Null, |k| self.point(k)));
+        m.insert(
+            "best".into(),
+            self.best.map_or(Value::Null, |k| self.point(k)),
+        );
         m.insert("best_vs_default".into(), self.versus_json(self.best));
         m.insert(
             "beats_default".into(),
             self.beats.map_or(Value::Null, |k| self.point(k)),
         );
-        m.insert("beats_default_vs_default".into(), self.versus_json(self.beats));
+        m.insert(
+            "beats_default_vs_default".into(),
+            self.versus_json(self.beats),
+        );
         m.insert(
             "front".into(),
-            Value::Array(self.front_order().into_iter().map(|k| self.point(k)).collect()),
+            Value::Array(
+                self.front_order()
+                    .into_iter()
+                    .map(|k| self.point(k))
+                    .collect(),
+            ),
         );
         m.insert(
             "points".into(),
@@ -982,7 +1072,9 @@ impl TuneResult<'_> {
                 ),
             }
             let t = self.fleet.get(cand).copied().unwrap_or(Totals::ZERO);
-            let f = |x: Option<f64>, scale: f64, d: usize| x.map_or("-".into(), |x| format!("{:.*}", d, x * scale));
+            let f = |x: Option<f64>, scale: f64, d: usize| {
+                x.map_or("-".into(), |x| format!("{:.*}", d, x * scale))
+            };
             r.push(f(t.outage(), 100.0, 3));
             r.push(f(t.mean_tx().map(|d| f64::from(d.0)), 1.0, 2));
             r.push(f(t.saving_db().map(f64::from), 1.0, 2));
@@ -1010,7 +1102,13 @@ impl TuneResult<'_> {
         let mut rows = vec![head, row(0)];
         rows.extend(listed.iter().filter(|&&k| k != 0).map(|&k| row(k)));
         let widths: Vec<usize> = (0..rows.first().map_or(0, Vec::len))
-            .map(|c| rows.iter().filter_map(|r| r.get(c)).map(String::len).max().unwrap_or(0))
+            .map(|c| {
+                rows.iter()
+                    .filter_map(|r| r.get(c))
+                    .map(String::len)
+                    .max()
+                    .unwrap_or(0)
+            })
             .collect();
         let _ = writeln!(s);
         let on_front = self.front.iter().filter(|&&b| b).count();
@@ -1028,7 +1126,11 @@ impl TuneResult<'_> {
             );
         }
         for r in &rows {
-            let line: Vec<String> = r.iter().zip(&widths).map(|(c, w)| format!("{c:<w$}")).collect();
+            let line: Vec<String> = r
+                .iter()
+                .zip(&widths)
+                .map(|(c, w)| format!("{c:<w$}"))
+                .collect();
             let _ = writeln!(s, "  {}", line.join("  ").trim_end());
         }
         let _ = writeln!(s);
@@ -1093,7 +1195,10 @@ mod tests {
         let s = parse_sweep("margin_min_db=-20..-5:5").expect("negative");
         assert_eq!(s.values, vec![-20.0, -15.0, -10.0, -5.0]);
         // An end off the grid is not reached.
-        assert_eq!(parse_sweep("x=0..1:0.4").expect("range").values, vec![0.0, 0.4, 0.8]);
+        assert_eq!(
+            parse_sweep("x=0..1:0.4").expect("range").values,
+            vec![0.0, 0.4, 0.8]
+        );
         assert_eq!(
             parse_sweep("min_readings=4,8,16").expect("list").values,
             vec![4.0, 8.0, 16.0]
@@ -1162,9 +1267,13 @@ mod tests {
             .config(&base, false, Some(0))
             .is_err_and(|e| e.to_string().contains("min_readings=70000")));
         let g = grid("margin_step_db=25").expect("grid");
-        let e = g.config(&base, false, Some(0)).map(|_| ()).map_err(|e| e.to_string());
+        let e = g
+            .config(&base, false, Some(0))
+            .map(|_| ())
+            .map_err(|e| e.to_string());
         assert!(
-            e.as_ref().is_err_and(|e| e.contains("margin_step_db: 25 is outside")),
+            e.as_ref()
+                .is_err_and(|e| e.contains("margin_step_db: 25 is outside")),
             "{e:?}"
         );
         // Two sweeps of one setting, and a grid too large.
@@ -1186,7 +1295,10 @@ mod tests {
         let v = serde_json::to_value(base).expect("serialises");
         let g = Grid::new(vec![parse_sweep("max_tx_dbm=5").expect("s")], &v).expect("grid");
         // Start 14 dBm is above a 5 dBm radio: moved to it unless set.
-        assert_eq!(g.config(&base, false, Some(0)).expect("moved").start_tx_dbm, Dbm(5.0));
+        assert_eq!(
+            g.config(&base, false, Some(0)).expect("moved").start_tx_dbm,
+            Dbm(5.0)
+        );
         assert!(g.config(&base, true, Some(0)).is_err());
     }
 
@@ -1200,10 +1312,15 @@ mod tests {
             let tx = f64::from((x >> 8) % 20);
             x = x.wrapping_mul(1_103_515_245).wrapping_add(12345);
             let loss = f64::from((x >> 8) % 15) / 100.0;
-            pts.push(if x.is_multiple_of(17) { None } else { Some((tx, loss)) });
+            pts.push(if x.is_multiple_of(17) {
+                None
+            } else {
+                Some((tx, loss))
+            });
         }
         let on = pareto_front(&pts);
-        let dominates = |a: (f64, f64), b: (f64, f64)| a.0 <= b.0 && a.1 <= b.1 && (a.0 < b.0 || a.1 < b.1);
+        let dominates =
+            |a: (f64, f64), b: (f64, f64)| a.0 <= b.0 && a.1 <= b.1 && (a.0 < b.0 || a.1 < b.1);
         for (k, p) in pts.iter().enumerate() {
             let expect = p.is_some_and(|p| !pts.iter().flatten().any(|&q| dominates(q, p)));
             assert_eq!(on.get(k).copied(), Some(expect), "point {k} {p:?}");
@@ -1212,13 +1329,21 @@ mod tests {
         let b = pts.get(best).copied().flatten().expect("point");
         assert!(b.1 <= 0.05);
         assert!(on.get(best).copied().unwrap_or(false));
-        assert!(pts.iter().flatten().filter(|p| p.1 <= 0.05).all(|p| p.0 >= b.0));
+        assert!(pts
+            .iter()
+            .flatten()
+            .filter(|p| p.1 <= 0.05)
+            .all(|p| p.0 >= b.0));
         // With a target of 0 only lossless points qualify: the cheapest of them.
         let zero = best_of(&pts, 0.0)
             .and_then(|k| pts.get(k).copied().flatten())
             .expect("lossless point");
         assert_eq!(zero.1, 0.0);
-        assert!(pts.iter().flatten().filter(|p| p.1 == 0.0).all(|p| p.0 >= zero.0));
+        assert!(pts
+            .iter()
+            .flatten()
+            .filter(|p| p.1 == 0.0)
+            .all(|p| p.0 >= zero.0));
         // The setting that beats candidate 0 is on the front, loses no more
         // and spends less; none when candidate 0 is itself unbeatable.
         if let Some(first) = pts.first_mut() {
@@ -1228,7 +1353,12 @@ mod tests {
         let p = pts.get(k).copied().flatten().expect("point");
         assert!(k > 0 && p.0 < 10.0 && p.1 <= 0.10, "{k} {p:?}");
         assert_eq!(pareto_front(&pts).get(k), Some(&true));
-        assert!(pts.iter().skip(1).flatten().filter(|q| q.1 <= 0.10).all(|q| q.0 >= p.0));
+        assert!(pts
+            .iter()
+            .skip(1)
+            .flatten()
+            .filter(|q| q.1 <= 0.10)
+            .all(|q| q.0 >= p.0));
         if let Some(first) = pts.first_mut() {
             *first = Some((-1.0, 0.0));
         }

@@ -134,7 +134,10 @@ impl BinaryReader {
                 Some(Event::Damaged { offset, len, error }) => {
                     if let CodecError::UnknownVersion { .. } = error {
                         self.done = true;
-                        return Some(Err(CliError::Input(format!("{}: byte {offset}: {error}", self.name))));
+                        return Some(Err(CliError::Input(format!(
+                            "{}: byte {offset}: {error}",
+                            self.name
+                        ))));
                     }
                     if self.strict {
                         self.done = true;
@@ -150,8 +153,12 @@ impl BinaryReader {
                         }
                         _ => {
                             self.close_damage(None);
-                            self.open =
-                                Some(OpenDamage { start: offset, end: offset + len, pieces: 1, why: error });
+                            self.open = Some(OpenDamage {
+                                start: offset,
+                                end: offset + len,
+                                pieces: 1,
+                                why: error,
+                            });
                         }
                     }
                 }
@@ -218,12 +225,19 @@ impl BinaryReader {
                 let expected = self.last_seq.map_or(0, |s| s.wrapping_add(1));
                 let gap = u64::from(seq.wrapping_sub(expected));
                 if bytes >= 65536 * MIN_WIRE_FRAME {
-                    why.push_str(" (region too long to count lost frames exactly: count is modulo 65536)");
+                    why.push_str(
+                        " (region too long to count lost frames exactly: count is modulo 65536)",
+                    );
                 }
                 gap
             }
         };
-        self.damage.push(Damage { byte_offset: o.start, frames_skipped: frames, bytes_skipped: bytes, why });
+        self.damage.push(Damage {
+            byte_offset: o.start,
+            frames_skipped: frames,
+            bytes_skipped: bytes,
+            why,
+        });
     }
 }
 
@@ -239,10 +253,17 @@ fn codec_io(e: CodecError) -> io::Error {
 
 impl BinaryEncoder {
     pub(super) fn new() -> Self {
-        BinaryEncoder { enc: Encoder::new(), buf: [0; MAX_FRAME] }
+        BinaryEncoder {
+            enc: Encoder::new(),
+            buf: [0; MAX_FRAME],
+        }
     }
 
-    pub(super) fn start(&mut self, out: &mut dyn Write, header: Option<&LogHeader>) -> io::Result<()> {
+    pub(super) fn start(
+        &mut self,
+        out: &mut dyn Write,
+        header: Option<&LogHeader>,
+    ) -> io::Result<()> {
         let h = header.copied().unwrap_or_default();
         let frame = self.enc.header(&h, &mut self.buf).map_err(codec_io)?;
         out.write_all(frame)

@@ -154,13 +154,17 @@ impl LineMap {
             self.lines = 0;
             self.file = File::open(&self.path).ok().map(BufReader::new);
         }
-        let Some(f) = self.file.as_mut() else { return 0 };
+        let Some(f) = self.file.as_mut() else {
+            return 0;
+        };
         while self.at < target {
             let buf = match f.fill_buf() {
                 Ok(b) if !b.is_empty() => b,
                 _ => break,
             };
-            let take = buf.len().min(usize::try_from(target - self.at).unwrap_or(usize::MAX));
+            let take = buf
+                .len()
+                .min(usize::try_from(target - self.at).unwrap_or(usize::MAX));
             let part = buf.get(..take).unwrap_or(&[]);
             self.lines += count_newlines(part);
             self.at += take as u64;
@@ -184,12 +188,23 @@ impl CsvReader {
     pub(super) fn new(name: String, path: &Path, file: File) -> CliResult<Self> {
         let mut input = BufReader::with_capacity(8 * 1024, file);
         let (header, line_base, base) = read_preamble(&name, &mut input)?;
-        let mut lines = LineMap { path: path.to_path_buf(), file: None, at: 0, lines: 0, base };
+        let mut lines = LineMap {
+            path: path.to_path_buf(),
+            file: None,
+            at: 0,
+            lines: 0,
+            base,
+        };
         // The CSV parser buffers by itself: hand it the file directly, after
         // what the preamble reader had buffered already.
         let rest = input.buffer().to_vec();
         let input = io::Cursor::new(rest).chain(input.into_inner());
-        let limited = LineLimit { inner: input, run: 0, lines: line_base, deferred: None };
+        let limited = LineLimit {
+            inner: input,
+            run: 0,
+            lines: line_base,
+            deferred: None,
+        };
         let mut rdr = ::csv::ReaderBuilder::new()
             .has_headers(true)
             .flexible(false)
@@ -205,7 +220,10 @@ impl CsvReader {
             }
         };
         if names.is_empty() || (names.len() == 1 && names.get(0) == Some(b"")) {
-            return Err(CliError::Input(format!("{name}: no header row (expected columns {})", COLUMNS.join(","))));
+            return Err(CliError::Input(format!(
+                "{name}: no header row (expected columns {})",
+                COLUMNS.join(",")
+            )));
         }
         let header_line = lines.line(last_byte(&rdr));
         let cols = find_columns(&name, header_line, &names)?;
@@ -237,7 +255,10 @@ impl CsvReader {
                 Ok(r) => Some(Ok(r)),
                 Err((col, why)) => {
                     let line = self.lines.line(last_byte(&self.rdr));
-                    Some(Err(CliError::Input(format!("{}:{line}: column {col}: {why}", self.name))))
+                    Some(Err(CliError::Input(format!(
+                        "{}:{line}: column {col}: {why}",
+                        self.name
+                    ))))
                 }
             },
             Err(e) => {
@@ -259,9 +280,14 @@ impl CsvReader {
             return Err(bad("t_ms", "empty (every row needs a time)".into()));
         }
         let t_ms = parse_u64(t_cell).ok_or_else(|| {
-            bad("t_ms", format!("'{}' is not a whole number of milliseconds", show(t_cell)))
+            bad(
+                "t_ms",
+                format!("'{}' is not a whole number of milliseconds", show(t_cell)),
+            )
         })?;
-        let float = |idx: Option<usize>, col: &'static str| -> Result<Option<f32>, (&'static str, String)> {
+        let float = |idx: Option<usize>,
+                     col: &'static str|
+         -> Result<Option<f32>, (&'static str, String)> {
             let Some(i) = idx else { return Ok(None) };
             let cell = unquote(rec.get(i).unwrap_or(b""));
             if cell.is_empty() {
@@ -292,7 +318,9 @@ fn last_byte<R: Read>(rdr: &::csv::Reader<R>) -> u64 {
 /// whether the stream must end.
 fn csv_error(name: &str, lines: &mut LineMap, at: u64, e: ::csv::Error) -> (CliError, bool) {
     match e.kind() {
-        ::csv::ErrorKind::UnequalLengths { expected_len, len, .. } => {
+        ::csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => {
             let line = lines.line(at);
             (
                 CliError::Input(format!(
@@ -315,7 +343,10 @@ fn csv_error(name: &str, lines: &mut LineMap, at: u64, e: ::csv::Error) -> (CliE
 
 /// Read the `#` comment lines before the header row; parse a header block.
 /// Returns the header, the number of lines and of bytes read.
-fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<LogHeader>, u64, u64)> {
+fn read_preamble(
+    name: &str,
+    input: &mut BufReader<File>,
+) -> CliResult<(Option<LogHeader>, u64, u64)> {
     let mut header: Option<LogHeader> = None;
     let mut lines = 0u64;
     let mut total = 0usize;
@@ -336,7 +367,9 @@ fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<L
         lines += 1;
         total += n;
         if line.len() > MAX_LINE {
-            return Err(CliError::Input(format!("{name}:{lines}: line is longer than {MAX_LINE} bytes")));
+            return Err(CliError::Input(format!(
+                "{name}:{lines}: line is longer than {MAX_LINE} bytes"
+            )));
         }
         if total > MAX_PREAMBLE {
             return Err(CliError::Input(format!(
@@ -367,10 +400,14 @@ fn read_preamble(name: &str, input: &mut BufReader<File>) -> CliResult<(Option<L
 }
 
 fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> CliResult {
-    let Some((key, value)) = text.split_once(':') else { return Ok(()) };
+    let Some((key, value)) = text.split_once(':') else {
+        return Ok(());
+    };
     let (key, value) = (key.trim(), value.trim());
     let bad = |what: &str| {
-        CliError::Input(format!("{name}:{line}: header {key}: '{value}' is not {what}"))
+        CliError::Input(format!(
+            "{name}:{line}: header {key}: '{value}' is not {what}"
+        ))
     };
     let float = || -> CliResult<Option<f32>> {
         if value.is_empty() {
@@ -403,7 +440,9 @@ fn find_columns(name: &str, line: u64, names: &::csv::ByteRecord) -> CliResult<C
             if cell.eq_ignore_ascii_case(col.as_bytes()) {
                 if let Some(slot) = found.get_mut(k) {
                     if slot.is_some() {
-                        return Err(CliError::Input(format!("{name}:{line}: column {col} appears twice")));
+                        return Err(CliError::Input(format!(
+                            "{name}:{line}: column {col} appears twice"
+                        )));
                     }
                     *slot = Some(i);
                 }
@@ -516,10 +555,16 @@ pub(super) struct CsvEncoder {
 
 impl CsvEncoder {
     pub(super) fn new() -> Self {
-        CsvEncoder { line: Vec::with_capacity(256) }
+        CsvEncoder {
+            line: Vec::with_capacity(256),
+        }
     }
 
-    pub(super) fn start(&mut self, out: &mut dyn Write, header: Option<&LogHeader>) -> io::Result<()> {
+    pub(super) fn start(
+        &mut self,
+        out: &mut dyn Write,
+        header: Option<&LogHeader>,
+    ) -> io::Result<()> {
         if let Some(h) = header.filter(|h| **h != LogHeader::default()) {
             writeln!(out, "# {MAGIC} {VERSION}")?;
             writeln!(out, "# device_id: {}", h.device_id)?;
@@ -564,9 +609,28 @@ mod tests {
     #[test]
     fn fast_path_matches_std() {
         for s in [
-            "0", "-0", "1", "-87.5", "14.25", "0.1", "123456.7", "16777216", "16777217", "1.0000001",
-            "0.0000000001", "0.00000000001", "3.4028235e38", ".5", "5.", "-.25", "1e3", "nan",
-            "-inf", "Infinity", "NaN", "+7",
+            "0",
+            "-0",
+            "1",
+            "-87.5",
+            "14.25",
+            "0.1",
+            "123456.7",
+            "16777216",
+            "16777217",
+            "1.0000001",
+            "0.0000000001",
+            "0.00000000001",
+            "3.4028235e38",
+            ".5",
+            "5.",
+            "-.25",
+            "1e3",
+            "nan",
+            "-inf",
+            "Infinity",
+            "NaN",
+            "+7",
         ] {
             let ours = parse_f32(s.as_bytes());
             let std = s.parse::<f32>().ok();
@@ -585,7 +649,11 @@ mod tests {
         // Every value with up to 3 fraction digits in -200..200 against std.
         for m in -200_000i32..=200_000 {
             let s = format!("{}.{:03}", m / 1000, (m % 1000).abs());
-            let s = if m < 0 && m > -1000 { format!("-{s}") } else { s };
+            let s = if m < 0 && m > -1000 {
+                format!("-{s}")
+            } else {
+                s
+            };
             let ours = parse_f32(s.as_bytes()).map(f32::to_bits);
             assert_eq!(ours, s.parse::<f32>().ok().map(f32::to_bits), "{s}");
         }
@@ -601,7 +669,12 @@ mod tests {
         text.extend(std::iter::repeat_n(b'9', MAX_LINE + 1));
         text.extend_from_slice(b"\n1,2\n");
         for chunk in [1usize, 7, 100, 4096, 65536] {
-            let mut r = LineLimit { inner: &text[..], run: 0, lines: 0, deferred: None };
+            let mut r = LineLimit {
+                inner: &text[..],
+                run: 0,
+                lines: 0,
+                deferred: None,
+            };
             let mut got = 0usize;
             let mut buf = vec![0u8; chunk];
             let err = loop {
@@ -613,13 +686,21 @@ mod tests {
             };
             // Every byte before the long line was passed on.
             assert!(got >= long_at, "chunk {chunk}: {got} < {long_at}");
-            let long = err.get_ref().and_then(|x| x.downcast_ref::<LineTooLong>()).map(|l| l.line);
+            let long = err
+                .get_ref()
+                .and_then(|x| x.downcast_ref::<LineTooLong>())
+                .map(|l| l.line);
             assert_eq!(long, Some(3001), "chunk {chunk}");
         }
         // Exactly MAX_LINE bytes is fine.
         let mut ok = vec![b'5'; MAX_LINE];
         ok.push(b'\n');
-        let mut r = LineLimit { inner: &ok[..], run: 0, lines: 0, deferred: None };
+        let mut r = LineLimit {
+            inner: &ok[..],
+            run: 0,
+            lines: 0,
+            deferred: None,
+        };
         let mut sink = Vec::new();
         assert_eq!(r.read_to_end(&mut sink).unwrap(), MAX_LINE + 1);
     }

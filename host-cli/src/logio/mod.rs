@@ -253,7 +253,11 @@ pub fn create_as(
         Encoder::Binary(e) => e.start(&mut out, header.as_ref()),
     };
     res.map_err(|e| out.io_error(e))?;
-    Ok(LogWriter { out, enc, written: 0 })
+    Ok(LogWriter {
+        out,
+        enc,
+        written: 0,
+    })
 }
 
 impl LogWriter {
@@ -284,11 +288,19 @@ mod tests {
     use super::*;
 
     fn rec(t_ms: u64) -> LogRecord {
-        LogRecord { t_ms, tx_dbm: Some(10.0), rssi_dbm: Some(-97.5), noise_dbm: None }
+        LogRecord {
+            t_ms,
+            tx_dbm: Some(10.0),
+            rssi_dbm: Some(-97.5),
+            noise_dbm: None,
+        }
     }
 
     fn names(dir: &Path) -> Vec<std::ffi::OsString> {
-        std::fs::read_dir(dir).expect("list").map(|e| e.expect("entry").file_name()).collect()
+        std::fs::read_dir(dir)
+            .expect("list")
+            .map(|e| e.expect("entry").file_name())
+            .collect()
     }
 
     #[test]
@@ -302,10 +314,21 @@ mod tests {
                 for t in 0..20_000 {
                     w.write(&rec(t)).expect("write");
                 }
-                assert_eq!(names(dir.path()).len(), 1, "{name}: the temporary file while writing");
-                assert!(!p.exists(), "{name}: nothing under the final name before finish");
+                assert_eq!(
+                    names(dir.path()).len(),
+                    1,
+                    "{name}: the temporary file while writing"
+                );
+                assert!(
+                    !p.exists(),
+                    "{name}: nothing under the final name before finish"
+                );
             }
-            assert!(names(dir.path()).is_empty(), "{name}: {:?}", names(dir.path()));
+            assert!(
+                names(dir.path()).is_empty(),
+                "{name}: {:?}",
+                names(dir.path())
+            );
         }
     }
 
@@ -321,7 +344,10 @@ mod tests {
             assert_eq!(w.records_written(), 5_000);
             w.finish().expect("finish");
             assert_eq!(names(dir.path()), vec![std::ffi::OsString::from(name)]);
-            let got: Vec<_> = open(&p).expect("open").map(|r| r.expect("record")).collect();
+            let got: Vec<_> = open(&p)
+                .expect("open")
+                .map(|r| r.expect("record"))
+                .collect();
             assert_eq!(got.len(), 5_000, "{name}");
             assert_eq!(got.last(), Some(&rec(4_999)), "{name}");
             // The output now exists: a second writer is refused before any work.
@@ -344,7 +370,10 @@ mod tests {
         // Strict: that damage is an error item, then the stream ends.
         let mut log = open(&p).expect("open");
         log.set_strict(true);
-        let e = log.next().expect("an item").expect_err("damage is an error");
+        let e = log
+            .next()
+            .expect("an item")
+            .expect_err("damage is an error");
         assert_eq!(e.exit_code(), 2);
         assert!(e.to_string().contains("garbage.hrlog: byte 0:"), "{e}");
         assert!(log.next().is_none());

@@ -397,7 +397,11 @@ mod tests {
         let link: Link<4> = Link::new(
             Dbm(0.0),
             Db(140.0),
-            NoiseSpec { bandwidth: Hertz(125e3), noise_figure: Db(6.0), antenna_temperature: None },
+            NoiseSpec {
+                bandwidth: Hertz(125e3),
+                noise_figure: Db(6.0),
+                antenna_temperature: None,
+            },
             Requirement::CarrierToNoise(Db(-10.0)),
             FadeAllowance::Fixed(Db(5.0)),
         );
@@ -408,8 +412,15 @@ mod tests {
         budget_plot(&p, false, "cellar <probe> & gateway", &link).expect("drawn");
         let text = std::fs::read_to_string(&p).expect("written");
         let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
-        let texts: Vec<&str> = doc.descendants().filter_map(|n| n.text()).map(str::trim).collect();
-        assert!(texts.contains(&"cellar <probe> & gateway"), "title escaped and kept: {texts:?}");
+        let texts: Vec<&str> = doc
+            .descendants()
+            .filter_map(|n| n.text())
+            .map(str::trim)
+            .collect();
+        assert!(
+            texts.contains(&"cellar <probe> & gateway"),
+            "title escaped and kept: {texts:?}"
+        );
         assert!(texts.contains(&"short by"));
         assert!(texts.contains(&format!("{} dB", signed(f64::from(-margin), 1)).as_str()));
         assert!(texts.contains(&"\u{2212}140.0 dBm"), "{texts:?}");
