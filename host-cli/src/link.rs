@@ -8,6 +8,7 @@
 
 use std::path::Path;
 
+use clap::ValueEnum;
 use headroom::budget::{FadeAllowance, Link, NoiseSpec, Requirement, Side};
 use headroom::fading::FadingModel;
 use headroom::modulation::Modulation;
@@ -245,44 +246,27 @@ pub struct LoadedLink {
     pub target_margin: Db,
 }
 
-/// Parse a modulation name (shared with `headroom ber`).
-pub fn modulation(name: &str, order: Option<u32>) -> Result<Modulation, String> {
-    let need_order = || order.ok_or_else(|| format!("modulation '{name}' needs an order M"));
-    Ok(match name {
-        "bpsk" => Modulation::Bpsk,
-        "qpsk" => Modulation::Qpsk,
-        "dbpsk" => Modulation::Dbpsk,
-        "fsk-coherent" => Modulation::FskCoherent,
-        "fsk-noncoherent" => Modulation::FskNoncoherent,
-        "psk" => Modulation::Psk { order: need_order()? },
-        "qam" => Modulation::Qam { order: need_order()? },
-        other => {
-            return Err(format!(
-                "unknown modulation '{other}' (bpsk, qpsk, dbpsk, fsk-coherent, fsk-noncoherent, psk, qam)"
-            ))
-        }
-    })
+/// A modulation named as for `headroom ber --modulation`, built by the same code.
+fn modulation(name: &str, order: Option<u32>) -> CliResult<Modulation> {
+    let scheme = crate::cmd::ber::Scheme::from_str(name, false)
+        .map_err(|_| {
+            CliError::arg(
+                "requirement.modulation",
+                format!("unknown modulation '{name}' (bpsk, qpsk, dbpsk, fsk-coherent, fsk-noncoherent, psk, qam)"),
+            )
+        })?;
+    crate::cmd::ber::modulation_keyed(scheme, order, "requirement.order")
 }
 
-/// Parse a fading model from its name and parameters (shared with `headroom fade`).
-pub fn fading(name: &str, k_factor: Option<Db>, sigma: Option<Db>) -> Result<FadingModel, String> {
-    Ok(match name {
-        "rayleigh" => FadingModel::Rayleigh,
-        "rician" => FadingModel::Rician {
-            k_factor: k_factor.ok_or("model 'rician' needs a K factor")?,
-        },
-        "lognormal" => FadingModel::LogNormal {
-            sigma: sigma.ok_or("model 'lognormal' needs sigma")?,
-        },
-        "composite" => FadingModel::Composite {
-            sigma: sigma.ok_or("model 'composite' needs sigma")?,
-        },
-        other => {
-            return Err(format!(
-                "unknown fading model '{other}' (rayleigh, rician, lognormal, composite)"
-            ))
-        }
-    })
+/// A fading model named as for `headroom fade --model`, built by the same code.
+fn fading(name: &str, k_factor: Option<Db>, sigma: Option<Db>) -> CliResult<FadingModel> {
+    let model = crate::cmd::fade::Model::from_str(name, false).map_err(|_| {
+        CliError::arg(
+            "fade.model",
+            format!("unknown fading model '{name}' (rayleigh, rician, lognormal, composite)"),
+        )
+    })?;
+    crate::cmd::fade::model_keyed(model, (k_factor, "fade.k_factor"), (sigma, "fade.sigma"))
 }
 
 fn extrapolation(s: Option<&str>) -> CliResult<Extrapolation> {
@@ -499,8 +483,7 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
             bit_rate_bps: bit_rate()?,
         },
         (None, None, Some(m)) => Requirement::Modulation {
-            modulation: modulation(m, r.order)
-                .map_err(|e| CliError::arg("requirement.modulation", e))?,
+            modulation: modulation(m, r.order)?,
             ber: r
                 .ber
                 .ok_or_else(|| CliError::arg("requirement.ber", "required with modulation"))?
@@ -526,7 +509,7 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
                     None => None,
                 };
                 FadeAllowance::Model {
-                    model: fading(m, k, s).map_err(|e| CliError::arg("fade.model", e))?,
+                    model: fading(m, k, s)?,
                     availability: f.availability.ok_or_else(|| {
                         CliError::arg("fade.availability", "required with fade.model")
                     })? as f32,

@@ -109,6 +109,8 @@ pub struct Summary {
     pub max_allowed: Dbm,
     sum_mw: f64,
     last_chosen: Option<f32>,
+    /// `last_chosen` in mW.
+    last_mw: f64,
     /// Σ over merged replays of records × highest allowed level, mW (`None`
     /// until [`Summary::merge`]).
     allowed_mw: Option<f64>,
@@ -128,6 +130,7 @@ impl Summary {
             max_allowed,
             sum_mw: 0.0,
             last_chosen: None,
+            last_mw: 0.0,
             allowed_mw: None,
         }
     }
@@ -144,23 +147,35 @@ impl Summary {
             Outcome::Unjudged => self.unjudged += 1,
         }
         let p = s.chosen.0;
-        if let Some(last) = self.last_chosen {
-            if last != p {
+        // The power changes once in several records: reuse its mW otherwise
+        // (the same exp10f of the same value, so the sum is unchanged).
+        let mw = match self.last_chosen {
+            Some(last) if last == p => self.last_mw,
+            Some(_) => {
                 self.power_changes += 1;
+                f64::from(libm::exp10f(p / 10.0))
             }
-        }
+            None => f64::from(libm::exp10f(p / 10.0)),
+        };
         self.last_chosen = Some(p);
+        self.last_mw = mw;
         self.max_tx_dbm_used = Some(match self.max_tx_dbm_used {
             Some(m) if m.0 >= p => m,
             _ => s.chosen,
         });
         // Linear mW summed in f64: 10⁶ records of 25 mW lose nothing.
-        self.sum_mw += f64::from(libm::exp10f(p / 10.0));
+        self.sum_mw += mw;
         if s.reason.is_ignored_reading() {
             if let Some(c) = self.ignored_readings.get_mut(s.reason.index()) {
                 *c += 1;
             }
         }
+    }
+
+    /// Σ of the chosen powers over the records, in mW: the linear sum behind
+    /// [`Summary::mean_tx_dbm`], for adding replays up elsewhere.
+    pub fn tx_mw_sum(&self) -> f64 {
+        self.sum_mw
     }
 
     /// Records × highest allowed level in mW: the linear sum behind the

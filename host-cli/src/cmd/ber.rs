@@ -65,12 +65,18 @@ pub struct Args {
     pub format: Format,
 }
 
-fn modulation(scheme: Scheme, order: Option<u32>) -> CliResult<Modulation> {
+/// The engine's modulation for `scheme`, with `order` named `order_key` in
+/// errors (`--order` here, `requirement.order` in a link file).
+pub(crate) fn modulation_keyed(
+    scheme: Scheme,
+    order: Option<u32>,
+    order_key: &str,
+) -> CliResult<Modulation> {
     let need = |o: Option<u32>| {
         o.ok_or_else(|| {
             CliError::arg(
-                "--order",
-                format!("--modulation {} needs --order M", scheme.name()),
+                order_key,
+                format!("modulation {} needs an order M", scheme.name()),
             )
         })
     };
@@ -78,7 +84,7 @@ fn modulation(scheme: Scheme, order: Option<u32>) -> CliResult<Modulation> {
         (Scheme::Psk, o) => Ok(Modulation::Psk { order: need(o)? }),
         (Scheme::Qam, o) => Ok(Modulation::Qam { order: need(o)? }),
         (_, Some(_)) => Err(CliError::arg(
-            "--order",
+            order_key,
             format!("applies to psk and qam only, not to {}", scheme.name()),
         )),
         (Scheme::Bpsk, None) => Ok(Modulation::Bpsk),
@@ -87,6 +93,10 @@ fn modulation(scheme: Scheme, order: Option<u32>) -> CliResult<Modulation> {
         (Scheme::FskCoherent, None) => Ok(Modulation::FskCoherent),
         (Scheme::FskNoncoherent, None) => Ok(Modulation::FskNoncoherent),
     }
+}
+
+fn modulation(scheme: Scheme, order: Option<u32>) -> CliResult<Modulation> {
+    modulation_keyed(scheme, order, "--order")
 }
 
 /// A probability as a JSON number with seven significant digits (a BER of

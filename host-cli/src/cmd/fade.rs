@@ -110,25 +110,38 @@ fn prob(x: f64) -> Value {
 }
 
 fn model(args: &Args) -> CliResult<FadingModel> {
-    let (k, s) = (args.k_factor_db, args.sigma_db);
-    let name = args.model.name();
-    let unused = |flag: &str| CliError::arg(flag, format!("does not apply to --model {name}"));
-    let needs = |flag: &str| CliError::arg(flag, format!("--model {name} needs {flag}"));
-    match args.model {
+    model_keyed(
+        args.model,
+        (args.k_factor_db, "--k-factor-db"),
+        (args.sigma_db, "--sigma-db"),
+    )
+}
+
+/// The engine's fading model for `model` and its parameters, each given with
+/// the name errors use for it (`--sigma-db` here, `fade.sigma` in a link file).
+pub(crate) fn model_keyed(
+    model: Model,
+    (k, k_key): (Option<Db>, &str),
+    (s, s_key): (Option<Db>, &str),
+) -> CliResult<FadingModel> {
+    let name = model.name();
+    let unused = |key: &str| CliError::arg(key, format!("does not apply to model {name}"));
+    let needs = |key: &str| CliError::arg(key, format!("model {name} needs {key}"));
+    match model {
         Model::Rayleigh => match (k, s) {
-            (Some(_), _) => Err(unused("--k-factor-db")),
-            (_, Some(_)) => Err(unused("--sigma-db")),
+            (Some(_), _) => Err(unused(k_key)),
+            (_, Some(_)) => Err(unused(s_key)),
             _ => Ok(FadingModel::Rayleigh),
         },
         Model::Rician => match (k, s) {
-            (_, Some(_)) => Err(unused("--sigma-db")),
-            (None, _) => Err(needs("--k-factor-db")),
+            (_, Some(_)) => Err(unused(s_key)),
+            (None, _) => Err(needs(k_key)),
             (Some(k), None) => Ok(FadingModel::Rician { k_factor: k }),
         },
         Model::Lognormal | Model::Composite => match (k, s) {
-            (Some(_), _) => Err(unused("--k-factor-db")),
-            (None, None) => Err(needs("--sigma-db")),
-            (None, Some(sigma)) if args.model == Model::Lognormal => {
+            (Some(_), _) => Err(unused(k_key)),
+            (None, None) => Err(needs(s_key)),
+            (None, Some(sigma)) if model == Model::Lognormal => {
                 Ok(FadingModel::LogNormal { sigma })
             }
             (None, Some(sigma)) => Ok(FadingModel::Composite { sigma }),

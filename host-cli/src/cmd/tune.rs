@@ -47,7 +47,7 @@ use std::fmt::Write as _;
 use std::io::{self, IsTerminal, Write};
 use std::path::{Path, PathBuf};
 
-use headroom::control::{ControllerConfig, PowerSteps, Reason, Replay, Summary};
+use headroom::control::{ControllerConfig, ExplicitSettings, Reason, Replay, Summary};
 use headroom::record::LogHeader;
 use headroom::units::{Dbm, Milliwatts};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
@@ -403,20 +403,12 @@ fn log_base(
         Some((c, k)) => (*c, k.as_slice()),
         None => (ControllerConfig::sub_ghz_node(), &[]),
     };
-    let set = |k: &str| keys.iter().any(|x| x == k);
     if let Some(h) = header {
-        if let (Some(v), false) = (h.min_tx, set("min_tx_dbm")) {
-            cfg.min_tx_dbm = v;
-        }
-        if let (Some(v), false) = (h.max_tx, set("max_tx_dbm")) {
-            cfg.max_tx_dbm = v;
-        }
-        if let (Some(v), false) = (h.tx_step, set("steps")) {
-            cfg.steps = PowerSteps::Uniform(v);
-        }
-        if let (Some(v), false) = (h.antenna_gain, set("antenna_gain_dbi")) {
-            cfg.antenna_gain_dbi = v;
-        }
+        // The same rule as `headroom replay` and the firmware: the engine's.
+        cfg.apply_log_header(
+            h,
+            ExplicitSettings::from_keys(keys.iter().map(String::as_str)),
+        );
     }
     if let Some(p) = target {
         cfg.target_outage = p;
@@ -451,7 +443,7 @@ impl Totals {
         max_allowed_mw_sum: 0.0,
     };
 
-    fn of_replay(s: &Summary, tx_mw_sum: f64) -> Totals {
+    fn of_replay(s: &Summary) -> Totals {
         Totals {
             records: s.records,
             judged: s.judged,
@@ -459,7 +451,7 @@ impl Totals {
             power_changes: s.power_changes,
             max_tx_used: s.max_tx_dbm_used.map(|d| d.0),
             ignored: s.ignored_readings,
-            tx_mw_sum,
+            tx_mw_sum: s.tx_mw_sum(),
             #[allow(clippy::cast_precision_loss)] // exact below 2⁵³ records
             max_allowed_mw_sum: f64::from(s.max_allowed.to_milliwatts().0) * s.records as f64,
         }
@@ -658,10 +650,8 @@ fn replay_log(path: &Path, cfg: ControllerConfig) -> CliResult<Done> {
     let mut reader = logio::open(path)?;
     let mut replay = Replay::<WINDOW>::new(cfg)
         .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
-    let mut tx_mw_sum = 0.0f64;
     for rec in &mut reader {
-        let step = replay.step(&rec?);
-        tx_mw_sum += f64::from(step.chosen.to_milliwatts().0);
+        replay.step(&rec?);
     }
     let damage = reader
         .damage()
@@ -669,7 +659,7 @@ fn replay_log(path: &Path, cfg: ControllerConfig) -> CliResult<Done> {
         .map(|d| format!("{}: {d}", path.display()))
         .collect();
     Ok(Done {
-        totals: Totals::of_replay(replay.summary(), tx_mw_sum),
+        totals: Totals::of_replay(replay.summary()),
         damage,
     })
 }
@@ -1241,7 +1231,10 @@ mod tests {
         let c = g.config(&base, false, Some(3)).expect("valid");
         assert_eq!(c.margin_step_db.0, 0.25);
         assert_eq!(c.min_readings, 16);
-        assert_eq!(c.steps, PowerSteps::Uniform(headroom::units::Db(2.0)));
+        assert_eq!(
+            c.steps,
+            headroom::control::PowerSteps::Uniform(headroom::units::Db(2.0))
+        );
         assert_eq!(c.deadband_db, base.deadband_db);
         assert_eq!(g.config(&base, false, None).expect("default"), base);
     }
