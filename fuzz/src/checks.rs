@@ -490,15 +490,35 @@ fn steps_from(b: &mut Bytes<'_>) -> PowerSteps {
             }
             let strictly_ascending = levels.windows(2).all(|w| w[0].0 < w[1].0);
             let in_range = levels.iter().all(|l| l.0.abs() <= SETTING_LIMIT_DB);
+            // The controller keeps table levels as whole 0.01 dB or 1/64 dB.
+            let whole = |per_db: f64| {
+                levels.iter().all(|l| {
+                    let x = f64::from(l.0) * per_db;
+                    x == x.round()
+                })
+            };
+            let centi = levels
+                .iter()
+                .all(|l| format!("{}", l.0).split('.').nth(1).is_none_or(|d| d.len() <= 2));
+            let representable = centi || whole(64.0);
             match LevelTable::new(&levels) {
                 Ok(t) => {
-                    assert!((1..=MAX_LEVELS).contains(&n) && strictly_ascending && in_range);
+                    assert!(
+                        (1..=MAX_LEVELS).contains(&n)
+                            && strictly_ascending
+                            && in_range
+                            && representable
+                    );
                     assert_eq!(t.levels(), &levels[..]);
                     PowerSteps::Table(t)
                 }
                 Err(e) => {
                     assert!(
-                        n == 0 || n > MAX_LEVELS || !strictly_ascending || !in_range,
+                        n == 0
+                            || n > MAX_LEVELS
+                            || !strictly_ascending
+                            || !in_range
+                            || !representable,
                         "a good table refused: {levels:?}: {e}"
                     );
                     assert_eq!(e.setting(), "steps.table");
@@ -562,8 +582,12 @@ pub fn check_power(cfg: &ControllerConfig, tx: Dbm, prev: Option<Dbm>, what: &st
     }
 }
 
-fn check_decision<const W: usize>(c: &Controller<W>, d: &Decision, prev: Option<Dbm>) {
-    let cfg = c.config();
+fn check_decision<const W: usize>(
+    cfg: &ControllerConfig,
+    c: &Controller<W>,
+    d: &Decision,
+    prev: Option<Dbm>,
+) {
     check_power(cfg, d.tx, prev, "decision");
     assert_eq!(
         d.tx.0.to_bits(),
@@ -725,7 +749,7 @@ fn observe<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
         };
         assert_eq!(obs.t_ms(), t);
         let d = c.update(&obs);
-        check_decision(&c, &d, prev);
+        check_decision(&cfg, &c, &d, prev);
         prev = Some(d.tx);
     }
 }

@@ -20,6 +20,9 @@ pub const SETTING_LIMIT_DB: f32 = 300.0;
 /// level index.
 pub const MIN_UNIFORM_STEP_DB: f32 = 0.01;
 
+/// Steps per dB of the controller's adaptive margin (2⁴⁰).
+pub(crate) const MARGIN_STEPS_PER_DB: f32 = (1u64 << 40) as f32;
+
 /// Largest window the controller accepts (its indices and integer sums are
 /// sized for it).
 pub const MAX_WINDOW: usize = 4096;
@@ -86,7 +89,30 @@ impl LevelTable {
             }
             prev = Some(l.0);
         }
+        if self.unit().is_none() {
+            return Err(ConfigError::Inconsistent {
+                setting: "steps.table",
+                why: "levels must all be multiples of 0.01 dB, or all of 1/64 dB",
+            });
+        }
         Ok(())
+    }
+
+    /// Steps per dB in which every level is a whole number (100 or 64), if
+    /// any: the controller keeps its levels that way, in 16-bit integers.
+    pub(crate) fn unit(&self) -> Option<u8> {
+        let whole = |per_db: f32| {
+            self.levels()
+                .iter()
+                .all(|l| libm::roundf(l.0 * per_db) / per_db == l.0)
+        };
+        if whole(100.0) {
+            Some(100)
+        } else if whole(64.0) {
+            Some(64)
+        } else {
+            None
+        }
     }
 }
 
@@ -383,6 +409,16 @@ impl ControllerConfig {
                 value: mstep,
                 min: 0.0,
                 max: 20.0,
+            });
+        }
+        // The controller keeps the margin in 2⁻⁴⁰ dB: its fall per delivered
+        // packet, Δup·p/(1−p), must be at least 1000 of those steps, so that
+        // rounding it moves the loss rate the margin settles at by less than
+        // 0.05 % of the target.
+        if mstep * c.target_outage / (1.0 - c.target_outage) * MARGIN_STEPS_PER_DB < 1000.0 {
+            return Err(ConfigError::Inconsistent {
+                setting: "margin_step_db",
+                why: "times target_outage is too small: the margin's fall per delivered packet would be lost in rounding",
             });
         }
         check_level("margin_min_db", c.margin_min_db.0)?;

@@ -1,6 +1,6 @@
 //! The per-packet transmit-power controller.
 
-use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_WINDOW};
+use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_LEVELS, MAX_WINDOW};
 use super::reason::Reason;
 use crate::units::{Db, Dbm};
 
@@ -111,8 +111,8 @@ pub struct Decision {
     /// RMS one-step prediction error of the loss to noise (fading and
     /// interference about the predicted level), `None` before two readings.
     pub spread: Option<Db>,
-    /// Mean noise floor at the far end over the window, `None` before the
-    /// first reading.
+    /// Noise floor at the far end, filtered over the readings (gain 1/16),
+    /// `None` before the first reading.
     pub noise: Option<Dbm>,
     /// Adaptive margin after this update.
     pub margin: Db,
@@ -132,27 +132,24 @@ pub enum Mode {
     Climb,
 }
 
-/// The last `W` readings with exact integer running sums.
+/// The last `W` values of the loss to noise, with an exact integer running
+/// sum.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 struct Window<const W: usize> {
     z: [i16; W],
-    noise: [i16; W],
     head: u16,
     n: u16,
     sum_z: i32,
-    sum_noise: i32,
 }
 
 impl<const W: usize> Window<W> {
     const fn new() -> Self {
         Window {
             z: [0; W],
-            noise: [0; W],
             head: 0,
             n: 0,
             sum_z: 0,
-            sum_noise: 0,
         }
     }
 
@@ -160,21 +157,17 @@ impl<const W: usize> Window<W> {
         self.head = 0;
         self.n = 0;
         self.sum_z = 0;
-        self.sum_noise = 0;
     }
 
-    fn push(&mut self, z: i16, noise: i16) {
+    fn push(&mut self, z: i16) {
         let head = usize::from(self.head);
         let full = usize::from(self.n) >= W;
-        if let (Some(zs), Some(ns)) = (self.z.get_mut(head), self.noise.get_mut(head)) {
+        if let Some(zs) = self.z.get_mut(head) {
             if full {
                 self.sum_z -= i32::from(*zs);
-                self.sum_noise -= i32::from(*ns);
             }
             *zs = z;
-            *ns = noise;
             self.sum_z += i32::from(z);
-            self.sum_noise += i32::from(noise);
             if !full {
                 self.n += 1;
             }
@@ -186,9 +179,6 @@ impl<const W: usize> Window<W> {
             };
         }
     }
-
-    /// 1 / (W · steps per dB): the scale of the sums of a full window.
-    const INV_FULL: f32 = 1.0 / (W as f32 * Q_PER_DB);
 
     /// `W` as an `i32` (`W ≤ MAX_WINDOW = 4096`, checked by `Controller::new`;
     /// the cast cannot truncate).
@@ -222,36 +212,123 @@ impl<const W: usize> Window<W> {
                 .wrapping_add((r << FINE_BITS) / n),
         )
     }
+}
 
-    /// Mean of z and of the noise, dB / dBm.
-    fn means(&self) -> Option<(f32, f32)> {
-        if self.n == 0 {
-            return None;
-        }
-        let inv = if usize::from(self.n) >= W {
-            Self::INV_FULL
-        } else {
-            1.0 / (f32::from(self.n) * Q_PER_DB)
-        };
-        Some((self.sum_z as f32 * inv, self.sum_noise as f32 * inv))
+/// Fractional bits of the adaptive margin: it runs in 2⁻⁴⁰ dB in an `i64`,
+/// so that its fall per delivered packet, `Δup·p/(1−p)`, keeps at least
+/// three significant digits down to the smallest accepted target outage
+/// (±300 dB fits with room to spare).
+const MARGIN_BITS: u32 = 40;
+
+/// Fractional bits of the factor `Q⁻¹(p)·√(π/2)` applied to the mean
+/// absolute error.
+const SIGMA_FACTOR_BITS: u32 = 16;
+
+/// Gain of the exponential filter of the far end's noise floor, as a right
+/// shift: 1/16, a memory of about sixteen readings.
+const NOISE_SHIFT: u32 = 4;
+
+/// Tolerance of the level comparisons, 1/8192 dB (about `GRID_EPS`).
+const EPS_FINE: i32 = 1;
+
+/// A dB value in 1/8192 dB, rounded half away from zero; the cast saturates
+/// (and maps NaN to 0), so no input can wrap the integer arithmetic. A
+/// multiplication by a power of two is exact in `f32`, so the only rounding
+/// is the one to the integer.
+#[allow(clippy::cast_possible_truncation)]
+fn to_fine(x: f32) -> i32 {
+    let y = x * (1u32 << (FINE_BITS + 5)) as f32;
+    (if y >= 0.0 { y + 0.5 } else { y - 0.5 }) as i32
+}
+
+/// A dB value in 1/8192 dB as `f32` (exact below 2²⁴ steps, 2048 dB).
+#[allow(clippy::cast_precision_loss)]
+fn from_fine(x: i32) -> f32 {
+    x as f32 * DB_PER_FINE
+}
+
+/// A reading in 1/8192 dB stored in the window's 1/32 dB steps, rounded
+/// (half up); saturating, although the plausibility checks keep readings
+/// well inside ±1024 dB.
+#[allow(clippy::cast_possible_truncation)]
+fn fine_to_q(x: i32) -> i16 {
+    let q = x.saturating_add(1 << (FINE_BITS - 1)) >> FINE_BITS;
+    if q > i32::from(i16::MAX) {
+        i16::MAX
+    } else if q < i32::from(i16::MIN) {
+        i16::MIN
+    } else {
+        q as i16
     }
 }
 
-/// A dB value in the window's fixed-point steps. Values are bounded by the
-/// plausibility checks well inside the `i16` range; the cast saturates
-/// (and maps NaN to 0) rather than wrapping, so no input can corrupt the sums.
+/// A dB value in the margin's 2⁻⁴⁰ dB (validated settings are within
+/// ±300 dB: no saturation of the `i64`).
 #[allow(clippy::cast_possible_truncation)]
-fn to_q(x: f32) -> i16 {
-    // Round half away from zero, then a saturating cast.
-    let y = x * Q_PER_DB;
-    (if y >= 0.0 { y + 0.5 } else { y - 0.5 }) as i16
+fn to_margin(x: f32) -> i64 {
+    (x * (1u64 << MARGIN_BITS) as f32) as i64
 }
 
-/// The whole part of a level index `k ≥ 0` (truncation; the cast saturates,
-/// and `k` is bounded by the number of levels, at most 2·300/step).
-#[allow(clippy::cast_possible_truncation)]
-fn to_level_index(k: f32) -> i32 {
-    k as i32
+/// The levels the radio supports, from the lowest usable one (index 0) to
+/// the highest (`kmax`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+enum Grid {
+    /// `min + k·step`.
+    Uniform { min: f32, step: f32, inv_step: f32 },
+    /// The usable levels of a table, in 1/`per_db` dB (exact: a table's
+    /// levels are validated to be all multiples of 0.01 dB or all of 1/64 dB,
+    /// within ±300 dB).
+    Table {
+        levels: [i16; MAX_LEVELS],
+        per_db: u8,
+    },
+}
+
+/// The settings the update uses, in the units it computes in (1/8192 dB
+/// unless said otherwise), derived once by [`Controller::new`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct Settings {
+    required: i32,
+    deadband: i32,
+    /// `Q⁻¹(p)·√(π/2)` in 2⁻¹⁶: the spread term is `k·σ = mae · factor`.
+    sigma_factor: u32,
+    /// Fall of the margin per delivery, 2⁻⁴⁰ dB.
+    margin_down: i64,
+    /// Rise of the margin per loss, 2⁻²⁴ dB (at most 20 dB).
+    margin_up: i32,
+    /// Bounds of the margin, 1/8192 dB, rounded inward.
+    margin_min: i32,
+    margin_max: i32,
+    step_up: i32,
+    step_down: i32,
+    /// Plausibility bounds of the readings and the default noise floor, in
+    /// the window's 1/32 dB (sanity bounds: 0.03 dB does not matter).
+    tx_lo: i16,
+    tx_hi: i16,
+    rssi_lo: i16,
+    rssi_hi: i16,
+    rssi_saturation: i16,
+    noise_lo: i16,
+    noise_hi: i16,
+    default_noise: i16,
+    /// Both antenna gains (to report the path loss).
+    gains: i32,
+    /// Lowest and highest usable level.
+    bottom: i32,
+    top: i32,
+    stale_after_ms: u32,
+    min_readings: u16,
+    spread_memory: u16,
+    climb_after: u16,
+    /// log2(`spread_memory`) when it is a power of two (a shift instead of
+    /// a division).
+    memory_shift: Option<u8>,
+    /// Index of the start level and of the highest level.
+    start: u16,
+    kmax: u16,
+    grid: Grid,
 }
 
 /// The adaptive-margin transmit power controller over a window of `W`
@@ -262,8 +339,10 @@ fn to_level_index(k: f32) -> i32 {
 /// path loss less the antenna gains, plus the far end's noise floor. A
 /// packet sent at power `P` arrives with SNR `P − z`, so the next packet's
 /// `z` is all the decision needs. The controller keeps the last `W` values of
-/// `z` and of the noise floor in a ring, as integers in 1/32 dB, with exact
-/// running sums (O(1) per update, no drift, the same bits on every target).
+/// `z` in a ring, as integers in 1/32 dB, with an exact running sum (O(1)
+/// per update, no drift, the same bits on every target), and the far end's
+/// noise floor in an exponential filter of gain 1/16 (it is only reported,
+/// and used for open-loop beacons, which carry none).
 ///
 /// Three predictors of the next `z` run side by side: the window's mean (best
 /// when fading is independent from packet to packet) and two exponential
@@ -303,32 +382,31 @@ fn to_level_index(k: f32) -> i32 {
 /// history.
 ///
 /// ## Cost
-/// All state is in this fixed-size struct (no allocation); one
-/// [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
-/// exponential or square root. The window sums, the two filters (shifts in
-/// 1/8192 dB) and the mean-absolute-error trackers (integer sums in
-/// 1/32 dB) are integer arithmetic; floats remain in the plausibility
-/// checks, the mean and the decision. A few integer divisions per update
-/// (none by `W` or `spread_memory` when they are powers of two).
+/// All state is in this fixed-size struct (no allocation, 256 bytes or less
+/// for `W = 32`): the settings are kept only in the form the update uses.
+/// One [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
+/// exponential, square root or division by a variable once the window is
+/// full (when `W` and `spread_memory` are powers of two). Everything between
+/// the readings and the decision is integer arithmetic: readings, levels and
+/// estimates in 1/8192 dB, the margin in 2⁻⁴⁰ dB. Floats are used to quantise
+/// the readings, to report the decision, and to find a new level when the
+/// power changes (about one packet in ten); holding the power compares two
+/// integers with the level in use and the one below it. The plausibility
+/// bounds are compared at the same 1/8192 dB resolution.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
-    cfg: ControllerConfig,
-    /// Upper normal quantile of the target outage, Q⁻¹(p).
-    quantile: f32,
-    /// Fall of the margin per delivered packet, Δup·p/(1−p).
-    margin_down: f32,
-    /// 1 / uniform step (0 for a table).
-    inv_step: f32,
-    bottom: f32,
-    top: f32,
+    s: Settings,
+    /// Adaptive margin, 2⁻⁴⁰ dB.
+    margin: i64,
+    /// Time of the last reading (meaningful when `have_reading`).
+    last_reading_ms: u64,
+    /// Level in use: its index, its power (dBm) and its value in 1/8192 dB,
+    /// with the value of the level below (`i32::MIN` at the bottom).
+    k: u16,
     tx: f32,
-    margin: f32,
-    loss_run: u16,
-    mode: Mode,
-    clamped_high: bool,
-    clamped_low: bool,
-    last_reading_ms: Option<u64>,
+    level: i32,
+    below: i32,
     /// Exponential-filter predictors of z, 1/8192 dB.
     filters: [i32; 2],
     /// Absolute one-step prediction errors of the window mean and of the
@@ -337,14 +415,17 @@ pub struct Controller<const W: usize> {
     /// number), then decaying: `S ← S − S/memory + |e|` (the mean absolute
     /// error is `S/memory`, an exponential average of weight 1/memory).
     mae_sum: [u32; 3],
+    /// Filtered noise floor at the far end, 1/8192 dB (meaningful when
+    /// `have_noise`).
+    noise: i32,
     /// Prediction errors seen since the history started (saturating).
     errors: u16,
-    /// log2(`spread_memory`) when it is a power of two (a shift instead of
-    /// a division).
-    memory_shift: Option<u32>,
-    /// The last mean absolute error (1/8192 dB) turned into a spread, and
-    /// the spread, dB.
-    spread_cache: (u32, f32),
+    loss_run: u16,
+    mode: Mode,
+    clamped_high: bool,
+    clamped_low: bool,
+    have_reading: bool,
+    have_noise: bool,
     window: Window<W>,
 }
 
@@ -368,45 +449,97 @@ impl<const W: usize> Controller<W> {
         }
         let p = cfg.target_outage;
         let quantile = upper_normal_quantile(p)?;
-        let margin_down = cfg.margin_step_db.0 * p / (1.0 - p);
-        let inv_step = match cfg.steps {
-            PowerSteps::Uniform(s) => 1.0 / s.0,
-            PowerSteps::Table(_) => 0.0,
+        let (grid, kmax) = match cfg.steps {
+            PowerSteps::Uniform(s) => {
+                let inv_step = 1.0 / s.0;
+                let k = libm::roundf((top - bottom) * inv_step);
+                (
+                    Grid::Uniform {
+                        min: cfg.min_tx_dbm.0,
+                        step: s.0,
+                        inv_step,
+                    },
+                    level_count_index(k),
+                )
+            }
+            PowerSteps::Table(t) => {
+                let per_db = t.unit().unwrap_or(100);
+                let mut levels = [0i16; MAX_LEVELS];
+                let mut n = 0usize;
+                for l in t.levels().iter().filter(|l| l.0 >= bottom && l.0 <= top) {
+                    if let Some(slot) = levels.get_mut(n) {
+                        *slot = to_table_units(l.0, per_db);
+                        n += 1;
+                    }
+                }
+                (
+                    Grid::Table { levels, per_db },
+                    u16::try_from(n.saturating_sub(1)).unwrap_or(0),
+                )
+            }
+        };
+        let margin_down = to_margin(cfg.margin_step_db.0 * p / (1.0 - p));
+        let memory_shift = if cfg.spread_memory.is_power_of_two() {
+            u8::try_from(cfg.spread_memory.trailing_zeros()).ok()
+        } else {
+            None
         };
         let mut c = Controller {
-            cfg,
-            quantile,
-            margin_down,
-            inv_step,
-            bottom,
-            top,
+            s: Settings {
+                required: to_fine(cfg.required_snr_db.0),
+                deadband: to_fine(cfg.deadband_db.0),
+                sigma_factor: to_sigma_factor(quantile * MAE_TO_SIGMA),
+                margin_up: to_margin_up(cfg.margin_step_db.0),
+                margin_down,
+                // Rounded inward, so the margin never leaves the bounds.
+                margin_min: fine_ceil(cfg.margin_min_db.0),
+                margin_max: fine_floor(cfg.margin_max_db.0),
+                step_up: to_fine(cfg.max_step_up_db.0),
+                step_down: to_fine(cfg.max_step_down_db.0),
+                tx_lo: to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB),
+                tx_hi: to_q(cfg.max_tx_dbm.0 + TX_TOLERANCE_DB),
+                rssi_lo: to_q(cfg.rssi_min_dbm.0),
+                rssi_hi: to_q(cfg.rssi_max_dbm.0),
+                rssi_saturation: to_q(cfg.rssi_saturation_dbm.0),
+                noise_lo: to_q(cfg.noise_min_dbm.0),
+                noise_hi: to_q(cfg.noise_max_dbm.0),
+                default_noise: to_q(cfg.default_noise_dbm.0),
+                gains: to_fine(cfg.antenna_gain_dbi.0 + cfg.far_antenna_gain_dbi.0),
+                bottom: 0,
+                top: 0,
+                stale_after_ms: cfg.stale_after_ms,
+                min_readings: cfg.min_readings,
+                spread_memory: cfg.spread_memory,
+                climb_after: cfg.climb_after_losses,
+                memory_shift,
+                start: 0,
+                kmax,
+                grid,
+            },
+            margin: 0,
+            last_reading_ms: 0,
+            k: 0,
             tx: bottom,
-            margin: 0.0,
+            level: 0,
+            below: i32::MIN,
+            filters: [0; 2],
+            mae_sum: [0; 3],
+            noise: 0,
+            errors: 0,
             loss_run: 0,
             mode: Mode::WarmUp,
             clamped_high: false,
             clamped_low: false,
-            last_reading_ms: None,
-            filters: [0; 2],
-            mae_sum: [0; 3],
-            errors: 0,
-            memory_shift: if cfg.spread_memory.is_power_of_two() {
-                Some(cfg.spread_memory.trailing_zeros())
-            } else {
-                None
-            },
-            spread_cache: (0, 0.0),
+            have_reading: false,
+            have_noise: false,
             window: Window::new(),
         };
-        let m = c.clamp_margin(0.0);
-        c.margin = m;
-        c.tx = c.level_at_or_above(cfg.start_tx_dbm.0);
+        c.s.bottom = c.fine_at(0);
+        c.s.top = c.fine_at(kmax);
+        let start = to_fine(cfg.start_tx_dbm.0).saturating_sub(EPS_FINE);
+        c.s.start = c.walk_above(c.first_guess(start, 0), start);
+        c.reset();
         Ok(c)
-    }
-
-    /// The settings.
-    pub fn config(&self) -> &ControllerConfig {
-        &self.cfg
     }
 
     /// Power chosen for the next packet.
@@ -414,9 +547,10 @@ impl<const W: usize> Controller<W> {
         Dbm(self.tx)
     }
 
-    /// The adaptive margin now.
+    /// The adaptive margin now, to 1/8192 dB (rounded toward −∞; the bounds
+    /// are whole 1/8192 dB, so the margin reported never leaves them).
     pub fn margin(&self) -> Db {
-        Db(self.margin)
+        Db(from_fine(margin_fine(self.margin)))
     }
 
     /// What the controller is doing now.
@@ -426,26 +560,19 @@ impl<const W: usize> Controller<W> {
 
     /// The lowest and highest levels the controller may choose.
     pub fn limits(&self) -> (Dbm, Dbm) {
-        (Dbm(self.bottom), Dbm(self.top))
-    }
-
-    /// The quantile factor `k = Q⁻¹(target_outage)` applied to the spread.
-    pub fn quantile_factor(&self) -> f32 {
-        self.quantile
+        (Dbm(self.power_at(0)), Dbm(self.power_at(self.s.kmax)))
     }
 
     /// Forget everything learnt and return to the start power.
     pub fn reset(&mut self) {
-        let cfg = self.cfg;
-        self.window.clear();
-        self.margin = self.clamp_margin(0.0);
+        self.margin = self.clamp_margin(0);
         self.loss_run = 0;
         self.mode = Mode::WarmUp;
         self.clamped_high = false;
         self.clamped_low = false;
-        self.last_reading_ms = None;
+        self.have_reading = false;
         self.forget();
-        self.tx = self.level_at_or_above(cfg.start_tx_dbm.0);
+        self.set_level(self.s.start);
     }
 
     /// Drop the readings and the predictors' history.
@@ -454,21 +581,109 @@ impl<const W: usize> Controller<W> {
         self.filters = [0; 2];
         self.mae_sum = [0; 3];
         self.errors = 0;
+        self.have_noise = false;
     }
 
-    /// Score the predictors on a new reading `z` (already quantised), then
-    /// take it into the window and the filters. Integer arithmetic only.
-    fn learn(&mut self, zq: i16, noiseq: i16) {
+    /// Power of level `k`, dBm.
+    fn power_at(&self, k: u16) -> f32 {
+        match self.s.grid {
+            Grid::Uniform { min, step, .. } => min + f32::from(k) * step,
+            Grid::Table { levels, per_db } => {
+                // Exact: the level is a whole number of 1/per_db dB.
+                f32::from(levels.get(usize::from(k)).copied().unwrap_or(0)) / f32::from(per_db)
+            }
+        }
+    }
+
+    /// Level `k` in 1/8192 dB.
+    fn fine_at(&self, k: u16) -> i32 {
+        to_fine(self.power_at(k))
+    }
+
+    /// Where to start looking for the level nearest `x` (1/8192 dB): on a
+    /// uniform grid the level computed from `x`, in a table level `from`.
+    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+    fn first_guess(&self, x: i32, from: u16) -> u16 {
+        match self.s.grid {
+            Grid::Uniform { min, inv_step, .. } => {
+                let k = libm::roundf((from_fine(x) - min) * inv_step);
+                if k <= 0.0 {
+                    0
+                } else if k >= f32::from(self.s.kmax) {
+                    self.s.kmax
+                } else {
+                    k as u16
+                }
+            }
+            Grid::Table { .. } => from,
+        }
+    }
+
+    /// Lowest level at or above `need` (1/8192 dB), the highest if none,
+    /// searching from level `k`.
+    fn walk_above(&self, k: u16, need: i32) -> u16 {
+        let kmax = self.s.kmax;
+        let mut k = if k > kmax { kmax } else { k };
+        if self.fine_at(k) >= need {
+            while k > 0 && self.fine_at(k - 1) >= need {
+                k -= 1;
+            }
+        } else {
+            while k < kmax {
+                k += 1;
+                if self.fine_at(k) >= need {
+                    break;
+                }
+            }
+        }
+        k
+    }
+
+    /// Highest level at or below `limit` (1/8192 dB), the lowest if none,
+    /// searching from level `k`.
+    fn walk_below(&self, k: u16, limit: i32) -> u16 {
+        let kmax = self.s.kmax;
+        let mut k = if k > kmax { kmax } else { k };
+        if self.fine_at(k) <= limit {
+            while k < kmax && self.fine_at(k + 1) <= limit {
+                k += 1;
+            }
+        } else {
+            while k > 0 {
+                k -= 1;
+                if self.fine_at(k) <= limit {
+                    break;
+                }
+            }
+        }
+        k
+    }
+
+    fn set_level(&mut self, k: u16) {
+        self.k = k;
+        self.tx = self.power_at(k);
+        self.level = self.fine_at(k);
+        self.below = if k == 0 {
+            i32::MIN
+        } else {
+            self.fine_at(k - 1)
+        };
+    }
+
+    /// Score the predictors on a new reading (z already quantised), then
+    /// take it into the window, the filters and the noise floor. Integer
+    /// arithmetic only.
+    fn learn(&mut self, zq: i16, noise: i32) {
         let z = i32::from(zq) << FINE_BITS;
         match self.window.mean_z_fine() {
             Some(mz) => {
                 self.errors = self.errors.saturating_add(1);
-                let filling = self.errors <= self.cfg.spread_memory;
+                let filling = self.errors <= self.s.spread_memory;
                 let [f0, f1] = self.filters;
                 // z, the mean and the filters are within ±2²³: the differences
                 // cannot wrap.
                 let e = [z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1)];
-                let (m, k) = (u32::from(self.cfg.spread_memory), self.memory_shift);
+                let (m, k) = (u32::from(self.s.spread_memory), self.s.memory_shift);
                 for (s, e) in self.mae_sum.iter_mut().zip(e.iter()) {
                     // |e| in 1/32 dB, rounded.
                     let a = (e.unsigned_abs().saturating_add(1 << (FINE_BITS - 1))) >> FINE_BITS;
@@ -485,13 +700,22 @@ impl<const W: usize> Controller<W> {
             }
             None => self.filters = [z; 2],
         }
-        self.window.push(zq, noiseq);
+        self.noise = if self.have_noise {
+            // Both within ±2²³: no wrap.
+            self.noise
+                .wrapping_add(noise.wrapping_sub(self.noise) >> NOISE_SHIFT)
+        } else {
+            noise
+        };
+        self.have_noise = true;
+        self.window.push(zq);
     }
 
-    /// Predicted z for the next packet and its RMS error, from the predictor
-    /// with the smallest mean absolute error; `mz` is the window's mean.
-    fn predict(&mut self, mz: Option<f32>) -> Option<(f32, Option<f32>)> {
-        let mz = mz?;
+    /// Predicted z for the next packet (1/8192 dB) and the mean absolute
+    /// error of its predictor (1/8192 dB), from the predictor with the
+    /// smallest one.
+    fn predict(&self) -> Option<(i32, Option<u32>)> {
+        let mz = self.window.mean_z_fine()?;
         if self.errors == 0 {
             return Some((mz, None));
         }
@@ -500,19 +724,21 @@ impl<const W: usize> Controller<W> {
         let (level, sum) = if s0 <= s1 && s0 <= s2 {
             (mz, s0)
         } else if s1 <= s2 {
-            (f0 as f32 * DB_PER_FINE, s1)
+            (f0, s1)
         } else {
-            (f1 as f32 * DB_PER_FINE, s2)
+            (f1, s2)
         };
         // Mean absolute error in 1/8192 dB: sum / n with the remainder kept.
-        let n = u32::from(if self.errors < self.cfg.spread_memory {
+        let memory = self.s.spread_memory;
+        let n = u32::from(if self.errors < memory {
             self.errors
         } else {
-            self.cfg.spread_memory
+            memory
         });
-        let fine = match self.memory_shift {
+        let fine = match self.s.memory_shift {
             // A full memory of a power of two: shifts.
-            Some(k) if n == u32::from(self.cfg.spread_memory) => {
+            Some(k) if n == u32::from(memory) => {
+                let k = u32::from(k);
                 let r = sum & n.wrapping_sub(1);
                 (sum >> k)
                     .saturating_mul(1 << FINE_BITS)
@@ -525,28 +751,24 @@ impl<const W: usize> Controller<W> {
                     .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
             }
         };
-        let sigma = if fine == self.spread_cache.0 {
-            self.spread_cache.1
-        } else {
-            let sg = fine as f32 * (MAE_TO_SIGMA * DB_PER_FINE);
-            self.spread_cache = (fine, sg);
-            sg
-        };
-        Some((level, Some(sigma)))
+        Some((level, Some(fine)))
     }
 
     /// `true` if `p` is one of the levels the controller may choose.
     pub fn is_level(&self, p: Dbm) -> bool {
         let x = p.0;
-        if !(x >= self.bottom - GRID_EPS && x <= self.top + GRID_EPS) {
+        let (bottom, top) = self.limits();
+        if !(x >= bottom.0 - GRID_EPS && x <= top.0 + GRID_EPS) {
             return false;
         }
-        match self.cfg.steps {
-            PowerSteps::Uniform(_) => {
-                let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step;
+        match self.s.grid {
+            Grid::Uniform { min, inv_step, .. } => {
+                let k = (x - min) * inv_step;
                 (k - libm::roundf(k)).abs() < 1e-3
             }
-            PowerSteps::Table(t) => t.levels().iter().any(|l| (l.0 - x).abs() < GRID_EPS),
+            Grid::Table { .. } => {
+                (0..=self.s.kmax).any(|k| (self.power_at(k) - x).abs() < GRID_EPS)
+            }
         }
     }
 
@@ -555,9 +777,8 @@ impl<const W: usize> Controller<W> {
     /// Never fails and never panics: a reading that cannot be used is
     /// ignored and the [`Decision::reason`] says why.
     pub fn update(&mut self, obs: &Observation) -> Decision {
-        let cfg = &self.cfg;
         let t = obs.t_ms();
-        let climb_after = cfg.climb_after_losses;
+        let climb_after = self.s.climb_after;
 
         // 1. The outcome of the packet: outer loop and loss runs.
         let outcome = match obs {
@@ -569,13 +790,15 @@ impl<const W: usize> Controller<W> {
         match outcome {
             Some(false) => {
                 if self.mode != Mode::WarmUp && !self.clamped_high {
-                    self.margin = self.clamp_margin(self.margin + cfg.margin_step_db.0);
+                    let up = i64::from(self.s.margin_up) << (MARGIN_BITS - MARGIN_UP_BITS);
+                    self.margin = self.clamp_margin(self.margin.saturating_add(up));
                 }
                 self.loss_run = self.loss_run.saturating_add(1);
             }
             Some(true) => {
                 if self.mode != Mode::WarmUp && !self.clamped_low {
-                    self.margin = self.clamp_margin(self.margin - self.margin_down);
+                    self.margin =
+                        self.clamp_margin(self.margin.saturating_sub(self.s.margin_down));
                 }
                 if self.loss_run >= climb_after {
                     flushed = Some(Reason::Recovered);
@@ -593,10 +816,10 @@ impl<const W: usize> Controller<W> {
                 noise,
                 snr,
                 ..
-            } => Some(self.check_feedback(tx, rssi, noise, snr)),
+            } => Some(self.check_feedback(tx.0, rssi.0, noise.0, snr.map(|s| s.0))),
             Observation::Beacon {
                 beacon_tx, rssi, ..
-            } => Some(self.check_beacon(beacon_tx, rssi)),
+            } => Some(self.check_beacon(beacon_tx.0, rssi.0)),
             _ => None,
         };
         let mut ignored: Option<Reason> = None;
@@ -604,18 +827,20 @@ impl<const W: usize> Controller<W> {
             Some(Err(r)) => ignored = Some(r),
             Some(Ok((z, noise))) => {
                 let mut fresh = true;
-                if let Some(last) = self.last_reading_ms {
+                if self.have_reading {
+                    let last = self.last_reading_ms;
                     if t < last {
                         ignored = Some(Reason::IgnoredStale);
                         fresh = false;
-                    } else if t - last > u64::from(self.cfg.stale_after_ms) {
+                    } else if t - last > u64::from(self.s.stale_after_ms) {
                         self.forget();
                         flushed = Some(Reason::HistoryExpired);
                     }
                 }
                 if fresh {
-                    self.learn(to_q(z), to_q(noise));
-                    self.last_reading_ms = Some(t);
+                    self.learn(fine_to_q(z), noise);
+                    self.last_reading_ms = t;
+                    self.have_reading = true;
                 }
             }
             None => {}
@@ -624,47 +849,59 @@ impl<const W: usize> Controller<W> {
             ignored = Some(Reason::NoInformation);
         }
 
-        // 3. The decision.
-        let cur = self.tx;
-        let means = self.window.means();
-        let prediction = self.predict(means.map(|(mz, _)| mz));
-        let spread = prediction.and_then(|(_, s)| s);
+        // 3. The decision, in 1/8192 dB.
+        let cur = self.k;
+        let prediction = self.predict();
         let n = self.window.n;
-        let cfg = &self.cfg;
-        let mut wanted: Option<f32> = None;
+        let s = &self.s;
+        let mut wanted: Option<i32> = None;
         let (target, mut reason) = if self.loss_run >= climb_after {
             self.mode = Mode::Climb;
+            let limit = self.level.saturating_add(s.step_up).saturating_add(EPS_FINE);
             (
-                self.level_at_or_below(cur + cfg.max_step_up_db.0),
+                self.walk_below(self.first_guess(limit, cur), limit),
                 Reason::Climb,
             )
-        } else if n < cfg.min_readings {
+        } else if n < s.min_readings {
             self.mode = Mode::WarmUp;
             (cur, Reason::WarmUp)
         } else {
             self.mode = Mode::Track;
-            let (level, s) = prediction.unwrap_or((0.0, None));
-            let w = cfg.required_snr_db.0 + level + self.quantile * s.unwrap_or(0.0) + self.margin;
+            let (level, mae) = prediction.unwrap_or((0, None));
+            let w = s
+                .required
+                .saturating_add(level)
+                .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
+                .saturating_add(margin_fine(self.margin));
             wanted = Some(w);
-            let up = self.level_at_or_above(w);
-            if up > cur + GRID_EPS {
-                (up, Reason::Raise)
-            } else {
-                let down = self.level_at_or_above(w + cfg.deadband_db.0);
-                if down < cur - GRID_EPS {
+            // A level is "at or above" x when it is above x less EPS_FINE.
+            let need = w.saturating_sub(EPS_FINE);
+            let need_down = w.saturating_add(s.deadband).saturating_sub(EPS_FINE);
+            if self.level < need && cur < s.kmax {
+                let up = self.walk_above(self.first_guess(need, cur), need);
+                if up > cur {
+                    (up, Reason::Raise)
+                } else {
+                    (cur, Reason::Hold)
+                }
+            } else if self.below >= need_down {
+                let down = self.walk_above(self.first_guess(need_down, cur), need_down);
+                if down < cur {
                     (down, Reason::Lower)
                 } else {
                     (cur, Reason::Hold)
                 }
+            } else {
+                (cur, Reason::Hold)
             }
         };
         self.clamped_high = match (self.mode, wanted) {
-            (Mode::Track, Some(w)) => w > self.top + GRID_EPS,
-            (Mode::Climb, _) => cur >= self.top - GRID_EPS,
+            (Mode::Track, Some(w)) => w > self.s.top.saturating_add(EPS_FINE),
+            (Mode::Climb, _) => cur >= self.s.kmax,
             _ => false,
         };
         self.clamped_low = match wanted {
-            Some(w) => w < self.bottom - GRID_EPS,
+            Some(w) => w < self.s.bottom.saturating_sub(EPS_FINE),
             None => false,
         };
         if self.clamped_high {
@@ -682,20 +919,31 @@ impl<const W: usize> Controller<W> {
         if let Some(i) = ignored {
             reason = i;
         }
-        self.tx = next;
+        if next != cur {
+            self.set_level(next);
+        }
 
-        let g = self.cfg.antenna_gain_dbi.0 + self.cfg.far_antenna_gain_dbi.0;
+        let spread = match prediction {
+            Some((_, Some(m))) => Some(Db(from_fine_u32(m) * MAE_TO_SIGMA)),
+            _ => None,
+        };
         Decision {
-            tx: Dbm(next),
+            tx: Dbm(self.tx),
             reason,
-            wanted: wanted.map(Dbm),
-            path_loss: match (prediction, means) {
-                (Some((level, _)), Some((_, mn))) => Some(Db(level - mn + g)),
+            wanted: wanted.map(|w| Dbm(from_fine(w))),
+            path_loss: match prediction {
+                Some((level, _)) if self.have_noise => Some(Db(from_fine(
+                    level.saturating_sub(self.noise).saturating_add(self.s.gains),
+                ))),
                 _ => None,
             },
-            spread: spread.map(Db),
-            noise: means.map(|(_, mn)| Dbm(mn)),
-            margin: Db(self.margin),
+            spread,
+            noise: if self.have_noise {
+                Some(Dbm(from_fine(self.noise)))
+            } else {
+                None
+            },
+            margin: self.margin(),
             readings: n,
         }
     }
@@ -707,180 +955,193 @@ impl<const W: usize> Controller<W> {
     /// plausible ranges, or a logged RSSI at or above `rssi_saturation_dbm`.
     /// The same checks, in the same order, as a live feedback.
     pub(crate) fn check_logged(&self, tx: f32, rssi: f32, noise: f32) -> Option<Reason> {
-        self.check_feedback(Dbm(tx), Dbm(rssi), Dbm(noise), None)
-            .err()
+        self.check_feedback(tx, rssi, noise, None).err()
     }
 
-    /// Loss to noise and noise floor of a feedback, or why it is unusable.
+    /// Loss to noise and noise floor of a feedback (1/8192 dB), or why it is
+    /// unusable.
     fn check_feedback(
         &self,
-        tx: Dbm,
-        rssi: Dbm,
-        noise: Dbm,
-        snr: Option<Db>,
-    ) -> Result<(f32, f32), Reason> {
-        let c = &self.cfg;
-        if !(tx.0.is_finite() && rssi.0.is_finite() && noise.0.is_finite()) {
+        tx: f32,
+        rssi: f32,
+        noise: f32,
+        snr: Option<f32>,
+    ) -> Result<(i32, i32), Reason> {
+        let s = &self.s;
+        if !(tx.is_finite() && rssi.is_finite() && noise.is_finite()) {
             return Err(Reason::IgnoredNotFinite);
         }
-        if let Some(s) = snr {
-            if !s.0.is_finite() {
+        if let Some(x) = snr {
+            if !x.is_finite() {
                 return Err(Reason::IgnoredNotFinite);
             }
         }
-        if tx.0 < c.min_tx_dbm.0 - TX_TOLERANCE_DB || tx.0 > c.max_tx_dbm.0 + TX_TOLERANCE_DB {
+        let (tx, rssi, noise) = (to_fine(tx), to_fine(rssi), to_fine(noise));
+        if tx < q_fine(s.tx_lo) || tx > q_fine(s.tx_hi) {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi.0 < c.rssi_min_dbm.0 || rssi.0 > c.rssi_max_dbm.0 {
+        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
             return Err(Reason::IgnoredImplausible);
         }
-        if noise.0 < c.noise_min_dbm.0 || noise.0 > c.noise_max_dbm.0 {
+        if noise < q_fine(s.noise_lo) || noise > q_fine(s.noise_hi) {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi.0 >= c.rssi_saturation_dbm.0 {
+        if rssi >= q_fine(s.rssi_saturation) {
             return Err(Reason::IgnoredSaturated);
         }
+        // All within ±300 dB (±2²² steps): no sum below can wrap.
         let snr = match snr {
-            Some(s) => {
-                if s.0 < c.rssi_min_dbm.0 - c.noise_max_dbm.0
-                    || s.0 > c.rssi_max_dbm.0 - c.noise_min_dbm.0
+            Some(x) => {
+                let x = to_fine(x);
+                if x < q_fine(s.rssi_lo) - q_fine(s.noise_hi)
+                    || x > q_fine(s.rssi_hi) - q_fine(s.noise_lo)
                 {
                     return Err(Reason::IgnoredImplausible);
                 }
-                s.0
+                x
             }
-            None => rssi.0 - noise.0,
+            None => rssi - noise,
         };
-        Ok((tx.0 - snr, noise.0))
+        Ok((tx - snr, noise))
     }
 
     /// Loss to noise of an open-loop beacon (reciprocal path, noise floor
-    /// from the window or the default), or why it is unusable.
-    fn check_beacon(&self, beacon_tx: Dbm, rssi: Dbm) -> Result<(f32, f32), Reason> {
-        let c = &self.cfg;
-        if !(beacon_tx.0.is_finite() && rssi.0.is_finite()) {
+    /// from the filter or the default), or why it is unusable.
+    fn check_beacon(&self, beacon_tx: f32, rssi: f32) -> Result<(i32, i32), Reason> {
+        let s = &self.s;
+        if !(beacon_tx.is_finite() && rssi.is_finite()) {
             return Err(Reason::IgnoredNotFinite);
         }
-        if beacon_tx.0 < BEACON_TX_RANGE_DBM.0 || beacon_tx.0 > BEACON_TX_RANGE_DBM.1 {
+        if beacon_tx < BEACON_TX_RANGE_DBM.0 || beacon_tx > BEACON_TX_RANGE_DBM.1 {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi.0 < c.rssi_min_dbm.0 || rssi.0 > c.rssi_max_dbm.0 {
+        let rssi = to_fine(rssi);
+        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi.0 >= c.rssi_saturation_dbm.0 {
+        if rssi >= q_fine(s.rssi_saturation) {
             return Err(Reason::IgnoredSaturated);
         }
-        let noise = match self.window.means() {
-            Some((_, mn)) => mn,
-            None => c.default_noise_dbm.0,
+        let noise = if self.have_noise {
+            self.noise
+        } else {
+            q_fine(s.default_noise)
         };
         // SNR of our packet = tx − PL − noise + gains, PL − gains = beacon_tx − rssi.
-        Ok((beacon_tx.0 - rssi.0 + noise, noise))
+        // All within ±300 dB: no wrap.
+        Ok((to_fine(beacon_tx) - rssi + noise, noise))
     }
 
-    fn clamp_margin(&self, m: f32) -> f32 {
-        let lo = self.cfg.margin_min_db.0;
-        let hi = self.cfg.margin_max_db.0;
-        if m >= lo {
-            if m > hi {
-                hi
-            } else {
-                m
-            }
+    fn clamp_margin(&self, m: i64) -> i64 {
+        let hi = i64::from(self.s.margin_max) << (MARGIN_BITS - FINE_BITS - 5);
+        let lo = i64::from(self.s.margin_min) << (MARGIN_BITS - FINE_BITS - 5);
+        if m > hi {
+            hi
         } else if m < lo {
             lo
-        } else if 0.0 > hi {
-            // NaN (cannot arise from validated settings): the neutral margin.
-            hi
-        } else if 0.0 < lo {
-            lo
         } else {
-            0.0
+            m
         }
     }
 
-    /// Lowest level ≥ `x`, within `[bottom, top]` (`top` if none or NaN).
-    fn level_at_or_above(&self, x: f32) -> f32 {
-        if x >= self.top || x.is_nan() {
-            return self.top;
+    /// Move from level `cur` toward level `target` by at most the step
+    /// limits. Returns the new level and whether it was limited.
+    fn limit_step(&self, cur: u16, target: u16) -> (u16, bool) {
+        if target == cur {
+            return (cur, false);
         }
-        if x <= self.bottom {
-            return self.bottom;
-        }
-        let v = match self.cfg.steps {
-            PowerSteps::Uniform(s) => {
-                // bottom = min_tx < x < top, so 0 < k ≤ levels: an integer
-                // ceiling without libm.
-                let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step - GRID_EPS;
-                let ki = to_level_index(k);
-                let ki = if (ki as f32) < k {
-                    ki.saturating_add(1)
-                } else {
-                    ki
-                };
-                self.cfg.min_tx_dbm.0 + ki as f32 * s.0
-            }
-            PowerSteps::Table(t) => t
-                .levels()
-                .iter()
-                .map(|l| l.0)
-                .find(|&l| l >= self.bottom && l >= x - GRID_EPS)
-                .unwrap_or(self.top),
-        };
-        self.clamp_level(v)
-    }
-
-    /// Highest level ≤ `x`, within `[bottom, top]` (`top` if NaN).
-    fn level_at_or_below(&self, x: f32) -> f32 {
-        if x >= self.top || x.is_nan() {
-            return self.top;
-        }
-        if x <= self.bottom {
-            return self.bottom;
-        }
-        let v = match self.cfg.steps {
-            PowerSteps::Uniform(s) => {
-                let k = (x - self.cfg.min_tx_dbm.0) * self.inv_step + GRID_EPS;
-                self.cfg.min_tx_dbm.0 + to_level_index(k) as f32 * s.0
-            }
-            PowerSteps::Table(t) => t
-                .levels()
-                .iter()
-                .rev()
-                .map(|l| l.0)
-                .find(|&l| l <= self.top && l <= x + GRID_EPS)
-                .unwrap_or(self.bottom),
-        };
-        self.clamp_level(v)
-    }
-
-    fn clamp_level(&self, v: f32) -> f32 {
-        if v > self.top {
-            self.top
-        } else if v < self.bottom {
-            self.bottom
-        } else {
-            v
-        }
-    }
-
-    /// Move from `cur` toward `target` by at most the step limits, staying on
-    /// the grid. Returns the new level and whether it was limited.
-    fn limit_step(&self, cur: f32, target: f32) -> (f32, bool) {
-        let up = self.cfg.max_step_up_db.0;
-        let down = self.cfg.max_step_down_db.0;
-        if target > cur + up + GRID_EPS {
-            (self.level_at_or_below(cur + up), true)
-        } else if target < cur - down - GRID_EPS {
-            (self.level_at_or_above(cur - down), true)
+        let s = &self.s;
+        let t = self.fine_at(target);
+        let up = self.level.saturating_add(s.step_up);
+        let down = self.level.saturating_sub(s.step_down);
+        if t > up.saturating_add(EPS_FINE) {
+            let limit = up.saturating_add(EPS_FINE);
+            (self.walk_below(self.first_guess(limit, cur), limit), true)
+        } else if t < down.saturating_sub(EPS_FINE) {
+            let need = down.saturating_sub(EPS_FINE);
+            (self.walk_above(self.first_guess(need, cur), need), true)
         } else {
             (target, false)
         }
     }
 }
 
+/// Fractional bits of the margin's rise per loss (`margin_step_db`).
+const MARGIN_UP_BITS: u32 = 24;
+
+/// `margin_step_db` in 2⁻²⁴ dB (validated: at most 20 dB).
+#[allow(clippy::cast_possible_truncation)]
+fn to_margin_up(x: f32) -> i32 {
+    libm::roundf(x * (1u32 << MARGIN_UP_BITS) as f32) as i32
+}
+
+/// A dB value in 1/8192 dB rounded up / down (settings within ±300 dB).
+#[allow(clippy::cast_possible_truncation)]
+fn fine_ceil(x: f32) -> i32 {
+    libm::ceilf(x * (1u32 << (FINE_BITS + 5)) as f32) as i32
+}
+
+#[allow(clippy::cast_possible_truncation)]
+fn fine_floor(x: f32) -> i32 {
+    libm::floorf(x * (1u32 << (FINE_BITS + 5)) as f32) as i32
+}
+
+/// A setting in 1/32 dB, rounded (settings within ±300 dB).
+#[allow(clippy::cast_possible_truncation)]
+fn to_q(x: f32) -> i16 {
+    libm::roundf(x * Q_PER_DB) as i16
+}
+
+/// A value in 1/32 dB in 1/8192 dB.
+fn q_fine(x: i16) -> i32 {
+    i32::from(x) << FINE_BITS
+}
+
+/// The margin in 1/8192 dB (rounded toward −∞).
+#[allow(clippy::cast_possible_truncation)] // ±300 dB is ±2²² steps
+fn margin_fine(m: i64) -> i32 {
+    (m >> (MARGIN_BITS - FINE_BITS - 5)) as i32
+}
+
+/// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
+/// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
+fn spread_term(mae: u32, factor: u32) -> i32 {
+    let x = (u64::from(mae) * u64::from(factor)) >> SIGMA_FACTOR_BITS;
+    i32::try_from(x).unwrap_or(i32::MAX)
+}
+
+/// A non-negative value in 1/8192 dB as `f32`.
+#[allow(clippy::cast_precision_loss)]
+fn from_fine_u32(x: u32) -> f32 {
+    x as f32 * DB_PER_FINE
+}
+
+/// The factor `Q⁻¹(p)·√(π/2)` in 2⁻¹⁶ (at most 6 for `p ≥ 10⁻⁶`).
+#[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+fn to_sigma_factor(x: f32) -> u32 {
+    libm::roundf(x * (1u32 << SIGMA_FACTOR_BITS) as f32) as u32
+}
+
+/// A table level in 1/`per_db` dB (validated: a multiple of it within
+/// ±300 dB).
+#[allow(clippy::cast_possible_truncation)]
+fn to_table_units(x: f32, per_db: u8) -> i16 {
+    libm::roundf(x * f32::from(per_db)) as i16
+}
+
+/// The index of the highest level of a uniform grid, `k` levels above the
+/// lowest (validated: at most 60 000).
+#[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+fn level_count_index(k: f32) -> u16 {
+    if k <= 0.0 {
+        0
+    } else {
+        k as u16
+    }
+}
+
 /// `s / m`, rounded; `k = log2(m)` when `m` is a power of two.
-fn over_memory(s: u32, m: u32, k: Option<u32>) -> u32 {
+fn over_memory(s: u32, m: u32, k: Option<u8>) -> u32 {
     let half = s.saturating_add(m >> 1);
     match k {
         Some(k) => half >> k,
@@ -912,12 +1173,11 @@ mod tests {
 
     #[test]
     fn state_is_small() {
-        // Cost target: the state of a W = 32 controller fits in 256 bytes
-        // beside its configuration.
+        // Cost target: the whole state of a W = 32 controller, settings
+        // included, fits in 256 bytes.
         let total = core::mem::size_of::<Controller<32>>();
-        let cfg = core::mem::size_of::<ControllerConfig>();
-        assert!(total - cfg <= 256, "state {} bytes", total - cfg);
-        println!("Controller<32>: {total} bytes, of which config {cfg}");
+        assert!(total <= 256, "state {total} bytes");
+        println!("Controller<32>: {total} bytes");
     }
 
     #[test]
@@ -934,12 +1194,12 @@ mod tests {
     fn window_sums_are_exact_after_wrap() {
         let mut w: Window<4> = Window::new();
         for v in [10i16, -20, 30, 40, 50, 60, -70] {
-            w.push(v, 5);
+            w.push(v);
         }
         // Holds 40, 50, 60, -70.
         assert_eq!(w.n, 4);
         assert_eq!(w.sum_z, 80);
-        assert_eq!(w.sum_noise, 20);
+        assert_eq!(w.mean_z_fine(), Some(20 << FINE_BITS));
     }
 
     #[test]
@@ -1095,11 +1355,17 @@ mod tests {
         // Unreachable through validation; the arithmetic itself must not
         // overflow if the index saturates.
         let mut c = ctl();
-        c.inv_step = f32::MAX;
-        let v = c.level_at_or_above(0.5);
-        assert!(v.is_finite());
-        let v = c.level_at_or_below(0.5);
-        assert!(v.is_finite());
+        c.s.grid = Grid::Uniform {
+            min: -9.0,
+            step: 1.0,
+            inv_step: f32::MAX,
+        };
+        assert_eq!(c.first_guess(to_fine(0.5), 0), c.s.kmax);
+        assert_eq!(c.first_guess(to_fine(-10.0), 5), 0);
+        assert_eq!(to_fine(f32::MAX), i32::MAX);
+        assert_eq!(to_fine(f32::MIN), i32::MIN);
+        assert_eq!(fine_to_q(i32::MAX), i16::MAX);
+        assert_eq!(fine_to_q(i32::MIN), i16::MIN);
     }
 
     #[test]

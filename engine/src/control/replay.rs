@@ -289,6 +289,8 @@ impl Summary {
 pub struct Replay<const W: usize> {
     controller: Controller<W>,
     summary: Summary,
+    /// The required SNR, dB, as configured.
+    required_snr: f32,
 }
 
 impl<const W: usize> Replay<W> {
@@ -299,13 +301,14 @@ impl<const W: usize> Replay<W> {
         Ok(Replay {
             controller,
             summary,
+            required_snr: cfg.required_snr_db.0,
         })
     }
 
     /// Replay one record (see [`Replay`] for the semantics).
     pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
         let chosen = self.controller.tx();
-        let required = self.controller.config().required_snr_db;
+        let required = Db(self.required_snr);
         let t_ms = rec.t_ms;
         let mut own_reason: Option<Reason> = None;
         let (outcome, snr, obs) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
