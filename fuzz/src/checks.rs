@@ -497,9 +497,12 @@ fn steps_from(b: &mut Bytes<'_>) -> PowerSteps {
                     x == x.round()
                 })
             };
-            let centi = levels
-                .iter()
-                .all(|l| format!("{}", l.0).split('.').nth(1).is_none_or(|d| d.len() <= 2));
+            let centi = levels.iter().all(|l| {
+                format!("{}", l.0)
+                    .split('.')
+                    .nth(1)
+                    .is_none_or(|d| d.len() <= 2)
+            });
             let representable = centi || whole(64.0);
             match LevelTable::new(&levels) {
                 Ok(t) => {

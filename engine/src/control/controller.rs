@@ -274,8 +274,18 @@ fn to_margin(x: f32) -> i64 {
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 enum Grid {
-    /// `min + k·step`.
-    Uniform { min: f32, step: f32, inv_step: f32 },
+    /// `min + k·step` dBm. The update compares levels in 1/8192 dB as
+    /// `min_fine + k·step_fine` (the step rounded to 1/8192 dB: over the
+    /// 2 300 levels of a 0.01 dB grid spanning 23 dB the thresholds move by
+    /// at most 0.15 dB, over a 1 dB grid not at all), so finding a level is
+    /// an integer division.
+    Uniform {
+        min: f32,
+        step: f32,
+        inv_step: f32,
+        min_fine: i32,
+        step_fine: i32,
+    },
     /// The usable levels of a table, in 1/`per_db` dB (exact: a table's
     /// levels are validated to be all multiples of 0.01 dB or all of 1/64 dB,
     /// within ±300 dB).
@@ -458,6 +468,8 @@ impl<const W: usize> Controller<W> {
                         min: cfg.min_tx_dbm.0,
                         step: s.0,
                         inv_step,
+                        min_fine: to_fine(cfg.min_tx_dbm.0),
+                        step_fine: to_fine(s.0),
                     },
                     level_count_index(k),
                 )
@@ -597,7 +609,23 @@ impl<const W: usize> Controller<W> {
 
     /// Level `k` in 1/8192 dB.
     fn fine_at(&self, k: u16) -> i32 {
-        to_fine(self.power_at(k))
+        match self.s.grid {
+            // k·step_fine is within the validated span (±600 dB, 2²³ steps)
+            // plus k/2 of rounding: no wrap.
+            Grid::Uniform {
+                min_fine,
+                step_fine,
+                ..
+            } => min_fine.wrapping_add(i32::from(k).wrapping_mul(step_fine)),
+            Grid::Table { levels, per_db } => {
+                // |level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits.
+                let u = i32::from(levels.get(usize::from(k)).copied().unwrap_or(0));
+                let d = i32::from(per_db);
+                let x = u * (1 << (FINE_BITS + 5));
+                let half = if x >= 0 { d / 2 } else { -(d / 2) };
+                x.wrapping_add(half).checked_div(d).unwrap_or(0)
+            }
+        }
     }
 
     /// Where to start looking for the level nearest `x` (1/8192 dB): on a
@@ -605,14 +633,21 @@ impl<const W: usize> Controller<W> {
     #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
     fn first_guess(&self, x: i32, from: u16) -> u16 {
         match self.s.grid {
-            Grid::Uniform { min, inv_step, .. } => {
-                let k = libm::roundf((from_fine(x) - min) * inv_step);
-                if k <= 0.0 {
+            Grid::Uniform {
+                min_fine,
+                step_fine,
+                ..
+            } => {
+                let k = x
+                    .saturating_sub(min_fine)
+                    .checked_div(step_fine)
+                    .unwrap_or(0);
+                if k <= 0 {
                     0
-                } else if k >= f32::from(self.s.kmax) {
+                } else if k >= i32::from(self.s.kmax) {
                     self.s.kmax
                 } else {
-                    k as u16
+                    u16::try_from(k).unwrap_or(self.s.kmax)
                 }
             }
             Grid::Table { .. } => from,
@@ -797,8 +832,7 @@ impl<const W: usize> Controller<W> {
             }
             Some(true) => {
                 if self.mode != Mode::WarmUp && !self.clamped_low {
-                    self.margin =
-                        self.clamp_margin(self.margin.saturating_sub(self.s.margin_down));
+                    self.margin = self.clamp_margin(self.margin.saturating_sub(self.s.margin_down));
                 }
                 if self.loss_run >= climb_after {
                     flushed = Some(Reason::Recovered);
@@ -857,7 +891,10 @@ impl<const W: usize> Controller<W> {
         let mut wanted: Option<i32> = None;
         let (target, mut reason) = if self.loss_run >= climb_after {
             self.mode = Mode::Climb;
-            let limit = self.level.saturating_add(s.step_up).saturating_add(EPS_FINE);
+            let limit = self
+                .level
+                .saturating_add(s.step_up)
+                .saturating_add(EPS_FINE);
             (
                 self.walk_below(self.first_guess(limit, cur), limit),
                 Reason::Climb,
@@ -933,7 +970,9 @@ impl<const W: usize> Controller<W> {
             wanted: wanted.map(|w| Dbm(from_fine(w))),
             path_loss: match prediction {
                 Some((level, _)) if self.have_noise => Some(Db(from_fine(
-                    level.saturating_sub(self.noise).saturating_add(self.s.gains),
+                    level
+                        .saturating_sub(self.noise)
+                        .saturating_add(self.s.gains),
                 ))),
                 _ => None,
             },
@@ -1359,6 +1398,8 @@ mod tests {
             min: -9.0,
             step: 1.0,
             inv_step: f32::MAX,
+            min_fine: to_fine(-9.0),
+            step_fine: 1,
         };
         assert_eq!(c.first_guess(to_fine(0.5), 0), c.s.kmax);
         assert_eq!(c.first_guess(to_fine(-10.0), 5), 0);
