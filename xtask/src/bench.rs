@@ -266,7 +266,7 @@ fn state_note(bytes: u64) -> String {
         "core::mem::size_of::<Controller<32>>()".into()
     } else {
         format!(
-            "core::mem::size_of::<Controller<32>>(); {} B over: the two i16 windows take 128 B, the copy of ControllerConfig (level table included) most of the rest",
+            "core::mem::size_of::<Controller<32>>(); {} B over the goal",
             bytes - 256
         )
     }
