@@ -277,8 +277,8 @@ enum Grid {
     /// `min + k·step` dBm. The update compares levels in 1/8192 dB as
     /// `min_fine + k·step_fine` (the step rounded to 1/8192 dB: over the
     /// 2 300 levels of a 0.01 dB grid spanning 23 dB the thresholds move by
-    /// at most 0.15 dB, over a 1 dB grid not at all), so finding a level is
-    /// an integer division.
+    /// at most 0.03 dB, 0.08/8192 dB per level; over a 1 dB grid not at
+    /// all), so finding a level is an integer division.
     Uniform {
         min: f32,
         step: f32,
