@@ -20,8 +20,14 @@ pub const SETTING_LIMIT_DB: f32 = 300.0;
 /// level index.
 pub const MIN_UNIFORM_STEP_DB: f32 = 0.01;
 
-/// Steps per dB of the controller's adaptive margin (2⁴⁰).
-pub(crate) const MARGIN_STEPS_PER_DB: f32 = (1u64 << 40) as f32;
+/// Fractional bits of the controller's adaptive margin: it runs in 2⁻⁴⁰ dB
+/// in an `i64`, so that its fall per delivered packet, `Δup·p/(1−p)`, keeps
+/// at least three significant digits down to the smallest accepted target
+/// outage (±300 dB fits with room to spare).
+pub(crate) const MARGIN_BITS: u32 = 40;
+
+/// Steps per dB of the controller's adaptive margin.
+pub(crate) const MARGIN_STEPS_PER_DB: f32 = (1u64 << MARGIN_BITS) as f32;
 
 /// Largest window the controller accepts (its indices and integer sums are
 /// sized for it).

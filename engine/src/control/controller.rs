@@ -1,6 +1,9 @@
 //! The per-packet transmit-power controller.
 
-use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_LEVELS, MAX_WINDOW};
+use super::config::{
+    ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MARGIN_BITS, MARGIN_STEPS_PER_DB,
+    MAX_LEVELS, MAX_WINDOW,
+};
 use super::reason::Reason;
 use crate::units::{Db, Dbm};
 
@@ -28,6 +31,12 @@ const FILTER_SHIFTS: [u32; 2] = [3, 1];
 /// Extra fractional bits of the filters and prediction errors beyond the
 /// readings' 1/32 dB: they run in 1/8192 dB.
 const FINE_BITS: u32 = 8;
+
+/// Fractional bits of the fine steps per dB (1/8192 dB = 2⁻¹³ dB).
+const FINE_PER_DB_BITS: u32 = FINE_BITS + 5;
+
+/// Fine steps per dB.
+const FINE_PER_DB: f32 = (1u32 << FINE_PER_DB_BITS) as f32;
 
 /// dB per step of the filters (1/8192 dB).
 const DB_PER_FINE: f32 = 1.0 / (Q_PER_DB * (1u32 << FINE_BITS) as f32);
@@ -214,12 +223,6 @@ impl<const W: usize> Window<W> {
     }
 }
 
-/// Fractional bits of the adaptive margin: it runs in 2⁻⁴⁰ dB in an `i64`,
-/// so that its fall per delivered packet, `Δup·p/(1−p)`, keeps at least
-/// three significant digits down to the smallest accepted target outage
-/// (±300 dB fits with room to spare).
-const MARGIN_BITS: u32 = 40;
-
 /// Fractional bits of the factor `Q⁻¹(p)·√(π/2)` applied to the mean
 /// absolute error.
 const SIGMA_FACTOR_BITS: u32 = 16;
@@ -237,7 +240,7 @@ const EPS_FINE: i32 = 1;
 /// is the one to the integer.
 #[allow(clippy::cast_possible_truncation)]
 fn to_fine(x: f32) -> i32 {
-    let y = x * (1u32 << (FINE_BITS + 5)) as f32;
+    let y = x * FINE_PER_DB;
     (if y >= 0.0 { y + 0.5 } else { y - 0.5 }) as i32
 }
 
@@ -266,7 +269,7 @@ fn fine_to_q(x: i32) -> i16 {
 /// ±300 dB: no saturation of the `i64`).
 #[allow(clippy::cast_possible_truncation)]
 fn to_margin(x: f32) -> i64 {
-    (x * (1u64 << MARGIN_BITS) as f32) as i64
+    (x * MARGIN_STEPS_PER_DB) as i64
 }
 
 /// The levels the radio supports, from the lowest usable one (index 0) to
@@ -325,7 +328,8 @@ struct Settings {
     default_noise: i16,
     /// Both antenna gains (to report the path loss).
     gains: i32,
-    /// Lowest and highest usable level.
+    /// Lowest and highest usable level (`fine_at(0)`, `fine_at(kmax)`, kept
+    /// for the clamp tests of every update).
     bottom: i32,
     top: i32,
     stale_after_ms: u32,
@@ -398,11 +402,11 @@ struct Settings {
 /// exponential, square root or division by a variable once the window is
 /// full (when `W` and `spread_memory` are powers of two). Everything between
 /// the readings and the decision is integer arithmetic: readings, levels and
-/// estimates in 1/8192 dB, the margin in 2⁻⁴⁰ dB. Floats are used to quantise
-/// the readings, to report the decision, and to find a new level when the
-/// power changes (about one packet in ten); holding the power compares two
+/// estimates in 1/8192 dB, the margin in 2⁻⁴⁰ dB. Floats are used only to
+/// quantise the readings, to report the decision, and for the power (dBm) of
+/// a new level when the power changes; holding the power compares two
 /// integers with the level in use and the one below it. The plausibility
-/// bounds are compared at the same 1/8192 dB resolution.
+/// bounds are kept to 1/32 dB.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
@@ -621,7 +625,7 @@ impl<const W: usize> Controller<W> {
                 // |level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits.
                 let u = i32::from(levels.get(usize::from(k)).copied().unwrap_or(0));
                 let d = i32::from(per_db);
-                let x = u * (1 << (FINE_BITS + 5));
+                let x = u * (1 << FINE_PER_DB_BITS);
                 let half = if x >= 0 { d / 2 } else { -(d / 2) };
                 x.wrapping_add(half).checked_div(d).unwrap_or(0)
             }
@@ -630,7 +634,6 @@ impl<const W: usize> Controller<W> {
 
     /// Where to start looking for the level nearest `x` (1/8192 dB): on a
     /// uniform grid the level computed from `x`, in a table level `from`.
-    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
     fn first_guess(&self, x: i32, from: u16) -> u16 {
         match self.s.grid {
             Grid::Uniform {
@@ -1072,8 +1075,8 @@ impl<const W: usize> Controller<W> {
     }
 
     fn clamp_margin(&self, m: i64) -> i64 {
-        let hi = i64::from(self.s.margin_max) << (MARGIN_BITS - FINE_BITS - 5);
-        let lo = i64::from(self.s.margin_min) << (MARGIN_BITS - FINE_BITS - 5);
+        let hi = i64::from(self.s.margin_max) << (MARGIN_BITS - FINE_PER_DB_BITS);
+        let lo = i64::from(self.s.margin_min) << (MARGIN_BITS - FINE_PER_DB_BITS);
         if m > hi {
             hi
         } else if m < lo {
@@ -1117,12 +1120,12 @@ fn to_margin_up(x: f32) -> i32 {
 /// A dB value in 1/8192 dB rounded up / down (settings within ±300 dB).
 #[allow(clippy::cast_possible_truncation)]
 fn fine_ceil(x: f32) -> i32 {
-    libm::ceilf(x * (1u32 << (FINE_BITS + 5)) as f32) as i32
+    libm::ceilf(x * FINE_PER_DB) as i32
 }
 
 #[allow(clippy::cast_possible_truncation)]
 fn fine_floor(x: f32) -> i32 {
-    libm::floorf(x * (1u32 << (FINE_BITS + 5)) as f32) as i32
+    libm::floorf(x * FINE_PER_DB) as i32
 }
 
 /// A setting in 1/32 dB, rounded (settings within ±300 dB).
@@ -1139,7 +1142,7 @@ fn q_fine(x: i16) -> i32 {
 /// The margin in 1/8192 dB (rounded toward −∞).
 #[allow(clippy::cast_possible_truncation)] // ±300 dB is ±2²² steps
 fn margin_fine(m: i64) -> i32 {
-    (m >> (MARGIN_BITS - FINE_BITS - 5)) as i32
+    (m >> (MARGIN_BITS - FINE_PER_DB_BITS)) as i32
 }
 
 /// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
