@@ -610,23 +610,23 @@ fn check_decision<const W: usize>(
         d.tx.0 >= lo.0 - POWER_EPS && d.tx.0 <= hi.0 + POWER_EPS,
         "{d:?} outside {lo:?}..{hi:?}"
     );
-    let m = d.margin.0;
+    let m = d.margin().0;
     assert!(
         m.is_finite() && m >= cfg.margin_min_db.0 && m <= cfg.margin_max_db.0,
         "margin {m} outside [{}, {}]",
         cfg.margin_min_db.0,
         cfg.margin_max_db.0
     );
-    if let Some(s) = d.spread {
+    if let Some(s) = d.spread() {
         assert!(s.0.is_finite() && s.0 >= 0.0, "spread {s:?}");
     }
-    if let Some(w) = d.wanted {
+    if let Some(w) = d.wanted() {
         assert!(w.0.is_finite(), "wanted {w:?}");
     }
-    if let Some(pl) = d.path_loss {
+    if let Some(pl) = d.path_loss() {
         assert!(pl.0.is_finite(), "path loss {pl:?}");
     }
-    if let Some(n) = d.noise {
+    if let Some(n) = d.noise() {
         assert!(
             n.0 >= cfg.noise_min_dbm.0 - 0.1 && n.0 <= cfg.noise_max_dbm.0 + 0.1,
             "mean noise {n:?} outside the plausible range"

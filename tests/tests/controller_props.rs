@@ -191,9 +191,10 @@ fn drive<const W: usize>(
             let d = c.update(&obs);
             check(&cfg, *prev, d.tx.0)?;
             prop_assert_eq!(d.tx, c.tx());
-            prop_assert!(d.margin.0.is_finite());
+            prop_assert!(d.margin().0.is_finite());
             prop_assert!(
-                d.margin.0 >= cfg.margin_min_db.0 - EPS && d.margin.0 <= cfg.margin_max_db.0 + EPS
+                d.margin().0 >= cfg.margin_min_db.0 - EPS
+                    && d.margin().0 <= cfg.margin_max_db.0 + EPS
             );
             *prev = d.tx.0;
             Ok(())

@@ -344,8 +344,8 @@ impl<const W: usize> Replay<W> {
             chosen,
             replayed_snr: snr,
             outcome,
-            path_loss_estimate: d.path_loss,
-            margin: d.margin,
+            path_loss_estimate: d.path_loss(),
+            margin: d.margin(),
             reason: own_reason.unwrap_or(d.reason),
             next_tx: d.tx,
         };

@@ -206,7 +206,10 @@ pub fn rain_attenuation_exceeded(path: &SlantPath, percent: f32) -> Result<Db> {
     }
     let el = el_deg.to_radians();
     let sin_el = libm::sinf(el);
-    let cos_el = libm::cosf(el);
+    // cos θ as sin(90° − θ): 90° − θ is exact in f32, so near the zenith,
+    // where cos θ is tiny, it keeps its relative precision (cos of the
+    // rounded radians would lose it: at θ = 89.9997° by about 1 %).
+    let cos_el = libm::sinf((90.0 - el_deg).to_radians());
     let f_ghz = f / 1e9;
     // Step 2: slant-path length below the rain height, km.
     let ls = if el_deg >= 5.0 {
@@ -222,8 +225,11 @@ pub fn rain_attenuation_exceeded(path: &SlantPath, percent: f32) -> Result<Db> {
     let r =
         1.0 / (1.0 + 0.78 * libm::sqrtf(lg * gamma / f_ghz) - 0.38 * (1.0 - libm::expf(-2.0 * lg)));
     // Step 7: vertical adjustment factor.
-    let zeta_deg = libm::atan2f(dh, lg * r).to_degrees();
-    let lr = if zeta_deg > el_deg {
+    // ζ = atan(Δh / (LG·r)) > θ, compared as tan ζ > tan θ, i.e.
+    // Δh·cos θ > LG·r·sin θ (all terms positive): the same test, but
+    // resolvable in f32 near the zenith, where ζ and θ differ by less than
+    // the spacing of f32 degrees at 90°.
+    let lr = if dh * cos_el > lg * r * sin_el {
         lg * r / cos_el
     } else {
         dh / sin_el

@@ -101,8 +101,8 @@ fn run() -> bool {
             chosen,
             replayed_snr: snr,
             outcome,
-            path_loss_estimate: d.path_loss,
-            margin: d.margin,
+            path_loss_estimate: d.path_loss(),
+            margin: d.margin(),
             reason: d.reason,
             next_tx: d.tx,
         });
@@ -115,7 +115,7 @@ fn run() -> bool {
             snr.map(|s| s.0),
             d.tx.0,
             d.reason,
-            d.margin.0
+            d.margin().0
         );
     }
 
