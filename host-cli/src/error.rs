@@ -3,7 +3,7 @@
 use std::fmt;
 
 /// A failure of a command, printed as one line on stderr.
-#[derive(Debug)]
+#[derive(Debug, Clone)]
 pub enum CliError {
     /// Bad input: an argument, a file's content, a setting. Exit code 2.
     Input(String),

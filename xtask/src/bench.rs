@@ -673,11 +673,16 @@ fn peak_rss_kib(ctx: &Ctx, log: &Path) -> Result<u64, String> {
         .ok_or_else(|| format!("no peak RSS in /usr/bin/time's output:\n{text}"))
 }
 
-/// The tune sweep and the candidates it replays (four values of
-/// `margin_step_db`, plus the default that tune always replays).
-const TUNE_SWEEP: (&str, u64) = ("margin_step_db=0.25,0.5,0.75,1", 5);
+/// The tune sweeps and the candidates they replay (four values of
+/// `margin_step_db` times three of `max_step_down_db`, plus the default that
+/// tune always replays): enough candidates that two threads are not left
+/// waiting on an odd one out.
+const TUNE_SWEEP: (&[&str], u64) = (
+    &["margin_step_db=0.25,0.5,0.75,1", "max_step_down_db=1,2,4"],
+    13,
+);
 
-/// `headroom tune` on one log with a four-candidate sweep, one worker
+/// `headroom tune` on one log with a twelve-candidate sweep, one worker
 /// thread against two: record-updates per second and the scaling.
 fn tune_row(ctx: &Ctx, rows: &mut Vec<Row>, log: &Path, records: u64) -> Result<(), String> {
     let has_tune = Command::new(&ctx.cli)
@@ -702,7 +707,9 @@ fn tune_row(ctx: &Ctx, rows: &mut Vec<Row>, log: &Path, records: u64) -> Result<
         for _ in 0..ctx.runs.min(3) {
             let t = Instant::now();
             let status = Command::new(&ctx.cli)
-                .args(["tune", "--sweep", TUNE_SWEEP.0, "--threads", threads])
+                .arg("tune")
+                .args(TUNE_SWEEP.0.iter().flat_map(|s| ["--sweep", s]))
+                .args(["--threads", threads])
                 .arg(log)
                 .stdout(Stdio::null())
                 .stderr(Stdio::inherit())
@@ -729,8 +736,9 @@ fn tune_row(ctx: &Ctx, rows: &mut Vec<Row>, log: &Path, records: u64) -> Result<
         format!("{:.1} M/s", per_core / 1e6),
         Some(per_core >= 40e6),
         format!(
-            "`--sweep {}` (4 values + the default = 5 candidates) over one {records}-record binary log, best of {} ({:.3} s)",
-            TUNE_SWEEP.0,
+            "`--sweep {}` (4 × 3 values + the default = {} candidates) over one {records}-record binary log, best of {} ({:.3} s)",
+            TUNE_SWEEP.0.join(" --sweep "),
+            TUNE_SWEEP.1,
             ctx.runs.min(3),
             one.as_secs_f64()
         ),

@@ -7,8 +7,10 @@
 //! controller, with the engine's replay semantics (`headroom::control::Replay`,
 //! the same as `headroom replay`). Unlike `replay`, which chains the logs it
 //! is given into one stream, `tune` never carries state from one log to the
-//! next, so the (setting, log) replays are independent and run in parallel
-//! (rayon), each streaming its log in constant memory.
+//! next, so the (setting, log) replays are independent. They run in
+//! parallel (rayon) in groups of one log and several settings: a group
+//! decodes its log once, a batch of records at a time, and runs every one of
+//! its settings over each batch, in constant memory.
 //!
 //! A directory among the LOG arguments stands for the `.csv` and `.hrlog`
 //! files directly inside it, sorted by name; subdirectories are not entered
@@ -646,22 +648,109 @@ struct Done {
     damage: Vec<String>,
 }
 
-fn replay_log(path: &Path, cfg: ControllerConfig) -> CliResult<Done> {
-    let mut reader = logio::open(path)?;
-    let mut replay = Replay::<WINDOW>::new(cfg)
-        .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
-    for rec in &mut reader {
-        replay.step(&rec?);
+/// Records decoded at a time and run through every candidate of a group
+/// before the next ones are read: a log is decoded once per group instead of
+/// once per candidate, in constant memory (a few hundred kB per thread).
+const BATCH: usize = 4096;
+
+/// Replay one log under several candidates' settings (`(job, settings)`),
+/// decoding it once; the result of every job, in the order given.
+fn replay_group(
+    path: &Path,
+    jobs: Vec<(usize, CliResult<ControllerConfig>)>,
+) -> Vec<(usize, CliResult<Done>)> {
+    let mut out = Vec::with_capacity(jobs.len());
+    let mut reader = match logio::open(path) {
+        Ok(r) => r,
+        Err(e) => {
+            return jobs.into_iter().map(|(j, _)| (j, Err(e.clone()))).collect();
+        }
+    };
+    let mut live: Vec<(usize, Replay<WINDOW>)> = Vec::with_capacity(jobs.len());
+    for (j, cfg) in jobs {
+        let replay = cfg.and_then(|c| {
+            Replay::<WINDOW>::new(c).map_err(|e| {
+                CliError::Input(format!("{}: controller settings: {e}", path.display()))
+            })
+        });
+        match replay {
+            Ok(r) => live.push((j, r)),
+            Err(e) => out.push((j, Err(e))),
+        }
     }
-    let damage = reader
+    if live.is_empty() {
+        return out;
+    }
+    let mut batch = Vec::with_capacity(BATCH);
+    loop {
+        batch.clear();
+        let mut failed = None;
+        for rec in reader.by_ref() {
+            match rec {
+                Ok(r) => {
+                    batch.push(r);
+                    if batch.len() == BATCH {
+                        break;
+                    }
+                }
+                Err(e) => {
+                    failed = Some(e);
+                    break;
+                }
+            }
+        }
+        for (_, replay) in &mut live {
+            for rec in &batch {
+                replay.step(rec);
+            }
+        }
+        if let Some(e) = failed {
+            out.extend(live.into_iter().map(|(j, _)| (j, Err(e.clone()))));
+            return out;
+        }
+        if batch.len() < BATCH {
+            break;
+        }
+    }
+    let damage: Vec<String> = reader
         .damage()
         .iter()
         .map(|d| format!("{}: {d}", path.display()))
         .collect();
-    Ok(Done {
-        totals: Totals::of_replay(replay.summary()),
-        damage,
-    })
+    out.extend(live.into_iter().map(|(j, replay)| {
+        (
+            j,
+            Ok(Done {
+                totals: Totals::of_replay(replay.summary()),
+                damage: damage.clone(),
+            }),
+        )
+    }));
+    out
+}
+
+/// The jobs `start..end` (job `j` is candidate `j / nlogs` on log
+/// `j % nlogs`) as groups of one log and several candidates: every log's
+/// candidates split into `per_log` groups, so that a few logs still keep
+/// all threads busy while each group decodes its log once.
+fn group_jobs(start: usize, end: usize, nlogs: usize, per_log: usize) -> Vec<(usize, Vec<usize>)> {
+    let mut by_log: Vec<Vec<usize>> = vec![Vec::new(); nlogs];
+    for j in start..end {
+        if let Some(v) = by_log.get_mut(j % nlogs) {
+            v.push(j);
+        }
+    }
+    let mut groups = Vec::new();
+    for (log, js) in by_log.into_iter().enumerate() {
+        if js.is_empty() {
+            continue;
+        }
+        let size = js.len().div_ceil(per_log.max(1));
+        for g in js.chunks(size.max(1)) {
+            groups.push((log, g.to_vec()));
+        }
+    }
+    groups
 }
 
 /// Run the command.
@@ -732,27 +821,42 @@ pub fn run(args: Args) -> CliResult {
     let mut start = 0;
     while start < jobs {
         let end = (start + CHUNK).min(jobs);
-        let done: Vec<CliResult<Done>> = pool.install(|| {
-            (start..end)
+        // Enough groups per log to keep every thread busy when there are
+        // fewer logs than threads (the results do not depend on it).
+        let per_log = pool.current_num_threads().div_ceil(nlogs).max(1);
+        let groups = group_jobs(start, end, nlogs, per_log);
+        let mut done: Vec<(usize, CliResult<Done>)> = pool.install(|| {
+            groups
                 .into_par_iter()
-                .map(|j| {
-                    let (cand, log) = (j / nlogs, j % nlogs);
-                    let path = logs
-                        .get(log)
-                        .ok_or_else(|| CliError::Input("log index out of range".into()))?;
-                    let base = bases
-                        .get(log)
-                        .ok_or_else(|| CliError::Input("log index out of range".into()))?;
-                    let cfg = grid
-                        .config(base, start_set, cand.checked_sub(1))
-                        .map_err(|e| CliError::Input(format!("{}: {e}", path.display())))?;
-                    let r = replay_log(path, cfg);
-                    bar.inc(1);
+                .flat_map_iter(|(log, js)| {
+                    let n = js.len();
+                    let r = match (logs.get(log), bases.get(log)) {
+                        (Some(path), Some(base)) => {
+                            let cfgs = js
+                                .into_iter()
+                                .map(|j| {
+                                    let cfg = grid
+                                        .config(base, start_set, (j / nlogs).checked_sub(1))
+                                        .map_err(|e| {
+                                            CliError::Input(format!("{}: {e}", path.display()))
+                                        });
+                                    (j, cfg)
+                                })
+                                .collect();
+                            replay_group(path, cfgs)
+                        }
+                        _ => js
+                            .into_iter()
+                            .map(|j| (j, Err(CliError::Input("log index out of range".into()))))
+                            .collect(),
+                    };
+                    bar.inc(n as u64);
                     r
                 })
                 .collect()
         });
-        for (j, d) in (start..end).zip(done) {
+        done.sort_by_key(|(j, _)| *j);
+        for (j, d) in done {
             let d = match d {
                 Ok(d) => d,
                 Err(e) => {
