@@ -17,6 +17,24 @@ impl CliError {
         CliError::Input(format!("{arg}: {why}"))
     }
 
+    /// A named input file that could not be opened or read (`what`: "cannot
+    /// open", "cannot read"): bad input (exit 2) when it does not exist, is a
+    /// directory or is not text where text is read, since the argument names
+    /// no usable file; an environment failure (exit 1) otherwise
+    /// (permissions, a read error of a file that is there).
+    pub fn input_file(path: &std::path::Path, what: &str, e: &std::io::Error) -> Self {
+        let msg = format!("{}: {what}: {e}", path.display());
+        use std::io::ErrorKind;
+        if matches!(
+            e.kind(),
+            ErrorKind::NotFound | ErrorKind::IsADirectory | ErrorKind::InvalidData
+        ) {
+            CliError::Input(msg)
+        } else {
+            CliError::Io(msg)
+        }
+    }
+
     /// Exit code for this error.
     pub fn exit_code(&self) -> u8 {
         match self {

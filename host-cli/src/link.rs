@@ -394,8 +394,8 @@ impl PathSpec {
 
 /// Read and check a link file.
 pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| CliError::Input(format!("{}: cannot read: {e}", path.display())))?;
+    let text =
+        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
     let file: LinkFile = toml::from_str(&text).map_err(|e| {
         CliError::Input(format!("{}: {}", path.display(), one_line(&e.to_string())))
     })?;

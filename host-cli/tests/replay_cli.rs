@@ -216,8 +216,9 @@ fn bad_settings_are_one_line_errors_naming_the_setting() {
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("min_tx_dbm"), "{}", stderr(&o));
 
+    // A log that is not there is a bad argument (2), as a missing link file.
     let o = headroom(&[&dir.path().join("absent.csv").to_string_lossy()]);
-    assert_eq!(o.status.code(), Some(1), "{}", stderr(&o));
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
 }
 
 #[test]

@@ -177,8 +177,8 @@ impl Radio {
 
 /// Read and check a scenario file.
 pub fn load_scenario(path: &Path) -> CliResult<Scenario> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| CliError::Io(format!("{}: cannot read: {e}", path.display())))?;
+    let text =
+        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
     parse_scenario(&text).map_err(|e| match e {
         CliError::Input(m) => CliError::Input(format!("{}: {m}", path.display())),
         other => other,

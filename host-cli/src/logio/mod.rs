@@ -149,8 +149,7 @@ pub fn open_as(path: &Path, format: Option<LogFormat>) -> CliResult<LogReader> {
         Some(f) => f,
         None => LogFormat::from_path(path)?,
     };
-    let file = File::open(path)
-        .map_err(|e| CliError::Io(format!("{}: cannot open: {e}", path.display())))?;
+    let file = File::open(path).map_err(|e| CliError::input_file(path, "cannot open", &e))?;
     let name = path.display().to_string();
     let inner = match format {
         LogFormat::Csv => Inner::Csv(Box::new(csv::CsvReader::new(name, path, file)?)),
