@@ -7,7 +7,7 @@
 
 use std::process::ExitCode;
 
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
 pub mod error;
@@ -76,10 +76,29 @@ enum Command {
     Tune(cmd::tune::Args),
 }
 
+/// Every option that takes a value takes it even when it begins with `-`
+/// (`--bandwidth -5`, `--min-tx-dbm -12dBm`): the option's own parser then
+/// says what is wrong with it, instead of clap calling `-5` an unknown flag.
+fn lenient(c: clap::Command) -> clap::Command {
+    c.mut_args(|a| {
+        if a.get_long().is_some() && a.get_action().takes_values() {
+            a.allow_hyphen_values(true)
+        } else {
+            a
+        }
+    })
+    .mut_subcommands(lenient)
+}
+
+fn parse() -> Result<Cli, clap::Error> {
+    let matches = lenient(Cli::command()).try_get_matches()?;
+    Cli::from_arg_matches(&matches)
+}
+
 /// Parse the command line, run the command, and give the process's exit
 /// code (0 success, 2 a usage error, otherwise the error's own code).
 pub fn run() -> ExitCode {
-    let cli = match Cli::try_parse() {
+    let cli = match parse() {
         Ok(cli) => cli,
         Err(e) => {
             use clap::error::ErrorKind;

@@ -140,6 +140,14 @@ fn cases() -> Vec<Case> {
             finding: None,
         },
         Case {
+            input: "negative bandwidth as a separate word (`--bandwidth -5`)",
+            files: vec![],
+            args: &["noise", "--bandwidth", "-5", "--noise-figure-db", "6"],
+            exit: 2,
+            names: &["--bandwidth", "greater than zero"],
+            finding: None,
+        },
+        Case {
             input: "negative frequency (`--frequency=-5MHz`)",
             files: vec![],
             args: &[

@@ -679,7 +679,10 @@ fn peak_rss_kib(ctx: &Ctx, log: &Path) -> Result<u64, String> {
 /// an odd count one thread runs one candidate more: 13 candidates cap the
 /// scaling at 13/7 = 1.86×).
 const TUNE_SWEEP: (&[&str], u64) = (
-    &["margin_step_db=0.25,0.5,0.75,1,1.5", "max_step_down_db=1,2,4"],
+    &[
+        "margin_step_db=0.25,0.5,0.75,1,1.5",
+        "max_step_down_db=1,2,4",
+    ],
     16,
 );
 
