@@ -37,6 +37,22 @@ pub enum Error {
     NoSolution(&'static str),
 }
 
+impl Error {
+    /// Name of the parameter at fault (`frequency_hz`, `distance_m`, ...),
+    /// so that a front end can name its own option or key instead.
+    pub fn param(&self) -> &'static str {
+        match *self {
+            Error::NotFinite(p)
+            | Error::NotPositive(p)
+            | Error::Negative(p)
+            | Error::ProbabilityOutOfRange(p)
+            | Error::Unsupported(p)
+            | Error::NoSolution(p) => p,
+            Error::OutOfValidity { param, .. } => param,
+        }
+    }
+}
+
 impl fmt::Display for Error {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {

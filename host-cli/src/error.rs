@@ -58,6 +58,25 @@ impl From<headroom::Error> for CliError {
     }
 }
 
+/// An engine error about one of a command's options, naming the option
+/// (`--frequency: must be greater than zero`) instead of the engine's
+/// parameter (`frequency_hz`). `options` maps engine parameters to option
+/// names; an error about any other parameter is kept as the engine says it.
+pub fn engine_error(e: &headroom::Error, options: &[(&str, &str)]) -> CliError {
+    let msg = e.to_string();
+    let param = e.param();
+    match options.iter().find(|(p, _)| *p == param) {
+        Some((_, option)) => {
+            let rest = msg
+                .strip_prefix(param)
+                .and_then(|r| r.strip_prefix(": "))
+                .unwrap_or(&msg);
+            CliError::arg(option, rest)
+        }
+        None => CliError::Input(msg),
+    }
+}
+
 /// Shorthand result type of commands.
 pub type CliResult<T = ()> = Result<T, CliError>;
 

@@ -392,6 +392,16 @@ impl PathSpec {
     }
 }
 
+/// The keys of a link file by the engine parameter they become, so that an
+/// engine error names the key.
+const KEYS: &[(&str, &str)] = &[
+    ("availability", "fade.availability"),
+    ("k_factor", "fade.k_factor"),
+    ("sigma", "fade.sigma"),
+    ("frequency_hz", "frequency"),
+    ("distance_m", "path.distance"),
+];
+
 /// Read and check a link file.
 pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
     let text =
@@ -554,6 +564,10 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
             .map(|s| s.to_string_lossy().into_owned())
             .unwrap_or_default()
     });
+    // Evaluate once here, so that a value only the evaluation refuses (an
+    // availability of 1, say) is reported with the file and its key.
+    link.evaluate()
+        .map_err(|e| crate::error::engine_error(&e, KEYS))?;
     Ok(LoadedLink {
         name,
         frequency,

@@ -50,8 +50,10 @@ struct Case {
     finding: Option<(Fix, &'static str)>,
 }
 
-/// What a fixed message does.
+/// What a fixed message does. No case carries a finding now (the last
+/// five were fixed); the mark stays for the next shortcoming found.
 #[derive(Clone, Copy)]
+#[allow(dead_code)]
 enum Fix {
     /// It names this.
     Names(&'static str),
@@ -159,11 +161,8 @@ fn cases() -> Vec<Case> {
                 "1km",
             ],
             exit: 2,
-            names: &["frequency"],
-            finding: Some((
-                Fix::Names("--frequency"),
-                "names the engine parameter frequency_hz, not the option",
-            )),
+            names: &["--frequency", "greater than zero"],
+            finding: None,
         },
         Case {
             input: "zero distance (`--distance 0m`)",
@@ -178,11 +177,8 @@ fn cases() -> Vec<Case> {
                 "0m",
             ],
             exit: 2,
-            names: &["distance"],
-            finding: Some((
-                Fix::Names("--distance"),
-                "names the engine parameter distance_m, not the option",
-            )),
+            names: &["--distance", "greater than zero"],
+            finding: None,
         },
         Case {
             input: "model option missing (`--model hata` without heights)",
@@ -319,11 +315,8 @@ fn cases() -> Vec<Case> {
             files: link("availability = 0.99", "availability = 1.0"),
             args: &["budget", "link.toml"],
             exit: 2,
-            names: &["availability"],
-            finding: Some((
-                Fix::Names("fade.availability"),
-                "names neither the file nor the key fade.availability",
-            )),
+            names: &["link.toml", "fade.availability"],
+            finding: None,
         },
         Case {
             input: "binary garbage as a link file",
@@ -567,11 +560,8 @@ fn cases() -> Vec<Case> {
             files: scen("min_tx_dbm = 2.0", "min_tx_dbm = 20.0"),
             args: synth,
             exit: 2,
-            names: &["scen.toml"],
-            finding: Some((
-                Fix::Names("min_tx_dbm"),
-                "blames power.levels_dbm (\"outside the radio's range 20..14 dBm\")",
-            )),
+            names: &["scen.toml", "radio.min_tx_dbm", "above radio.max_tx_dbm"],
+            finding: None,
         },
         Case {
             input: "scenario: power level above the radio's maximum",
@@ -586,11 +576,8 @@ fn cases() -> Vec<Case> {
             files: scen("frequency = 868.0e6", "frequency = nan"),
             args: synth,
             exit: 2,
-            names: &["frequency", "finite"],
-            finding: Some((
-                Fix::Names("scen.toml"),
-                "says \"scenario: frequency\", not the file and channel.frequency",
-            )),
+            names: &["scen.toml", "channel.frequency"],
+            finding: None,
         },
         Case {
             input: "scenario: packet interval of zero",

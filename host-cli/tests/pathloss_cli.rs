@@ -83,7 +83,7 @@ fn hata_json_and_refusal() {
     // 40 km is outside 1-20 km: refused unless an extrapolation is named.
     let mut far = base.to_vec();
     far.extend(["--distance", "40km"]);
-    refused(&headroom(&far), "distance_m");
+    refused(&headroom(&far), "--distance");
     far.extend(["--extrapolate", "distance"]);
     assert!(num(&json(&headroom(&far)), "path_loss_db") > 146.9428);
 }
@@ -108,7 +108,7 @@ fn bad_arguments_exit_2_with_one_line() {
             "1GHz",
             "--distance=-3km",
         ]),
-        "distance_m",
+        "--distance",
     );
     refused(
         &headroom(&[
@@ -172,7 +172,7 @@ fn bad_arguments_exit_2_with_one_line() {
             "--latitude",
             "50",
         ]),
-        "frequency_hz",
+        "--frequency",
     );
     rejected_by_parser(
         &headroom(&[

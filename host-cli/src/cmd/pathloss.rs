@@ -249,6 +249,30 @@ fn name_of<E: ValueEnum>(e: &E) -> Value {
 }
 
 /// Run the command.
+/// The options of `pathloss` by the engine parameter they become, so that
+/// an engine error names the option.
+const OPTIONS: &[(&str, &str)] = &[
+    ("frequency_hz", "--frequency"),
+    ("distance_m", "--distance"),
+    ("tx_height_m", "--tx-height"),
+    ("rx_height_m", "--rx-height"),
+    ("exponent", "--exponent"),
+    ("reference_distance_m", "--reference-distance"),
+    ("reference_loss_db", "--reference-loss-db"),
+    ("reflection", "--reflection"),
+    ("floors", "--floors"),
+];
+
+fn opt(e: headroom::Error) -> CliError {
+    let err = crate::error::engine_error(&e, OPTIONS);
+    match (e, err) {
+        (headroom::Error::OutOfValidity { .. }, CliError::Input(m)) => CliError::Input(format!(
+            "{m} (see --extrapolate to apply the formula beyond it)"
+        )),
+        (_, err) => err,
+    }
+}
+
 pub fn run(a: Args) -> CliResult {
     refuse_unused(&a)?;
     let name = model_name(a.model);
@@ -258,7 +282,7 @@ pub fn run(a: Args) -> CliResult {
     r.num("frequency_hz", f.0, "Hz");
     r.num("distance_m", d.0, "m");
     let loss = match a.model {
-        Model::FreeSpace => free_space_path_loss(f, d)?,
+        Model::FreeSpace => free_space_path_loss(f, d).map_err(opt)?,
         Model::LogDistance => {
             let n = need(a.exponent, "--exponent", name)?;
             let d0 = a.reference_distance.unwrap_or(Metres(1.0));
@@ -267,7 +291,7 @@ pub fn run(a: Args) -> CliResult {
             if let Some(l0) = a.reference_loss_db {
                 r.num("reference_loss_db", l0.0, "dB");
             }
-            log_distance(f, d, d0, a.reference_loss_db, n)?
+            log_distance(f, d, d0, a.reference_loss_db, n).map_err(opt)?
         }
         Model::TwoRay => {
             let ht = need(a.tx_height, "--tx-height", name)?;
@@ -295,7 +319,7 @@ pub fn run(a: Args) -> CliResult {
                     r.value("two_ray_form", Value::String("asymptotic".into()));
                 }
             }
-            let loss = two_ray(f, d, ht, hr, form)?;
+            let loss = two_ray(f, d, ht, hr, form).map_err(opt)?;
             r.num("crossover_distance_m", two_ray_crossover(f, ht, hr)?.0, "m");
             loss
         }
@@ -313,7 +337,7 @@ pub fn run(a: Args) -> CliResult {
                 Environment::MediumCity => HataEnvironment::MediumCity,
                 Environment::LargeCity => HataEnvironment::LargeCity,
             };
-            okumura_hata(f, d, ht, hr, env, extrapolation(a.extrapolate))?
+            okumura_hata(f, d, ht, hr, env, extrapolation(a.extrapolate)).map_err(opt)?
         }
         Model::Cost231 => {
             let ht = need(a.tx_height, "--tx-height", name)?;
@@ -322,7 +346,7 @@ pub fn run(a: Args) -> CliResult {
             r.num("rx_height_m", hr.0, "m");
             r.value("metropolitan", Value::Bool(a.metropolitan));
             r.value("extrapolate", name_of(&a.extrapolate));
-            cost231_hata(f, d, ht, hr, a.metropolitan, extrapolation(a.extrapolate))?
+            cost231_hata(f, d, ht, hr, a.metropolitan, extrapolation(a.extrapolate)).map_err(opt)?
         }
         Model::Indoor => {
             let floors = a.floors.unwrap_or(0);
@@ -376,8 +400,12 @@ pub fn run(a: Args) -> CliResult {
             };
             r.num("floors", f32::from(floors), "");
             r.num("coefficient_n", coeffs.distance_power_coefficient_n, "");
-            r.num("floor_loss_db", coeffs.floor_loss.loss(floors)?.0, "dB");
-            itu_indoor(f, d, floors, &coeffs)?
+            r.num(
+                "floor_loss_db",
+                coeffs.floor_loss.loss(floors).map_err(opt)?.0,
+                "dB",
+            );
+            itu_indoor(f, d, floors, &coeffs).map_err(opt)?
         }
     };
     r.num("path_loss_db", loss.0, "dB");

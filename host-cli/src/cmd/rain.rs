@@ -78,10 +78,28 @@ fn height(s: &str) -> Result<Metres, String> {
     quantity::distance(s)
 }
 
+/// The options of `rain` by the engine parameter they become, so that an
+/// engine error names the option.
+const OPTIONS: &[(&str, &str)] = &[
+    ("frequency_hz", "--frequency"),
+    ("rain_rate_mm_h", "--rain-rate"),
+    ("elevation_deg", "--elevation"),
+    ("tilt_deg", "--tilt"),
+    ("exceeded_percent", "--exceeded-percent"),
+    ("rain_height_km", "--rain-height"),
+    ("station_height_km", "--station-height"),
+    ("latitude_deg", "--latitude"),
+];
+
+fn opt(e: headroom::Error) -> CliError {
+    crate::error::engine_error(&e, OPTIONS)
+}
+
 /// Run the command.
 pub fn run(a: Args) -> CliResult {
-    let (k, alpha) = rain_coefficients(a.frequency, a.tilt, a.elevation)?;
-    let gamma = rain_specific_attenuation(a.frequency, a.rain_rate, a.tilt, a.elevation)?;
+    let (k, alpha) = rain_coefficients(a.frequency, a.tilt, a.elevation).map_err(opt)?;
+    let gamma =
+        rain_specific_attenuation(a.frequency, a.rain_rate, a.tilt, a.elevation).map_err(opt)?;
     let mut r = Report::new();
     r.num("frequency_hz", a.frequency.0, "Hz");
     r.num("rain_rate_mm_h", a.rain_rate, "mm/h");
@@ -123,7 +141,7 @@ pub fn run(a: Args) -> CliResult {
                 frequency: a.frequency,
                 tilt_deg: a.tilt,
             };
-            let att = rain_attenuation_exceeded(&path, p)?;
+            let att = rain_attenuation_exceeded(&path, p).map_err(opt)?;
             r.num("exceeded_percent", p, "%");
             r.num("rain_height_km", path.rain_height_km, "km");
             r.num("station_height_km", path.station_height_km, "km");

@@ -204,12 +204,26 @@ pub fn parse_scenario(text: &str) -> CliResult<Scenario> {
             format!("at most {MAX_FAULTS} faults"),
         ));
     }
-    check_power(&sc.power, sc.radio.as_ref())?;
     if let Some(r) = &sc.radio {
         r.header()?;
     }
+    check_power(&sc.power, sc.radio.as_ref())?;
+    // Start the simulator once, so that what only it refuses (a NaN
+    // frequency, say) is reported now, naming the key.
+    Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, 0)
+        .map_err(|e| crate::error::engine_error(&e, KEYS))?;
     Ok(sc)
 }
+
+/// Keys of a scenario file by the engine parameter they become, so that an
+/// engine error names the key.
+const KEYS: &[(&str, &str)] = &[
+    ("frequency", "channel.frequency"),
+    ("tx_antenna_gain", "channel.tx_antenna_gain"),
+    ("rx_antenna_gain", "channel.rx_antenna_gain"),
+    ("packet_interval_ms", "channel.packet_interval_ms"),
+    ("fading_correlation", "channel.fading_correlation"),
+];
 
 /// Counts of what a run wrote.
 #[derive(Debug, Default, PartialEq, Eq)]
