@@ -225,7 +225,10 @@ pub struct ControllerConfig {
     /// delivered packet it falls by `Δup·p/(1−p)`, so the loss rate settles
     /// at the target `p`.
     pub margin_step_db: Db,
-    /// Lowest value of the adaptive margin.
+    /// Lowest value of the adaptive margin. The controller keeps the margin
+    /// to 1/8192 dB, inside the bounds; equal bounds (a fixed margin) that are
+    /// not a multiple of 1/8192 dB give the nearest one (at most 1/16384 dB
+    /// off).
     pub margin_min_db: Db,
     /// Highest value of the adaptive margin.
     pub margin_max_db: Db,

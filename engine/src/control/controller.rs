@@ -611,6 +611,22 @@ impl<const W: usize> Controller<W> {
             }
         };
         let margin_down = to_margin(cfg.margin_step_db.0 * p / (1.0 - p));
+        // The margin's bounds in 1/8192 dB, rounded inward so the margin
+        // never leaves them; when no multiple of 1/8192 dB lies between
+        // them (a fixed margin, `margin_min_db == margin_max_db`, off that
+        // grid), both are the multiple nearest their middle.
+        let (margin_min, margin_max) = {
+            let (lo, hi) = (
+                fine_ceil(cfg.margin_min_db.0),
+                fine_floor(cfg.margin_max_db.0),
+            );
+            if lo > hi {
+                let mid = to_fine(0.5 * (cfg.margin_min_db.0 + cfg.margin_max_db.0));
+                (mid, mid)
+            } else {
+                (lo, hi)
+            }
+        };
         let memory_shift = if cfg.spread_memory.is_power_of_two() {
             u8::try_from(cfg.spread_memory.trailing_zeros()).ok()
         } else {
@@ -623,9 +639,8 @@ impl<const W: usize> Controller<W> {
                 sigma_factor: to_sigma_factor(quantile * MAE_TO_SIGMA),
                 margin_up: to_margin_up(cfg.margin_step_db.0),
                 margin_down,
-                // Rounded inward, so the margin never leaves the bounds.
-                margin_min: fine_ceil(cfg.margin_min_db.0),
-                margin_max: fine_floor(cfg.margin_max_db.0),
+                margin_min,
+                margin_max,
                 step_up: to_fine(cfg.max_step_up_db.0),
                 step_down: to_fine(cfg.max_step_down_db.0),
                 tx_lo: to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB),
@@ -1602,6 +1617,34 @@ mod tests {
         assert_eq!(fine_of(f32::NAN), None);
         assert_eq!(fine_of(f32::INFINITY), None);
         assert_eq!(fine_of(f32::NEG_INFINITY), None);
+    }
+
+    #[test]
+    fn a_fixed_margin_off_the_grid_is_the_nearest_step() {
+        // 0.3 dB is not a multiple of 1/8192 dB: bounds rounded inward
+        // would cross (2458 > 2457 steps); the margin is the nearest step,
+        // whatever happens.
+        let mut cfg = ControllerConfig::sub_ghz_node();
+        cfg.margin_min_db = Db(0.3);
+        cfg.margin_max_db = Db(0.3);
+        let mut c = match Controller::<32>::new(cfg) {
+            Ok(c) => c,
+            Err(e) => panic!("{e}"),
+        };
+        for i in 0..200u64 {
+            let d = if i % 3 == 0 {
+                c.update(&Observation::Lost { t_ms: i })
+            } else {
+                c.update(&Observation::Feedback {
+                    t_ms: i,
+                    tx: c.tx(),
+                    rssi: Dbm(c.tx().0 - 100.0),
+                    noise: Dbm(-110.0),
+                    snr: None,
+                })
+            };
+            assert!((d.margin().0 - 0.3).abs() <= 0.5 / 8192.0, "{d:?}");
+        }
     }
 
     #[test]
