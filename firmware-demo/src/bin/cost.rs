@@ -201,6 +201,7 @@ fn run() -> bool {
     hprintln!("core={}", board::CORE);
     hprintln!("window={}", WINDOW);
     hprintln!("updates_timed={}", N);
+    hprintln!("settle_packets={}", SETTLE);
     hprintln!(
         "controller_state_bytes={}",
         core::mem::size_of::<Controller<WINDOW>>()

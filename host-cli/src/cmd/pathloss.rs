@@ -264,12 +264,12 @@ const OPTIONS: &[(&str, &str)] = &[
 ];
 
 fn opt(e: headroom::Error) -> CliError {
-    let err = crate::error::engine_error(&e, OPTIONS);
-    match (e, err) {
-        (headroom::Error::OutOfValidity { .. }, CliError::Input(m)) => CliError::Input(format!(
+    let beyond = matches!(e, headroom::Error::OutOfValidity { .. });
+    match crate::error::engine_error(&e, OPTIONS) {
+        CliError::Input(m) if beyond => CliError::Input(format!(
             "{m} (see --extrapolate to apply the formula beyond it)"
         )),
-        (_, err) => err,
+        err => err,
     }
 }
 

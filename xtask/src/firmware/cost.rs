@@ -26,6 +26,11 @@ pub struct Cost {
     pub replay_step_mean_milli: u64,
     /// Mean instructions per encoded decision frame × 1000.
     pub encode_mean_milli: u64,
+    /// Updates per timed pass.
+    pub updates_timed: u64,
+    /// Packets of the closed loop between the fresh pass and the
+    /// steady-state pass.
+    pub settle_packets: u64,
     /// Peak stack use of the cost firmware, bytes.
     pub stack_peak_bytes: u64,
 }
@@ -66,6 +71,8 @@ pub fn measure(ctx: &Ctx, board: &Board) -> Result<Cost, String> {
         update_max_upper: num("update_max_instructions_upper")?,
         replay_step_mean_milli: num("replay_step_mean_milli_instructions")?,
         encode_mean_milli: num("encode_decision_mean_milli_instructions")?,
+        updates_timed: num("updates_timed")?,
+        settle_packets: num("settle_packets")?,
         stack_peak_bytes: num("stack_peak_bytes")?,
     };
     if c.update_mean_milli == 0 {

@@ -330,13 +330,6 @@ fn check_qemu() -> Result<(), String> {
     })
 }
 
-/// Updates per timed pass of the `cost` firmware (its `N`).
-const FRESH_UPDATES: usize = 128;
-
-/// Packets of the `cost` firmware's closed loop before its steady-state
-/// pass (its `SETTLE`).
-const SETTLE_PACKETS: usize = 1024;
-
 fn print_table(
     footprints: &[(&str, &str, elf::Footprint)],
     costs: &[(Board, cost::Cost)],
@@ -356,14 +349,17 @@ fn print_table(
         cost::WINDOW
     );
     println!("(QEMU counts instructions, not cycles; SysTick resolution is one tick per span)");
+    // The pass lengths as the firmware reports them.
+    let (timed, settle) = costs
+        .first()
+        .map_or((0, 0), |(_, c)| (c.updates_timed, c.settle_packets));
     println!(
-        "(mean: steady state, {FRESH_UPDATES} updates after {SETTLE_PACKETS} packets of the closed loop, window and \
+        "(mean: steady state, {timed} updates after {settle} packets of the closed loop, window and \
          spread memory full; max: the slowest single update of either pass)"
     );
     println!(
         "| board | core | state bytes | mean instr/update | max instr/update (≤) | \
-         mean, first {} from fresh | goal | replay step | encode decision frame | peak stack bytes |",
-        FRESH_UPDATES
+         mean, first {timed} from fresh | goal | replay step | encode decision frame | peak stack bytes |"
     );
     println!("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|");
     for (b, c) in costs {
