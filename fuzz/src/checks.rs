@@ -298,6 +298,8 @@ fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<Placed>) {
                     max_tx: opt(b, 14.0).map(Dbm),
                     tx_step: opt(b, 1.0).map(Db),
                     antenna_gain: opt(b, 2.15).map(Dbi),
+                    required_snr: opt(b, 8.0).map(Db),
+                    eirp_cap: opt(b, 16.15).map(Dbm),
                 },
                 version: headroom::record::codec::VERSION,
             }

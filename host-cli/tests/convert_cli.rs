@@ -52,6 +52,8 @@ fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
         max_tx: Some(Dbm(14.0)),
         tx_step: Some(Db(2.0)),
         antenna_gain: Some(Dbi(0.5)),
+        required_snr: Some(Db(-7.5)),
+        eirp_cap: Some(Dbm(16.15)),
     };
     let f = enc.header(&h, &mut buf).unwrap();
     spans.push((0, f.len()));
@@ -110,7 +112,7 @@ fn binary_to_csv_to_binary_is_byte_identical() {
     let csv = std::fs::read_to_string(&c).unwrap();
     assert_eq!(std::fs::read_to_string(&c2).unwrap(), csv);
     assert!(
-        csv.starts_with("# headroom-log 1.0\n# device_id: 7001\n"),
+        csv.starts_with("# headroom-log 1.1\n# device_id: 7001\n"),
         "{csv}"
     );
     assert!(
@@ -140,7 +142,10 @@ fn csv_to_binary_to_csv_is_text_identical() {
     let back = std::fs::read_to_string(&c).unwrap();
     // f32 Display writes 1e-40 (a subnormal) in full decimal: compare values
     // for that cell, text for the rest.
-    let want = text.replace("1e-40", &format!("{}", "1e-40".parse::<f32>().unwrap()));
+    // A 1.0 log comes back written in the current version, 1.1.
+    let want = text
+        .replace("1e-40", &format!("{}", "1e-40".parse::<f32>().unwrap()))
+        .replace("headroom-log 1.0", "headroom-log 1.1");
     assert_eq!(back, want);
 }
 
@@ -320,8 +325,8 @@ fn damaged_binary_converts_every_intact_frame() {
         .lines()
         .enumerate()
         .filter(|(i, _)| {
-            // 8 header lines (comments + column names) then record k on line 8+k.
-            *i < 8 || !((8 + 100..8 + 110).contains(i) || *i == 8 + 299)
+            // 10 header lines (comments + column names) then record k on line 10+k.
+            *i < 10 || !((10 + 100..10 + 110).contains(i) || *i == 10 + 299)
         })
         .map(|(_, l)| l.to_string())
         .collect();

@@ -43,6 +43,8 @@ fn header() -> LogHeader {
         max_tx: Some(Dbm(14.0)),
         tx_step: Some(Db(0.5)),
         antenna_gain: Some(Dbi(1.5)),
+        required_snr: Some(Db(-12.5)),
+        eirp_cap: None,
     }
 }
 

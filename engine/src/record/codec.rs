@@ -74,7 +74,7 @@ use crate::units::{Db, Dbi, Dbm};
 pub const MAGIC: [u8; 4] = *b"hrlg";
 
 /// Format version written by this encoder.
-pub const VERSION: Version = Version { major: 1, minor: 0 };
+pub const VERSION: Version = Version { major: 1, minor: 1 };
 
 /// Largest payload (kind, seq, body, CRC) a frame may carry. Kept below 254
 /// so that COBS adds exactly one byte.
@@ -212,6 +212,14 @@ struct WireHeader {
     antenna_gain_dbi: Option<f32>,
 }
 
+/// Header fields appended by format 1.1 after those of 1.0 (a 1.0 header
+/// ends before them; they are then absent).
+#[derive(Serialize, Deserialize)]
+struct WireHeaderV11 {
+    required_snr_db: Option<f32>,
+    eirp_cap_dbm: Option<f32>,
+}
+
 #[derive(Serialize, Deserialize)]
 struct WireRecord {
     #[serde(serialize_with = "leb128::serialize")]
@@ -287,9 +295,8 @@ pub fn encode_frame<'b>(
             .get_mut(..MAX_PAYLOAD - MIN_PAYLOAD)
             .ok_or(CodecError::BufferTooSmall)?;
         let (kind, used) = match frame {
-            Frame::Header { header: h, .. } => (
-                KIND_HEADER,
-                postcard::to_slice(
+            Frame::Header { header: h, .. } => {
+                let base = postcard::to_slice(
                     &WireHeader {
                         magic: MAGIC,
                         major: VERSION.major,
@@ -304,8 +311,20 @@ pub fn encode_frame<'b>(
                     body,
                 )
                 .map_err(|_| CodecError::BufferTooSmall)?
-                .len(),
-            ),
+                .len();
+                // The 1.1 fields follow the 1.0 ones, so a 1.0 reader
+                // (which ignores trailing bytes) still reads the header.
+                let ext = postcard::to_slice(
+                    &WireHeaderV11 {
+                        required_snr_db: h.required_snr.map(|v| v.0),
+                        eirp_cap_dbm: h.eirp_cap.map(|v| v.0),
+                    },
+                    body.get_mut(base..).ok_or(CodecError::BufferTooSmall)?,
+                )
+                .map_err(|_| CodecError::BufferTooSmall)?
+                .len();
+                (KIND_HEADER, base + ext)
+            }
             Frame::Record(r) => (
                 KIND_RECORD,
                 postcard::to_slice(
@@ -722,8 +741,19 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
     // append fields).
     let frame = match kind {
         KIND_HEADER => {
-            let (h, _) =
+            let (h, rest) =
                 postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
+            // 1.0 headers end here; 1.1 appends its fields.
+            let ext = if rest.is_empty() || h.minor == 0 {
+                WireHeaderV11 {
+                    required_snr_db: None,
+                    eirp_cap_dbm: None,
+                }
+            } else {
+                postcard::take_from_bytes::<WireHeaderV11>(rest)
+                    .map_err(|_| CodecError::Payload)?
+                    .0
+            };
             if h.magic != MAGIC {
                 return Err(CodecError::BadMagic);
             }
@@ -741,6 +771,8 @@ fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
                     max_tx: h.max_tx_dbm.map(Dbm),
                     tx_step: h.tx_step_db.map(Db),
                     antenna_gain: h.antenna_gain_dbi.map(Dbi),
+                    required_snr: ext.required_snr_db.map(Db),
+                    eirp_cap: ext.eirp_cap_dbm.map(Dbm),
                 },
                 version: Version {
                     major: h.major,
@@ -1240,6 +1272,8 @@ mod tests {
             max_tx: Some(Dbm(14.0)),
             tx_step: Some(Db(1.0)),
             antenna_gain: Some(Dbi(2.15)),
+            required_snr: Some(Db(-15.0)),
+            eirp_cap: Some(Dbm(16.15)),
         };
         for (seq, f) in [
             (

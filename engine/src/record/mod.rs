@@ -53,6 +53,11 @@ pub struct LogHeader {
     pub tx_step: Option<Db>,
     /// Gain of the device's antenna.
     pub antenna_gain: Option<Dbi>,
+    /// SNR below which the far end loses a packet (its demodulator's
+    /// requirement at the rate the device uses); since format 1.1.
+    pub required_snr: Option<Db>,
+    /// Regulatory EIRP cap the device was installed under; since format 1.1.
+    pub eirp_cap: Option<Dbm>,
 }
 
 /// One decision of a controller replaying a log on target.

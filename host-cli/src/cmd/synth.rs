@@ -122,6 +122,11 @@ pub struct Radio {
     pub tx_step_db: Option<f32>,
     /// Antenna gain, dBi.
     pub antenna_gain_dbi: Option<f32>,
+    /// SNR below which the far end loses a packet, dB (the demodulator's
+    /// requirement at the rate the device uses).
+    pub required_snr_db: Option<f32>,
+    /// Regulatory EIRP cap the device is installed under, dBm.
+    pub eirp_cap_dbm: Option<f32>,
 }
 
 fn check_power(p: &PowerPattern, radio: Option<&Radio>) -> CliResult {
@@ -171,6 +176,8 @@ impl Radio {
             max_tx: max.map(Dbm),
             tx_step: step.map(Db),
             antenna_gain: fin("radio.antenna_gain_dbi", self.antenna_gain_dbi)?.map(Dbi),
+            required_snr: fin("radio.required_snr_db", self.required_snr_db)?.map(Db),
+            eirp_cap: fin("radio.eirp_cap_dbm", self.eirp_cap_dbm)?.map(Dbm),
         })
     }
 }

@@ -15,7 +15,7 @@ use crate::error::{CliError, CliResult};
 const MAGIC: &str = "headroom-log";
 /// Version written after [`MAGIC`]; the CSV layout follows the binary
 /// format's version numbers.
-const VERSION: &str = "1.0";
+const VERSION: &str = "1.1";
 /// Column names, in the order the writer puts them.
 const COLUMNS: [&str; 4] = ["t_ms", "tx_dbm", "rssi_dbm", "noise_dbm"];
 
@@ -457,6 +457,8 @@ fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> Cl
         "max_tx_dbm" => h.max_tx = float()?.map(Dbm),
         "tx_step_db" => h.tx_step = float()?.map(Db),
         "antenna_gain_dbi" => h.antenna_gain = float()?.map(Dbi),
+        "required_snr_db" => h.required_snr = float()?.map(Db),
+        "eirp_cap_dbm" => h.eirp_cap = float()?.map(Dbm),
         // Keys of newer versions are ignored.
         _ => {}
     }
@@ -633,6 +635,12 @@ impl CsvEncoder {
             }
             if let Some(v) = h.antenna_gain {
                 writeln!(out, "# antenna_gain_dbi: {}", v.0)?;
+            }
+            if let Some(v) = h.required_snr {
+                writeln!(out, "# required_snr_db: {}", v.0)?;
+            }
+            if let Some(v) = h.eirp_cap {
+                writeln!(out, "# eirp_cap_dbm: {}", v.0)?;
             }
         }
         writeln!(out, "{}", COLUMNS.join(","))
