@@ -7,7 +7,8 @@
 
 use headroom::control::Observation;
 use headroom::control::{
-    Controller, ControllerConfig, Decision, LevelTable, Outcome, PowerSteps, Replay, MAX_LEVELS,
+    Controller, ControllerConfig, Decision, EirpCap, LevelTable, Outcome, PowerSteps, Replay,
+    MAX_LEVELS,
     SETTING_LIMIT_DB,
 };
 use headroom::record::codec::{
@@ -446,7 +447,12 @@ pub fn config_from(b: &mut Bytes<'_>) -> ControllerConfig {
             }
             2 => c.min_tx_dbm = Dbm(b.near(c.min_tx_dbm.0)),
             3 => c.max_tx_dbm = Dbm(b.near(c.max_tx_dbm.0)),
-            4 => c.eirp_cap_dbm = Dbm(b.near(c.eirp_cap_dbm.0)),
+            4 => {
+                c.eirp_cap_dbm = match c.eirp_cap_dbm {
+                    EirpCap::AtMost(l) => EirpCap::AtMost(Dbm(b.near(l.0))),
+                    EirpCap::NoCap => EirpCap::NoCap,
+                }
+            }
             5 => c.antenna_gain_dbi = Dbi(b.near(c.antenna_gain_dbi.0)),
             6 => c.far_antenna_gain_dbi = Dbi(b.near(c.far_antenna_gain_dbi.0)),
             7 => c.start_tx_dbm = Dbm(b.near(c.start_tx_dbm.0)),
@@ -561,10 +567,10 @@ pub fn check_power(cfg: &ControllerConfig, tx: Dbm, prev: Option<Dbm>, what: &st
         cfg.max_tx_dbm.0
     );
     assert!(
-        p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + POWER_EPS,
+        p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0) + POWER_EPS,
         "{what}: EIRP {} dBm above the cap {}",
         p + cfg.antenna_gain_dbi.0,
-        cfg.eirp_cap_dbm.0
+        cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0)
     );
     assert!(
         on_grid(cfg, p),
@@ -831,8 +837,10 @@ fn replay<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
         );
         let (lo, hi) = r.controller().limits();
         assert!(max.0 <= hi.0 + POWER_EPS && max.0 >= lo.0 - POWER_EPS);
-        if let Some(saving) = sum.energy_saving_db() {
+        if let Some(saving) = sum.saving_vs_max_db() {
             assert!(saving.0 >= -POWER_EPS, "negative saving {saving:?}");
         }
     }
+    assert!(sum.lost_at_max <= sum.lost && sum.judged_at_max <= sum.judged);
+    assert!(sum.logged.lost <= sum.logged.judged && sum.logged.judged <= sum.judged + sum.unjudged);
 }

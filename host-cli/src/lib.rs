@@ -11,6 +11,7 @@ use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
 pub mod error;
+pub mod fleet;
 pub mod link;
 pub mod logio;
 pub mod output;

@@ -4,7 +4,7 @@
 //! cap, on the supported grid, and moves at most the step limit per update.
 
 use headroom::control::{
-    Controller, ControllerConfig, LevelTable, Observation, Outcome, PowerSteps, Replay,
+    Controller, ControllerConfig, EirpCap, LevelTable, Observation, Outcome, PowerSteps, Replay,
 };
 use headroom::record::LogRecord;
 use headroom::units::{Db, Dbi, Dbm};
@@ -120,7 +120,7 @@ fn config() -> impl Strategy<Value = ControllerConfig> {
                 target_outage: target,
                 min_tx_dbm: Dbm(min),
                 max_tx_dbm: Dbm(max),
-                eirp_cap_dbm: Dbm(cap),
+                eirp_cap_dbm: EirpCap::AtMost(Dbm(cap)),
                 antenna_gain_dbi: Dbi(gain),
                 start_tx_dbm: Dbm(start),
                 steps,
@@ -162,10 +162,10 @@ fn check(cfg: &ControllerConfig, prev: f32, p: f32) -> Result<(), TestCaseError>
         cfg.max_tx_dbm.0
     );
     prop_assert!(
-        p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.0 + EPS,
+        p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0) + EPS,
         "EIRP {} above cap {}",
         p + cfg.antenna_gain_dbi.0,
-        cfg.eirp_cap_dbm.0
+        cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0)
     );
     prop_assert!(on_grid(cfg, p), "power {p} not on the grid {:?}", cfg.steps);
     prop_assert!(p - prev <= cfg.max_step_up_db.0 + EPS, "rise {prev} -> {p}");
@@ -313,7 +313,7 @@ fn contradictory_settings_are_refused_by_name() {
         ),
         (
             ControllerConfig {
-                eirp_cap_dbm: Dbm(-10.0),
+                eirp_cap_dbm: EirpCap::AtMost(Dbm(-10.0)),
                 ..base
             },
             "eirp_cap_dbm",

@@ -2,7 +2,6 @@
 
 use core::fmt;
 
-use crate::record::LogHeader;
 use crate::units::{Db, Dbi, Dbm};
 
 /// Largest number of levels a [`LevelTable`] holds.
@@ -186,6 +185,85 @@ pub enum PowerSteps {
     Table(LevelTable),
 }
 
+/// The regulatory cap on EIRP the controller keeps to: a decision the
+/// integrator must make, either a level or explicitly none (the radio's own
+/// maximum then bounds the power alone).
+///
+/// With `serde` it reads and writes as a number (dBm) or the string `"none"`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum EirpCap {
+    /// `tx + antenna_gain ≤` this level.
+    AtMost(Dbm),
+    /// No cap is configured: only `max_tx_dbm` bounds the power.
+    NoCap,
+}
+
+impl EirpCap {
+    /// The cap's level, if there is one.
+    pub const fn level(self) -> Option<Dbm> {
+        match self {
+            EirpCap::AtMost(l) => Some(l),
+            EirpCap::NoCap => None,
+        }
+    }
+}
+
+#[cfg(feature = "serde")]
+mod cap_serde {
+    use super::{Dbm, EirpCap};
+    use core::fmt;
+    use serde::de::{Error as _, Visitor};
+
+    impl serde::Serialize for EirpCap {
+        fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+            match self {
+                EirpCap::AtMost(l) => s.serialize_f32(l.0),
+                EirpCap::NoCap => s.serialize_str("none"),
+            }
+        }
+    }
+
+    struct CapVisitor;
+
+    impl Visitor<'_> for CapVisitor {
+        type Value = EirpCap;
+        fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+            f.write_str("an EIRP cap in dBm, or \"none\"")
+        }
+        fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<EirpCap, E> {
+            #[allow(clippy::cast_possible_truncation)] // checked by validate
+            Ok(EirpCap::AtMost(Dbm(v as f32)))
+        }
+        fn visit_f32<E: serde::de::Error>(self, v: f32) -> Result<EirpCap, E> {
+            Ok(EirpCap::AtMost(Dbm(v)))
+        }
+        fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<EirpCap, E> {
+            #[allow(clippy::cast_precision_loss)] // checked by validate
+            Ok(EirpCap::AtMost(Dbm(v as f32)))
+        }
+        fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<EirpCap, E> {
+            #[allow(clippy::cast_precision_loss)] // checked by validate
+            Ok(EirpCap::AtMost(Dbm(v as f32)))
+        }
+        fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<EirpCap, E> {
+            if v.eq_ignore_ascii_case("none") {
+                Ok(EirpCap::NoCap)
+            } else {
+                Err(E::custom(format_args!(
+                    "eirp_cap_dbm: '{v}' is neither a number of dBm nor \"none\""
+                )))
+            }
+        }
+    }
+
+    impl<'de> serde::Deserialize<'de> for EirpCap {
+        fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<EirpCap, D::Error> {
+            d.deserialize_any(CapVisitor).map_err(D::Error::custom)
+        }
+    }
+}
+
 /// Settings of a [`crate::control::Controller`].
 ///
 /// With the `serde` feature the field names below are the keys of the host's
@@ -204,8 +282,9 @@ pub struct ControllerConfig {
     pub min_tx_dbm: Dbm,
     /// Highest power the radio can transmit.
     pub max_tx_dbm: Dbm,
-    /// Regulatory cap on EIRP: the controller keeps `tx + antenna_gain ≤ cap`.
-    pub eirp_cap_dbm: Dbm,
+    /// Regulatory cap on EIRP: the controller keeps `tx + antenna_gain ≤ cap`
+    /// (or, with [`EirpCap::NoCap`], only `tx ≤ max_tx_dbm`).
+    pub eirp_cap_dbm: EirpCap,
     /// Gain of this device's antenna (counts against the EIRP cap).
     pub antenna_gain_dbi: Dbi,
     /// Gain of the far end's antenna (only used to report the path loss).
@@ -277,7 +356,7 @@ impl ControllerConfig {
             target_outage: 0.01,
             min_tx_dbm: Dbm(-9.0),
             max_tx_dbm: Dbm(22.0),
-            eirp_cap_dbm: Dbm(16.15),
+            eirp_cap_dbm: EirpCap::AtMost(Dbm(16.15)),
             antenna_gain_dbi: Dbi(2.15),
             far_antenna_gain_dbi: Dbi(2.15),
             start_tx_dbm: Dbm(14.0),
@@ -304,44 +383,16 @@ impl ControllerConfig {
     /// Highest power the controller may use: `min(max_tx, cap − gain)`
     /// (before rounding down to a supported level).
     pub fn tx_ceiling(&self) -> Dbm {
-        let by_cap = self.eirp_cap_dbm.0 - self.antenna_gain_dbi.0;
-        Dbm(if by_cap < self.max_tx_dbm.0 {
-            by_cap
-        } else {
-            self.max_tx_dbm.0
-        })
-    }
-
-    /// Take the radio's limits from a log header for the settings that were
-    /// not set explicitly: `min_tx_dbm`, `max_tx_dbm`, `steps` (a uniform
-    /// step of the header's `tx_step`) and `antenna_gain_dbi`, each only when
-    /// the header carries it and `explicit` does not name it. Then, unless
-    /// `start_tx_dbm` was set explicitly, a start power the radio cannot
-    /// produce (outside `[min_tx_dbm, tx_ceiling()]`) becomes
-    /// [`ControllerConfig::tx_ceiling`], so the replay of a log starts at the
-    /// radio's highest allowed power rather than being refused.
-    ///
-    /// Nothing is validated here: [`ControllerConfig::validate`] (or
-    /// `Controller::new`) judges the result and names a bad setting, whether
-    /// it came from the header or not.
-    pub fn apply_log_header(&mut self, header: &LogHeader, explicit: ExplicitSettings) {
-        if let (Some(v), false) = (header.min_tx, explicit.min_tx_dbm) {
-            self.min_tx_dbm = v;
-        }
-        if let (Some(v), false) = (header.max_tx, explicit.max_tx_dbm) {
-            self.max_tx_dbm = v;
-        }
-        if let (Some(v), false) = (header.tx_step, explicit.steps) {
-            self.steps = PowerSteps::Uniform(v);
-        }
-        if let (Some(v), false) = (header.antenna_gain, explicit.antenna_gain_dbi) {
-            self.antenna_gain_dbi = v;
-        }
-        if !explicit.start_tx_dbm {
-            let ceiling = self.tx_ceiling();
-            if self.start_tx_dbm.0 > ceiling.0 || self.start_tx_dbm.0 < self.min_tx_dbm.0 {
-                self.start_tx_dbm = ceiling;
+        match self.eirp_cap_dbm {
+            EirpCap::AtMost(cap) => {
+                let by_cap = cap.0 - self.antenna_gain_dbi.0;
+                Dbm(if by_cap < self.max_tx_dbm.0 {
+                    by_cap
+                } else {
+                    self.max_tx_dbm.0
+                })
             }
+            EirpCap::NoCap => self.max_tx_dbm,
         }
     }
 
@@ -379,7 +430,9 @@ impl ControllerConfig {
         }
         check_level("min_tx_dbm", c.min_tx_dbm.0)?;
         check_level("max_tx_dbm", c.max_tx_dbm.0)?;
-        check_level("eirp_cap_dbm", c.eirp_cap_dbm.0)?;
+        if let EirpCap::AtMost(cap) = c.eirp_cap_dbm {
+            check_level("eirp_cap_dbm", cap.0)?;
+        }
         check_level("antenna_gain_dbi", c.antenna_gain_dbi.0)?;
         check_level("far_antenna_gain_dbi", c.far_antenna_gain_dbi.0)?;
         check_level("start_tx_dbm", c.start_tx_dbm.0)?;
@@ -389,18 +442,24 @@ impl ControllerConfig {
                 why: "is above max_tx_dbm",
             });
         }
-        if c.min_tx_dbm.0 + c.antenna_gain_dbi.0 > c.eirp_cap_dbm.0 {
-            return Err(ConfigError::Inconsistent {
-                setting: "eirp_cap_dbm",
-                why:
-                    "is below the lowest EIRP the radio can produce (min_tx_dbm + antenna_gain_dbi)",
-            });
+        if let EirpCap::AtMost(cap) = c.eirp_cap_dbm {
+            if c.min_tx_dbm.0 + c.antenna_gain_dbi.0 > cap.0 {
+                return Err(ConfigError::Inconsistent {
+                    setting: "eirp_cap_dbm",
+                    why:
+                        "is below the lowest EIRP the radio can produce (min_tx_dbm + antenna_gain_dbi)",
+                });
+            }
         }
         let ceiling = c.tx_ceiling().0;
         if c.start_tx_dbm.0 < c.min_tx_dbm.0 || c.start_tx_dbm.0 > ceiling {
-            return Err(ConfigError::Inconsistent {
+            // The numbers, so that the refusal says what would be accepted:
+            // [min_tx_dbm, min(max_tx_dbm, eirp_cap_dbm − antenna_gain_dbi)].
+            return Err(ConfigError::OutOfRange {
                 setting: "start_tx_dbm",
-                why: "is outside [min_tx_dbm, min(max_tx_dbm, eirp_cap_dbm - antenna_gain_dbi)]",
+                value: c.start_tx_dbm.0,
+                min: c.min_tx_dbm.0,
+                max: ceiling,
             });
         }
         let up = positive_db("max_step_up_db", c.max_step_up_db.0)?;
@@ -558,42 +617,6 @@ impl ControllerConfig {
     }
 }
 
-/// Which of the settings a log header can carry were set explicitly (in a
-/// configuration file or by the user), so that
-/// [`ControllerConfig::apply_log_header`] leaves them alone.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct ExplicitSettings {
-    /// `min_tx_dbm` was set.
-    pub min_tx_dbm: bool,
-    /// `max_tx_dbm` was set.
-    pub max_tx_dbm: bool,
-    /// `steps` was set.
-    pub steps: bool,
-    /// `antenna_gain_dbi` was set.
-    pub antenna_gain_dbi: bool,
-    /// `start_tx_dbm` was set.
-    pub start_tx_dbm: bool,
-}
-
-impl ExplicitSettings {
-    /// The settings named among `keys` (TOML keys; other keys are ignored).
-    pub fn from_keys<'a, I: IntoIterator<Item = &'a str>>(keys: I) -> Self {
-        let mut e = ExplicitSettings::default();
-        for k in keys {
-            match k {
-                "min_tx_dbm" => e.min_tx_dbm = true,
-                "max_tx_dbm" => e.max_tx_dbm = true,
-                "steps" => e.steps = true,
-                "antenna_gain_dbi" => e.antenna_gain_dbi = true,
-                "start_tx_dbm" => e.start_tx_dbm = true,
-                _ => {}
-            }
-        }
-        e
-    }
-}
-
 /// Tolerance, in grid steps or dB, for rounding to a supported level.
 pub(crate) const GRID_EPS: f32 = 1e-4;
 
@@ -706,52 +729,18 @@ impl core::error::Error for ConfigError {}
 mod tests {
     use super::*;
 
-    fn header() -> LogHeader {
-        LogHeader {
-            min_tx: Some(Dbm(0.0)),
-            max_tx: Some(Dbm(10.0)),
-            tx_step: Some(Db(2.0)),
-            antenna_gain: Some(Dbi(0.0)),
-            ..LogHeader::default()
-        }
-    }
-
     #[test]
-    fn log_header_fills_only_the_settings_not_set() {
+    fn no_cap_leaves_the_radio_maximum() {
         let mut c = ControllerConfig::sub_ghz_node();
-        c.apply_log_header(&header(), ExplicitSettings::default());
-        assert_eq!((c.min_tx_dbm, c.max_tx_dbm), (Dbm(0.0), Dbm(10.0)));
-        assert_eq!(c.steps, PowerSteps::Uniform(Db(2.0)));
-        assert_eq!(c.antenna_gain_dbi, Dbi(0.0));
-        // 14 dBm is above the header radio's 10 dBm: start at the ceiling.
-        assert_eq!(c.start_tx_dbm, Dbm(10.0));
-        assert_eq!(c.validate(), Ok(()));
-
-        let mut c = ControllerConfig::sub_ghz_node();
-        let explicit =
-            ExplicitSettings::from_keys(["max_tx_dbm", "steps", "start_tx_dbm", "other"]);
-        c.apply_log_header(&header(), explicit);
-        assert_eq!((c.min_tx_dbm, c.max_tx_dbm), (Dbm(0.0), Dbm(22.0)));
-        assert_eq!(c.steps, PowerSteps::Uniform(Db(1.0)));
-        assert_eq!(c.start_tx_dbm, Dbm(14.0));
-
-        // An empty header changes nothing.
-        let mut c = ControllerConfig::sub_ghz_node();
-        c.apply_log_header(&LogHeader::default(), ExplicitSettings::default());
-        assert_eq!(c, ControllerConfig::sub_ghz_node());
-    }
-
-    #[test]
-    fn a_bad_header_value_is_named_by_validation() {
-        let mut c = ControllerConfig::sub_ghz_node();
-        let h = LogHeader {
-            tx_step: Some(Db(1e-30)),
-            ..LogHeader::default()
-        };
-        c.apply_log_header(&h, ExplicitSettings::default());
+        assert_eq!(c.tx_ceiling(), Dbm(14.0));
+        c.eirp_cap_dbm = EirpCap::NoCap;
+        assert_eq!(c.tx_ceiling(), Dbm(22.0));
+        c.start_tx_dbm = Dbm(23.0);
         match c.validate() {
-            Err(e) => assert_eq!(e.setting(), "steps.uniform"),
-            Ok(()) => panic!("a 1e-30 dB step accepted"),
+            Err(ConfigError::OutOfRange {
+                setting, min, max, ..
+            }) => assert_eq!((setting, min, max), ("start_tx_dbm", -9.0, 22.0)),
+            other => panic!("{other:?}"),
         }
     }
 }

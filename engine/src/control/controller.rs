@@ -461,6 +461,20 @@ struct Settings {
     grid: Grid,
 }
 
+/// A logged record's readings in 1/8192 dB, checked: what a replay needs to
+/// judge the packet at any power and to feed the controller.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct LoggedReading {
+    /// Loss to noise, `tx − (rssi − noise)`.
+    pub(crate) z: i32,
+    /// Noise floor.
+    pub(crate) noise: i32,
+    /// `rssi − tx`: the received power at a level is this plus the level.
+    pub(crate) rssi_less_tx: i32,
+    /// SNR the packet had as logged, at its own power: `rssi − noise`.
+    pub(crate) logged_snr: i32,
+}
+
 /// The adaptive-margin transmit power controller over a window of `W`
 /// readings.
 ///
@@ -948,8 +962,6 @@ impl<const W: usize> Controller<W> {
     /// Never fails and never panics: a reading that cannot be used is
     /// ignored and the [`Decision::reason`] says why.
     pub fn update(&mut self, obs: &Observation) -> Decision {
-        let climb_after = self.s.climb_after;
-
         // 1. What the observation says: the outcome of the packet (for the
         //    outer loop and the loss runs) and the reading, if any.
         let mut ignored: Option<Reason> = None;
@@ -977,6 +989,22 @@ impl<const W: usize> Controller<W> {
                 (t_ms, None, None)
             }
         };
+        self.apply(t, outcome, reading, ignored)
+    }
+
+    /// The update proper, from an observation already checked: `outcome`
+    /// is `Some(delivered)` when the packet's fate is known, `reading` the
+    /// loss to noise and noise floor (1/8192 dB) or why the reading is
+    /// unusable, `ignored` a reason that overrides the decision's own.
+    #[inline(always)]
+    fn apply(
+        &mut self,
+        t: u64,
+        outcome: Option<bool>,
+        reading: Option<Result<(i32, i32), Reason>>,
+        mut ignored: Option<Reason>,
+    ) -> Decision {
+        let climb_after = self.s.climb_after;
         let mut flushed: Option<Reason> = None;
         match outcome {
             Some(false) => {
@@ -1140,14 +1168,70 @@ impl<const W: usize> Controller<W> {
         }
     }
 
-    /// Why a logged record's readings cannot be judged by a replay, if they
-    /// cannot: not finite, a logged transmit power outside the radio's range
-    /// (`min_tx_dbm..max_tx_dbm` with the same 1 dB tolerance as a live
+    /// A logged record's readings, checked once, or why a replay cannot
+    /// judge them: not finite, a logged transmit power outside the radio's
+    /// range (`min_tx_dbm..max_tx_dbm` with the same 1 dB tolerance as a live
     /// feedback), a logged RSSI or noise floor outside the configured
     /// plausible ranges, or a logged RSSI at or above `rssi_saturation_dbm`.
     /// The same checks, in the same order, as a live feedback.
-    pub(crate) fn check_logged(&self, tx: f32, rssi: f32, noise: f32) -> Option<Reason> {
-        self.check_feedback(tx, rssi, noise, None).err()
+    pub(crate) fn check_logged(
+        &self,
+        tx: f32,
+        rssi: f32,
+        noise: f32,
+    ) -> Result<LoggedReading, Reason> {
+        let (z, noise) = self.check_feedback(tx, rssi, noise, None)?;
+        // Finite and within ±300 dB: checked above.
+        let rssi = to_fine(rssi);
+        Ok(LoggedReading {
+            z,
+            noise,
+            rssi_less_tx: rssi.saturating_sub(to_fine(tx)),
+            logged_snr: rssi.saturating_sub(noise),
+        })
+    }
+
+    /// The SNR, 1/8192 dB, a packet with the logged channel `r` has at the
+    /// level in use: `level − z` (z = tx − SNR does not depend on the power).
+    pub(crate) fn snr_at_level(&self, r: &LoggedReading) -> i32 {
+        self.level.saturating_sub(r.z)
+    }
+
+    /// Required SNR, 1/8192 dB.
+    pub(crate) fn required_fine(&self) -> i32 {
+        self.s.required
+    }
+
+    /// Whether the received power of `r` at the level in use reaches the far
+    /// end's saturation level (its report would be clipped).
+    pub(crate) fn saturates_at_level(&self, r: &LoggedReading) -> bool {
+        r.rssi_less_tx.saturating_add(self.level) >= q_fine(self.s.rssi_saturation)
+    }
+
+    /// A value in 1/8192 dB as dB.
+    pub(crate) fn db_of_fine(x: i32) -> f32 {
+        from_fine(x)
+    }
+
+    /// Whether the level in use is the highest allowed one.
+    pub fn at_top(&self) -> bool {
+        self.k >= self.s.kmax
+    }
+
+    /// Take the outcome of a replayed packet: `delivered` with its reading
+    /// (or why the far end's report of it is unusable), or lost.
+    pub(crate) fn apply_replayed(
+        &mut self,
+        t: u64,
+        delivered: bool,
+        reading: Option<Result<(i32, i32), Reason>>,
+    ) -> Decision {
+        self.apply(t, Some(delivered), reading, None)
+    }
+
+    /// Take a record that says nothing usable, for `why`.
+    pub(crate) fn apply_nothing(&mut self, t: u64, why: Reason) -> Decision {
+        self.apply(t, None, None, Some(why))
     }
 
     /// Loss to noise and noise floor of a feedback (1/8192 dB), or why it is

@@ -24,11 +24,14 @@ mod config;
 mod controller;
 mod reason;
 mod replay;
+pub mod settings;
 
 pub use config::{
-    ConfigError, ControllerConfig, ExplicitSettings, LevelTable, PowerSteps, MAX_LEVELS,
-    MAX_WINDOW, MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB,
+    ConfigError, ControllerConfig, EirpCap, LevelTable, PowerSteps, MAX_LEVELS, MAX_WINDOW,
+    MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB,
 };
 pub use controller::{Controller, Decision, Mode, Observation};
 pub use reason::Reason;
-pub use replay::{Outcome, Replay, ReplayStep, Summary};
+pub use replay::{
+    Fleet, LoggedTotals, Outcome, Replay, ReplayStep, Summary, REPLAY_WINDOW,
+};

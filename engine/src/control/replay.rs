@@ -6,7 +6,7 @@
 //! it, so they agree bit for bit. [`Replay`] states the semantics.
 
 use super::config::{ConfigError, ControllerConfig};
-use super::controller::{Controller, Observation};
+use super::controller::Controller;
 use super::reason::Reason;
 use crate::record::LogRecord;
 use crate::units::{Db, Dbm};
@@ -62,6 +62,11 @@ pub struct ReplayStep {
     pub replayed_snr: Option<Db>,
     /// Delivered, lost, or not judgeable.
     pub outcome: Outcome,
+    /// Whether the packet was lost as logged, at the logged power, by the
+    /// same rule (`None` if not judgeable).
+    pub logged_lost: Option<bool>,
+    /// Whether `chosen` was the highest level the controller is allowed.
+    pub at_max: bool,
     /// The controller's slow path-loss estimate after this record.
     pub path_loss_estimate: Option<Db>,
     /// The adaptive margin after this record.
@@ -85,10 +90,94 @@ impl ReplayStep {
     }
 }
 
-/// Running totals of a replay.
+/// Window, in readings, of the controller that replays logs on the host
+/// and on target: the one value `headroom replay`, `headroom tune`, the
+/// firmware's replay and the tests use, so that they agree bit for bit.
+pub const REPLAY_WINDOW: usize = 32;
+
+/// What the device itself did, judged by the same rule as the replay.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LoggedTotals {
+    /// Records whose logged readings could be judged.
+    pub judged: u64,
+    /// Of those, the packets whose logged SNR was below the requirement.
+    pub lost: u64,
+    /// Records sent (a logged transmit power) whose far-end readings never
+    /// came back: the packet, or its report, was lost in the field.
+    pub without_readings: u64,
+    /// Records with a finite logged transmit power.
+    pub records_with_tx: u64,
+    /// Σ logged transmit power over those records, mW.
+    pub tx_mw_sum: f64,
+    /// Σ replayed (chosen) power over the same records, mW: the fair
+    /// reference for [`Summary::saving_vs_logged_db`].
+    pub chosen_mw_sum: f64,
+}
+
+impl LoggedTotals {
+    /// Lost / judged of the logged policy (`None` before a judged record).
+    #[allow(clippy::cast_possible_truncation)] // a fraction in [0, 1]
+    pub fn outage_fraction(&self) -> Option<f32> {
+        ratio(self.lost, self.judged)
+    }
+
+    /// Mean logged transmit power, dBm, over the records that logged one.
+    pub fn mean_tx_dbm(&self) -> Option<Dbm> {
+        mean_dbm(self.tx_mw_sum, self.records_with_tx)
+    }
+
+    fn merge(&mut self, o: &LoggedTotals) {
+        self.judged += o.judged;
+        self.lost += o.lost;
+        self.without_readings += o.without_readings;
+        self.records_with_tx += o.records_with_tx;
+        self.tx_mw_sum += o.tx_mw_sum;
+        self.chosen_mw_sum += o.chosen_mw_sum;
+    }
+}
+
+#[allow(clippy::cast_possible_truncation)] // a fraction in [0, 1]
+fn ratio(a: u64, b: u64) -> Option<f32> {
+    if b == 0 {
+        None
+    } else {
+        Some((a as f64 / b as f64) as f32)
+    }
+}
+
+#[allow(clippy::cast_possible_truncation)] // a level within ±300 dBm
+fn mean_dbm(sum_mw: f64, n: u64) -> Option<Dbm> {
+    if n == 0 || sum_mw <= 0.0 || sum_mw.is_nan() {
+        None
+    } else {
+        Some(Dbm(libm::log10(sum_mw / n as f64) as f32 * 10.0))
+    }
+}
+
+/// `10·log10(a / b)`, dB, for two positive linear sums.
+#[allow(clippy::cast_possible_truncation)] // a ratio within ±600 dB
+fn ratio_db(a: f64, b: f64) -> Option<Db> {
+    if a > 0.0 && b > 0.0 && a.is_finite() && b.is_finite() {
+        Some(Db(libm::log10(a / b) as f32 * 10.0))
+    } else {
+        None
+    }
+}
+
+/// mW of a level, dBm.
+fn mw(p: f32) -> f64 {
+    f64::from(libm::exp10f(p / 10.0))
+}
+
+/// Running totals of a replay: of one log, or of a fleet of logs added up
+/// with [`Summary::merge`]. Every total is a count or a linear sum, public,
+/// so that totals computed anywhere (threads, machines) add up exactly.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Summary {
+    /// Logs added up in these totals (1 for one log).
+    pub logs: u64,
     /// Records replayed.
     pub records: u64,
     /// Records that could be judged (delivered + lost).
@@ -97,46 +186,72 @@ pub struct Summary {
     pub lost: u64,
     /// Records that could not be judged.
     pub unjudged: u64,
+    /// Judged records sent at the highest allowed level.
+    pub judged_at_max: u64,
+    /// Of those, the lost ones: the link was out of the controller's reach.
+    pub lost_at_max: u64,
     /// Records whose power differs from the previous record's.
     pub power_changes: u64,
     /// Highest power chosen (`None` before the first record).
     pub max_tx_dbm_used: Option<Dbm>,
-    /// Readings ignored, indexed by [`Reason::index`] (only the
-    /// `Ignored*` reasons are counted).
+    /// Readings the controller could not use, indexed by [`Reason::index`]
+    /// (only the `Ignored*` reasons are counted): logged readings that
+    /// cannot be judged, and replayed readings the far end would have
+    /// clipped at its saturation level.
     pub ignored_readings: [u64; Reason::COUNT],
-    /// Highest power the controller was allowed (radio maximum and EIRP cap,
-    /// on the grid): the reference of [`Summary::energy_saving_db`].
+    /// Σ of the chosen powers over the records, mW.
+    pub tx_mw_sum: f64,
+    /// Σ over the records of the highest allowed level, mW: the reference
+    /// of [`Summary::saving_vs_max_db`].
+    pub max_mw_sum: f64,
+    /// What the device did, judged by the same rule.
+    pub logged: LoggedTotals,
+    /// Highest level the controller was allowed (of one log; the largest
+    /// over merged logs).
     pub max_allowed: Dbm,
-    sum_mw: f64,
     last_chosen: Option<f32>,
-    /// `last_chosen` in mW.
     last_mw: f64,
-    /// Σ over merged replays of records × highest allowed level, mW (`None`
-    /// until [`Summary::merge`]).
-    allowed_mw: Option<f64>,
+    last_logged: Option<f32>,
+    last_logged_mw: f64,
+    max_mw: f64,
 }
 
 impl Summary {
-    /// Empty totals for a controller whose highest allowed level is `max_allowed`.
+    /// Empty totals of one log, for a controller whose highest allowed level
+    /// is `max_allowed`.
     pub fn new(max_allowed: Dbm) -> Self {
         Summary {
+            logs: 1,
             records: 0,
             judged: 0,
             lost: 0,
             unjudged: 0,
+            judged_at_max: 0,
+            lost_at_max: 0,
             power_changes: 0,
             max_tx_dbm_used: None,
             ignored_readings: [0; Reason::COUNT],
+            tx_mw_sum: 0.0,
+            max_mw_sum: 0.0,
+            logged: LoggedTotals::default(),
             max_allowed,
-            sum_mw: 0.0,
             last_chosen: None,
             last_mw: 0.0,
-            allowed_mw: None,
+            last_logged: None,
+            last_logged_mw: 0.0,
+            max_mw: mw(max_allowed.0),
         }
     }
 
-    /// Count one replayed record.
-    pub fn add(&mut self, s: &ReplayStep) {
+    /// Empty totals of no log, to [`Summary::merge`] logs into.
+    pub fn empty() -> Self {
+        let mut s = Summary::new(Dbm(-SETTING_FLOOR_DBM));
+        s.logs = 0;
+        s
+    }
+
+    /// Count one replayed record; `rec` is the record `s` replayed.
+    pub fn add(&mut self, rec: &LogRecord, s: &ReplayStep) {
         self.records += 1;
         match s.outcome {
             Outcome::Delivered => self.judged += 1,
@@ -146,25 +261,52 @@ impl Summary {
             }
             Outcome::Unjudged => self.unjudged += 1,
         }
+        if s.at_max && s.outcome != Outcome::Unjudged {
+            self.judged_at_max += 1;
+            if s.outcome == Outcome::Lost {
+                self.lost_at_max += 1;
+            }
+        }
         let p = s.chosen.0;
         // The power changes once in several records: reuse its mW otherwise
         // (the same exp10f of the same value, so the sum is unchanged).
-        let mw = match self.last_chosen {
+        let chosen_mw = match self.last_chosen {
             Some(last) if last == p => self.last_mw,
             Some(_) => {
                 self.power_changes += 1;
-                f64::from(libm::exp10f(p / 10.0))
+                mw(p)
             }
-            None => f64::from(libm::exp10f(p / 10.0)),
+            None => mw(p),
         };
         self.last_chosen = Some(p);
-        self.last_mw = mw;
+        self.last_mw = chosen_mw;
         self.max_tx_dbm_used = Some(match self.max_tx_dbm_used {
             Some(m) if m.0 >= p => m,
             _ => s.chosen,
         });
         // Linear mW summed in f64: 10⁶ records of 25 mW lose nothing.
-        self.sum_mw += mw;
+        self.tx_mw_sum += chosen_mw;
+        self.max_mw_sum += self.max_mw;
+        if let Some(lost) = s.logged_lost {
+            self.logged.judged += 1;
+            if lost {
+                self.logged.lost += 1;
+            }
+        }
+        if rec.tx_dbm.is_some() && (rec.rssi_dbm.is_none() || rec.noise_dbm.is_none()) {
+            self.logged.without_readings += 1;
+        }
+        if let Some(tx) = rec.tx_dbm.filter(|t| t.is_finite()) {
+            let logged_mw = match self.last_logged {
+                Some(last) if last == tx => self.last_logged_mw,
+                _ => mw(tx),
+            };
+            self.last_logged = Some(tx);
+            self.last_logged_mw = logged_mw;
+            self.logged.records_with_tx += 1;
+            self.logged.tx_mw_sum += logged_mw;
+            self.logged.chosen_mw_sum += chosen_mw;
+        }
         if s.reason.is_ignored_reading() {
             if let Some(c) = self.ignored_readings.get_mut(s.reason.index()) {
                 *c += 1;
@@ -172,32 +314,17 @@ impl Summary {
         }
     }
 
-    /// Σ of the chosen powers over the records, in mW: the linear sum behind
-    /// [`Summary::mean_tx_dbm`], for adding replays up elsewhere.
-    pub fn tx_mw_sum(&self) -> f64 {
-        self.sum_mw
-    }
-
-    /// Records × highest allowed level in mW: the linear sum behind the
-    /// reference of [`Summary::energy_saving_db`].
-    fn allowed_sum_mw(&self) -> f64 {
-        self.allowed_mw.unwrap_or_else(|| {
-            self.records as f64 * f64::from(libm::exp10f(self.max_allowed.0 / 10.0))
-        })
-    }
-
     /// Add the totals of another replay (another device of a fleet): counts
-    /// and linear power sums add; [`Summary::max_tx_dbm_used`] and
-    /// [`Summary::max_allowed`] become the larger of the two; and
-    /// [`Summary::energy_saving_db`] of the merged totals compares the mean
-    /// power with the mean, in mW over all records, of each device's own
-    /// highest allowed level.
+    /// and linear sums add; [`Summary::max_tx_dbm_used`] and
+    /// [`Summary::max_allowed`] become the larger of the two.
     pub fn merge(&mut self, other: &Summary) {
-        self.allowed_mw = Some(self.allowed_sum_mw() + other.allowed_sum_mw());
+        self.logs += other.logs;
         self.records += other.records;
         self.judged += other.judged;
         self.lost += other.lost;
         self.unjudged += other.unjudged;
+        self.judged_at_max += other.judged_at_max;
+        self.lost_at_max += other.lost_at_max;
         self.power_changes += other.power_changes;
         self.max_tx_dbm_used = match (self.max_tx_dbm_used, other.max_tx_dbm_used) {
             (Some(a), Some(b)) => Some(if b.0 > a.0 { b } else { a }),
@@ -213,49 +340,103 @@ impl Summary {
         if other.max_allowed.0 > self.max_allowed.0 {
             self.max_allowed = other.max_allowed;
         }
-        self.sum_mw += other.sum_mw;
+        self.tx_mw_sum += other.tx_mw_sum;
+        self.max_mw_sum += other.max_mw_sum;
+        self.logged.merge(&other.logged);
     }
 
     /// Lost / judged (`None` before a judged record).
-    #[allow(clippy::cast_possible_truncation)] // a fraction in [0, 1]
     pub fn outage_fraction(&self) -> Option<f32> {
-        if self.judged == 0 {
-            None
-        } else {
-            Some((self.lost as f64 / self.judged as f64) as f32)
-        }
+        ratio(self.lost, self.judged)
+    }
+
+    /// Loss rate of the judged packets *not* sent at the highest allowed
+    /// level: what the controller's choices cost, apart from the packets
+    /// that no allowed power could have saved.
+    pub fn outage_below_max(&self) -> Option<f32> {
+        ratio(
+            self.lost - self.lost_at_max,
+            self.judged - self.judged_at_max,
+        )
     }
 
     /// `10·log10` of the mean chosen power in mW (`None` before a record).
-    #[allow(clippy::cast_possible_truncation)] // a level within ±300 dBm
     pub fn mean_tx_dbm(&self) -> Option<Dbm> {
-        if self.records == 0 || self.sum_mw <= 0.0 || self.sum_mw.is_nan() {
-            None
-        } else {
-            Some(Dbm(
-                libm::log10(self.sum_mw / self.records as f64) as f32 * 10.0
-            ))
-        }
+        mean_dbm(self.tx_mw_sum, self.records)
     }
 
-    /// How much lower the mean power is than always sending at
-    /// [`Summary::max_allowed`], dB (for merged totals, at each device's own
-    /// highest allowed level: see [`Summary::merge`]).
-    #[allow(clippy::cast_possible_truncation)] // a level within ±300 dBm
-    pub fn energy_saving_db(&self) -> Option<Db> {
-        let mean = self.mean_tx_dbm()?;
-        match self.allowed_mw {
-            None => Some(self.max_allowed - mean),
-            Some(a) if a > 0.0 && self.records > 0 => {
-                Some(Dbm(libm::log10(a / self.records as f64) as f32 * 10.0) - mean)
-            }
-            Some(_) => None,
-        }
+    /// How much less power, dB, the controller spent than the device did as
+    /// logged, over the records that logged a transmit power (positive: the
+    /// controller spends less).
+    pub fn saving_vs_logged_db(&self) -> Option<Db> {
+        ratio_db(self.logged.tx_mw_sum, self.logged.chosen_mw_sum)
+    }
+
+    /// How much lower the mean power is than always sending at the highest
+    /// allowed level (each log's own, for merged totals), dB.
+    pub fn saving_vs_max_db(&self) -> Option<Db> {
+        ratio_db(self.max_mw_sum, self.tx_mw_sum)
     }
 
     /// Readings ignored for reason `r`.
     pub fn ignored(&self, r: Reason) -> u64 {
         self.ignored_readings.get(r.index()).copied().unwrap_or(0)
+    }
+}
+
+/// Lowest level an empty [`Summary`] starts from, dBm (below every valid
+/// setting).
+const SETTING_FLOOR_DBM: f32 = 1000.0;
+
+/// A fleet's totals: the [`Summary`] of every log added up, and the devices
+/// that miss their own target.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Fleet {
+    /// The logs' totals added up (loss and power are never averaged per
+    /// device: Σ lost / Σ judged, Σ mW / Σ records).
+    pub total: Summary,
+    /// Logs whose loss rate is above their own target outage.
+    pub missing_target: u64,
+    /// Logs with no judged record.
+    pub without_judged: u64,
+    /// The highest loss rate of a log and the log's position (0-based, in
+    /// the order added); the first such log on ties.
+    pub worst: Option<(f32, u64)>,
+}
+
+impl Default for Fleet {
+    fn default() -> Self {
+        Fleet::new()
+    }
+}
+
+impl Fleet {
+    /// No log yet.
+    pub fn new() -> Self {
+        Fleet {
+            total: Summary::empty(),
+            missing_target: 0,
+            without_judged: 0,
+            worst: None,
+        }
+    }
+
+    /// Add one log's totals, judged against that log's `target_outage`.
+    pub fn add(&mut self, s: &Summary, target_outage: f32) {
+        let position = self.total.logs;
+        match s.outage_fraction() {
+            Some(f) => {
+                if f > target_outage {
+                    self.missing_target += 1;
+                }
+                if self.worst.is_none_or(|(w, _)| f > w) {
+                    self.worst = Some((f, position));
+                }
+            }
+            None => self.without_judged += 1,
+        }
+        self.total.merge(s);
     }
 }
 
@@ -265,12 +446,21 @@ impl Summary {
 /// Records are taken one at a time, in order. For record `k`:
 /// 1. the controller's power `chosen` for record `k` is the one it decided
 ///    from the observations of records before `k`;
-/// 2. the channel of record `k` is the logged one: the replayed received
-///    power is `rssi − tx + chosen`, the replayed SNR that less `noise`;
+/// 2. the channel of record `k` is the logged one. The controller's loss to
+///    noise `z = tx − (rssi − noise)` does not depend on the power sent, so
+///    the replayed SNR is `chosen − z` (= `rssi − tx + chosen − noise`), and
+///    the replayed received power `rssi − tx + chosen`; both are computed
+///    in the controller's own fixed point (1/8192 dB), once;
 /// 3. the packet is lost when the replayed SNR is below the required SNR;
-/// 4. a delivered packet gives the controller the replayed feedback
-///    (sent at `chosen`, received at the replayed power, the logged noise);
-///    a lost one gives it a loss and no readings;
+///    the same rule judges the logged packet (`rssi − noise` at the logged
+///    power), for [`Summary::logged`];
+/// 4. a lost packet gives the controller a loss and no readings. A
+///    delivered one gives it the far end's report of the replayed packet:
+///    its loss to noise and noise floor, unless the replayed received power
+///    is at or above `rssi_saturation_dbm`: the far end's reading would then
+///    be clipped, so the controller ignores it, as it would live (reason
+///    `ignored_saturated`). Saturation clips the report, not the packet: the
+///    packet is delivered;
 /// 5. a record with a missing reading, or whose *logged* readings would be
 ///    refused as a live feedback (NaN or infinite; a transmit power outside
 ///    the radio's `min_tx_dbm..max_tx_dbm` by more than 1 dB; an RSSI or
@@ -278,19 +468,17 @@ impl Summary {
 ///    `noise_min_dbm..noise_max_dbm`; an RSSI at or above
 ///    `rssi_saturation_dbm`), cannot be judged: it is counted apart
 ///    (the reason in [`Summary::ignored_readings`] for the bad ones) and
-///    passed to the controller as an observation of nothing
-///    ([`Observation::Missing`]).
+///    the controller learns nothing from it.
 ///
-/// A logged reading clipped by a receiver just below its saturation level
-/// gives a replayed received power that is only a lower bound, so the
+/// Each logged reading is checked once, by the controller's own feedback
+/// check. A logged reading clipped by a receiver just below its saturation
+/// level gives a replayed received power that is only a lower bound, so the
 /// replay is pessimistic for it.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Replay<const W: usize> {
     controller: Controller<W>,
     summary: Summary,
-    /// The required SNR, dB, as configured.
-    required_snr: f32,
 }
 
 impl<const W: usize> Replay<W> {
@@ -301,56 +489,67 @@ impl<const W: usize> Replay<W> {
         Ok(Replay {
             controller,
             summary,
-            required_snr: cfg.required_snr_db.0,
         })
     }
 
     /// Replay one record (see [`Replay`] for the semantics).
     pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
-        let chosen = self.controller.tx();
-        let required = Db(self.required_snr);
+        let c = &mut self.controller;
+        let chosen = c.tx();
+        let at_max = c.at_top();
         let t_ms = rec.t_ms;
-        let mut own_reason: Option<Reason> = None;
-        let (outcome, snr, obs) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
-            (Some(tx), Some(rssi), Some(noise)) => {
-                let rx = rssi - tx + chosen.0;
-                let snr = rx - noise;
-                let unusable = match self.controller.check_logged(tx, rssi, noise) {
-                    Some(r) => Some(r),
-                    None if !snr.is_finite() => Some(Reason::IgnoredNotFinite),
-                    None => None,
-                };
-                if let Some(r) = unusable {
-                    own_reason = Some(r);
-                    (Outcome::Unjudged, None, Observation::Missing { t_ms })
-                } else if snr < required.0 {
-                    (Outcome::Lost, Some(Db(snr)), Observation::Lost { t_ms })
-                } else {
-                    let obs = Observation::Feedback {
-                        t_ms,
-                        tx: chosen,
-                        rssi: Dbm(rx),
-                        noise: Dbm(noise),
-                        snr: None,
-                    };
-                    (Outcome::Delivered, Some(Db(snr)), obs)
+        let (outcome, snr, logged_lost, d) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
+            (Some(tx), Some(rssi), Some(noise)) => match c.check_logged(tx, rssi, noise) {
+                Err(why) => (Outcome::Unjudged, None, None, c.apply_nothing(t_ms, why)),
+                Ok(r) => {
+                    let required = c.required_fine();
+                    let snr = c.snr_at_level(&r);
+                    let logged_lost = Some(r.logged_snr < required);
+                    if snr < required {
+                        let d = c.apply_replayed(t_ms, false, None);
+                        (Outcome::Lost, Some(snr), logged_lost, d)
+                    } else {
+                        let reading = if c.saturates_at_level(&r) {
+                            Err(Reason::IgnoredSaturated)
+                        } else {
+                            Ok((r.z, r.noise))
+                        };
+                        let d = c.apply_replayed(t_ms, true, Some(reading));
+                        (Outcome::Delivered, Some(snr), logged_lost, d)
+                    }
                 }
-            }
-            _ => (Outcome::Unjudged, None, Observation::Missing { t_ms }),
+            },
+            _ => (
+                Outcome::Unjudged,
+                None,
+                None,
+                c.apply_nothing(t_ms, Reason::NoInformation),
+            ),
         };
-        let d = self.controller.update(&obs);
         let step = ReplayStep {
             t_ms,
             chosen,
-            replayed_snr: snr,
+            replayed_snr: snr.map(|x| Db(Controller::<W>::db_of_fine(x))),
             outcome,
+            logged_lost,
+            at_max,
             path_loss_estimate: d.path_loss(),
             margin: d.margin(),
-            reason: own_reason.unwrap_or(d.reason),
+            reason: d.reason,
             next_tx: d.tx,
         };
-        self.summary.add(&step);
+        self.summary.add(rec, &step);
         step
+    }
+
+    /// The received power below which the packet of `rec` is lost: its
+    /// logged noise floor plus the required SNR (`None` without a noise
+    /// floor).
+    pub fn loss_threshold(&self, rec: &LogRecord) -> Option<Dbm> {
+        let noise = rec.noise_dbm.filter(|n| n.is_finite())?;
+        Some(Dbm(
+            noise + Controller::<W>::db_of_fine(self.controller.required_fine()),
+        ))
     }
 
     /// The totals so far.
@@ -378,18 +577,40 @@ mod tests {
         }
     }
 
-    #[test]
-    fn judges_by_replayed_snr() {
-        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
+    fn replay() -> Replay<32> {
+        match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
             Ok(r) => r,
             Err(e) => panic!("{e}"),
-        };
+        }
+    }
+
+    fn step_at(p: f32, outcome: Outcome) -> ReplayStep {
+        ReplayStep {
+            t_ms: 0,
+            chosen: Dbm(p),
+            replayed_snr: None,
+            outcome,
+            logged_lost: None,
+            at_max: false,
+            path_loss_estimate: None,
+            margin: Db(0.0),
+            reason: Reason::Hold,
+            next_tx: Dbm(p),
+        }
+    }
+
+    #[test]
+    fn judges_by_replayed_snr() {
+        let mut r = replay();
         // Start power 14 dBm. Logged at 10 dBm, −105 dBm received, −110
         // noise: replayed rx = −105 − 10 + 14 = −101, SNR 9 dB ≥ 8: delivered.
         let s = r.step(&rec(0, 10.0, -105.0, -110.0));
         assert_eq!(s.chosen, Dbm(14.0));
         assert_eq!(s.outcome, Outcome::Delivered);
         assert_eq!(s.replayed_snr, Some(Db(9.0)));
+        // As logged: SNR 5 dB < 8, lost.
+        assert_eq!(s.logged_lost, Some(true));
+        assert!(s.at_max);
         // −108 at 10 dBm: replayed SNR 6 dB < 8: lost.
         let s = r.step(&rec(1, 10.0, -108.0, -110.0));
         assert_eq!(s.outcome, Outcome::Lost);
@@ -410,10 +631,17 @@ mod tests {
             (4, 2, 1, 2)
         );
         assert_eq!(sum.outage_fraction(), Some(0.5));
+        assert_eq!((sum.judged_at_max, sum.lost_at_max), (2, 1));
+        assert_eq!(sum.outage_below_max(), None);
+        assert_eq!((sum.logged.judged, sum.logged.lost), (2, 2));
         assert_eq!(sum.ignored(Reason::IgnoredNotFinite), 1);
         assert_eq!(sum.max_tx_dbm_used, Some(Dbm(14.0)));
-        // Always at the highest allowed level: no saving.
-        assert!(sum.energy_saving_db().is_some_and(|e| e.0.abs() < 1e-4));
+        // Always at the highest allowed level: no saving against it.
+        assert!(sum.saving_vs_max_db().is_some_and(|e| e.0.abs() < 1e-4));
+        // 14 dBm replayed against 10 dBm logged: 4 dB more.
+        assert!(sum
+            .saving_vs_logged_db()
+            .is_some_and(|e| (e.0 + 4.0).abs() < 1e-4));
         assert_eq!(sum.power_changes, 0);
     }
 
@@ -421,63 +649,54 @@ mod tests {
     fn summary_means_in_milliwatts() {
         let mut s = Summary::new(Dbm(10.0));
         for p in [10.0f32, 0.0] {
-            s.add(&ReplayStep {
-                t_ms: 0,
-                chosen: Dbm(p),
-                replayed_snr: None,
-                outcome: Outcome::Unjudged,
-                path_loss_estimate: None,
-                margin: Db(0.0),
-                reason: Reason::Hold,
-                next_tx: Dbm(p),
-            });
+            s.add(&LogRecord::default(), &step_at(p, Outcome::Unjudged));
         }
         // (10 mW + 1 mW) / 2 = 5.5 mW = 7.4036 dBm.
         let m = s.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
         assert!((m - 7.403_627).abs() < 1e-4, "{m}");
         assert_eq!(s.power_changes, 1);
         assert_eq!(s.outage_fraction(), None);
+        assert_eq!(s.saving_vs_logged_db(), None);
     }
 
     #[test]
     fn merged_summaries_add_linear_power() {
-        let step = |p: f32, outcome| ReplayStep {
-            t_ms: 0,
-            chosen: Dbm(p),
-            replayed_snr: None,
-            outcome,
-            path_loss_estimate: None,
-            margin: Db(0.0),
-            reason: Reason::Hold,
-            next_tx: Dbm(p),
+        let logged_at = |tx: f32| LogRecord {
+            tx_dbm: Some(tx),
+            ..LogRecord::default()
         };
         let mut a = Summary::new(Dbm(10.0));
-        a.add(&step(10.0, Outcome::Lost));
+        a.add(&logged_at(10.0), &step_at(10.0, Outcome::Lost));
         let mut b = Summary::new(Dbm(14.0));
-        b.add(&step(0.0, Outcome::Delivered));
-        b.add(&step(0.0, Outcome::Delivered));
-        a.merge(&b);
-        assert_eq!((a.records, a.judged, a.lost, a.power_changes), (3, 3, 1, 0));
-        assert_eq!(a.max_tx_dbm_used, Some(Dbm(10.0)));
-        assert_eq!(a.max_allowed, Dbm(14.0));
+        b.add(&logged_at(14.0), &step_at(0.0, Outcome::Delivered));
+        b.add(&logged_at(14.0), &step_at(0.0, Outcome::Delivered));
+        let mut f = Fleet::new();
+        f.add(&a, 0.01);
+        f.add(&b, 0.01);
+        let t = &f.total;
+        assert_eq!((t.logs, t.records, t.judged, t.lost), (2, 3, 3, 1));
+        assert_eq!(t.max_tx_dbm_used, Some(Dbm(10.0)));
+        assert_eq!(t.max_allowed, Dbm(14.0));
+        assert_eq!((f.missing_target, f.worst), (1, Some((1.0, 0))));
         // (10 + 1 + 1) mW / 3 = 4 mW = 6.0206 dBm.
-        let m = a.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
+        let m = t.mean_tx_dbm().map_or(f32::NAN, |d| d.0);
         assert!((m - 6.020_6).abs() < 1e-3, "{m}");
-        assert!(a
+        assert!(t
             .outage_fraction()
             .is_some_and(|f| (f - 1.0 / 3.0).abs() < 1e-6));
         // Reference: (1 × 10 mW + 2 × 25.119 mW) / 3 = 20.079 mW = 13.027 dBm,
         // less the mean 6.0206 dBm.
-        let e = a.energy_saving_db().map_or(f32::NAN, |d| d.0);
+        let e = t.saving_vs_max_db().map_or(f32::NAN, |d| d.0);
         assert!((e - (13.027_4 - 6.020_6)).abs() < 1e-3, "{e}");
+        // Logged: (10 + 25.119 + 25.119) mW against 12 mW replayed.
+        let e = t.saving_vs_logged_db().map_or(f32::NAN, |d| d.0);
+        let want = 10.0 * (60.237_6f64 / 12.0).log10();
+        assert!((f64::from(e) - want).abs() < 1e-3, "{e} {want}");
     }
 
     #[test]
     fn replayed_rx_is_the_logged_channel_at_the_chosen_power() {
-        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
-            Ok(r) => r,
-            Err(e) => panic!("{e}"),
-        };
+        let mut r = replay();
         let rec0 = rec(0, 10.0, -105.0, -110.0);
         let s = r.step(&rec0);
         // −105 − 10 + 14 = −101 dBm.
@@ -493,11 +712,20 @@ mod tests {
     }
 
     #[test]
+    fn a_replayed_reading_above_saturation_is_delivered_and_not_learnt() {
+        let mut r = replay();
+        // Logged at −9 dBm, −5 dBm received (clean, below the 0 dBm
+        // saturation); replayed at 14 dBm it would arrive at +18 dBm.
+        let s = r.step(&rec(0, -9.0, -5.0, -110.0));
+        assert_eq!(s.outcome, Outcome::Delivered);
+        assert_eq!(s.reason, Reason::IgnoredSaturated);
+        assert_eq!(r.summary().ignored(Reason::IgnoredSaturated), 1);
+        assert_eq!(r.summary().unjudged, 0);
+    }
+
+    #[test]
     fn logged_readings_the_radio_cannot_produce_are_not_judged() {
-        let mut r = match Replay::<32>::new(ControllerConfig::sub_ghz_node()) {
-            Ok(r) => r,
-            Err(e) => panic!("{e}"),
-        };
+        let mut r = replay();
         // sub_ghz_node: tx −9..22 dBm (±1 dB), RSSI saturates at 0 dBm.
         let cases = [
             (rec(0, 10.0, 0.0, -110.0), Reason::IgnoredSaturated), // at the ceiling

@@ -17,34 +17,30 @@
 //! file of `--config` (keys = the field names of `ControllerConfig`, see
 //! `examples/controllers/default.toml`); the flags.
 
-use std::fs;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use headroom::control::{
-    ControllerConfig, ExplicitSettings, PowerSteps, Reason, Replay, ReplayStep, Summary,
-};
-use headroom::record::{LogHeader, LogRecord};
-use headroom::units::{Db, Dbi, Dbm};
+use headroom::control::{Fleet, Outcome, ReplayStep, Summary};
+use headroom::record::codec::{Encoder, MAX_FRAME};
+use headroom::record::{DecisionRecord, LogRecord};
 use serde_json::{Map, Value};
 
 use crate::atomic::AtomicFile;
 use crate::error::{CliError, CliResult};
-use crate::logio;
-use crate::output::{json_num, Report};
+use crate::fleet::settings::{Resolver, SettingArgs};
+use crate::fleet::{self, logs, report, HostReplay};
+use crate::logio::LogFormat;
 use crate::plot::{self, ReplaySeries};
-use crate::quantity;
-
-/// Window of the controller used by the host replay (readings).
-pub const WINDOW: usize = 32;
 
 /// How the summaries are printed.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, clap::ValueEnum)]
 pub enum ReplayFormat {
-    /// Aligned `key  value` lines; with several logs one block per log, then the fleet.
+    /// The settings in force, then the replay beside the logged policy; one
+    /// block per log, then the fleet.
     #[default]
     Table,
-    /// One JSON object; with several logs `{"logs": [...], "fleet": {...}}`.
+    /// One JSON object `{"logs": [...], "fleet": {...}}`, whatever the
+    /// number of logs.
     Json,
     /// One JSON object per line, one line per log, each with its `log` path.
     Jsonl,
@@ -52,16 +48,23 @@ pub enum ReplayFormat {
 
 const AFTER_HELP: &str = concat!(
     "\
+Settings: each setting in force has one value and one source. A flag beats \
+the log's header (the device's own facts: its power limits and steps, \
+antenna gain, the far end's required SNR, its EIRP cap), which beats a \
+--config file (a template), which beats the built-in default. There is no \
+built-in required SNR (a replay without one is refused) and no built-in \
+EIRP cap (none is applied unless given). The table and the JSON show every \
+setting with its source.
+
 Several logs: each log (or each .csv/.hrlog file of a directory, sorted by \
 name) is one device, replayed separately with a fresh controller set up from \
-its own header. `--format jsonl` prints one line per log (the summary keys \
-plus `log`); `table` prints one block per log then a `fleet` block; `json` \
-prints {\"logs\": [...], \"fleet\": {...}} (one log: the summary object \
-alone). The fleet total adds counts and linear powers (mW) over the logs; its \
-energy saving compares the mean power with each log's own highest allowed \
-level, averaged in mW. --out and --plot take one log. The first log that \
-cannot be read stops the command with an error (jsonl lines already printed \
-stay valid).",
+its own header. The fleet total adds counts and linear powers (mW) over the \
+logs; it never averages per-device rates. --out and --plot take one log. \
+The first log that cannot be read stops the command with an error (jsonl \
+lines already printed stay valid).
+
+Outputs never replace an input; an existing output is replaced only with \
+--force.",
     "\n\n",
     caution!()
 );
@@ -74,100 +77,37 @@ pub struct Args {
     /// replayed separately (one device per log).
     #[arg(value_name = "LOG", required = true)]
     logs: Vec<PathBuf>,
-    /// Controller settings (TOML; keys as in examples/controllers/default.toml).
-    #[arg(long, value_name = "CTRL.toml")]
-    config: Option<PathBuf>,
-    /// SNR below which a packet is lost, dB.
-    #[arg(long, value_parser = quantity::db, allow_hyphen_values = true, value_name = "X")]
-    required_snr_db: Option<Db>,
-    /// Wanted probability of losing a packet: `0.01` or `1%`.
-    #[arg(long, value_parser = probability, value_name = "P")]
-    target_outage: Option<f32>,
-    /// Lowest power of the radio.
-    #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, value_name = "A")]
-    min_tx_dbm: Option<Dbm>,
-    /// Highest power of the radio.
-    #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, value_name = "B")]
-    max_tx_dbm: Option<Dbm>,
-    /// Regulatory EIRP cap.
-    #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, value_name = "C")]
-    eirp_cap_dbm: Option<Dbm>,
-    /// Gain of the device's antenna.
-    #[arg(long, value_parser = quantity::gain, allow_hyphen_values = true, value_name = "G")]
-    antenna_gain_dbi: Option<Dbi>,
-    /// Power before enough feedback.
-    #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, value_name = "S")]
-    start_tx_dbm: Option<Dbm>,
-    /// Uniform step between the radio's powers (replaces any level table).
-    #[arg(long, value_parser = quantity::db, allow_hyphen_values = true, value_name = "D")]
-    tx_step_db: Option<Db>,
-    /// Write one CSV row per record: t_ms, chosen_tx_dbm, replayed_snr_db,
-    /// outcome, path_loss_db, margin_db, reason (one log only).
-    #[arg(long, value_name = "decisions.csv")]
+    #[command(flatten)]
+    settings: SettingArgs,
+    /// Write one decision per record: CSV (`.csv`: t_ms, chosen_tx_dbm,
+    /// replayed_snr_db, outcome, logged_outcome, at_max, path_loss_db,
+    /// margin_db, reason) or binary decision frames (`.hrlog`); one log only.
+    #[arg(long, value_name = "decisions.csv|decisions.hrlog")]
     out: Option<PathBuf>,
-    /// Draw received power (logged and replayed), noise floor, lost packets,
-    /// chosen power and margin against time; `.svg` or `.png` (one log only).
+    /// Draw received power (logged and replayed), noise floor, the loss
+    /// threshold (noise + required SNR), lost packets, chosen power with its
+    /// limits, and margin against time; `.svg` or `.png` (one log only).
     #[arg(long, value_name = "FILE.svg|FILE.png")]
     plot: Option<PathBuf>,
-    /// Replace the files of `--out` and `--plot` if they exist.
+    /// Replace the files of `--out` and `--plot` if they exist (never an input).
     #[arg(long)]
     force: bool,
+    /// Any damage in a log, a damaged header above all, or a log of a
+    /// directory that cannot be read, is an error.
+    #[arg(long)]
+    strict: bool,
     /// Format of the summary.
     #[arg(long, value_enum, default_value_t = ReplayFormat::Table)]
     format: ReplayFormat,
 }
 
-/// A probability as `0.01` or `1%`.
-pub(crate) fn probability(s: &str) -> Result<f32, String> {
-    if s.trim_end().ends_with('%') {
-        Ok(quantity::percent(s)? / 100.0)
-    } else {
-        quantity::number(s)
-    }
-}
-
-/// The logs named by `args`: files as given, directories as their `.csv` and
-/// `.hrlog` files sorted by name.
-pub(crate) fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
-    let mut logs = Vec::new();
-    for a in args {
-        if !a.is_dir() {
-            logs.push(a.clone());
-            continue;
-        }
-        let entries = fs::read_dir(a).map_err(|e| {
-            CliError::Io(format!("{}: cannot list the directory: {e}", a.display()))
-        })?;
-        let mut found = Vec::new();
-        for e in entries {
-            let e = e.map_err(|e| {
-                CliError::Io(format!("{}: cannot list the directory: {e}", a.display()))
-            })?;
-            let p = e.path();
-            let ext = p
-                .extension()
-                .and_then(|x| x.to_str())
-                .map(str::to_ascii_lowercase);
-            if matches!(ext.as_deref(), Some("csv" | "hrlog")) && p.is_file() {
-                found.push(p);
-            }
-        }
-        if found.is_empty() {
-            return Err(CliError::arg(
-                "LOG",
-                format!("{}: a directory without .csv or .hrlog logs", a.display()),
-            ));
-        }
-        found.sort();
-        logs.extend(found);
-    }
-    Ok(logs)
-}
-
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
-    let logs = expand_logs(&args.logs)?;
-    if logs.len() > 1 {
+    let list = logs::expand(&args.logs, args.strict)?;
+    for (p, why) in &list.skipped {
+        warn(&format!("{}: skipped: {why}", p.display()));
+    }
+    if list.logs.len() > 1 {
         for (flag, set) in [
             ("--out", args.out.is_some()),
             ("--plot", args.plot.is_some()),
@@ -177,89 +117,120 @@ pub fn run(args: Args) -> CliResult {
                     flag,
                     format!(
                         "takes one log, {} were named: replay them one at a time",
-                        logs.len()
+                        list.logs.len()
                     ),
                 ));
             }
         }
     }
-    // Refuse an existing plot before the work, not after.
+    // Refuse an existing plot or a bad --out name before the work, not after.
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
     }
-    let mut rows: Vec<(String, Summary)> = Vec::new();
-    let mut fleet: Option<Summary> = None;
-    for path in &logs {
-        let s = replay_log(path, &args)?;
-        if args.format == ReplayFormat::Jsonl {
-            let mut m = Map::new();
-            m.insert("log".into(), path.display().to_string().into());
-            m.extend(fields(&s));
-            let line = serde_json::to_string(&Value::Object(m))
-                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
-            print_line(&line)?;
-        }
-        match fleet.as_mut() {
-            Some(f) => f.merge(&s),
-            None => fleet = Some(s),
-        }
-        rows.push((path.display().to_string(), s));
+    if let Some(p) = &args.out {
+        LogFormat::from_path(p).map_err(|_| {
+            CliError::arg(
+                "--out",
+                format!(
+                    "{}: name it .csv (decisions as text) or .hrlog (binary decision frames)",
+                    p.display()
+                ),
+            )
+        })?;
     }
-    let Some(fleet) = fleet else {
-        return Err(CliError::arg("LOG", "name at least one log"));
-    };
-    match (args.format, rows.as_slice()) {
-        (ReplayFormat::Jsonl, _) => Ok(()),
-        (ReplayFormat::Json, [(_, one)]) => print_json(&Value::Object(fields(one).collect())),
-        (ReplayFormat::Table, [(_, one)]) => report(one).print(crate::output::Format::Table),
-        (ReplayFormat::Json, _) => {
-            let logs: Vec<Value> = rows
-                .iter()
-                .map(|(p, s)| {
-                    let mut m = Map::new();
-                    m.insert("log".into(), p.clone().into());
-                    m.extend(fields(s));
-                    Value::Object(m)
-                })
-                .collect();
-            let mut m = Map::new();
-            m.insert("logs".into(), Value::Array(logs));
-            m.insert("fleet".into(), Value::Object(fields(&fleet).collect()));
-            print_json(&Value::Object(m))
+    let resolver = Resolver::new(&args.settings)?;
+    let mut fleet = Fleet::new();
+    let mut names: Vec<String> = Vec::new();
+    let mut blocks: Vec<Map<String, Value>> = Vec::new();
+    let mut table = String::new();
+    for path in &list.logs {
+        let name = path.display().to_string();
+        let (settings, s) = replay_log(path, &resolver, &args)?;
+        for w in &settings.warnings {
+            warn(&format!("{name}: {w}"));
         }
-        (ReplayFormat::Table, _) => {
-            for (p, s) in &rows {
-                print_line(&format!("== {p}"))?;
-                report(s).print(crate::output::Format::Table)?;
-                print_line("")?;
+        let target = settings.resolved.config.target_outage;
+        let obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
+        match args.format {
+            ReplayFormat::Jsonl => {
+                let line = serde_json::to_string(&Value::Object(obj))
+                    .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+                print_text(&format!("{line}\n"))?;
             }
-            print_line(&format!("== fleet ({} logs)", rows.len()))?;
-            report(&fleet).print(crate::output::Format::Table)
+            ReplayFormat::Json => blocks.push(obj),
+            ReplayFormat::Table => {
+                use std::fmt::Write as _;
+                let _ = writeln!(table, "== {name}");
+                report::settings_table(&mut table, &settings.resolved);
+                let _ = writeln!(table);
+                report::summary_table(&mut table, &s);
+                let _ = writeln!(table);
+            }
+        }
+        fleet.add(&s, target);
+        names.push(name);
+    }
+    match args.format {
+        ReplayFormat::Jsonl => Ok(()),
+        ReplayFormat::Json => {
+            let mut m = Map::new();
+            m.insert(
+                "logs".into(),
+                Value::Array(blocks.into_iter().map(Value::Object).collect()),
+            );
+            m.insert(
+                "fleet".into(),
+                Value::Object(report::fleet_json(&fleet, list.skipped.len(), &names)),
+            );
+            let s = serde_json::to_string_pretty(&Value::Object(m))
+                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            print_text(&format!("{s}\n"))
+        }
+        ReplayFormat::Table => {
+            if names.len() > 1 || !list.skipped.is_empty() {
+                use std::fmt::Write as _;
+                let _ = writeln!(table, "== fleet ({} logs)", names.len());
+                report::fleet_table(&mut table, &fleet, list.skipped.len(), &names);
+            }
+            print_text(&table)
         }
     }
 }
 
-/// One line on stdout, flushed; a closed pipe is an error, not a panic.
-fn print_line(line: &str) -> CliResult {
+/// A warning on stderr.
+fn warn(msg: &str) {
+    let mut e = io::stderr().lock();
+    let _ = writeln!(e, "headroom: warning: {}", crate::error::printable(msg));
+}
+
+/// Text on stdout, flushed; a closed pipe is an error, not a panic.
+fn print_text(text: &str) -> CliResult {
     let mut stdout = io::stdout().lock();
-    writeln!(stdout, "{line}")
+    stdout
+        .write_all(text.as_bytes())
         .and_then(|()| stdout.flush())
         .map_err(|e| CliError::Io(format!("stdout: cannot write: {e}")))
 }
 
-fn print_json(v: &Value) -> CliResult {
-    let s = serde_json::to_string_pretty(v)
-        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
-    print_line(&s)
-}
-
-/// Replay one log (one device) with a fresh controller set up from `args`
-/// and the log's header; writes `--out` and `--plot` if asked.
-fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
-    let mut reader = logio::open(path)?;
-    let cfg = build_config(args, reader.header())?;
-    let mut replay = Replay::<WINDOW>::new(cfg)
-        .map_err(|e| CliError::Input(format!("controller settings: {e}")))?;
+/// Replay one log (one device) with a fresh controller set up from the
+/// flags, the log's header and the settings file; writes `--out` and
+/// `--plot` if asked.
+fn replay_log(
+    path: &Path,
+    resolver: &Resolver,
+    args: &Args,
+) -> CliResult<(fleet::settings::LogSettings, Summary)> {
+    let fleet::OpenLog {
+        mut reader,
+        settings,
+    } = fleet::open(path, resolver, None)?;
+    if args.strict {
+        reader.set_strict(true);
+    }
+    let cfg = settings.resolved.config;
+    let mut replay = HostReplay::new(cfg).map_err(|e| {
+        CliError::Input(format!("{}: controller settings: {e}", path.display()))
+    })?;
     let mut out = match &args.out {
         Some(p) => Some(DecisionWriter::create(p, args.force)?),
         None => None,
@@ -273,10 +244,11 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
         }
         if let Some(s) = series.as_mut() {
             push_series(s, &rec, &step);
+            s.threshold_dbm.push(replay.loss_threshold(&rec).map(|d| d.0));
         }
     }
     for d in reader.damage() {
-        eprintln!("headroom: warning: {}: {d}", path.display());
+        warn(&format!("{}: {d}", path.display()));
     }
     if replay.summary().records == 0 && !reader.damage().is_empty() {
         return Err(CliError::Input(format!(
@@ -287,20 +259,23 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
     if let Some(w) = out {
         w.finish()?;
     }
-    if let (Some(p), Some(s)) = (&args.plot, &series) {
+    if let (Some(p), Some(s)) = (&args.plot, &mut series) {
         if s.t_ms.is_empty() {
             return Err(CliError::arg(
                 "--plot",
                 format!("{}: the log has no records to draw", path.display()),
             ));
         }
+        let (lo, hi) = replay.controller().limits();
+        s.limits_dbm = Some((lo.0, hi.0));
+        s.cap_tx_dbm = cfg.eirp_cap_dbm.level().map(|c| c.0 - cfg.antenna_gain_dbi.0);
         let name = path.file_name().map_or_else(
             || path.display().to_string(),
             |n| n.to_string_lossy().into_owned(),
         );
         plot::replay_plot(p, args.force, &format!("replay of {name}"), s)?;
     }
-    Ok(*replay.summary())
+    Ok((settings, *replay.summary()))
 }
 
 /// One record's values for the plot, as logged or as the engine replayed them.
@@ -311,152 +286,30 @@ fn push_series(s: &mut ReplaySeries, rec: &LogRecord, step: &ReplayStep) {
     s.noise_floor_dbm.push(rec.noise_dbm);
     s.tx_power_dbm.push(Some(step.chosen.0));
     s.margin_db.push(Some(step.margin.0));
-    s.lost
-        .push(step.outcome == headroom::control::Outcome::Lost);
+    s.lost.push(step.outcome == Outcome::Lost);
 }
 
-/// Defaults, then the log header, then the TOML file, then the flags.
-fn build_config(args: &Args, header: Option<&LogHeader>) -> CliResult<ControllerConfig> {
-    let (mut cfg, keys) = match &args.config {
-        Some(p) => load_toml(p)?,
-        None => (ControllerConfig::sub_ghz_node(), Vec::new()),
-    };
-    let set = |k: &str| keys.iter().any(|x| x == k);
-    if let Some(h) = header {
-        cfg.apply_log_header(
-            h,
-            ExplicitSettings::from_keys(keys.iter().map(String::as_str)),
-        );
-    }
-    if let Some(v) = args.required_snr_db {
-        cfg.required_snr_db = v;
-    }
-    if let Some(v) = args.target_outage {
-        cfg.target_outage = v;
-    }
-    if let Some(v) = args.min_tx_dbm {
-        cfg.min_tx_dbm = v;
-    }
-    if let Some(v) = args.max_tx_dbm {
-        cfg.max_tx_dbm = v;
-    }
-    if let Some(v) = args.eirp_cap_dbm {
-        cfg.eirp_cap_dbm = v;
-    }
-    if let Some(v) = args.antenna_gain_dbi {
-        cfg.antenna_gain_dbi = v;
-    }
-    if let Some(v) = args.tx_step_db {
-        cfg.steps = PowerSteps::Uniform(v);
-    }
-    match args.start_tx_dbm {
-        Some(v) => cfg.start_tx_dbm = v,
-        None if !set("start_tx_dbm") => {
-            // Flags may have moved the limits: keep the default start inside.
-            let ceiling = cfg.tx_ceiling();
-            if cfg.start_tx_dbm.0 > ceiling.0 || cfg.start_tx_dbm.0 < cfg.min_tx_dbm.0 {
-                cfg.start_tx_dbm = ceiling;
-            }
-        }
-        None => {}
-    }
-    cfg.validate().map_err(|e| {
-        let hint = match flag_for(e.setting()) {
-            Some(f) => format!(" (flag {f} or TOML key {})", e.setting()),
-            None => format!(" (TOML key {})", e.setting()),
-        };
-        CliError::Input(format!("controller settings: {e}{hint}"))
-    })?;
-    Ok(cfg)
-}
-
-/// The flag that sets a setting, if there is one.
-fn flag_for(setting: &str) -> Option<&'static str> {
-    Some(match setting {
-        "required_snr_db" => "--required-snr-db",
-        "target_outage" => "--target-outage",
-        "min_tx_dbm" => "--min-tx-dbm",
-        "max_tx_dbm" => "--max-tx-dbm",
-        "eirp_cap_dbm" => "--eirp-cap-dbm",
-        "antenna_gain_dbi" => "--antenna-gain-dbi",
-        "start_tx_dbm" => "--start-tx-dbm",
-        "steps.uniform" => "--tx-step-db",
-        _ => return None,
-    })
-}
-
-/// The TOML file as a config (missing keys take the defaults) and the keys it sets.
-pub(crate) fn load_toml(path: &Path) -> CliResult<(ControllerConfig, Vec<String>)> {
-    let text =
-        fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
-    let table: toml::Table = toml::from_str(&text).map_err(|e| {
-        CliError::arg(
-            "--config",
-            format!("{}: {}", path.display(), one_line(&e.to_string())),
-        )
-    })?;
-    let keys = table.keys().cloned().collect();
-    let cfg: ControllerConfig = toml::from_str(&text).map_err(|e| {
-        CliError::arg(
-            "--config",
-            format!("{}: {}", path.display(), one_line(&e.to_string())),
-        )
-    })?;
-    Ok((cfg, keys))
-}
-
-/// toml's messages span several lines (a caret under the source); keep one.
-fn one_line(s: &str) -> String {
-    let lines: Vec<&str> = s.lines().map(str::trim).filter(|l| !l.is_empty()).collect();
-    // First line names the position, the last one says what is wrong.
-    match (lines.first(), lines.last()) {
-        (Some(a), Some(b)) if a != b => format!("{a} {b}"),
-        (Some(a), _) => (*a).to_string(),
-        _ => s.to_string(),
-    }
-}
-
-/// The summary keys in their documented order.
-fn fields(s: &Summary) -> impl Iterator<Item = (String, Value)> {
-    let opt = |x: Option<f32>| x.map_or(Value::Null, json_num);
-    let mut ignored = Map::new();
-    for r in Reason::ALL.iter().filter(|r| r.is_ignored_reading()) {
-        ignored.insert(r.as_str().to_string(), s.ignored(*r).into());
-    }
-    [
-        ("records", s.records.into()),
-        ("judged", s.judged.into()),
-        ("outage_fraction", opt(s.outage_fraction())),
-        ("mean_tx_dbm", opt(s.mean_tx_dbm().map(|d| d.0))),
-        ("energy_saving_db", opt(s.energy_saving_db().map(|d| d.0))),
-        ("power_changes", s.power_changes.into()),
-        ("max_tx_dbm_used", opt(s.max_tx_dbm_used.map(|d| d.0))),
-        ("ignored_readings", Value::Object(ignored)),
-    ]
-    .into_iter()
-    .map(|(k, v)| (k.to_string(), v))
-}
-
-fn report(s: &Summary) -> Report {
-    let mut rep = Report::new();
-    for (k, v) in fields(s) {
-        rep.value(&k, v);
-    }
-    rep
-}
-
-/// The `--out` CSV, written through [`AtomicFile`]: nothing under the final
-/// name until the replay is complete.
+/// The `--out` decisions, CSV or binary frames by the name's extension,
+/// written through [`AtomicFile`]: nothing under the final name until the
+/// replay is complete.
 struct DecisionWriter {
     file: AtomicFile,
+    binary: Option<(Encoder, Box<[u8; MAX_FRAME]>)>,
 }
 
 impl DecisionWriter {
     fn create(dest: &Path, force: bool) -> CliResult<Self> {
+        let format = LogFormat::from_path(dest)?;
         let mut w = DecisionWriter {
             file: AtomicFile::create(dest, force)?,
+            binary: None,
         };
-        w.write_line("t_ms,chosen_tx_dbm,replayed_snr_db,outcome,path_loss_db,margin_db,reason")?;
+        match format {
+            LogFormat::Csv => w.write_line(
+                "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,logged_outcome,at_max,path_loss_db,margin_db,reason",
+            )?,
+            LogFormat::Binary => w.binary = Some((Encoder::new(), Box::new([0u8; MAX_FRAME]))),
+        }
         Ok(w)
     }
 
@@ -465,13 +318,32 @@ impl DecisionWriter {
     }
 
     fn row(&mut self, s: &ReplayStep) -> CliResult {
+        if let Some((enc, buf)) = self.binary.as_mut() {
+            let d = DecisionRecord {
+                t_ms: s.t_ms,
+                tx_dbm: s.chosen.0,
+                outcome: s.outcome.code(),
+                reason: s.reason.code(),
+            };
+            let frame = enc
+                .decision(&d, &mut buf[..])
+                .map_err(|e| CliError::Io(format!("cannot encode a decision frame: {e}")))?;
+            return self.file.write_all(frame).map_err(|e| self.file.io_error(e));
+        }
         let num = |x: Option<f32>| x.map_or(String::new(), |v| format!("{v}"));
+        let logged = match s.logged_lost {
+            Some(true) => "lost",
+            Some(false) => "delivered",
+            None => "unjudged",
+        };
         let line = format!(
-            "{},{},{},{},{},{},{}",
+            "{},{},{},{},{},{},{},{},{}",
             s.t_ms,
             s.chosen.0,
             num(s.replayed_snr.map(|d| d.0)),
             s.outcome.as_str(),
+            logged,
+            u8::from(s.at_max),
             num(s.path_loss_estimate.map(|d| d.0)),
             s.margin.0,
             s.reason.as_str()
@@ -486,43 +358,23 @@ impl DecisionWriter {
 
 #[cfg(test)]
 mod tests {
-    use super::*;
+    use crate::fleet::settings::parse_config;
+    use headroom::control::settings::{Role, Setting};
 
-    /// The shipped example is the documented default, key for key.
+    /// The shipped template sets only how the controller moves and what
+    /// readings are believable: never a device's facts or the judging rule.
     #[test]
-    fn example_config_is_the_default() {
-        let text = include_str!("../../../examples/controllers/default.toml");
-        let cfg: ControllerConfig = toml::from_str(text).expect("example parses");
-        assert_eq!(cfg, ControllerConfig::sub_ghz_node());
-        let table: toml::Table = toml::from_str(text).expect("example parses");
-        let round = toml::to_string(&ControllerConfig::sub_ghz_node()).expect("serialises");
-        let back: toml::Table = toml::from_str(&round).expect("round trip");
-        // Every field of the config is documented in the example.
-        for k in back.keys() {
-            assert!(
-                table.contains_key(k),
-                "examples/controllers/default.toml lacks {k}"
-            );
+    fn example_template_holds_no_device_facts() {
+        let text = include_str!("../../../examples/controllers/tuning.toml");
+        let layer = parse_config(text).expect("example parses");
+        for s in Setting::ALL {
+            if layer.is_set(s) {
+                assert!(
+                    matches!(s.role(), Role::Tuning | Role::Plausibility),
+                    "examples/controllers/tuning.toml sets {s}"
+                );
+            }
         }
-    }
-
-    #[test]
-    fn level_tables_and_typos() {
-        let cfg: ControllerConfig =
-            toml::from_str("steps = { table = [-9, 0, 5, 10, 14] }\nmax_step_down_db = 9")
-                .expect("table");
-        match cfg.steps {
-            PowerSteps::Table(t) => assert_eq!(t.levels().len(), 5),
-            other => panic!("{other:?}"),
-        }
-        assert!(toml::from_str::<ControllerConfig>("steps = { table = [3, 1] }").is_err());
-        assert!(toml::from_str::<ControllerConfig>("target_outag = 0.1").is_err());
-    }
-
-    #[test]
-    fn probabilities_parse_as_fraction_or_percent() {
-        assert_eq!(probability("0.05"), Ok(0.05));
-        assert_eq!(probability("5%"), Ok(0.05));
-        assert!(probability("x").is_err());
+        assert!(layer.is_set(Setting::MarginStepDb));
     }
 }

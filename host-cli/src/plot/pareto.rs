@@ -2,9 +2,6 @@
 //! with the target loss, the settings that meet it, and the Pareto front
 //! (the settings no other one beats on both power and loss).
 
-// Until `headroom tune` calls this module, only its tests do.
-#![cfg_attr(not(test), allow(dead_code))]
-
 use std::path::Path;
 
 use plotters::coord::Shift;
@@ -32,48 +29,36 @@ struct ParetoFigure {
     points: Vec<Point>,
     /// Indices into `points` of the front, by rising transmit power.
     front: Vec<usize>,
-    /// The setting of lowest mean power that meets the target.
+    /// The setting chosen as best.
     best: Option<usize>,
+    /// The default setting.
+    default: Option<usize>,
     target_pct: f64,
 }
 
-/// Indices of the points no other point beats on both coordinates (lower
-/// power and lower loss), ordered by rising power.
-fn front(points: &[Point]) -> Vec<usize> {
-    let mut order: Vec<usize> = (0..points.len()).collect();
-    let key = |k: usize| {
-        points
-            .get(k)
-            .map_or((f64::NAN, f64::NAN), |p| (p.tx_dbm, p.loss_pct))
-    };
-    order.sort_by(|&a, &b| {
-        let (ka, kb) = (key(a), key(b));
-        ka.0.total_cmp(&kb.0).then(ka.1.total_cmp(&kb.1))
-    });
-    let mut best = f64::INFINITY;
-    order
-        .into_iter()
-        .filter(|&k| {
-            let l = key(k).1;
-            if l < best {
-                best = l;
-                true
-            } else {
-                false
-            }
-        })
-        .collect()
+/// What the caller computed about the points (`headroom tune`'s front and
+/// choice, computed once, in one place): indices into the points.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct FrontMarks {
+    /// The Pareto front, by rising transmit power.
+    pub front: Vec<usize>,
+    /// The setting chosen as best.
+    pub best: Option<usize>,
+    /// The default setting.
+    pub default: Option<usize>,
 }
 
 /// Draw `points` = (mean transmit power in dBm, packet loss rate as a
 /// fraction in [0, 1], label, meets the target) to `path` (`.svg` or `.png`),
-/// with a line at `target_outage` (a fraction). Refuses to replace an
-/// existing file unless `force`.
+/// with a line at `target_outage` (a fraction), the front, the best and the
+/// default marked as `marks` says. Refuses to replace an existing file
+/// unless `force`.
 pub fn pareto_plot<L: AsRef<str>>(
     path: &Path,
     force: bool,
     title: &str,
     points: &[(f32, f32, L, bool)],
+    marks: &FrontMarks,
     target_outage: f32,
 ) -> CliResult {
     super::check_destination(path, force)?;
@@ -105,21 +90,12 @@ pub fn pareto_plot<L: AsRef<str>>(
             meets: *meets,
         });
     }
-    let best = pts
-        .iter()
-        .enumerate()
-        .filter(|(_, p)| p.meets)
-        .min_by(|a, b| {
-            a.1.tx_dbm
-                .total_cmp(&b.1.tx_dbm)
-                .then(a.1.loss_pct.total_cmp(&b.1.loss_pct))
-        })
-        .map(|(k, _)| k);
     let fig = ParetoFigure {
         title: title.to_string(),
-        front: front(&pts),
+        front: marks.front.clone(),
         points: pts,
-        best,
+        best: marks.best,
+        default: marks.default,
         target_pct: 100.0 * f64::from(target_outage),
     };
     save(path, force, &fig)
@@ -232,11 +208,26 @@ impl Figure for ParetoFigure {
                 .legend(|(x, y)| Circle::new((x + 12, y), 8, MEETS.stroke_width(2)));
         }
 
-        // Labels: all of them when few, else those on the front and the best.
+        if let Some(d) = self.default.and_then(|k| self.points.get(k)) {
+            chart
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(d.tx_dbm, d.loss_pct), (d.tx_dbm, d.loss_pct)],
+                    TARGET.stroke_width(2),
+                )))?;
+            let (px, py) = chart.backend_coord(&(d.tx_dbm, d.loss_pct));
+            root.draw(&Rectangle::new(
+                [(px - 9, py - 9), (px + 9, py + 9)],
+                TARGET.stroke_width(2),
+            ))?;
+        }
+
+        // Labels: all of them when few, else those on the front, the best
+        // and the default.
         let few = self.points.len() <= 12;
         let label = (FONT, 13).into_font().color(&BLACK);
         for (k, p) in self.points.iter().enumerate() {
-            if !(few || self.front.contains(&k) || self.best == Some(k)) {
+            if !(few || self.front.contains(&k) || self.best == Some(k) || self.default == Some(k))
+            {
                 continue;
             }
             let (px, py) = chart.backend_coord(&(p.tx_dbm, p.loss_pct));
@@ -262,40 +253,20 @@ impl Figure for ParetoFigure {
 mod tests {
     use super::*;
 
-    fn p(tx: f64, loss: f64) -> Point {
-        Point {
-            tx_dbm: tx,
-            loss_pct: loss,
-            label: String::new(),
-            meets: false,
-        }
-    }
-
-    #[test]
-    fn front_keeps_only_undominated_settings() {
-        // (10, 5) is beaten by (8, 4); (12, 4) by (8, 4); (14, 1) and (6, 9) stand.
-        let pts = vec![
-            p(10.0, 5.0),
-            p(8.0, 4.0),
-            p(12.0, 4.0),
-            p(14.0, 1.0),
-            p(6.0, 9.0),
-        ];
-        assert_eq!(front(&pts), vec![4, 1, 3]);
-    }
-
     #[test]
     fn bad_points_are_refused() {
         let dir = tempfile::tempdir().expect("temp dir");
         let f = dir.path().join("p.svg");
-        let e = pareto_plot(&f, false, "t", &[(10.0, 1.5, "a", false)], 0.01).expect_err("refused");
+        let m = FrontMarks::default();
+        let e = pareto_plot(&f, false, "t", &[(10.0, 1.5, "a", false)], &m, 0.01)
+            .expect_err("refused");
         assert!(e.to_string().contains("'a'"), "{e}");
-        let e =
-            pareto_plot(&f, false, "t", &[(f32::NAN, 0.1, "b", false)], 0.01).expect_err("refused");
+        let e = pareto_plot(&f, false, "t", &[(f32::NAN, 0.1, "b", false)], &m, 0.01)
+            .expect_err("refused");
         assert!(e.to_string().contains("'b'"), "{e}");
         let none: &[(f32, f32, &str, bool)] = &[];
-        assert!(pareto_plot(&f, false, "t", none, 0.01).is_err());
-        assert!(pareto_plot(&f, false, "t", &[(1.0, 0.1, "c", true)], 2.0).is_err());
+        assert!(pareto_plot(&f, false, "t", none, &m, 0.01).is_err());
+        assert!(pareto_plot(&f, false, "t", &[(1.0, 0.1, "c", true)], &m, 2.0).is_err());
         assert!(!f.exists());
     }
 }

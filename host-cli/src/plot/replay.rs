@@ -29,6 +29,7 @@ const NOISE: RGBColor = RGBColor(120, 120, 120);
 const LOST: RGBColor = RGBColor(200, 30, 30);
 const TX: RGBColor = RGBColor(20, 130, 60);
 const MARGIN_C: RGBColor = RGBColor(120, 60, 170);
+const GRID_C: RGBColor = RGBColor(110, 110, 110);
 
 /// Per-record columns of a replay, all as long as `t_ms`; a column left
 /// empty is not drawn. `None` (or a non-finite value) is a record without
@@ -49,6 +50,14 @@ pub struct ReplaySeries {
     pub margin_db: Vec<Option<f32>>,
     /// The packet was lost.
     pub lost: Vec<bool>,
+    /// Loss threshold: the received power below which the packet is lost
+    /// (noise floor + required SNR), dBm.
+    pub threshold_dbm: Vec<Option<f32>>,
+    /// Lowest and highest level the controller was allowed, dBm.
+    pub limits_dbm: Option<(f32, f32)>,
+    /// Transmit power at the EIRP cap (cap − antenna gain), dBm, if a cap
+    /// is configured.
+    pub cap_tx_dbm: Option<f32>,
 }
 
 /// The unit of the time axis, chosen from the span of the log.
@@ -234,6 +243,8 @@ struct ReplayFigure {
     lost: Vec<f64>,
     tx: Option<Line>,
     margin: Option<Line>,
+    limits: Option<(f32, f32)>,
+    cap: Option<f32>,
 }
 
 fn check_len<T>(name: &str, col: &[T], n: usize) -> CliResult {
@@ -264,6 +275,7 @@ pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries)
     check_len("tx_power_dbm", &s.tx_power_dbm, n)?;
     check_len("margin_db", &s.margin_db, n)?;
     check_len("lost", &s.lost, n)?;
+    check_len("threshold_dbm", &s.threshold_dbm, n)?;
 
     let t0 = s.t_ms.iter().copied().min().unwrap_or(0);
     let t1 = s.t_ms.iter().copied().max().unwrap_or(0);
@@ -289,6 +301,7 @@ pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries)
         line("noise floor", NOISE, &s.noise_floor_dbm),
         line("received power, logged", LOGGED, &s.logged_rx_dbm),
         line("received power, replayed", REPLAYED, &s.replayed_rx_dbm),
+        line("loss threshold (noise + required SNR)", LOST, &s.threshold_dbm),
     ]
     .into_iter()
     .flatten()
@@ -303,6 +316,8 @@ pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries)
         lost: lost_marks(&axis, &s.t_ms, &s.lost),
         tx: line("transmit power chosen", TX, &s.tx_power_dbm),
         margin: line("margin", MARGIN_C, &s.margin_db),
+        limits: s.limits_dbm,
+        cap: s.cap_tx_dbm,
     };
     save(path, force, &fig)
 }
@@ -419,6 +434,13 @@ impl Figure for ReplayFigure {
             .as_ref()
             .and_then(|l| range_of([l]))
             .unwrap_or((0.0, 20.0));
+        // The limits in force stay in view.
+        let tx_range = [self.limits.map(|l| l.0), self.limits.map(|l| l.1), self.cap]
+            .into_iter()
+            .flatten()
+            .map(f64::from)
+            .filter(|v| v.is_finite())
+            .fold(tx_range, |(a, b), v| (a.min(v), b.max(v)));
         let m_range = self
             .margin
             .as_ref()
@@ -457,6 +479,25 @@ impl Figure for ReplayFigure {
             .draw()?;
         if let Some(l) = &self.tx {
             draw_line(&mut chart, l)?;
+        }
+        // The limits in force, dashed: the radio's range and the EIRP cap.
+        let marks = [
+            self.limits.map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
+            self.limits.map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
+            self.cap.map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
+        ];
+        for (level, label, colour) in marks.into_iter().flatten() {
+            let x_end = self.x_max;
+            let dashes = (0..40).map(move |k| {
+                let a = x_end * f64::from(k) / 40.0;
+                PathElement::new(
+                    vec![(a, level), (a + x_end / 80.0, level)],
+                    colour.stroke_width(1),
+                )
+            });
+            chart.draw_series(dashes)?.label(label).legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
+            });
         }
         if let Some(l) = &self.margin {
             let mut first = true;

@@ -1,0 +1,202 @@
+//! How `headroom tune` runs its (candidate, log) replays: in parallel
+//! (rayon), in groups of one log and several candidates. A group opens its
+//! log once, resolves each candidate's settings against the log's header,
+//! and decodes the log once, a batch of records at a time, running every
+//! candidate over each batch: constant memory, and a log is read once per
+//! group instead of once per candidate.
+
+use std::path::Path;
+
+use headroom::control::Summary;
+
+use crate::error::{CliError, CliResult};
+use crate::fleet::settings::Resolver;
+use crate::fleet::{self, HostReplay};
+
+use super::sweep::Grid;
+
+/// Records decoded at a time and run through every candidate of a group
+/// before the next ones are read (a few hundred kB per thread).
+const BATCH: usize = 4096;
+
+/// One finished (candidate, log) replay.
+pub struct Done {
+    /// Its totals.
+    pub summary: Summary,
+    /// The log's target outage under the candidate's settings.
+    pub target: f32,
+    /// Warnings about the log (damage, settings), already naming the log.
+    pub warnings: Vec<String>,
+}
+
+/// Replay the log `path` under the candidates `cands` (with their job
+/// numbers), decoding it once; the result of every job, in the order given.
+pub fn replay_group(
+    path: &Path,
+    resolver: &Resolver,
+    grid: &Grid,
+    strict: bool,
+    cands: &[(usize, usize)],
+) -> Vec<(usize, CliResult<Done>)> {
+    let mut out = Vec::with_capacity(cands.len());
+    let mut reader = match crate::logio::open(path) {
+        Ok(r) => r,
+        Err(e) => return cands.iter().map(|&(j, _)| (j, Err(e.clone()))).collect(),
+    };
+    if strict {
+        reader.set_strict(true);
+    }
+    let header = reader.header().copied();
+    let mut live: Vec<(usize, HostReplay, f32, Vec<String>)> = Vec::with_capacity(cands.len());
+    for &(j, cand) in cands {
+        let r = grid.layer(cand).and_then(|extra| {
+            let s = resolver.resolve(path, header.as_ref(), false, Some(&extra))?;
+            let replay = HostReplay::new(s.resolved.config).map_err(|e| {
+                CliError::Input(format!("{}: controller settings: {e}", path.display()))
+            })?;
+            Ok((replay, s.resolved.config.target_outage, s.warnings))
+        });
+        match r {
+            Ok((replay, target, warnings)) => live.push((j, replay, target, warnings)),
+            Err(e) => out.push((j, Err(e))),
+        }
+    }
+    if live.is_empty() {
+        return out;
+    }
+    let mut batch = Vec::with_capacity(BATCH);
+    loop {
+        batch.clear();
+        let mut failed = None;
+        for rec in reader.by_ref() {
+            match rec {
+                Ok(r) => {
+                    batch.push(r);
+                    if batch.len() == BATCH {
+                        break;
+                    }
+                }
+                Err(e) => {
+                    failed = Some(e);
+                    break;
+                }
+            }
+        }
+        for (_, replay, _, _) in &mut live {
+            for rec in &batch {
+                replay.step(rec);
+            }
+        }
+        if let Some(e) = failed {
+            out.extend(live.into_iter().map(|(j, ..)| (j, Err(e.clone()))));
+            return out;
+        }
+        if batch.len() < BATCH {
+            break;
+        }
+    }
+    let damage: Vec<String> = reader
+        .damage()
+        .iter()
+        .map(|d| format!("{}: {d}", path.display()))
+        .collect();
+    out.extend(live.into_iter().map(|(j, replay, target, warnings)| {
+        let mut w: Vec<String> = warnings
+            .into_iter()
+            .map(|w| format!("{}: {w}", path.display()))
+            .collect();
+        w.extend(damage.iter().cloned());
+        (
+            j,
+            Ok(Done {
+                summary: *replay.summary(),
+                target,
+                warnings: w,
+            }),
+        )
+    }));
+    out
+}
+
+/// The jobs `start..end` (job `j` is candidate `j / nlogs` on log
+/// `j % nlogs`) as groups of one log and several (job, candidate): every
+/// log's candidates split into `per_log` groups, so that a few logs still
+/// keep all threads busy while each group decodes its log once.
+pub fn group_jobs(
+    start: usize,
+    end: usize,
+    nlogs: usize,
+    per_log: usize,
+) -> Vec<(usize, Vec<(usize, usize)>)> {
+    let mut by_log: Vec<Vec<(usize, usize)>> = vec![Vec::new(); nlogs];
+    for j in start..end {
+        if let Some(v) = by_log.get_mut(j % nlogs) {
+            v.push((j, j / nlogs));
+        }
+    }
+    let mut groups = Vec::new();
+    for (log, js) in by_log.into_iter().enumerate() {
+        if js.is_empty() {
+            continue;
+        }
+        let size = js.len().div_ceil(per_log.max(1));
+        for g in js.chunks(size.max(1)) {
+            groups.push((log, g.to_vec()));
+        }
+    }
+    groups
+}
+
+/// Refuse a log `tune` cannot read several times (a pipe, a terminal):
+/// every group of candidates opens its log again.
+pub fn check_rereadable(path: &Path) -> CliResult {
+    match std::fs::metadata(path) {
+        Ok(m) if m.is_file() => Ok(()),
+        Ok(_) => Err(CliError::arg(
+            "LOG",
+            format!(
+                "{}: tune reads each log once per group of candidates: name a regular file \
+                 (copy a pipe or standard input to a file first, or use replay)",
+                path.display()
+            ),
+        )),
+        Err(e) => Err(CliError::input_file(path, "cannot open", &e)),
+    }
+}
+
+/// Check the grid against the first log before any replay: every
+/// candidate's settings resolve.
+pub fn check_grid(path: &Path, resolver: &Resolver, grid: &Grid) -> CliResult {
+    let reader = crate::logio::open(path)?;
+    let header = reader.header().copied();
+    for cand in 0..=grid.len {
+        let extra = grid.layer(cand)?;
+        fleet::settings::Resolver::resolve(resolver, path, header.as_ref(), false, Some(&extra))
+            .map_err(|e| match cand {
+                0 => e,
+                _ => CliError::arg(
+                    "--sweep",
+                    format!("{}: the controller refuses it: {e}", grid.label(cand)),
+                ),
+            })?;
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn groups_cover_every_job_once() {
+        let g = group_jobs(0, 12, 3, 2);
+        let mut all: Vec<usize> = g.iter().flat_map(|(_, js)| js.iter().map(|x| x.0)).collect();
+        all.sort_unstable();
+        assert_eq!(all, (0..12).collect::<Vec<_>>());
+        for (log, js) in &g {
+            for (j, c) in js {
+                assert_eq!((j % 3, j / 3), (*log, *c));
+            }
+        }
+    }
+}

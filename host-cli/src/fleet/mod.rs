@@ -1,0 +1,38 @@
+//! One home for a device's replay on the host: which logs a command names
+//! ([`logs`]), the settings each log is replayed with ([`settings`]), and
+//! how the totals are shown ([`report`]). `headroom replay` and
+//! `headroom tune` both go through here, with the engine's replay
+//! semantics (`headroom::control::Replay`) and window
+//! ([`REPLAY_WINDOW`]), the same as the firmware's replay on target.
+
+pub mod logs;
+pub mod report;
+pub mod settings;
+
+use std::path::Path;
+
+use headroom::control::settings::Layer;
+use headroom::control::Replay;
+pub use headroom::control::REPLAY_WINDOW;
+
+use crate::error::CliResult;
+use crate::logio::{self, LogReader};
+use settings::{LogSettings, Resolver};
+
+/// The replay every host command runs.
+pub type HostReplay = Replay<REPLAY_WINDOW>;
+
+/// A log opened for replay, with its settings resolved.
+pub struct OpenLog {
+    /// The records.
+    pub reader: LogReader,
+    /// The settings in force and the warnings about them.
+    pub settings: LogSettings,
+}
+
+/// Open `path` and resolve its settings (with `extra` on top of the flags).
+pub fn open(path: &Path, resolver: &Resolver, extra: Option<&Layer>) -> CliResult<OpenLog> {
+    let reader = logio::open(path)?;
+    let settings = resolver.resolve(path, reader.header(), false, extra)?;
+    Ok(OpenLog { reader, settings })
+}

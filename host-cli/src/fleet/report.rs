@@ -1,0 +1,306 @@
+//! How a replay's totals are shown: the one JSON shape and the one table of
+//! a log's or a fleet's [`Summary`], with the settings in force, used by
+//! `replay` and `tune`.
+//!
+//! JSON of one log (every key always present; `null` where a value does not
+//! exist, e.g. a loss rate without a judged packet):
+//! `log`, `settings` (`{KEY: {"value", "source"}}` for every controller
+//! setting), `warnings`, then the summary keys of [`summary_json`].
+//! JSON of a fleet: the summary keys, plus `logs`, `skipped_logs`,
+//! `devices_missing_target`, `devices_without_judged`,
+//! `worst_outage_fraction`, `worst_log`.
+
+use std::fmt::Write as _;
+
+use headroom::control::settings::{Resolved, Setting, Source, Value as SettingValue};
+use headroom::control::{EirpCap, Fleet, PowerSteps, Reason, Summary};
+use serde_json::{Map, Value};
+
+use super::settings::show;
+use crate::output::json_num;
+
+/// A setting's value in JSON: a number, a whole number, `{"uniform": dB}`
+/// or `{"table": [dBm...]}`, or `"none"` for no EIRP cap.
+pub fn value_json(v: SettingValue) -> Value {
+    match v {
+        SettingValue::Number(x) => json_num(x),
+        SettingValue::Whole(n) => n.into(),
+        SettingValue::Steps(PowerSteps::Uniform(d)) => {
+            let mut m = Map::new();
+            m.insert("uniform".into(), json_num(d.0));
+            Value::Object(m)
+        }
+        SettingValue::Steps(PowerSteps::Table(t)) => {
+            let mut m = Map::new();
+            m.insert(
+                "table".into(),
+                Value::Array(t.levels().iter().map(|l| json_num(l.0)).collect()),
+            );
+            Value::Object(m)
+        }
+        SettingValue::Cap(EirpCap::AtMost(l)) => json_num(l.0),
+        SettingValue::Cap(EirpCap::NoCap) => "none".into(),
+    }
+}
+
+/// `{KEY: {"value": ..., "source": ...}}` for every setting.
+pub fn settings_json(r: &Resolved) -> Value {
+    let mut m = Map::new();
+    for s in Setting::ALL {
+        let mut e = Map::new();
+        e.insert("value".into(), value_json(r.value(s)));
+        e.insert("source".into(), r.source(s).as_str().into());
+        m.insert(s.key().into(), Value::Object(e));
+    }
+    Value::Object(m)
+}
+
+fn opt(x: Option<f32>) -> Value {
+    x.map_or(Value::Null, json_num)
+}
+
+/// The summary keys, in their documented order.
+pub fn summary_json(s: &Summary) -> Map<String, Value> {
+    let mut m = Map::new();
+    let mut ins = |k: &str, v: Value| {
+        m.insert(k.into(), v);
+    };
+    ins("records", s.records.into());
+    ins("judged", s.judged.into());
+    ins("unjudged", s.unjudged.into());
+    ins("lost", s.lost.into());
+    ins("outage_fraction", opt(s.outage_fraction()));
+    ins("judged_at_max", s.judged_at_max.into());
+    ins("lost_at_max", s.lost_at_max.into());
+    ins("outage_fraction_below_max", opt(s.outage_below_max()));
+    ins("mean_tx_dbm", opt(s.mean_tx_dbm().map(|d| d.0)));
+    ins(
+        "saving_vs_logged_db",
+        opt(s.saving_vs_logged_db().map(|d| d.0)),
+    );
+    ins("saving_vs_max_db", opt(s.saving_vs_max_db().map(|d| d.0)));
+    ins("max_allowed_tx_dbm", json_num(s.max_allowed.0));
+    ins("max_tx_dbm_used", opt(s.max_tx_dbm_used.map(|d| d.0)));
+    ins("power_changes", s.power_changes.into());
+    let mut logged = Map::new();
+    logged.insert("judged".into(), s.logged.judged.into());
+    logged.insert("lost".into(), s.logged.lost.into());
+    logged.insert("outage_fraction".into(), opt(s.logged.outage_fraction()));
+    logged.insert(
+        "mean_tx_dbm".into(),
+        opt(s.logged.mean_tx_dbm().map(|d| d.0)),
+    );
+    logged.insert("without_readings".into(), s.logged.without_readings.into());
+    ins("logged", Value::Object(logged));
+    let mut ignored = Map::new();
+    for r in Reason::ALL.iter().filter(|r| r.is_ignored_reading()) {
+        ignored.insert(r.as_str().to_string(), s.ignored(*r).into());
+    }
+    ins("ignored_readings", Value::Object(ignored));
+    let mut sums = Map::new();
+    sums.insert("logs".into(), s.logs.into());
+    sums.insert("tx_mw_sum".into(), Value::from(s.tx_mw_sum));
+    sums.insert("max_mw_sum".into(), Value::from(s.max_mw_sum));
+    sums.insert(
+        "logged_records_with_tx".into(),
+        s.logged.records_with_tx.into(),
+    );
+    sums.insert("logged_tx_mw_sum".into(), Value::from(s.logged.tx_mw_sum));
+    sums.insert(
+        "logged_chosen_mw_sum".into(),
+        Value::from(s.logged.chosen_mw_sum),
+    );
+    ins("sums", Value::Object(sums));
+    m
+}
+
+/// One log's JSON object.
+pub fn log_json(
+    log: &str,
+    settings: &Resolved,
+    warnings: &[String],
+    s: &Summary,
+) -> Map<String, Value> {
+    let mut m = Map::new();
+    m.insert("log".into(), log.into());
+    m.insert("settings".into(), settings_json(settings));
+    m.insert(
+        "warnings".into(),
+        Value::Array(warnings.iter().map(|w| Value::from(w.as_str())).collect()),
+    );
+    m.extend(summary_json(s));
+    m
+}
+
+/// The fleet's JSON object; `names` are the logs in the order added.
+pub fn fleet_json(f: &Fleet, skipped: usize, names: &[String]) -> Map<String, Value> {
+    let mut m = Map::new();
+    m.insert("logs".into(), f.total.logs.into());
+    m.insert("skipped_logs".into(), skipped.into());
+    m.insert("devices_missing_target".into(), f.missing_target.into());
+    m.insert("devices_without_judged".into(), f.without_judged.into());
+    m.insert("worst_outage_fraction".into(), opt(f.worst.map(|w| w.0)));
+    m.insert(
+        "worst_log".into(),
+        f.worst
+            .and_then(|(_, k)| usize::try_from(k).ok())
+            .and_then(|k| names.get(k))
+            .map_or(Value::Null, |n| Value::from(n.as_str())),
+    );
+    m.extend(summary_json(&f.total));
+    m
+}
+
+fn pct(x: Option<f32>) -> String {
+    x.map_or_else(|| "n/a".into(), |x| format!("{:.3} %", 100.0 * x))
+}
+
+fn dbm(x: Option<f32>) -> String {
+    x.map_or_else(|| "n/a".into(), |x| format!("{x:.2} dBm"))
+}
+
+fn db(x: Option<f32>) -> String {
+    x.map_or_else(|| "n/a".into(), |x| format!("{x:+.2} dB"))
+}
+
+/// The settings in force, as table lines: the judging rule, the radio's
+/// facts and the start power always; the others when they are not at their
+/// default.
+pub fn settings_table(out: &mut String, r: &Resolved) {
+    let _ = writeln!(out, "settings in force (value, source):");
+    let mut hidden = 0;
+    for s in Setting::ALL {
+        let always = matches!(
+            s,
+            Setting::RequiredSnrDb
+                | Setting::TargetOutage
+                | Setting::MinTxDbm
+                | Setting::MaxTxDbm
+                | Setting::EirpCapDbm
+                | Setting::AntennaGainDbi
+                | Setting::StartTxDbm
+                | Setting::Steps
+        );
+        if !always && r.source(s) == Source::Default {
+            hidden += 1;
+            continue;
+        }
+        let v = show(s, r.value(s));
+        let source = if s == Setting::StartTxDbm && r.source(s) == Source::Default {
+            "default: the highest allowed"
+        } else {
+            r.source(s).as_str()
+        };
+        let _ = writeln!(out, "  {:<22}{:<28}{source}", s.key(), v);
+    }
+    if hidden > 0 {
+        let _ = writeln!(
+            out,
+            "  ({hidden} more settings at their defaults; --format json lists every one)"
+        );
+    }
+}
+
+/// A summary as table lines: the replay beside what the device did.
+pub fn summary_table(out: &mut String, s: &Summary) {
+    let _ = writeln!(out, "{:<24}{:<16}{}", "", "replayed", "logged (field)");
+    let row = |out: &mut String, k: &str, a: String, b: String| {
+        let _ = writeln!(out, "  {k:<22}{a:<16}{b}");
+    };
+    row(out, "judged", s.judged.to_string(), s.logged.judged.to_string());
+    row(out, "lost", s.lost.to_string(), s.logged.lost.to_string());
+    row(
+        out,
+        "outage_fraction",
+        pct(s.outage_fraction()),
+        pct(s.logged.outage_fraction()),
+    );
+    row(
+        out,
+        "mean_tx_dbm",
+        dbm(s.mean_tx_dbm().map(|d| d.0)),
+        dbm(s.logged.mean_tx_dbm().map(|d| d.0)),
+    );
+    let line = |out: &mut String, k: &str, v: String| {
+        let _ = writeln!(out, "{k:<24}{v}");
+    };
+    line(
+        out,
+        "saving_vs_logged_db",
+        format!(
+            "{}  (positive: the controller spends less than the device did)",
+            db(s.saving_vs_logged_db().map(|d| d.0))
+        ),
+    );
+    line(
+        out,
+        "saving_vs_max_db",
+        format!(
+            "{}  (against always sending at the highest allowed power, {:.2} dBm)",
+            db(s.saving_vs_max_db().map(|d| d.0)),
+            s.max_allowed.0
+        ),
+    );
+    line(
+        out,
+        "lost_at_max",
+        format!(
+            "{} of {} judged packets sent at the highest allowed power (out of reach)",
+            s.lost_at_max, s.judged_at_max
+        ),
+    );
+    line(
+        out,
+        "outage_below_max",
+        format!(
+            "{}  (loss rate of the other judged packets)",
+            pct(s.outage_below_max())
+        ),
+    );
+    line(out, "records", s.records.to_string());
+    line(
+        out,
+        "unjudged",
+        format!(
+            "{} ({} sent with no readings back: the packet or its report was lost in the field)",
+            s.unjudged, s.logged.without_readings
+        ),
+    );
+    line(out, "power_changes", s.power_changes.to_string());
+    line(
+        out,
+        "max_tx_dbm_used",
+        dbm(s.max_tx_dbm_used.map(|d| d.0)),
+    );
+    let ignored: Vec<String> = Reason::ALL
+        .iter()
+        .filter(|r| r.is_ignored_reading())
+        .map(|r| format!("{} {}", r.as_str().trim_start_matches("ignored_"), s.ignored(*r)))
+        .collect();
+    line(out, "ignored_readings", ignored.join(", "));
+}
+
+/// The fleet's lines (after its summary).
+pub fn fleet_table(out: &mut String, f: &Fleet, skipped: usize, names: &[String]) {
+    let _ = writeln!(out, "{:<24}{}", "logs", f.total.logs);
+    if skipped > 0 {
+        let _ = writeln!(out, "{:<24}{skipped} (see the warnings)", "skipped_logs");
+    }
+    let worst = f.worst.map_or_else(
+        || "n/a".to_string(),
+        |(w, k)| {
+            let name = usize::try_from(k)
+                .ok()
+                .and_then(|k| names.get(k))
+                .map_or("", String::as_str);
+            format!("{} ({name})", pct(Some(w)))
+        },
+    );
+    let _ = writeln!(out, "{:<24}{worst}", "worst_outage_fraction");
+    let _ = writeln!(
+        out,
+        "{:<24}{} of {} logs (each against its own target)",
+        "devices_missing_target", f.missing_target, f.total.logs
+    );
+    summary_table(out, &f.total);
+}
