@@ -8,8 +8,7 @@
 use headroom::control::Observation;
 use headroom::control::{
     Controller, ControllerConfig, Decision, EirpCap, LevelTable, Outcome, PowerSteps, Replay,
-    MAX_LEVELS,
-    SETTING_LIMIT_DB,
+    MAX_LEVELS, SETTING_LIMIT_DB,
 };
 use headroom::record::codec::{
     decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder, MAX_FRAME,
@@ -567,7 +566,8 @@ pub fn check_power(cfg: &ControllerConfig, tx: Dbm, prev: Option<Dbm>, what: &st
         cfg.max_tx_dbm.0
     );
     assert!(
-        p + cfg.antenna_gain_dbi.0 <= cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0) + POWER_EPS,
+        p + cfg.antenna_gain_dbi.0
+            <= cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0) + POWER_EPS,
         "{what}: EIRP {} dBm above the cap {}",
         p + cfg.antenna_gain_dbi.0,
         cfg.eirp_cap_dbm.level().map_or(f32::INFINITY, |c| c.0)

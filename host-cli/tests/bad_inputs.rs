@@ -90,7 +90,11 @@ const LINK: &str = "examples/links/orchard-sensor.toml";
 const SCENARIO: &str = "examples/scenarios/orchard-868.toml";
 
 fn small_csv() -> Vec<u8> {
-    text("t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,14,-90,-117\n1000,14,-91,-117\n2000,13,-92,-116\n3000,13,-90,-117\n")
+    text("# headroom-log 1.1\n# required_snr_db: 8\nt_ms,tx_dbm,rssi_dbm,noise_dbm\n0,14,-90,-117\n1000,14,-91,-117\n2000,13,-92,-116\n3000,13,-90,-117\n")
+}
+
+fn csv_without_requirement() -> Vec<u8> {
+    text("t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,14,-90,-117\n1000,14,-91,-117\n")
 }
 
 fn cases() -> Vec<Case> {
@@ -440,6 +444,22 @@ fn cases() -> Vec<Case> {
             finding: None,
         },
         // --- Controller settings (replay) ---
+        Case {
+            input: "replay: no required SNR from a flag, the header or a config file",
+            files: vec![("log.csv", csv_without_requirement())],
+            args: &["replay", "log.csv"],
+            exit: 2,
+            names: &["log.csv", "required SNR", "--required-snr-db"],
+            finding: None,
+        },
+        Case {
+            input: "replay: an EIRP cap that is neither a power nor none",
+            files: vec![("log.csv", small_csv())],
+            args: &["replay", "log.csv", "--eirp-cap-dbm", "loud"],
+            exit: 2,
+            names: &["--eirp-cap-dbm", "none"],
+            finding: None,
+        },
         Case {
             input: "controller: min_tx_dbm above max_tx_dbm",
             files: vec![("log.csv", small_csv())],

@@ -97,13 +97,27 @@ const SUMMARY_KEYS: [&str; 19] = [
 
 #[test]
 fn the_demo_replays_from_its_header_alone_with_sources() {
-    let o = headroom(&[&example("examples/logs/orchard-868.csv"), "--format", "json"]);
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--format",
+        "json",
+    ]);
     let v = json(&o);
-    let mut top: Vec<&str> = v.as_object().expect("object").keys().map(String::as_str).collect();
+    let mut top: Vec<&str> = v
+        .as_object()
+        .expect("object")
+        .keys()
+        .map(String::as_str)
+        .collect();
     top.sort_unstable();
     assert_eq!(top, ["fleet", "logs"]);
     let l = one(&o);
-    let mut keys: Vec<&str> = l.as_object().expect("object").keys().map(String::as_str).collect();
+    let mut keys: Vec<&str> = l
+        .as_object()
+        .expect("object")
+        .keys()
+        .map(String::as_str)
+        .collect();
     keys.sort_unstable();
     let mut want: Vec<&str> = SUMMARY_KEYS.to_vec();
     want.push("warnings");
@@ -208,7 +222,10 @@ fn a_flag_beats_the_header_which_beats_the_config() {
     let o = headroom(&[&log, "--start-tx-dbm", "25dBm"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     let e = stderr(&o);
-    assert!(e.contains("start_tx_dbm") && e.contains("25") && e.contains("20"), "{e}");
+    assert!(
+        e.contains("start_tx_dbm") && e.contains("25") && e.contains("20"),
+        "{e}"
+    );
 }
 
 #[test]
@@ -232,7 +249,11 @@ fn the_shipped_template_keeps_each_logs_radio() {
 fn the_logged_policy_is_judged_by_the_same_rule() {
     let dir = tempfile::tempdir().expect("tempdir");
     let log = small_log(dir.path());
-    let l = one(&headroom(&[log.to_str().expect("utf-8"), "--format", "json"]));
+    let l = one(&headroom(&[
+        log.to_str().expect("utf-8"),
+        "--format",
+        "json",
+    ]));
     assert_eq!(l["records"], 6);
     // NaN, missing and implausible (−400 dBm) readings cannot be judged.
     assert_eq!(l["judged"], 3);
@@ -283,7 +304,10 @@ fn decisions_csv_and_binary_one_per_record_and_no_overwrite() {
     );
     assert_eq!(lines.len(), 7);
     let first: Vec<&str> = lines[1].split(',').collect();
-    assert_eq!(&first[..6], &["0", "14", "22", "delivered", "delivered", "1"]);
+    assert_eq!(
+        &first[..6],
+        &["0", "14", "22", "delivered", "delivered", "1"]
+    );
     assert_eq!(first[8], "warm_up");
     assert!(lines[6].contains(",lost,lost,"), "{}", lines[6]);
     // Refused without --force, the file untouched.
@@ -299,7 +323,11 @@ fn decisions_csv_and_binary_one_per_record_and_no_overwrite() {
     assert_eq!(bytes.iter().filter(|&&b| b == 0).count(), 6, "six frames");
     assert!(!bytes.starts_with(b"t_ms"));
     // Any other name is refused before the work.
-    let o = headroom(&[&log_s, "--out", dir.path().join("d.txt").to_str().expect("utf-8")]);
+    let o = headroom(&[
+        &log_s,
+        "--out",
+        dir.path().join("d.txt").to_str().expect("utf-8"),
+    ]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains(".hrlog"), "{}", stderr(&o));
     assert_eq!(
@@ -395,7 +423,11 @@ fn plot_svg_shows_the_rule_and_the_limits() {
     let o = headroom(&[log_s, "--plot", svg_s]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains("already exists"), "{}", stderr(&o));
-    let o = headroom(&[log_s, "--plot", dir.path().join("r.gif").to_str().expect("utf-8")]);
+    let o = headroom(&[
+        log_s,
+        "--plot",
+        dir.path().join("r.gif").to_str().expect("utf-8"),
+    ]);
     assert_eq!(o.status.code(), Some(2));
 }
 
@@ -430,7 +462,11 @@ fn jsonl_one_line_per_log_each_a_separate_device() {
     for (line, path) in lines.iter().zip([&a, &b]) {
         assert_eq!(line["log"], path.to_string_lossy().as_ref());
         // Alone, the same object: no state carried between devices.
-        let alone = one(&headroom(&[path.to_str().expect("utf-8"), "--format", "json"]));
+        let alone = one(&headroom(&[
+            path.to_str().expect("utf-8"),
+            "--format",
+            "json",
+        ]));
         assert_eq!(line, &alone);
     }
     assert_eq!(lines[0]["records"], 3);
@@ -441,7 +477,10 @@ fn jsonl_one_line_per_log_each_a_separate_device() {
 fn several_logs_carry_a_fleet_total_of_linear_sums() {
     let dir = tempfile::tempdir().expect("tempdir");
     let (a, b) = fleet_dir(dir.path());
-    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    let (a, b) = (
+        a.to_string_lossy().into_owned(),
+        b.to_string_lossy().into_owned(),
+    );
     let v = json(&headroom(&[&a, &b, "--format", "json"]));
     let logs = v["logs"].as_array().expect("logs");
     assert_eq!(logs.len(), 2);
@@ -455,7 +494,10 @@ fn several_logs_carry_a_fleet_total_of_linear_sums() {
     let lost = sum("lost") as f64;
     let f = fleet["outage_fraction"].as_f64().expect("fraction");
     assert!((f - lost / sum("judged") as f64).abs() < 1e-6, "{f}");
-    let mw: f64 = logs.iter().map(|l| l["sums"]["tx_mw_sum"].as_f64().expect("mw")).sum();
+    let mw: f64 = logs
+        .iter()
+        .map(|l| l["sums"]["tx_mw_sum"].as_f64().expect("mw"))
+        .sum();
     let mean = fleet["mean_tx_dbm"].as_f64().expect("mean");
     assert!((mean - 10.0 * (mw / sum("records") as f64).log10()).abs() < 1e-4);
     // The worst device and the devices that miss their target (1 %).
@@ -464,7 +506,10 @@ fn several_logs_carry_a_fleet_total_of_linear_sums() {
     let o = headroom(&[&a, &b]);
     assert!(o.status.success(), "{}", stderr(&o));
     let t = stdout(&o);
-    assert!(t.contains(&format!("== {a}")) && t.contains(&format!("== {b}")), "{t}");
+    assert!(
+        t.contains(&format!("== {a}")) && t.contains(&format!("== {b}")),
+        "{t}"
+    );
     assert!(t.contains("== fleet (2 logs)"), "{t}");
     assert!(t.contains("devices_missing_target  1 of 2"), "{t}");
 }
@@ -473,7 +518,10 @@ fn several_logs_carry_a_fleet_total_of_linear_sums() {
 fn fleet_refusals_and_skipped_entries() {
     let dir = tempfile::tempdir().expect("tempdir");
     let (a, b) = fleet_dir(dir.path());
-    let (a, b) = (a.to_string_lossy().into_owned(), b.to_string_lossy().into_owned());
+    let (a, b) = (
+        a.to_string_lossy().into_owned(),
+        b.to_string_lossy().into_owned(),
+    );
     for flag in ["--out", "--plot"] {
         let dest = dir.path().join("x.svg");
         let o = headroom(&[&a, &b, flag, dest.to_str().expect("utf-8")]);

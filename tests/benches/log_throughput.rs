@@ -14,13 +14,14 @@ use std::io::Read;
 use std::process::ExitCode;
 use std::time::Instant;
 
+use headroom::control::REPLAY_WINDOW;
 use headroom::control::{ControllerConfig, Replay};
 use headroom::record::codec::{Event, Frame, FrameDecoder, MAX_FRAME};
 
 fn pass(path: &str, replay: bool) -> Result<u64, String> {
     let mut f = File::open(path).map_err(|e| format!("cannot open {path}: {e}"))?;
     let mut dec = FrameDecoder::<MAX_FRAME>::new();
-    let mut rp = Replay::<32>::new(ControllerConfig::default())
+    let mut rp = Replay::<REPLAY_WINDOW>::new(ControllerConfig::default())
         .map_err(|e| format!("replay settings: {e}"))?;
     let mut buf = vec![0u8; 64 * 1024];
     let mut records = 0u64;

@@ -3,6 +3,7 @@
 //! power it chooses is finite, inside the radio's range, within the EIRP
 //! cap, on the supported grid, and moves at most the step limit per update.
 
+use headroom::control::REPLAY_WINDOW;
 use headroom::control::{
     Controller, ControllerConfig, EirpCap, LevelTable, Observation, Outcome, PowerSteps, Replay,
 };
@@ -266,7 +267,7 @@ proptest! {
         ),
     ) {
         prop_assume!(cfg.validate().is_ok());
-        let Ok(mut r) = Replay::<32>::new(cfg) else { return Ok(()) };
+        let Ok(mut r) = Replay::<REPLAY_WINDOW>::new(cfg) else { return Ok(()) };
         let mut prev = r.controller().tx().0;
         let mut t: u64 = 0;
         let (mut lost, mut unjudged) = (0u64, 0u64);

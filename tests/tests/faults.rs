@@ -15,6 +15,7 @@
 
 use std::path::PathBuf;
 
+use headroom::control::REPLAY_WINDOW;
 use headroom::control::{ControllerConfig, Outcome, Reason, Replay, ReplayStep};
 use headroom::record::LogRecord;
 use headroom::sim::{ChannelConfig, Fault, FaultKind, PowerPattern, Synth, MAX_FAULTS};
@@ -63,7 +64,7 @@ fn replay(sc: &Scenario) -> (Vec<LogRecord>, Vec<ReplayStep>) {
     let mut synth =
         Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, SEED)
             .expect("scenario is valid");
-    let mut rp = Replay::<32>::new(config()).expect("controller settings are valid");
+    let mut rp = Replay::<REPLAY_WINDOW>::new(config()).expect("controller settings are valid");
     let mut records = Vec::with_capacity(RECORDS);
     let mut steps = Vec::with_capacity(RECORDS);
     for _ in 0..RECORDS {
@@ -188,7 +189,7 @@ fn kind_name(k: &FaultKind) -> String {
 fn controller_invariants_hold_through_every_fault() {
     let cfg = config();
     for run in runs() {
-        let rp = Replay::<32>::new(cfg).expect("valid");
+        let rp = Replay::<REPLAY_WINDOW>::new(cfg).expect("valid");
         let c = rp.controller();
         let (lo, hi) = c.limits();
         for (k, s) in run.steps.iter().enumerate() {

@@ -32,6 +32,4 @@ pub use config::{
 };
 pub use controller::{Controller, Decision, Mode, Observation};
 pub use reason::Reason;
-pub use replay::{
-    Fleet, LoggedTotals, Outcome, Replay, ReplayStep, Summary, REPLAY_WINDOW,
-};
+pub use replay::{Fleet, LoggedTotals, Outcome, Replay, ReplayStep, Summary, REPLAY_WINDOW};

@@ -547,9 +547,10 @@ impl<const W: usize> Replay<W> {
     /// floor).
     pub fn loss_threshold(&self, rec: &LogRecord) -> Option<Dbm> {
         let noise = rec.noise_dbm.filter(|n| n.is_finite())?;
-        Some(Dbm(
-            noise + Controller::<W>::db_of_fine(self.controller.required_fine()),
-        ))
+        Some(Dbm(noise
+            + Controller::<W>::db_of_fine(
+                self.controller.required_fine(),
+            )))
     }
 
     /// The totals so far.

@@ -442,30 +442,28 @@ fn write(c: &mut ControllerConfig, s: Setting, v: Value) -> Result<(), ResolveEr
         })
     };
     match (s.kind(), v) {
-        (Kind::Db | Kind::Dbm | Kind::Dbi | Kind::Probability, Value::Number(x)) => {
-            match s {
-                S::RequiredSnrDb => c.required_snr_db = Db(x),
-                S::TargetOutage => c.target_outage = x,
-                S::MinTxDbm => c.min_tx_dbm = Dbm(x),
-                S::MaxTxDbm => c.max_tx_dbm = Dbm(x),
-                S::AntennaGainDbi => c.antenna_gain_dbi = Dbi(x),
-                S::FarAntennaGainDbi => c.far_antenna_gain_dbi = Dbi(x),
-                S::StartTxDbm => c.start_tx_dbm = Dbm(x),
-                S::MaxStepUpDb => c.max_step_up_db = Db(x),
-                S::MaxStepDownDb => c.max_step_down_db = Db(x),
-                S::DeadbandDb => c.deadband_db = Db(x),
-                S::MarginStepDb => c.margin_step_db = Db(x),
-                S::MarginMinDb => c.margin_min_db = Db(x),
-                S::MarginMaxDb => c.margin_max_db = Db(x),
-                S::RssiMinDbm => c.rssi_min_dbm = Dbm(x),
-                S::RssiMaxDbm => c.rssi_max_dbm = Dbm(x),
-                S::RssiSaturationDbm => c.rssi_saturation_dbm = Dbm(x),
-                S::NoiseMinDbm => c.noise_min_dbm = Dbm(x),
-                S::NoiseMaxDbm => c.noise_max_dbm = Dbm(x),
-                S::DefaultNoiseDbm => c.default_noise_dbm = Dbm(x),
-                _ => return Err(wrong),
-            }
-        }
+        (Kind::Db | Kind::Dbm | Kind::Dbi | Kind::Probability, Value::Number(x)) => match s {
+            S::RequiredSnrDb => c.required_snr_db = Db(x),
+            S::TargetOutage => c.target_outage = x,
+            S::MinTxDbm => c.min_tx_dbm = Dbm(x),
+            S::MaxTxDbm => c.max_tx_dbm = Dbm(x),
+            S::AntennaGainDbi => c.antenna_gain_dbi = Dbi(x),
+            S::FarAntennaGainDbi => c.far_antenna_gain_dbi = Dbi(x),
+            S::StartTxDbm => c.start_tx_dbm = Dbm(x),
+            S::MaxStepUpDb => c.max_step_up_db = Db(x),
+            S::MaxStepDownDb => c.max_step_down_db = Db(x),
+            S::DeadbandDb => c.deadband_db = Db(x),
+            S::MarginStepDb => c.margin_step_db = Db(x),
+            S::MarginMinDb => c.margin_min_db = Db(x),
+            S::MarginMaxDb => c.margin_max_db = Db(x),
+            S::RssiMinDbm => c.rssi_min_dbm = Dbm(x),
+            S::RssiMaxDbm => c.rssi_max_dbm = Dbm(x),
+            S::RssiSaturationDbm => c.rssi_saturation_dbm = Dbm(x),
+            S::NoiseMinDbm => c.noise_min_dbm = Dbm(x),
+            S::NoiseMaxDbm => c.noise_max_dbm = Dbm(x),
+            S::DefaultNoiseDbm => c.default_noise_dbm = Dbm(x),
+            _ => return Err(wrong),
+        },
         (Kind::Count, Value::Whole(x)) => match s {
             S::MinReadings => c.min_readings = count(x)?,
             S::SpreadMemory => c.spread_memory = count(x)?,
@@ -552,6 +550,14 @@ pub fn resolve(
         config: cfg,
         sources,
     })
+}
+
+/// The settings of a log replayed as it is, with nothing but its header
+/// and the built-in defaults: what the firmware's replay on target uses,
+/// and the host's `headroom replay LOG` without flags or settings file.
+pub fn for_log(header: Option<&LogHeader>) -> Result<Resolved, ResolveError> {
+    let h = header.map_or_else(Layer::empty, Layer::from_header);
+    resolve(&Layer::empty(), &h, &Layer::empty(), &Layer::defaults())
 }
 
 #[cfg(test)]

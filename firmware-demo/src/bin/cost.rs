@@ -22,8 +22,8 @@ use headroom_firmware_demo::clock::{ticks_between, ticks_to_milli_instructions, 
 use headroom_firmware_demo::radio::{Radio, SimRadio};
 use headroom_firmware_demo::{board, host, scenario, stack};
 
-/// Readings in the controller's window (the size the targets are set for).
-const WINDOW: usize = 32;
+/// The replay window, the engine's one value.
+use headroom::control::REPLAY_WINDOW as WINDOW;
 
 /// Observations timed per pass (small enough for the microbit's 16 KiB RAM).
 const N: usize = 128;

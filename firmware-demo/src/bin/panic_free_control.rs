@@ -17,7 +17,8 @@ use headroom::record::LogRecord;
 use headroom::units::{Db, Dbm};
 use headroom_firmware_demo::{host, probe_f32};
 
-const WINDOW: usize = 32;
+/// The replay window, the engine's one value.
+use headroom::control::REPLAY_WINDOW as WINDOW;
 
 #[entry]
 fn main() -> ! {

@@ -1,8 +1,9 @@
 //! Replay on target: reads a framed binary field log from the host
 //! (semihosting), runs it through the engine's replay semantics
 //! ([`headroom::control::Replay`], the same code as `headroom replay`) with
-//! the same controller settings, and writes one decision frame per record
-//! to a host file. `cargo xtask firmware` compares those frames with the
+//! the settings the engine resolves from the log's header
+//! ([`headroom::control::settings::for_log`], the same rule as the host),
+//! and writes one decision frame per record to a host file. `cargo xtask firmware` compares those frames with the
 //! host's `headroom replay` output, record by record.
 //!
 //! Usage (under QEMU): `-append "LOG.hrlog DECISIONS.hrlog"`; prints a
@@ -13,14 +14,11 @@
 use cortex_m_rt::entry;
 use cortex_m_semihosting::hprintln;
 
-use headroom::control::{ControllerConfig, Replay};
+use headroom::control::{settings, Replay, REPLAY_WINDOW};
 use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogHeader};
 use headroom_firmware_demo::host::{self, File, HostError, Mode};
 use headroom_firmware_demo::stack;
-
-/// Readings in the controller's window: the same as the host's replay.
-const WINDOW: usize = 32;
 
 /// Bytes read from the host per call.
 const READ_CHUNK: usize = 256;
@@ -45,7 +43,7 @@ fn main() -> ! {
 enum Failure {
     Usage,
     Host(HostError),
-    Config,
+    Config(settings::ResolveError),
     Encode(CodecError),
 }
 
@@ -54,7 +52,7 @@ impl core::fmt::Display for Failure {
         match self {
             Failure::Usage => f.write_str("usage: replay LOG.hrlog DECISIONS.hrlog"),
             Failure::Host(e) => f.write_str(e.as_str()),
-            Failure::Config => f.write_str("controller settings refused"),
+            Failure::Config(e) => write!(f, "controller settings: {e}"),
             Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
         }
     }
@@ -123,8 +121,13 @@ fn run() -> Result<(), Failure> {
         bytes: 0,
     };
 
-    let mut replay =
-        Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node()).map_err(|_| Failure::Config)?;
+    // Set up by the log's header frame, or without a header when a record
+    // comes first (the header was lost): as the host does.
+    let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
+    let start = |h: Option<&LogHeader>| -> Result<Replay<REPLAY_WINDOW>, Failure> {
+        let r = settings::for_log(h).map_err(Failure::Config)?;
+        Replay::new(r.config).map_err(|e| Failure::Config(settings::ResolveError::Invalid(e)))
+    };
     let mut enc = Encoder::new();
     let mut frame = [0u8; MAX_FRAME];
     out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
@@ -139,6 +142,10 @@ fn run() -> Result<(), Failure> {
                 frame: Frame::Record(rec),
                 ..
             } => {
+                let replay = match replay.as_mut() {
+                    Some(r) => r,
+                    None => replay.insert(start(None)?),
+                };
                 let s = replay.step(&rec);
                 let d = DecisionRecord {
                     t_ms: s.t_ms,
@@ -149,9 +156,17 @@ fn run() -> Result<(), Failure> {
                 out.push(enc.decision(&d, &mut frame)?)?;
             }
             Event::Frame {
-                frame: Frame::Header { .. },
+                frame: Frame::Header { header, .. },
                 ..
-            } => {}
+            } => {
+                // The first header sets the replay up; a later one is only
+                // counted (the host reports it).
+                if replay.is_none() {
+                    replay = Some(start(Some(&header))?);
+                } else {
+                    other += 1;
+                }
+            }
             Event::Frame { .. } => other += 1,
             Event::Damaged { .. } => damaged += 1,
         }
@@ -172,6 +187,10 @@ fn run() -> Result<(), Failure> {
     }
     out.flush()?;
 
+    let Some(replay) = replay else {
+        hprintln!("replay: {} bytes in, no record", log_len);
+        return Ok(());
+    };
     let s = replay.summary();
     hprintln!(
         "replay: {} bytes in, {} records, {} lost of {} judged, {} unjudged, {} damaged, {} other frames, {} bytes out, stack {} of {} bytes",

@@ -228,9 +228,8 @@ fn replay_log(
         reader.set_strict(true);
     }
     let cfg = settings.resolved.config;
-    let mut replay = HostReplay::new(cfg).map_err(|e| {
-        CliError::Input(format!("{}: controller settings: {e}", path.display()))
-    })?;
+    let mut replay = HostReplay::new(cfg)
+        .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
     let mut out = match &args.out {
         Some(p) => Some(DecisionWriter::create(p, args.force)?),
         None => None,
@@ -244,7 +243,8 @@ fn replay_log(
         }
         if let Some(s) = series.as_mut() {
             push_series(s, &rec, &step);
-            s.threshold_dbm.push(replay.loss_threshold(&rec).map(|d| d.0));
+            s.threshold_dbm
+                .push(replay.loss_threshold(&rec).map(|d| d.0));
         }
     }
     for d in reader.damage() {
@@ -268,7 +268,10 @@ fn replay_log(
         }
         let (lo, hi) = replay.controller().limits();
         s.limits_dbm = Some((lo.0, hi.0));
-        s.cap_tx_dbm = cfg.eirp_cap_dbm.level().map(|c| c.0 - cfg.antenna_gain_dbi.0);
+        s.cap_tx_dbm = cfg
+            .eirp_cap_dbm
+            .level()
+            .map(|c| c.0 - cfg.antenna_gain_dbi.0);
         let name = path.file_name().map_or_else(
             || path.display().to_string(),
             |n| n.to_string_lossy().into_owned(),
@@ -328,7 +331,10 @@ impl DecisionWriter {
             let frame = enc
                 .decision(&d, &mut buf[..])
                 .map_err(|e| CliError::Io(format!("cannot encode a decision frame: {e}")))?;
-            return self.file.write_all(frame).map_err(|e| self.file.io_error(e));
+            return self
+                .file
+                .write_all(frame)
+                .map_err(|e| self.file.io_error(e));
         }
         let num = |x: Option<f32>| x.map_or(String::new(), |v| format!("{v}"));
         let logged = match s.logged_lost {

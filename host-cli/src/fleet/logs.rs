@@ -35,8 +35,9 @@ pub fn expand(args: &[PathBuf], strict: bool) -> CliResult<LogList> {
             list.logs.push(a.clone());
             continue;
         }
-        let listing_error =
-            |e: std::io::Error| CliError::Io(format!("{}: cannot list the directory: {e}", a.display()));
+        let listing_error = |e: std::io::Error| {
+            CliError::Io(format!("{}: cannot list the directory: {e}", a.display()))
+        };
         let mut found = Vec::new();
         for e in fs::read_dir(a).map_err(listing_error)? {
             let p = e.map_err(listing_error)?.path();

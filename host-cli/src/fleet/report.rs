@@ -203,11 +203,16 @@ pub fn settings_table(out: &mut String, r: &Resolved) {
 
 /// A summary as table lines: the replay beside what the device did.
 pub fn summary_table(out: &mut String, s: &Summary) {
-    let _ = writeln!(out, "{:<24}{:<16}{}", "", "replayed", "logged (field)");
+    let _ = writeln!(out, "{:<24}{:<16}logged (field)", "", "replayed");
     let row = |out: &mut String, k: &str, a: String, b: String| {
         let _ = writeln!(out, "  {k:<22}{a:<16}{b}");
     };
-    row(out, "judged", s.judged.to_string(), s.logged.judged.to_string());
+    row(
+        out,
+        "judged",
+        s.judged.to_string(),
+        s.logged.judged.to_string(),
+    );
     row(out, "lost", s.lost.to_string(), s.logged.lost.to_string());
     row(
         out,
@@ -267,15 +272,17 @@ pub fn summary_table(out: &mut String, s: &Summary) {
         ),
     );
     line(out, "power_changes", s.power_changes.to_string());
-    line(
-        out,
-        "max_tx_dbm_used",
-        dbm(s.max_tx_dbm_used.map(|d| d.0)),
-    );
+    line(out, "max_tx_dbm_used", dbm(s.max_tx_dbm_used.map(|d| d.0)));
     let ignored: Vec<String> = Reason::ALL
         .iter()
         .filter(|r| r.is_ignored_reading())
-        .map(|r| format!("{} {}", r.as_str().trim_start_matches("ignored_"), s.ignored(*r)))
+        .map(|r| {
+            format!(
+                "{} {}",
+                r.as_str().trim_start_matches("ignored_"),
+                s.ignored(*r)
+            )
+        })
         .collect();
     line(out, "ignored_readings", ignored.join(", "));
 }

@@ -9,7 +9,7 @@
 
 use std::path::{Path, PathBuf};
 
-use headroom::control::settings::{self, Kind, Layer, Resolved, ResolveError, Setting, Value};
+use headroom::control::settings::{self, Kind, Layer, ResolveError, Resolved, Setting, Value};
 use headroom::control::{EirpCap, PowerSteps};
 use headroom::record::LogHeader;
 use headroom::units::Db;
@@ -157,8 +157,8 @@ pub fn one_line(s: &str) -> String {
 
 /// A settings file as a layer. Unknown keys are refused, with the known ones.
 pub fn load_config(path: &Path) -> CliResult<Layer> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let text =
+        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
     parse_config(&text).map_err(|e| CliError::arg("--config", format!("{}: {e}", path.display())))
 }
 
@@ -222,9 +222,7 @@ impl SettingArgs {
                 ));
             }
             let v = parse_value(s, v).map_err(|e| CliError::arg("--set", format!("{k}: {e}")))?;
-            layer
-                .set(s, v)
-                .map_err(|e| CliError::arg("--set", e))?;
+            layer.set(s, v).map_err(|e| CliError::arg("--set", e))?;
         }
         Ok(layer)
     }
@@ -289,9 +287,7 @@ impl Resolver {
         if let Some(x) = extra {
             for s in Setting::ALL {
                 if let Some(v) = x.get(s) {
-                    flags
-                        .set(s, v)
-                        .map_err(|e| CliError::arg("--sweep", e))?;
+                    flags.set(s, v).map_err(|e| CliError::arg("--sweep", e))?;
                 }
             }
         }
@@ -331,10 +327,7 @@ impl Resolver {
                 fell_back.join(", ")
             ));
         }
-        Ok(LogSettings {
-            resolved,
-            warnings,
-        })
+        Ok(LogSettings { resolved, warnings })
     }
 }
 
@@ -415,10 +408,7 @@ mod tests {
         assert_eq!(l.get(Setting::MaxTxDbm), Some(Value::Number(20.0)));
         assert_eq!(l.get(Setting::MinTxDbm), Some(Value::Number(-9.0)));
         assert_eq!(l.get(Setting::TargetOutage), Some(Value::Number(0.02)));
-        assert_eq!(
-            l.get(Setting::EirpCapDbm),
-            Some(Value::Cap(EirpCap::NoCap))
-        );
+        assert_eq!(l.get(Setting::EirpCapDbm), Some(Value::Cap(EirpCap::NoCap)));
         assert_eq!(
             l.get(Setting::Steps),
             Some(Value::Steps(PowerSteps::Uniform(Db(2.0))))

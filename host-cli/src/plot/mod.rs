@@ -269,7 +269,19 @@ mod tests {
         let dir = tempfile::tempdir().expect("temp dir");
         let pts = sample_pareto();
         let svg = dir.path().join("p.svg");
-        pareto_plot(&svg, false, "Tuning the orchard controller", &pts, &FrontMarks { front: vec![0], best: Some(0), default: Some(1) }, 0.01).expect("svg");
+        pareto_plot(
+            &svg,
+            false,
+            "Tuning the orchard controller",
+            &pts,
+            &FrontMarks {
+                front: vec![0],
+                best: Some(0),
+                default: Some(1),
+            },
+            0.01,
+        )
+        .expect("svg");
         let texts = svg_texts(&svg);
         for needle in [
             "mean transmit power (dBm)",
@@ -280,7 +292,15 @@ mod tests {
             assert!(texts.contains(needle), "no '{needle}' in the SVG");
         }
         let png = dir.path().join("p.png");
-        pareto_plot(&png, false, "Tuning the orchard controller", &pts, &FrontMarks::default(), 0.01).expect("png");
+        pareto_plot(
+            &png,
+            false,
+            "Tuning the orchard controller",
+            &pts,
+            &FrontMarks::default(),
+            0.01,
+        )
+        .expect("png");
         assert_eq!(png_size(&png), (1000, 640));
     }
 

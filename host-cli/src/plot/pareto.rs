@@ -209,11 +209,10 @@ impl Figure for ParetoFigure {
         }
 
         if let Some(d) = self.default.and_then(|k| self.points.get(k)) {
-            chart
-                .draw_series(std::iter::once(Rectangle::new(
-                    [(d.tx_dbm, d.loss_pct), (d.tx_dbm, d.loss_pct)],
-                    TARGET.stroke_width(2),
-                )))?;
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [(d.tx_dbm, d.loss_pct), (d.tx_dbm, d.loss_pct)],
+                TARGET.stroke_width(2),
+            )))?;
             let (px, py) = chart.backend_coord(&(d.tx_dbm, d.loss_pct));
             root.draw(&Rectangle::new(
                 [(px - 9, py - 9), (px + 9, py + 9)],
@@ -258,8 +257,8 @@ mod tests {
         let dir = tempfile::tempdir().expect("temp dir");
         let f = dir.path().join("p.svg");
         let m = FrontMarks::default();
-        let e = pareto_plot(&f, false, "t", &[(10.0, 1.5, "a", false)], &m, 0.01)
-            .expect_err("refused");
+        let e =
+            pareto_plot(&f, false, "t", &[(10.0, 1.5, "a", false)], &m, 0.01).expect_err("refused");
         assert!(e.to_string().contains("'a'"), "{e}");
         let e = pareto_plot(&f, false, "t", &[(f32::NAN, 0.1, "b", false)], &m, 0.01)
             .expect_err("refused");

@@ -301,7 +301,11 @@ pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries)
         line("noise floor", NOISE, &s.noise_floor_dbm),
         line("received power, logged", LOGGED, &s.logged_rx_dbm),
         line("received power, replayed", REPLAYED, &s.replayed_rx_dbm),
-        line("loss threshold (noise + required SNR)", LOST, &s.threshold_dbm),
+        line(
+            "loss threshold (noise + required SNR)",
+            LOST,
+            &s.threshold_dbm,
+        ),
     ]
     .into_iter()
     .flatten()
@@ -482,9 +486,12 @@ impl Figure for ReplayFigure {
         }
         // The limits in force, dashed: the radio's range and the EIRP cap.
         let marks = [
-            self.limits.map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
-            self.limits.map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
-            self.cap.map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
+            self.limits
+                .map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
+            self.limits
+                .map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
+            self.cap
+                .map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
         ];
         for (level, label, colour) in marks.into_iter().flatten() {
             let x_end = self.x_max;
@@ -495,9 +502,12 @@ impl Figure for ReplayFigure {
                     colour.stroke_width(1),
                 )
             });
-            chart.draw_series(dashes)?.label(label).legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
-            });
+            chart
+                .draw_series(dashes)?
+                .label(label)
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
+                });
         }
         if let Some(l) = &self.margin {
             let mut first = true;

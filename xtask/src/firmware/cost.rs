@@ -5,8 +5,8 @@ use std::collections::HashMap;
 
 use super::{Board, Ctx};
 
-/// Readings in the controller window the firmware measures.
-pub const WINDOW: usize = 32;
+/// Readings in the controller window the firmware measures: the engine's.
+pub const WINDOW: usize = headroom::control::REPLAY_WINDOW;
 
 /// What the `cost` firmware reported.
 #[derive(Debug, Clone, Copy)]

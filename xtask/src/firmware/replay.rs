@@ -13,15 +13,12 @@ use std::fs;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use headroom::control::{ControllerConfig, Outcome, Reason, Replay};
+use headroom::control::{settings, Outcome, Reason, Replay, REPLAY_WINDOW};
 use headroom::record::codec::{Event, Frame, FrameDecoder};
 use headroom::record::DecisionRecord;
 
 use super::{Ctx, BOARDS};
 use crate::proc::{run_capture, run_inherit, show};
-
-/// Readings in the controller window: the firmware's and the host CLI's.
-const WINDOW: usize = 32;
 
 /// Seed and length of the logs made from the scenarios (the fault
 /// scenarios inject their faults from record 2000 on).
@@ -72,21 +69,10 @@ fn check_log(
     let engine = engine_replay(&bytes)?;
 
     let csv = dir.join(format!("{name}.decisions.csv"));
-    // Every setting from the file (the engine's defaults), so that the
-    // log header's radio fields are not applied: the firmware uses
-    // ControllerConfig::sub_ghz_node() as it is.
-    let config = ctx
-        .root
-        .join("examples")
-        .join("controllers")
-        .join("default.toml");
+    // The log as it is: its header's settings over the defaults, on the
+    // host as on the target (the logs' headers are not the defaults).
     let mut cmd = Command::new(headroom);
-    cmd.arg("replay")
-        .arg(log)
-        .arg("--config")
-        .arg(&config)
-        .arg("--out")
-        .arg(&csv);
+    cmd.arg("replay").arg(log).arg("--out").arg(&csv);
     // An old output must not pass for a new one.
     let _ = fs::remove_file(&csv);
     let out = run_capture(&mut cmd, ctx.timeout)?;
@@ -227,17 +213,42 @@ fn files_with(dir: &Path, ext: &str) -> Result<Vec<PathBuf>, String> {
 /// The engine's replay of a binary log, as the firmware's decision frames
 /// would say it.
 fn engine_replay(log: &[u8]) -> Result<Vec<DecisionRecord>, String> {
-    let mut replay = Replay::<WINDOW>::new(ControllerConfig::sub_ghz_node())
-        .map_err(|e| format!("controller settings: {e}"))?;
+    let start = |h: Option<&headroom::record::LogHeader>| {
+        let r = settings::for_log(h).map_err(|e| format!("controller settings: {e}"))?;
+        Replay::<REPLAY_WINDOW>::new(r.config).map_err(|e| format!("controller settings: {e}"))
+    };
+    let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
+    let mut failed: Option<String> = None;
     let mut out = Vec::new();
     let mut dec: FrameDecoder = FrameDecoder::new();
     let mut input = log;
     let mut on = |ev: Event| {
         if let Event::Frame {
+            frame: Frame::Header { header, .. },
+            ..
+        } = ev
+        {
+            if replay.is_none() {
+                match start(Some(&header)) {
+                    Ok(r) => replay = Some(r),
+                    Err(e) => failed = Some(e),
+                }
+            }
+        }
+        if let Event::Frame {
             frame: Frame::Record(r),
             ..
         } = ev
         {
+            if replay.is_none() {
+                match start(None) {
+                    Ok(r) => replay = Some(r),
+                    Err(e) => failed = Some(e),
+                }
+            }
+            let Some(replay) = replay.as_mut() else {
+                return;
+            };
             let s = replay.step(&r);
             out.push(DecisionRecord {
                 t_ms: s.t_ms,
@@ -253,7 +264,10 @@ fn engine_replay(log: &[u8]) -> Result<Vec<DecisionRecord>, String> {
     if let Some(ev) = dec.finish() {
         on(ev);
     }
-    Ok(out)
+    match failed {
+        Some(e) => Err(e),
+        None => Ok(out),
+    }
 }
 
 /// The decision frames the firmware wrote. Any damaged byte is an error:

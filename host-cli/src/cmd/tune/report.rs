@@ -10,7 +10,7 @@ use serde_json::{Map, Value};
 
 use super::front::Point;
 use super::sweep::Grid;
-use crate::fleet::report::{settings_json, settings_table, summary_json};
+use crate::fleet::report::{settings_json, settings_table, summary_json, value_json};
 use crate::output::json_num;
 
 /// Everything the table, the JSON and the plot show.
@@ -46,10 +46,7 @@ impl TuneResult<'_> {
         let Some(f) = self.fleets.get(cand) else {
             return false;
         };
-        let pooled = f
-            .total
-            .outage_fraction()
-            .is_some_and(|o| o <= self.target);
+        let pooled = f.total.outage_fraction().is_some_and(|o| o <= self.target);
         pooled && (!self.each_device || f.missing_target == 0)
     }
 
@@ -66,10 +63,7 @@ impl TuneResult<'_> {
     fn point(&self, cand: usize) -> Value {
         let mut m = Map::new();
         m.insert("candidate".into(), cand.into());
-        m.insert(
-            "settings".into(),
-            Value::Object(self.grid.settings_json(cand)),
-        );
+        m.insert("settings".into(), Value::Object(self.swept_values(cand)));
         m.insert("meets_target".into(), self.meets(cand).into());
         m.insert(
             "on_front".into(),
@@ -77,12 +71,33 @@ impl TuneResult<'_> {
         );
         if let Some(f) = self.fleets.get(cand) {
             let (w, log) = self.worst(cand);
-            m.insert("worst_outage_fraction".into(), w.map_or(Value::Null, json_num));
+            m.insert(
+                "worst_outage_fraction".into(),
+                w.map_or(Value::Null, json_num),
+            );
             m.insert("worst_log".into(), log.map_or(Value::Null, Value::from));
             m.insert("devices_missing_target".into(), f.missing_target.into());
             m.extend(summary_json(&f.total));
         }
         Value::Object(m)
+    }
+
+    /// The swept settings' values of candidate `cand`; for the default, the
+    /// values it has on the first log.
+    fn swept_values(&self, cand: usize) -> Map<String, Value> {
+        if cand > 0 {
+            return self.grid.settings_json(cand);
+        }
+        self.grid
+            .sweeps
+            .iter()
+            .map(|sw| {
+                (
+                    sw.setting.key().to_string(),
+                    value_json(self.base.value(sw.setting)),
+                )
+            })
+            .collect()
     }
 
     /// Change of candidate `k` against the default: (mean power dB, loss rate).
@@ -194,7 +209,14 @@ impl TuneResult<'_> {
         let mut head: Vec<String> = vec!["candidate".into()];
         head.extend(self.grid.sweeps.iter().map(|x| x.setting.key().to_string()));
         head.extend(
-            ["lost %", "worst device %", "mean tx dBm", "vs logged dB", ""].map(String::from),
+            [
+                "lost %",
+                "worst device %",
+                "mean tx dBm",
+                "vs logged dB",
+                "",
+            ]
+            .map(String::from),
         );
         let row = |cand: usize| -> Vec<String> {
             let mut r = vec![if cand == 0 {
@@ -202,12 +224,12 @@ impl TuneResult<'_> {
             } else {
                 cand.to_string()
             }];
-            let swept = self.grid.settings_json(cand);
+            let swept = self.swept_values(cand);
             for sw in &self.grid.sweeps {
                 r.push(
                     swept
                         .get(sw.setting.key())
-                        .map_or_else(|| "(as above)".into(), Value::to_string),
+                        .map_or_else(String::new, Value::to_string),
                 );
             }
             let f = self.fleets.get(cand).copied().unwrap_or_default();

@@ -190,7 +190,10 @@ mod tests {
     #[test]
     fn groups_cover_every_job_once() {
         let g = group_jobs(0, 12, 3, 2);
-        let mut all: Vec<usize> = g.iter().flat_map(|(_, js)| js.iter().map(|x| x.0)).collect();
+        let mut all: Vec<usize> = g
+            .iter()
+            .flat_map(|(_, js)| js.iter().map(|x| x.0))
+            .collect();
         all.sort_unstable();
         assert_eq!(all, (0..12).collect::<Vec<_>>());
         for (log, js) in &g {

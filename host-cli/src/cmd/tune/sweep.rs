@@ -52,7 +52,11 @@ fn tidy(x: f64) -> f64 {
 
 /// The setting a sweep names (`steps.uniform` is the uniform step).
 fn setting_named(name: &str) -> Result<Setting, String> {
-    let key = if name == "steps.uniform" { "steps" } else { name };
+    let key = if name == "steps.uniform" {
+        "steps"
+    } else {
+        name
+    };
     let s = Setting::from_key(key).ok_or_else(|| {
         format!(
             "'{name}' is not a controller setting (sweepable: {})",
@@ -256,10 +260,7 @@ mod tests {
     fn sweeps_parse() {
         let s = parse_sweep("margin_step_db=0.25..1:0.25").expect("range");
         assert_eq!(s.setting, Setting::MarginStepDb);
-        assert_eq!(
-            s.values,
-            [0.25, 0.5, 0.75, 1.0].map(Value::Number).to_vec()
-        );
+        assert_eq!(s.values, [0.25, 0.5, 0.75, 1.0].map(Value::Number).to_vec());
         let s = parse_sweep("deadband_db=0.5dB,1").expect("list with units");
         assert_eq!(s.values, [0.5, 1.0].map(Value::Number).to_vec());
         let s = parse_sweep("target_outage=1%,2%").expect("percent");
@@ -289,10 +290,11 @@ mod tests {
         assert_eq!(g.len, 6);
         assert!(!g.incomparable);
         // First sweep slowest.
-        assert_eq!(
-            g.label(2),
-            "margin_step_db=0.25 dB deadband_db=1 dB"
-        );
-        assert!(g.layer(0).expect("default").get(Setting::MarginStepDb).is_none());
+        assert_eq!(g.label(2), "margin_step_db=0.25 dB deadband_db=1 dB");
+        assert!(g
+            .layer(0)
+            .expect("default")
+            .get(Setting::MarginStepDb)
+            .is_none());
     }
 }
