@@ -10,6 +10,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
+pub mod diag;
 pub mod error;
 pub mod link;
 pub mod logio;
@@ -124,10 +125,10 @@ pub fn run() -> ExitCode {
                 .filter(|l| !l.is_empty() && !l.starts_with("For more information"))
                 .collect();
             let msg = msg.join(" ");
-            eprintln!(
-                "headroom: {} (see 'headroom --help')",
+            diag::info(format!(
+                "{} (see 'headroom --help')",
                 msg.trim_start_matches("error: ")
-            );
+            ));
             return ExitCode::from(2);
         }
     };
@@ -147,7 +148,7 @@ pub fn run() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("headroom: error: {}", error::printable(&e.to_string()));
+            diag::error(&e);
             ExitCode::from(e.exit_code())
         }
     }
