@@ -276,7 +276,7 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
         }
     }
     for d in reader.damage() {
-        eprintln!("headroom: warning: {}: {d}", path.display());
+        crate::diag::warn(format!("{}: {d}", path.display()));
     }
     if replay.summary().records == 0 && !reader.damage().is_empty() {
         return Err(CliError::Input(format!(

@@ -884,7 +884,7 @@ pub fn run(args: Args) -> CliResult {
     }
     bar.finish_and_clear();
     for d in &damage {
-        eprintln!("headroom: warning: {d}");
+        crate::diag::warn(d);
     }
 
     let points: Vec<Option<(f64, f64)>> = fleet.iter().map(Totals::key).collect();
