@@ -1,0 +1,111 @@
+//! Reliability of the `headroom` binary against its environment: a closed
+//! stderr, an output that is one of the inputs, long names, interrupts.
+
+#![allow(clippy::unwrap_used, clippy::expect_used, clippy::panic)]
+
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+
+fn headroom(dir: &Path) -> Command {
+    let mut c = Command::new(env!("CARGO_BIN_EXE_headroom"));
+    c.current_dir(dir).env("RUST_BACKTRACE", "1");
+    c
+}
+
+fn run(dir: &Path, args: &[&str]) -> Output {
+    headroom(dir).args(args).output().expect("run headroom")
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn files(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = fs::read_dir(dir)
+        .expect("read dir")
+        .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
+}
+
+fn example(rel: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("..").join(rel)
+}
+
+/// A binary log of 200 records cut inside its last frame: replayed with a
+/// warning about the damaged end.
+fn damaged_log(dir: &Path) -> PathBuf {
+    let mut csv = String::from("t_ms,tx_dbm,rssi_dbm,noise_dbm\n");
+    for k in 0..200u32 {
+        csv.push_str(&format!("{},14,{},-117\n", k * 1000, -90 - (k % 7) as i32));
+    }
+    fs::write(dir.join("whole.csv"), csv).unwrap();
+    let o = run(dir, &["convert", "whole.csv", "whole.hrlog"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let whole = fs::read(dir.join("whole.hrlog")).unwrap();
+    let cut = dir.join("cut.hrlog");
+    fs::write(&cut, &whole[..whole.len() - 2]).unwrap();
+    fs::remove_file(dir.join("whole.hrlog")).unwrap();
+    cut
+}
+
+/// Run with stderr a pipe whose reading end is already closed (as in
+/// `2>&1 | head -0`).
+fn with_closed_stderr(dir: &Path, args: &[&str]) -> Output {
+    let (reader, writer) = std::io::pipe().expect("pipe");
+    drop(reader);
+    headroom(dir)
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(writer)
+        .output()
+        .expect("run headroom")
+}
+
+#[test]
+fn a_closed_stderr_neither_panics_nor_changes_the_result() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    damaged_log(d);
+    // With stderr open: the warning is there (the case is a real one).
+    let o = run(d, &["replay", "cut.hrlog", "--out", "open.csv"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("warning"), "{}", stderr(&o));
+    // Closed: same exit code, the decisions file committed, no temporary.
+    let o = with_closed_stderr(d, &["replay", "cut.hrlog", "--out", "closed.csv"]);
+    assert_eq!(o.status.code(), Some(0));
+    assert_eq!(
+        fs::read(d.join("closed.csv")).unwrap(),
+        fs::read(d.join("open.csv")).unwrap()
+    );
+    // An error keeps its exit code too.
+    let o = with_closed_stderr(d, &["replay", "missing.csv"]);
+    assert_eq!(o.status.code(), Some(2));
+    let o = with_closed_stderr(d, &["replay", "--no-such-flag"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(
+        files(d),
+        ["closed.csv", "cut.hrlog", "open.csv", "whole.csv"]
+    );
+}
+
+#[test]
+fn a_huge_bad_string_gives_a_short_error_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // A 10 MB TOML string with a bad escape at its end.
+    let text = format!("required_snr_db = \"{}\\q\"\n", "x".repeat(10_000_000));
+    fs::write(d.join("c.toml"), text).unwrap();
+    let log = example("examples/logs/orchard-868.csv");
+    let o = run(d, &["replay", log.to_str().unwrap(), "--config", "c.toml"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    let e = stderr(&o);
+    assert_eq!(e.lines().count(), 1, "{}", e.len());
+    assert!(
+        e.starts_with("headroom: error: --config: c.toml"),
+        "{e:.400}"
+    );
+    assert!(e.chars().count() <= 320, "{} characters", e.chars().count());
+}
