@@ -99,6 +99,7 @@ fn parse() -> Result<Cli, clap::Error> {
 /// Parse the command line, run the command, and give the process's exit
 /// code (0 success, 2 a usage error, otherwise the error's own code).
 pub fn run() -> ExitCode {
+    atomic::install_cleanup();
     let cli = match parse() {
         Ok(cli) => cli,
         Err(e) => {
