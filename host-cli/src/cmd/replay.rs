@@ -387,8 +387,7 @@ fn flag_for(setting: &str) -> Option<&'static str> {
 
 /// The TOML file as a config (missing keys take the defaults) and the keys it sets.
 pub(crate) fn load_toml(path: &Path) -> CliResult<(ControllerConfig, Vec<String>)> {
-    let text =
-        fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let text = crate::atomic::read_text(path)?;
     let table: toml::Table = toml::from_str(&text).map_err(|e| {
         CliError::arg(
             "--config",
