@@ -76,6 +76,14 @@ pub fn note_input(path: &Path) {
     }
 }
 
+/// Register every path of `paths` as [`note_input`] does: what a command
+/// does first, so that its early refusal of an output already knows them.
+pub fn note_inputs(paths: impl IntoIterator<Item = impl AsRef<Path>>) {
+    for p in paths {
+        note_input(p.as_ref());
+    }
+}
+
 /// Register the file `file`, opened from `path`, as an input: the identity
 /// is that of the file actually opened.
 pub fn note_input_file(path: &Path, file: &File) {
@@ -275,7 +283,7 @@ impl AtomicFile {
                         tmp: Some(tmp),
                         file: Some(BufWriter::with_capacity(BUFFER, f)),
                         force,
-                    })
+                    });
                 }
                 Err(e) if e.kind() == io::ErrorKind::AlreadyExists => continue,
                 Err(e) => return Err(temp_error(Some(e))),
