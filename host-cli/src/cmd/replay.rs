@@ -167,6 +167,7 @@ pub(crate) fn expand_logs(args: &[PathBuf]) -> CliResult<Vec<PathBuf>> {
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
     let logs = expand_logs(&args.logs)?;
+    crate::atomic::note_inputs(logs.iter().chain(&args.config));
     if logs.len() > 1 {
         for (flag, set) in [
             ("--out", args.out.is_some()),

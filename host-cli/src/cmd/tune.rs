@@ -755,6 +755,7 @@ fn group_jobs(start: usize, end: usize, nlogs: usize, per_log: usize) -> Vec<(us
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::atomic::note_inputs(args.logs.iter().chain(&args.config));
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
     }
