@@ -109,3 +109,155 @@ fn a_huge_bad_string_gives_a_short_error_line() {
     );
     assert!(e.chars().count() <= 320, "{} characters", e.chars().count());
 }
+
+/// The refusal of an output that is an input: exit 2, one line naming the
+/// output, no suggestion of `--force`, the input unchanged.
+fn assert_refused_as_input(dir: &Path, args: &[&str], out: &str, input: &str) {
+    let before = fs::read(dir.join(input)).unwrap();
+    let o = run(dir, args);
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{args:?}: {e}");
+    assert_eq!(e.lines().count(), 1, "{args:?}: {e}");
+    assert!(e.contains(out), "{args:?}: {e}");
+    assert!(e.contains("never replaces an input"), "{args:?}: {e}");
+    assert!(!e.contains("--force"), "{args:?}: {e}");
+    assert_eq!(fs::read(dir.join(input)).unwrap(), before, "{args:?}");
+    assert!(
+        files(dir).iter().all(|f| !f.contains(".tmp-")),
+        "{:?}",
+        files(dir)
+    );
+}
+
+#[test]
+fn an_output_is_never_one_of_the_inputs() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    fs::copy(example("examples/logs/orchard-868.csv"), d.join("log.csv")).unwrap();
+    fs::copy(
+        example("examples/controllers/default.toml"),
+        d.join("c.toml"),
+    )
+    .unwrap();
+    fs::copy(
+        example("examples/links/orchard-sensor.toml"),
+        d.join("link.toml"),
+    )
+    .unwrap();
+    fs::copy(
+        example("examples/scenarios/cattle-collar-915.toml"),
+        d.join("scen.toml"),
+    )
+    .unwrap();
+    // Other names of the same files: hard links (an output of another
+    // extension) and a symbolic link.
+    for (from, to) in [
+        ("log.csv", "log-alias.csv"),
+        ("log.csv", "log.svg"),
+        ("c.toml", "c.csv"),
+        ("link.toml", "link.svg"),
+        ("scen.toml", "scen.csv"),
+    ] {
+        fs::hard_link(d.join(from), d.join(to)).unwrap();
+    }
+    std::os::unix::fs::symlink("log.csv", d.join("log-link.csv")).unwrap();
+    for force in [false, true] {
+        let f = |mut v: Vec<&'static str>| {
+            if force {
+                v.push("--force");
+            }
+            v
+        };
+        let cases: Vec<(Vec<&str>, &str, &str)> = vec![
+            (
+                f(vec!["replay", "log.csv", "--out", "log.csv"]),
+                "log.csv",
+                "log.csv",
+            ),
+            (
+                f(vec!["replay", "log.csv", "--out", "log-alias.csv"]),
+                "log-alias.csv",
+                "log.csv",
+            ),
+            (
+                f(vec!["replay", "log.csv", "--out", "log-link.csv"]),
+                "log-link.csv",
+                "log.csv",
+            ),
+            (
+                f(vec!["replay", "log.csv", "--plot", "log.svg"]),
+                "log.svg",
+                "log.csv",
+            ),
+            (
+                f(vec![
+                    "replay", "log.csv", "--config", "c.toml", "--out", "c.csv",
+                ]),
+                "c.csv",
+                "c.toml",
+            ),
+            (
+                f(vec!["budget", "link.toml", "--plot", "link.svg"]),
+                "link.svg",
+                "link.toml",
+            ),
+            (
+                f(vec![
+                    "synth",
+                    "--scenario",
+                    "scen.toml",
+                    "--seed",
+                    "1",
+                    "--records",
+                    "5",
+                    "--out",
+                    "scen.csv",
+                ]),
+                "scen.csv",
+                "scen.toml",
+            ),
+            (
+                f(vec![
+                    "tune",
+                    "log.csv",
+                    "--sweep",
+                    "required_snr_db=4..6:1",
+                    "--quiet",
+                    "--plot",
+                    "log.svg",
+                ]),
+                "log.svg",
+                "log.csv",
+            ),
+            (
+                f(vec!["convert", "log.csv", "log-alias.csv"]),
+                "log-alias.csv",
+                "log.csv",
+            ),
+        ];
+        for (args, out, input) in &cases {
+            assert_refused_as_input(d, args, out, input);
+        }
+    }
+}
+
+#[test]
+fn a_legal_250_byte_output_name_works() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let name = format!("{}.csv", "d".repeat(246));
+    assert_eq!(name.len(), 250);
+    let log = example("examples/logs/orchard-868.csv");
+    let o = run(d, &["replay", log.to_str().unwrap(), "--out", &name]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    // A name of many-byte characters too (4 bytes each, 252 bytes).
+    let wide = format!("{}.csv", "\u{1f4e1}".repeat(62));
+    assert_eq!(wide.len(), 252);
+    let o = run(d, &["replay", log.to_str().unwrap(), "--out", &wide]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(files(d), {
+        let mut v = vec![name, wide];
+        v.sort();
+        v
+    });
+}
