@@ -261,3 +261,62 @@ fn a_legal_250_byte_output_name_works() {
         v
     });
 }
+
+/// `replay --out` reading a binary log from a named pipe that the test
+/// keeps open (a log without end, as from a gateway): once the temporary
+/// output exists, `signal` is sent. The handler must remove the temporary
+/// file and exit with 130.
+fn interrupted(signal: &str) {
+    use std::io::Write;
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let log = example("examples/logs/orchard-868.csv");
+    let o = run(d, &["convert", log.to_str().unwrap(), "whole.hrlog"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let st = Command::new("mkfifo").arg(d.join("live.hrlog")).status();
+    assert!(st.expect("mkfifo").success());
+    let mut child = headroom(d)
+        .args(["replay", "live.hrlog", "--out", "out.csv"])
+        .stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    // Opening the writing end waits for the reader.
+    let mut pipe = fs::OpenOptions::new()
+        .write(true)
+        .open(d.join("live.hrlog"))
+        .expect("open the pipe");
+    pipe.write_all(&fs::read(d.join("whole.hrlog")).unwrap())
+        .expect("feed the log");
+    pipe.flush().expect("flush");
+    // Wait (at most about a minute) for the temporary output.
+    let temp = |d: &Path| files(d).into_iter().any(|f| f.starts_with(".out.csv.tmp-"));
+    let mut seen = false;
+    for _ in 0..6000 {
+        if temp(d) {
+            seen = true;
+            break;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(10));
+    }
+    assert!(seen, "no temporary output appeared: {:?}", files(d));
+    let st = Command::new("kill")
+        .args([signal, &child.id().to_string()])
+        .status();
+    assert!(st.expect("kill").success());
+    let out = child.wait_with_output().expect("wait");
+    drop(pipe);
+    assert_eq!(out.status.code(), Some(130), "{}", stderr(&out));
+    assert_eq!(files(d), ["live.hrlog", "whole.hrlog"], "{signal}");
+}
+
+#[test]
+fn an_interrupt_removes_the_temporary_output() {
+    interrupted("-INT");
+}
+
+#[test]
+fn a_termination_removes_the_temporary_output() {
+    interrupted("-TERM");
+}
