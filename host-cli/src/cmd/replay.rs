@@ -32,7 +32,7 @@ use crate::atomic::AtomicFile;
 use crate::error::{CliError, CliResult};
 use crate::logio;
 use crate::output::{json_num, Report};
-use crate::plot::{self, ReplaySeries};
+use crate::plot::{self, ReplayPoint, ReplaySeries};
 use crate::quantity;
 
 /// Window of the controller used by the host replay (readings).
@@ -289,7 +289,7 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
         w.finish()?;
     }
     if let (Some(p), Some(s)) = (&args.plot, &series) {
-        if s.t_ms.is_empty() {
+        if s.is_empty() {
             return Err(CliError::arg(
                 "--plot",
                 format!("{}: the log has no records to draw", path.display()),
@@ -306,14 +306,15 @@ fn replay_log(path: &Path, args: &Args) -> CliResult<Summary> {
 
 /// One record's values for the plot, as logged or as the engine replayed them.
 fn push_series(s: &mut ReplaySeries, rec: &LogRecord, step: &ReplayStep) {
-    s.t_ms.push(step.t_ms);
-    s.logged_rx_dbm.push(rec.rssi_dbm);
-    s.replayed_rx_dbm.push(step.replayed_rx(rec).map(|d| d.0));
-    s.noise_floor_dbm.push(rec.noise_dbm);
-    s.tx_power_dbm.push(Some(step.chosen.0));
-    s.margin_db.push(Some(step.margin.0));
-    s.lost
-        .push(step.outcome == headroom::control::Outcome::Lost);
+    s.push(ReplayPoint {
+        t_ms: step.t_ms,
+        logged_rx_dbm: rec.rssi_dbm,
+        replayed_rx_dbm: step.replayed_rx(rec).map(|d| d.0),
+        noise_floor_dbm: rec.noise_dbm,
+        tx_power_dbm: Some(step.chosen.0),
+        margin_db: Some(step.margin.0),
+        lost: step.outcome == headroom::control::Outcome::Lost,
+    });
 }
 
 /// Defaults, then the log header, then the TOML file, then the flags.
