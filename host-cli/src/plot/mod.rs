@@ -96,7 +96,7 @@ fn save(path: &Path, force: bool, fig: &impl Figure) -> CliResult {
                 fig.draw(&root).map_err(|e| draw_error(path, e))?;
                 root.present().map_err(|e| draw_error(path, e))?;
             }
-            text.into_bytes()
+            svg_safe(text).into_bytes()
         }
         PlotFormat::Png => {
             let len = usize::try_from(u64::from(w) * u64::from(h) * 3)
@@ -112,6 +112,22 @@ fn save(path: &Path, force: bool, fig: &impl Figure) -> CliResult {
         }
     };
     atomic::write(path, force, &bytes)
+}
+
+/// SVG text with every unprintable character escaped as
+/// [`printable`](crate::error::printable) does, except the newlines between
+/// elements: well-formed XML (which allows no C0 control but tab and
+/// newline) without a raw control character, whatever a name held. The
+/// figures escape their texts already; this is the last guard.
+fn svg_safe(text: String) -> String {
+    use crate::error::{is_unprintable, printable};
+    if !text.chars().any(|c| c != '\n' && is_unprintable(c)) {
+        return text;
+    }
+    text.split('\n')
+        .map(printable)
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 fn encode_png(w: u32, h: u32, rgb: &[u8]) -> Result<Vec<u8>, png::EncodingError> {
