@@ -88,6 +88,13 @@ pub fn json_text(v: &Value) -> CliResult<String> {
         .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
 }
 
+/// `v` as one line of JSON (JSON Lines) without a raw control character.
+pub fn json_line(v: &Value) -> CliResult<String> {
+    serde_json::to_string(v)
+        .map(|s| printable_json(&s))
+        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
+}
+
 /// A JSON number with the seven significant digits an f32 carries (no
 /// 13.979400634765625 noise); NaN and infinities become `null`.
 pub fn json_num(x: f32) -> Value {
@@ -192,6 +199,10 @@ mod tests {
     fn json_text_escapes_what_the_encoder_leaves_raw() {
         let v = serde_json::json!({ "name": "a\u{7f}\u{9b}b" });
         let text = json_text(&v).expect("encode");
+        assert_eq!(
+            json_line(&v).expect("encode"),
+            "{\"name\":\"a\\u007f\\u009bb\"}"
+        );
         let mut r = Report::new();
         r.value("name", Value::String("a\u{7f}\u{9b}b".into()));
         assert_eq!(r.render(Format::Json).expect("render"), format!("{text}\n"));
