@@ -196,8 +196,7 @@ pub fn run(args: Args) -> CliResult {
             let mut m = Map::new();
             m.insert("log".into(), path.display().to_string().into());
             m.extend(fields(&s));
-            let line = serde_json::to_string(&Value::Object(m))
-                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            let line = crate::output::json_line(&Value::Object(m))?;
             print_line(&line)?;
         }
         match fleet.as_mut() {
@@ -230,7 +229,7 @@ pub fn run(args: Args) -> CliResult {
         }
         (ReplayFormat::Table, _) => {
             for (p, s) in &rows {
-                print_line(&format!("== {p}"))?;
+                print_line(&format!("== {}", crate::error::printable(p)))?;
                 report(s).print(crate::output::Format::Table)?;
                 print_line("")?;
             }
@@ -249,9 +248,7 @@ fn print_line(line: &str) -> CliResult {
 }
 
 fn print_json(v: &Value) -> CliResult {
-    let s = serde_json::to_string_pretty(v)
-        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
-    print_line(&s)
+    print_line(&crate::output::json_text(v)?)
 }
 
 /// Replay one log (one device) with a fresh controller set up from `args`

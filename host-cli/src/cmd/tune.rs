@@ -906,8 +906,7 @@ pub fn run(args: Args) -> CliResult {
     match args.format {
         TuneFormat::Jsonl => {}
         TuneFormat::Json => {
-            let s = serde_json::to_string_pretty(&result.json())
-                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            let s = crate::output::json_text(&result.json())?;
             writeln!(out, "{s}").map_err(|e| CliError::Io(format!("stdout: {e}")))?;
         }
         TuneFormat::Table => {
@@ -966,8 +965,7 @@ fn jsonl_line(grid: &Grid, cand: usize, log: &str, t: &Totals) -> CliResult<Stri
         "max_allowed_mw_sum".into(),
         Value::from(t.max_allowed_mw_sum),
     );
-    serde_json::to_string(&Value::Object(m))
-        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
+    crate::output::json_line(&Value::Object(m))
 }
 
 /// Everything the table, the JSON and the plot show.
