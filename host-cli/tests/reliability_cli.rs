@@ -320,3 +320,50 @@ fn an_interrupt_removes_the_temporary_output() {
 fn a_termination_removes_the_temporary_output() {
     interrupted("-TERM");
 }
+
+fn assert_no_raw_controls(what: &str, text: &str) {
+    let bad: Vec<char> = text
+        .chars()
+        .filter(|&c| {
+            c != '\n'
+                && (c.is_control()
+                    || matches!(c, '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}'))
+        })
+        .collect();
+    assert!(bad.is_empty(), "{what}: {bad:?} in {text:.600}");
+}
+
+#[test]
+fn log_names_with_control_characters_in_every_replay_format() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let names = ["a\u{1b}[2J\r\n== fleet\u{7f}.csv", "b\u{9b}1m\u{202e}.csv"];
+    for n in names {
+        fs::copy(example("examples/logs/orchard-868.csv"), d.join(n)).unwrap();
+    }
+    for format in ["table", "json", "jsonl"] {
+        let o = run(d, &["replay", names[0], names[1], "--format", format]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let out = String::from_utf8(o.stdout).expect("utf-8");
+        assert_no_raw_controls(format, &out);
+        match format {
+            "json" => {
+                let v: serde_json::Value = serde_json::from_str(&out).expect("JSON");
+                assert_eq!(v["logs"][0]["log"], names[0]);
+                assert_eq!(v["logs"][1]["log"], names[1]);
+            }
+            "jsonl" => {
+                for (line, n) in out.lines().zip(names) {
+                    let v: serde_json::Value = serde_json::from_str(line).expect("JSON");
+                    assert_eq!(v["log"], n);
+                }
+            }
+            _ => {
+                // The forged heading stays inside the first log's line.
+                assert_eq!(out.matches("== fleet").count(), 2, "{out}");
+                let headings = out.lines().filter(|l| l.starts_with("== fleet"));
+                assert_eq!(headings.count(), 1, "{out}");
+            }
+        }
+    }
+}
