@@ -102,14 +102,28 @@ fn note_id(path: &Path, meta: &fs::Metadata) {
     }
 }
 
+/// Largest text file read whole (link, controller and scenario files):
+/// far above any real one, it bounds the memory of reading one (and ends the
+/// reading of `/dev/zero` or an endless pipe).
+pub const MAX_TEXT_BYTES: u64 = 16 * 1024 * 1024;
+
 /// Read the text file `path` whole, registered as an input (link,
-/// controller and scenario files). Errors as [`CliError::input_file`].
+/// controller and scenario files); at most [`MAX_TEXT_BYTES`]. Errors as
+/// [`CliError::input_file`].
 pub fn read_text(path: &Path) -> CliResult<String> {
-    let mut file = File::open(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let file = File::open(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
     note_input_file(path, &file);
     let mut text = String::new();
-    file.read_to_string(&mut text)
+    file.take(MAX_TEXT_BYTES + 1)
+        .read_to_string(&mut text)
         .map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    if text.len() as u64 > MAX_TEXT_BYTES {
+        return Err(CliError::Input(format!(
+            "{}: longer than {} MiB: not a settings file",
+            path.display(),
+            MAX_TEXT_BYTES >> 20
+        )));
+    }
     Ok(text)
 }
 

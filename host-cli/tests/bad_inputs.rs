@@ -675,6 +675,14 @@ fn cases() -> Vec<Case> {
             names: &["link.toml", "TOML parse error", "…"],
             finding: None,
         },
+        Case {
+            input: "an endless settings file (`budget /dev/zero`)",
+            files: vec![],
+            args: &["budget", "/dev/zero"],
+            exit: 2,
+            names: &["/dev/zero", "16 MiB"],
+            finding: None,
+        },
         // --- Accepted without a word today: reported to their owners ---
         Case {
             input: "an absurd rain height (`--rain-height 1e30m`)",
