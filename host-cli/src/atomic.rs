@@ -14,7 +14,8 @@
 //!   as any input, by identity (device and inode, so a hard link or another
 //!   spelling of the path is seen through), is refused with or without
 //!   `force`, both when the output is created and when it is moved into
-//!   place.
+//!   place. Inputs are registered once [`track_inputs`] has been called (a
+//!   command run by [`crate::run`]).
 //!
 //! The one implementation behind every file headroom writes: streamed
 //! (field logs, through [`AtomicFile`] as a [`Write`]) or whole
@@ -24,6 +25,7 @@ use std::ffi::OsString;
 use std::fs::{self, File};
 use std::io::{self, BufWriter, Read, Write};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Mutex, MutexGuard, PoisonError};
 
 use crate::error::{CliError, CliResult};
@@ -58,6 +60,8 @@ impl FileId {
 
 /// The inputs of this process, with the path each was named by.
 static INPUTS: Mutex<Vec<(FileId, PathBuf)>> = Mutex::new(Vec::new());
+/// Inputs are registered: set by [`track_inputs`] when a command runs.
+static TRACKING: AtomicBool = AtomicBool::new(false);
 /// The temporary files being written, removed by an interrupt.
 static TEMPS: Mutex<Vec<PathBuf>> = Mutex::new(Vec::new());
 
@@ -93,7 +97,18 @@ pub fn note_input_file(path: &Path, file: &File) {
     }
 }
 
+/// Register the inputs of this process from now on: [`crate::run`] calls
+/// it, since one process runs one command. Until then (the library used by
+/// the fuzz targets and unit tests, which read and write many files in one
+/// process) nothing is registered and no output is refused as an input.
+pub fn track_inputs() {
+    TRACKING.store(true, Ordering::Relaxed);
+}
+
 fn note_id(path: &Path, meta: &fs::Metadata) {
+    if !TRACKING.load(Ordering::Relaxed) {
+        return;
+    }
     if let Some(id) = FileId::of(path, meta) {
         let mut inputs = lock(&INPUTS);
         if !inputs.iter().any(|(i, _)| *i == id) {

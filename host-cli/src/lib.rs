@@ -100,6 +100,7 @@ fn parse() -> Result<Cli, clap::Error> {
 /// code (0 success, 2 a usage error, otherwise the error's own code).
 pub fn run() -> ExitCode {
     atomic::install_cleanup();
+    atomic::track_inputs();
     let cli = match parse() {
         Ok(cli) => cli,
         Err(e) => {

@@ -139,7 +139,8 @@ impl Bucket {
 }
 
 /// The records of a replay, decimated as they are pushed: memory is bounded
-/// by [`MAX_BUCKETS`] whatever the length of the log (about 0.4 MB).
+/// by [`MAX_BUCKETS`] buckets of 224 bytes whatever the length of the log
+/// (under 1 MB with the map that holds them).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReplaySeries {
     /// Buckets by index (time >> `shift`).
@@ -620,6 +621,8 @@ mod tests {
         }
         assert!(s.buckets.len() <= MAX_BUCKETS);
         assert_eq!(s.len(), 300_000);
+        // The size the README states.
+        assert!(std::mem::size_of::<Bucket>() <= 224);
         // Every bucket's values lie within the data.
         for b in s.buckets.values() {
             let e = b.lines[LOGGED_LINE].expect("value");
