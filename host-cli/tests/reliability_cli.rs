@@ -275,7 +275,7 @@ fn interrupted(signal: &str) {
     assert!(o.status.success(), "{}", stderr(&o));
     let st = Command::new("mkfifo").arg(d.join("live.hrlog")).status();
     assert!(st.expect("mkfifo").success());
-    let mut child = headroom(d)
+    let child = headroom(d)
         .args(["replay", "live.hrlog", "--out", "out.csv"])
         .stdin(Stdio::null())
         .stdout(Stdio::null())
