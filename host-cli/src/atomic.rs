@@ -21,6 +21,7 @@
 //! (field logs, through [`AtomicFile`] as a [`Write`]) or whole
 //! (plots, through [`write`]).
 
+use std::collections::HashMap;
 use std::ffi::OsString;
 use std::fs::{self, File};
 use std::io::{self, BufWriter, Read, Write};
@@ -42,7 +43,7 @@ const TEMP_NAME_KEEP: usize = 200;
 pub const INTERRUPTED: i32 = 130;
 
 /// What identifies a file whatever the path used to reach it.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
 struct FileId(#[cfg(unix)] (u64, u64), #[cfg(not(unix))] PathBuf);
 
 impl FileId {
@@ -59,7 +60,7 @@ impl FileId {
 }
 
 /// The inputs of this process, with the path each was named by.
-static INPUTS: Mutex<Vec<(FileId, PathBuf)>> = Mutex::new(Vec::new());
+static INPUTS: Mutex<Option<HashMap<FileId, PathBuf>>> = Mutex::new(None);
 /// Inputs are registered: set by [`track_inputs`] when a command runs.
 static TRACKING: AtomicBool = AtomicBool::new(false);
 /// The temporary files being written, removed by an interrupt.
@@ -110,10 +111,10 @@ fn note_id(path: &Path, meta: &fs::Metadata) {
         return;
     }
     if let Some(id) = FileId::of(path, meta) {
-        let mut inputs = lock(&INPUTS);
-        if !inputs.iter().any(|(i, _)| *i == id) {
-            inputs.push((id, path.to_path_buf()));
-        }
+        lock(&INPUTS)
+            .get_or_insert_with(HashMap::new)
+            .entry(id)
+            .or_insert_with(|| path.to_path_buf());
     }
 }
 
@@ -146,10 +147,7 @@ pub fn read_text(path: &Path) -> CliResult<String> {
 fn input_at(dest: &Path) -> Option<PathBuf> {
     let meta = fs::metadata(dest).ok()?;
     let id = FileId::of(dest, &meta)?;
-    lock(&INPUTS)
-        .iter()
-        .find(|(i, _)| *i == id)
-        .map(|(_, p)| p.clone())
+    lock(&INPUTS).as_ref()?.get(&id).cloned()
 }
 
 fn input_error(dest: &Path, input: &Path) -> CliError {
@@ -547,6 +545,26 @@ mod tests {
                 vec![OsString::from("out.bin")],
                 "force {force}"
             );
+        }
+    }
+
+    #[test]
+    fn temporary_names_stay_within_255_bytes() {
+        use std::ffi::OsStr;
+        let short = temp_name(OsStr::new("out.csv"), 3);
+        assert_eq!(
+            short,
+            OsString::from(format!(".out.csv.tmp-{}-3", std::process::id()))
+        );
+        for name in [
+            "d".repeat(255),
+            format!("{}.csv", "\u{1f4e1}".repeat(62)),
+            format!("{}é.csv", "e".repeat(199)),
+        ] {
+            let t = temp_name(OsStr::new(&name), 99);
+            assert!(t.len() <= 255, "{} bytes", t.len());
+            let t = t.to_str().expect("UTF-8 kept");
+            assert!(t.starts_with('.') && t.contains(".tmp-"), "{t}");
         }
     }
 
