@@ -80,16 +80,73 @@ pub fn engine_error(e: &headroom::Error, options: &[(&str, &str)]) -> CliError {
 /// Shorthand result type of commands.
 pub type CliResult<T = ()> = Result<T, CliError>;
 
-/// `msg` with control characters escaped (`\r`, `\u{0}`), so that bytes
-/// quoted from a hostile file cannot break the one-line error or the terminal.
+/// Characters never printed raw: the C0 and C1 controls (ESC, CR, LF, NUL,
+/// CSI...), DEL, and the bidirectional embeddings, overrides and isolates
+/// (U+202A..U+202E, U+2066..U+2069), which can make a line read otherwise
+/// than it is.
+pub fn is_unprintable(c: char) -> bool {
+    c.is_control() || matches!(c, '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}')
+}
+
+/// `msg` with every [`is_unprintable`] character escaped (`\r`, `\u{1b}`),
+/// so that bytes quoted from a hostile file cannot break a one-line message,
+/// forge a table row or drive the terminal. The one escape of every table,
+/// warning, error and plot text.
 pub fn printable(msg: &str) -> String {
-    msg.chars()
-        .map(|c| {
-            if c.is_control() {
-                c.escape_default().to_string()
-            } else {
-                c.to_string()
-            }
-        })
-        .collect()
+    let mut out = String::with_capacity(msg.len());
+    for c in msg.chars() {
+        if is_unprintable(c) {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+/// JSON text with the [`is_unprintable`] characters that the encoder leaves
+/// raw (DEL, C1, bidirectional controls) written as `\uXXXX` escapes: the
+/// same JSON value, without a raw control character. These characters can
+/// only occur inside strings, where the escape is exact; the C0 controls are
+/// already escaped there by the encoder, and outside strings they are the
+/// layout (newlines of pretty printing), kept.
+pub fn printable_json(json: &str) -> String {
+    let mut out = String::with_capacity(json.len());
+    for c in json.chars() {
+        if is_unprintable(c) && c > '\u{1f}' {
+            // All of them are in the Basic Multilingual Plane.
+            out.push_str(&format!("\\u{:04x}", u32::from(c)));
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn printable_escapes_every_control_and_bidi_character() {
+        let s = printable("a\u{1b}[31mb\rc\nd\u{7f}e\u{9b}f\u{202e}g\u{0}h\ti");
+        assert!(!s.chars().any(is_unprintable), "{s}");
+        assert_eq!(
+            s,
+            "a\\u{1b}[31mb\\rc\\nd\\u{7f}e\\u{9b}f\\u{202e}g\\u{0}h\\ti"
+        );
+        assert_eq!(printable("plain <&> text µ"), "plain <&> text µ");
+    }
+
+    #[test]
+    fn printable_json_keeps_the_value() {
+        let v = serde_json::Value::String("a\u{1b}b\u{7f}c\u{85}d\u{2066}e\"".into());
+        let text = printable_json(&serde_json::to_string_pretty(&[&v]).expect("encode"));
+        assert!(
+            !text.chars().any(|c| is_unprintable(c) && c != '\n'),
+            "{text}"
+        );
+        let back: Vec<serde_json::Value> = serde_json::from_str(&text).expect("valid JSON");
+        assert_eq!(back, vec![v]);
+    }
 }

@@ -10,6 +10,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
+pub mod diag;
 pub mod error;
 pub mod fleet;
 pub mod link;
@@ -99,6 +100,8 @@ fn parse() -> Result<Cli, clap::Error> {
 /// Parse the command line, run the command, and give the process's exit
 /// code (0 success, 2 a usage error, otherwise the error's own code).
 pub fn run() -> ExitCode {
+    atomic::install_cleanup();
+    atomic::track_inputs();
     let cli = match parse() {
         Ok(cli) => cli,
         Err(e) => {
@@ -125,10 +128,10 @@ pub fn run() -> ExitCode {
                 .filter(|l| !l.is_empty() && !l.starts_with("For more information"))
                 .collect();
             let msg = msg.join(" ");
-            eprintln!(
-                "headroom: {} (see 'headroom --help')",
+            diag::info(format!(
+                "{} (see 'headroom --help')",
                 msg.trim_start_matches("error: ")
-            );
+            ));
             return ExitCode::from(2);
         }
     };
@@ -148,7 +151,7 @@ pub fn run() -> ExitCode {
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("headroom: error: {}", error::printable(&e.to_string()));
+            diag::error(&e);
             ExitCode::from(e.exit_code())
         }
     }

@@ -404,8 +404,7 @@ const KEYS: &[(&str, &str)] = &[
 
 /// Read and check a link file.
 pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
-    let text =
-        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let text = crate::atomic::read_text(path)?;
     let file: LinkFile = toml::from_str(&text).map_err(|e| {
         CliError::Input(format!("{}: {}", path.display(), one_line(&e.to_string())))
     })?;

@@ -6,7 +6,7 @@ use serde_json::{Map, Value};
 use std::fmt::Write as _;
 use std::io::Write as _;
 
-use crate::error::{CliError, CliResult};
+use crate::error::{printable, printable_json, CliError, CliResult};
 
 /// Output format of the calculator commands.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, ValueEnum)]
@@ -44,6 +44,12 @@ impl Report {
 
     /// Print in the chosen format.
     pub fn print(&self, format: Format) -> CliResult {
+        write_stdout(&self.render(format)?)
+    }
+
+    /// The text [`Report::print`] prints: no raw control character in
+    /// either format (names and strings from files are escaped).
+    pub fn render(&self, format: Format) -> CliResult<String> {
         let mut out = String::new();
         match format {
             Format::Json => {
@@ -51,14 +57,13 @@ impl Report {
                 for (k, v, _) in &self.rows {
                     m.insert(k.clone(), v.clone());
                 }
-                let s = serde_json::to_string_pretty(&Value::Object(m))
-                    .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
-                out.push_str(&s);
+                out.push_str(&json_text(&Value::Object(m))?);
                 out.push('\n');
             }
             Format::Table => {
-                let width = self.rows.iter().map(|r| r.0.len()).max().unwrap_or(0);
-                for (k, v, unit) in &self.rows {
+                let keys: Vec<String> = self.rows.iter().map(|r| printable(&r.0)).collect();
+                let width = keys.iter().map(|k| k.chars().count()).max().unwrap_or(0);
+                for (k, (_, v, unit)) in keys.iter().zip(&self.rows) {
                     match v {
                         Value::Number(_) | Value::String(_) | Value::Bool(_) | Value::Null => {
                             let _ = writeln!(out, "{k:<width$}  {}  {unit}", scalar(v));
@@ -71,8 +76,23 @@ impl Report {
                 }
             }
         }
-        write_stdout(&out)
+        Ok(out)
     }
+}
+
+/// `v` as pretty-printed JSON text without a raw control character
+/// ([`printable_json`]): what every JSON output of headroom prints.
+pub fn json_text(v: &Value) -> CliResult<String> {
+    serde_json::to_string_pretty(v)
+        .map(|s| printable_json(&s))
+        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
+}
+
+/// `v` as one line of JSON (JSON Lines) without a raw control character.
+pub fn json_line(v: &Value) -> CliResult<String> {
+    serde_json::to_string(v)
+        .map(|s| printable_json(&s))
+        .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))
 }
 
 /// A JSON number with the seven significant digits an f32 carries (no
@@ -106,8 +126,8 @@ fn scalar(v: &Value) -> String {
                 format!("{x:.decimals$}")
             }
         }
-        Value::String(s) => s.clone(),
-        other => other.to_string(),
+        Value::String(s) => printable(s),
+        other => printable(&other.to_string()),
     }
 }
 
@@ -120,7 +140,7 @@ fn print_nested(out: &mut String, v: &Value, depth: usize) {
                     Value::Object(m) => {
                         let line: Vec<String> = m
                             .iter()
-                            .map(|(k, v)| format!("{k}={}", scalar(v)))
+                            .map(|(k, v)| format!("{}={}", printable(k), scalar(v)))
                             .collect();
                         let _ = writeln!(out, "{pad}{}", line.join("  "));
                     }
@@ -132,7 +152,7 @@ fn print_nested(out: &mut String, v: &Value, depth: usize) {
         }
         Value::Object(m) => {
             for (k, v) in m {
-                let _ = writeln!(out, "{pad}{k}  {}", scalar(v));
+                let _ = writeln!(out, "{pad}{}  {}", printable(k), scalar(v));
             }
         }
         other => {
@@ -149,4 +169,45 @@ pub fn write_stdout(text: &str) -> CliResult {
         .write_all(text.as_bytes())
         .and_then(|()| stdout.flush())
         .map_err(|e| CliError::Io(format!("stdout: cannot write: {e}")))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn table_cells_carry_no_control_character() {
+        let forged = "antenna\r\n\u{1b}[2Kcable loss  0  dB\u{9b}";
+        let mut r = Report::new();
+        r.value(
+            "line items",
+            serde_json::json!([{ "name": forged, "gain": 2.0 }]),
+        )
+        .value(forged, Value::String(forged.into()))
+        .value("nested", serde_json::json!({ forged: forged }));
+        let text = r.render(Format::Table).expect("render");
+        let bad: Vec<char> = text
+            .chars()
+            .filter(|&c| c != '\n' && crate::error::is_unprintable(c))
+            .collect();
+        assert!(bad.is_empty(), "{bad:?} in {text}");
+        // One line per row: the CR LF of the name did not start a new one.
+        assert!(text.lines().all(|l| !l.starts_with("cable loss")), "{text}");
+    }
+
+    #[test]
+    fn json_text_escapes_what_the_encoder_leaves_raw() {
+        let v = serde_json::json!({ "name": "a\u{7f}\u{9b}b" });
+        let text = json_text(&v).expect("encode");
+        assert_eq!(
+            json_line(&v).expect("encode"),
+            "{\"name\":\"a\\u007f\\u009bb\"}"
+        );
+        let mut r = Report::new();
+        r.value("name", Value::String("a\u{7f}\u{9b}b".into()));
+        assert_eq!(r.render(Format::Json).expect("render"), format!("{text}\n"));
+        assert!(text.contains("\\u007f\\u009b"), "{text}");
+        let back: Value = serde_json::from_str(&text).expect("valid JSON");
+        assert_eq!(back, v);
+    }
 }

@@ -213,3 +213,79 @@ fn an_unwritable_destination_is_an_io_error() {
         "temporary file",
     );
 }
+
+/// No control or bidi character outside the newlines that end lines.
+fn assert_no_raw_controls(what: &str, text: &str) {
+    let bad: Vec<char> = text
+        .chars()
+        .filter(|&c| {
+            c != '\n'
+                && (c.is_control()
+                    || matches!(c, '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}'))
+        })
+        .collect();
+    assert!(bad.is_empty(), "{what}: {bad:?}");
+}
+
+#[test]
+fn control_characters_in_names_give_well_formed_svg_and_clean_tables() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let link = std::fs::read_to_string(example("orchard-sensor.toml")).expect("example");
+    let from = "name = \"canopy (summer foliage)\"";
+    assert!(link.contains(from), "update the test");
+    // ESC, CR, LF, NUL, DEL, a C1 CSI, a bidi override, and XML's < & in a
+    // line-item name (TOML escapes) and in the link's name.
+    let hostile = "c\\u001b[2J\\r\\nfake row\\u0000\\u007f\\u009b\\u202e<&";
+    let link = link
+        .replacen(from, &format!("name = \"{hostile}\""), 1)
+        .replacen(
+            "name = \"Kestrel Hill orchard",
+            "name = \"\\u001b]0;title\\u0007 <&> Kestrel Hill orchard",
+            1,
+        );
+    let l = dir.path().join("hostile.toml");
+    std::fs::write(&l, link).expect("write link");
+    let svg = dir.path().join("hostile.svg");
+    let png = dir.path().join("hostile.png");
+    for (format, plot) in [("table", &svg), ("json", &png)] {
+        let o = run(&["budget", s(&l), "--format", format, "--plot", s(plot)]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let out = String::from_utf8(o.stdout).expect("utf-8");
+        assert_no_raw_controls(format, &out);
+        assert!(out.contains("fake row"), "{out}");
+        assert!(!out.lines().any(|l| l.starts_with("fake row")), "{out}");
+        if format == "json" {
+            let v: serde_json::Value = serde_json::from_str(&out).expect("JSON");
+            let names = v["line_items"].to_string();
+            assert!(names.contains("\\u001b[2J\\r\\nfake row"), "{names}");
+        }
+    }
+    let text = std::fs::read_to_string(&svg).expect("svg");
+    assert_no_raw_controls("svg", &text);
+    let texts = svg_texts(&svg);
+    assert!(texts.contains("<&> Kestrel Hill orchard"), "{texts}");
+    assert!(texts.contains("\\u{1b}"), "{texts}");
+    assert_eq!(png_size(&png), png_size(&png));
+}
+
+#[test]
+fn a_log_named_with_control_characters_gives_a_well_formed_replay_plot() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let name = "node\u{1b}[31m\r<7>&\u{202e}.csv";
+    let log = dir.path().join(name);
+    std::fs::copy(
+        PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../examples/logs/orchard-868.csv"),
+        &log,
+    )
+    .expect("copy log");
+    let svg = dir.path().join("r.svg");
+    let o = run(&["replay", s(&log), "--plot", s(&svg)]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert_no_raw_controls("stdout", &String::from_utf8_lossy(&o.stdout));
+    assert_no_raw_controls("svg", &std::fs::read_to_string(&svg).expect("svg"));
+    let texts = svg_texts(&svg);
+    assert!(
+        texts.contains("replay of node\\u{1b}[31m\\r<7>&\\u{202e}.csv"),
+        "{texts}"
+    );
+}

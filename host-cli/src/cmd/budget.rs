@@ -67,6 +67,7 @@ pub fn report(l: &LoadedLink) -> CliResult<Report> {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::atomic::note_input(&args.link);
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
     }

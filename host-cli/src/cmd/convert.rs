@@ -61,21 +61,21 @@ pub fn run(args: Args) -> CliResult {
     output.finish()?;
     let name = args.input.display();
     for d in input.damage() {
-        eprintln!("headroom: warning: {name}: {d}");
+        crate::diag::warn(format!("{name}: {d}"));
     }
     if input.other_frames() > 0 {
-        eprintln!(
-            "headroom: note: {name}: {} frame(s) other than records (decisions, newer kinds) not converted",
+        crate::diag::note(format!(
+            "{name}: {} frame(s) other than records (decisions, newer kinds) not converted",
             input.other_frames()
-        );
+        ));
     }
     let lost: u64 = input.damage().iter().map(|d| d.frames_skipped).sum();
-    eprintln!(
-        "headroom: converted {written} record(s) from {} to {} ({} damaged region(s), {lost} frame(s) lost)",
+    crate::diag::info(format!(
+        "converted {written} record(s) from {} to {} ({} damaged region(s), {lost} frame(s) lost)",
         input.format(),
         to,
         input.damage().len()
-    );
+    ));
     Ok(())
 }
 

@@ -184,8 +184,7 @@ impl Radio {
 
 /// Read and check a scenario file.
 pub fn load_scenario(path: &Path) -> CliResult<Scenario> {
-    let text =
-        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let text = crate::atomic::read_text(path)?;
     parse_scenario(&text).map_err(|e| match e {
         CliError::Input(m) => CliError::Input(format!("{}: {m}", path.display())),
         other => other,

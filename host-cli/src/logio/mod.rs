@@ -150,6 +150,7 @@ pub fn open_as(path: &Path, format: Option<LogFormat>) -> CliResult<LogReader> {
         None => LogFormat::from_path(path)?,
     };
     let file = File::open(path).map_err(|e| CliError::input_file(path, "cannot open", &e))?;
+    crate::atomic::note_input_file(path, &file);
     let name = path.display().to_string();
     let inner = match format {
         LogFormat::Csv => Inner::Csv(Box::new(csv::CsvReader::new(name, path, file)?)),

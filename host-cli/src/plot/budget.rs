@@ -93,14 +93,14 @@ pub fn budget_plot<const N: usize>(
             Stage::ReceiverInput => (None, Band::Rx),
         };
         columns.push(Column {
-            name: lv.name.to_string(),
+            name: crate::error::printable(lv.name),
             gain_db,
             band,
             level_dbm: f64::from(lv.level.0),
         });
     }
     let fig = LevelDiagram {
-        title: title.to_string(),
+        title: crate::error::printable(title),
         columns,
         noise_dbm: f64::from(r.noise_power.0),
         sensitivity_dbm: f64::from(r.sensitivity.0),

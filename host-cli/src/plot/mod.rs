@@ -24,7 +24,7 @@ mod replay;
 
 pub use budget::budget_plot;
 pub use pareto::{pareto_plot, FrontMarks};
-pub use replay::{replay_plot, ReplaySeries};
+pub use replay::{replay_plot, ReplayPoint, ReplaySeries};
 
 /// The file types a plot can be written as.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -96,7 +96,7 @@ fn save(path: &Path, force: bool, fig: &impl Figure) -> CliResult {
                 fig.draw(&root).map_err(|e| draw_error(path, e))?;
                 root.present().map_err(|e| draw_error(path, e))?;
             }
-            text.into_bytes()
+            svg_safe(text).into_bytes()
         }
         PlotFormat::Png => {
             let len = usize::try_from(u64::from(w) * u64::from(h) * 3)
@@ -112,6 +112,22 @@ fn save(path: &Path, force: bool, fig: &impl Figure) -> CliResult {
         }
     };
     atomic::write(path, force, &bytes)
+}
+
+/// SVG text with every unprintable character escaped as
+/// [`printable`](crate::error::printable) does, except the newlines between
+/// elements: well-formed XML (which allows no C0 control but tab and
+/// newline) without a raw control character, whatever a name held. The
+/// figures escape their texts already; this is the last guard.
+fn svg_safe(text: String) -> String {
+    use crate::error::{is_unprintable, printable};
+    if !text.chars().any(|c| c != '\n' && is_unprintable(c)) {
+        return text;
+    }
+    text.split('\n')
+        .map(printable)
+        .collect::<Vec<_>>()
+        .join("\n")
 }
 
 fn encode_png(w: u32, h: u32, rgb: &[u8]) -> Result<Vec<u8>, png::EncodingError> {
@@ -197,13 +213,16 @@ mod tests {
             let fade = 6.0 * phase.sin() + if k % 97 == 0 { -22.0 } else { 0.0 };
             let tx = if fade < -3.0 { 14.0 } else { 8.0 };
             let rx = -104.0 + fade + tx - 8.0;
-            s.t_ms.push(t);
-            s.logged_rx_dbm.push((rx > -121.0).then_some(rx));
-            s.replayed_rx_dbm.push(Some(rx + 8.0 - tx + 10.0));
-            s.noise_floor_dbm.push(Some(-117.0));
-            s.tx_power_dbm.push(Some(tx));
-            s.margin_db.push(Some(rx + 117.0 + 10.0 - 11.5));
-            s.lost.push(rx <= -121.0);
+            s.push(ReplayPoint {
+                t_ms: t,
+                logged_rx_dbm: (rx > -121.0).then_some(rx),
+                replayed_rx_dbm: Some(rx + 8.0 - tx + 10.0),
+                noise_floor_dbm: Some(-117.0),
+                tx_power_dbm: Some(tx),
+                margin_db: Some(rx + 117.0 + 10.0 - 11.5),
+                lost: rx <= -121.0,
+                threshold_dbm: Some(-117.0 + 8.0),
+            });
         }
         s
     }

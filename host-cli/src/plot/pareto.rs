@@ -10,7 +10,7 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use super::{finite_range, padded, save, signed, DrawResult, Figure, FONT};
-use crate::error::{CliError, CliResult};
+use crate::error::{printable, CliError, CliResult};
 
 const MEETS: RGBColor = RGBColor(20, 130, 60);
 const MISSES: RGBColor = RGBColor(150, 150, 150);
@@ -52,7 +52,8 @@ pub struct FrontMarks {
 /// fraction in [0, 1], label, meets the target) to `path` (`.svg` or `.png`),
 /// with a line at `target_outage` (a fraction), the front, the best and the
 /// default marked as `marks` says. Refuses to replace an existing file
-/// unless `force`.
+/// unless `force`. Control characters of the title and the labels are
+/// escaped.
 pub fn pareto_plot<L: AsRef<str>>(
     path: &Path,
     force: bool,
@@ -75,23 +76,25 @@ pub fn pareto_plot<L: AsRef<str>>(
         let label = label.as_ref();
         if !tx.is_finite() {
             return Err(CliError::Input(format!(
-                "pareto plot: '{label}': mean transmit power is {tx}"
+                "pareto plot: '{}': mean transmit power is {tx}",
+                printable(label)
             )));
         }
         if !(0.0..=1.0).contains(loss) {
             return Err(CliError::Input(format!(
-                "pareto plot: '{label}': loss rate {loss} is not a fraction in [0, 1]"
+                "pareto plot: '{}': loss rate {loss} is not a fraction in [0, 1]",
+                printable(label)
             )));
         }
         pts.push(Point {
             tx_dbm: f64::from(*tx),
             loss_pct: 100.0 * f64::from(*loss),
-            label: label.to_string(),
+            label: printable(label),
             meets: *meets,
         });
     }
     let fig = ParetoFigure {
-        title: title.to_string(),
+        title: printable(title),
         front: marks.front.clone(),
         points: pts,
         best: marks.best,

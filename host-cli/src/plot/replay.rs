@@ -2,23 +2,27 @@
 //! against the noise floor, with lost packets marked, above the transmit
 //! power the controller chose and the margin it kept.
 //!
-//! Long logs are decimated: the time axis is cut into one bucket per pixel
-//! column and each series keeps its smallest and largest value in every
-//! bucket, in the order they occurred, so that a single-record spike stays
-//! visible while the drawing holds at most two points per column.
+//! The series is decimated while it is streamed, in constant memory: records
+//! fall into time buckets of 2^k ms (k = 0 at first, every record its own
+//! point); when more than [`MAX_BUCKETS`] buckets hold records, the width
+//! doubles and neighbouring buckets merge pairwise. Each bucket keeps, per
+//! line, its smallest and largest value with their times, and the time of
+//! its first lost packet: a single-record spike and every lost packet stay
+//! visible, while the drawing holds at most two points per bucket and line.
 
 use std::path::Path;
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+use std::collections::BTreeMap;
+
 use super::{decimals, finite_range, padded, save, signed, DrawResult, Figure, FONT};
-use crate::error::{CliError, CliResult};
+use crate::error::{printable, CliError, CliResult};
 
 const WIDTH: u32 = 1200;
 const HEIGHT: u32 = 760;
-/// Left and right label areas and margins, in pixels: what is left is the
-/// width of the plotting area, one decimation bucket per pixel column.
+/// Left and right label areas and margins, in pixels.
 const LEFT: u32 = 80;
 const RIGHT: u32 = 80;
 const MARGIN: u32 = 14;
@@ -31,33 +35,195 @@ const TX: RGBColor = RGBColor(20, 130, 60);
 const MARGIN_C: RGBColor = RGBColor(120, 60, 170);
 const GRID_C: RGBColor = RGBColor(110, 110, 110);
 
-/// Per-record columns of a replay, all as long as `t_ms`; a column left
-/// empty is not drawn. `None` (or a non-finite value) is a record without
-/// that value and leaves a gap in the line.
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct ReplaySeries {
-    /// Time of each record, milliseconds since the log's start.
-    pub t_ms: Vec<u64>,
+/// Buckets a series keeps at most (about two per pixel column of the
+/// plotting area, which is 1 012 pixels wide).
+pub const MAX_BUCKETS: usize = 2048;
+
+/// The lines of the plot, in the order of [`ReplayPoint::values`].
+const LINES: usize = 6;
+const NOISE_LINE: usize = 0;
+const LOGGED_LINE: usize = 1;
+const REPLAYED_LINE: usize = 2;
+const TX_LINE: usize = 3;
+const MARGIN_LINE: usize = 4;
+const THRESHOLD_LINE: usize = 5;
+
+/// One record of a replay, as [`ReplaySeries::push`] takes it. `None` (or a
+/// non-finite value) is a record without that value: it leaves a gap in the
+/// line; a line without any value is not drawn.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct ReplayPoint {
+    /// Time of the record, milliseconds since the log's start.
+    pub t_ms: u64,
     /// Received power as logged, dBm.
-    pub logged_rx_dbm: Vec<Option<f32>>,
+    pub logged_rx_dbm: Option<f32>,
     /// Received power the replayed transmit power would have given, dBm.
-    pub replayed_rx_dbm: Vec<Option<f32>>,
+    pub replayed_rx_dbm: Option<f32>,
     /// Noise floor at the receiver, dBm.
-    pub noise_floor_dbm: Vec<Option<f32>>,
+    pub noise_floor_dbm: Option<f32>,
     /// Transmit power the controller chose, dBm.
-    pub tx_power_dbm: Vec<Option<f32>>,
+    pub tx_power_dbm: Option<f32>,
     /// Margin over the requirement, dB.
-    pub margin_db: Vec<Option<f32>>,
+    pub margin_db: Option<f32>,
     /// The packet was lost.
-    pub lost: Vec<bool>,
+    pub lost: bool,
     /// Loss threshold: the received power below which the packet is lost
     /// (noise floor + required SNR), dBm.
-    pub threshold_dbm: Vec<Option<f32>>,
+    pub threshold_dbm: Option<f32>,
+}
+
+impl ReplayPoint {
+    fn values(&self) -> [Option<f32>; LINES] {
+        [
+            self.noise_floor_dbm,
+            self.logged_rx_dbm,
+            self.replayed_rx_dbm,
+            self.tx_power_dbm,
+            self.margin_db,
+            self.threshold_dbm,
+        ]
+    }
+}
+
+/// Smallest and largest value of one line in one bucket, each with its time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Extremes {
+    lo: (u64, f32),
+    hi: (u64, f32),
+}
+
+impl Extremes {
+    fn absorb(&mut self, o: Extremes) {
+        if o.lo.1 < self.lo.1 || (o.lo.1 == self.lo.1 && o.lo.0 < self.lo.0) {
+            self.lo = o.lo;
+        }
+        if o.hi.1 > self.hi.1 || (o.hi.1 == self.hi.1 && o.hi.0 < self.hi.0) {
+            self.hi = o.hi;
+        }
+    }
+}
+
+/// What one time bucket keeps of its records.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+struct Bucket {
+    records: u64,
+    lines: [Option<Extremes>; LINES],
+    /// Time of the first lost packet.
+    lost: Option<u64>,
+}
+
+impl Bucket {
+    fn absorb(&mut self, o: &Bucket) {
+        self.records += o.records;
+        for (mine, theirs) in self.lines.iter_mut().zip(o.lines) {
+            match (mine.as_mut(), theirs) {
+                (Some(m), Some(t)) => m.absorb(t),
+                (None, t) => *mine = t,
+                (Some(_), None) => {}
+            }
+        }
+        self.lost = match (self.lost, o.lost) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+    }
+
+    fn of(p: &ReplayPoint) -> Bucket {
+        let mut b = Bucket {
+            records: 1,
+            lost: p.lost.then_some(p.t_ms),
+            ..Bucket::default()
+        };
+        for (slot, v) in b.lines.iter_mut().zip(p.values()) {
+            *slot = v.filter(|x| x.is_finite()).map(|y| Extremes {
+                lo: (p.t_ms, y),
+                hi: (p.t_ms, y),
+            });
+        }
+        b
+    }
+}
+
+/// The records of a replay, decimated as they are pushed: memory is bounded
+/// by [`MAX_BUCKETS`] buckets of 224 bytes whatever the length of the log
+/// (under 1 MB with the map that holds them).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ReplaySeries {
+    /// Buckets by index (time >> `shift`).
+    buckets: BTreeMap<u64, Bucket>,
+    /// Bucket width is 2^shift ms.
+    shift: u32,
+    records: u64,
+    t_min: u64,
+    t_max: u64,
     /// Lowest and highest level the controller was allowed, dBm.
     pub limits_dbm: Option<(f32, f32)>,
     /// Transmit power at the EIRP cap (cap − antenna gain), dBm, if a cap
     /// is configured.
     pub cap_tx_dbm: Option<f32>,
+}
+
+impl ReplaySeries {
+    /// An empty series.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Add one record (in any time order).
+    pub fn push(&mut self, p: ReplayPoint) {
+        if self.records == 0 {
+            (self.t_min, self.t_max) = (p.t_ms, p.t_ms);
+        } else {
+            self.t_min = self.t_min.min(p.t_ms);
+            self.t_max = self.t_max.max(p.t_ms);
+        }
+        self.records += 1;
+        let b = Bucket::of(&p);
+        self.buckets
+            .entry(p.t_ms.checked_shr(self.shift).unwrap_or(0))
+            .or_default()
+            .absorb(&b);
+        while self.buckets.len() > MAX_BUCKETS {
+            self.coarsen();
+        }
+    }
+
+    /// Double the bucket width, merging neighbours pairwise.
+    fn coarsen(&mut self) {
+        self.shift += 1;
+        let old = std::mem::take(&mut self.buckets);
+        for (i, b) in old {
+            self.buckets.entry(i >> 1).or_default().absorb(&b);
+        }
+    }
+
+    /// Number of records pushed.
+    pub fn len(&self) -> u64 {
+        self.records
+    }
+
+    /// No record was pushed.
+    pub fn is_empty(&self) -> bool {
+        self.records == 0
+    }
+
+    /// More than one record shares a bucket: the drawing is decimated.
+    fn decimated(&self) -> bool {
+        self.records > self.buckets.len() as u64
+    }
+
+    /// Median of the index steps between consecutive buckets (at least 1):
+    /// the typical interval between records, in buckets.
+    fn typical_step(&self) -> u64 {
+        let mut steps: Vec<u64> = self
+            .buckets
+            .keys()
+            .zip(self.buckets.keys().skip(1))
+            .map(|(a, b)| b - a)
+            .collect();
+        steps.sort_unstable();
+        steps.get(steps.len() / 2).copied().unwrap_or(1).max(1)
+    }
 }
 
 /// The unit of the time axis, chosen from the span of the log.
@@ -89,112 +255,54 @@ fn time_unit(span_ms: f64) -> TimeUnit {
     }
 }
 
+/// A bucket's width as people read it (`4.1 min`).
+fn duration(ms: u64) -> String {
+    let ms = ms as f64;
+    if ms < 1e3 {
+        format!("{ms:.0} ms")
+    } else if ms < 120e3 {
+        format!("{:.1} s", ms / 1e3)
+    } else if ms < 120.0 * 60e3 {
+        format!("{:.1} min", ms / 60e3)
+    } else if ms < 48.0 * 3600e3 {
+        format!("{:.1} h", ms / 3600e3)
+    } else {
+        format!("{:.1} days", ms / 86400e3)
+    }
+}
+
 /// A line cut at its gaps: each inner vector is drawn as one polyline.
 type Pieces = Vec<Vec<(f64, f64)>>;
 
-/// The time axis shared by every series: where each record falls.
-struct Axis {
-    t0: u64,
-    span_ms: f64,
-    unit: TimeUnit,
-    /// Number of buckets; 0 means no decimation (few records).
-    buckets: usize,
+/// x of time `t`: in `unit`s since `t0`.
+fn x_of(t: u64, t0: u64, unit: TimeUnit) -> f64 {
+    t.saturating_sub(t0) as f64 / unit.ms
 }
 
-impl Axis {
-    fn x(&self, t: u64) -> f64 {
-        t.saturating_sub(self.t0) as f64 / self.unit.ms
-    }
-
-    fn bucket(&self, t: u64) -> usize {
-        if self.span_ms <= 0.0 {
-            return 0;
-        }
-        let f = t.saturating_sub(self.t0) as f64 / self.span_ms;
-        ((f * self.buckets as f64) as usize).min(self.buckets.saturating_sub(1))
-    }
-
-    fn bucket_x(&self, b: usize) -> f64 {
-        (b as f64 + 0.5) / self.buckets.max(1) as f64 * self.span_ms / self.unit.ms
-    }
-}
-
-fn value(v: Option<f32>) -> Option<f64> {
-    v.map(f64::from).filter(|x| x.is_finite())
-}
-
-/// Median of the positive steps between consecutive records, ms (0 if none).
-fn typical_interval(t: &[u64]) -> u64 {
-    let mut steps: Vec<u64> = t
-        .windows(2)
-        .filter_map(|w| match w {
-            [a, b] if b > a => Some(b - a),
-            _ => None,
-        })
-        .collect();
-    steps.sort_unstable();
-    steps.get(steps.len() / 2).copied().unwrap_or(0)
-}
-
-/// The polyline pieces of one column: every record when there are few,
-/// else min and max per bucket.
-fn pieces(axis: &Axis, t: &[u64], ys: &[Option<f32>]) -> Pieces {
+/// The polyline pieces of line `line`: per bucket its smallest and largest
+/// value in time order; a bucket without a value of the line, or a pause of
+/// more than ten typical intervals, cuts it.
+fn pieces(s: &ReplaySeries, line: usize, unit: TimeUnit) -> Pieces {
+    let gap = 10 * s.typical_step();
     let mut out: Pieces = Vec::new();
     let mut cur: Vec<(f64, f64)> = Vec::new();
-    if axis.buckets == 0 {
-        // A pause of more than ten typical intervals is a gap in the log.
-        let gap = 10 * typical_interval(t).max(1);
-        let mut prev: Option<u64> = None;
-        for (&ti, &y) in t.iter().zip(ys) {
-            let paused = prev.is_some_and(|p| ti.saturating_sub(p) > gap);
-            prev = Some(ti);
-            if paused && !cur.is_empty() {
-                out.push(std::mem::take(&mut cur));
-            }
-            match value(y) {
-                Some(y) => cur.push((axis.x(ti), y)),
-                None => {
-                    if !cur.is_empty() {
-                        out.push(std::mem::take(&mut cur));
-                    }
-                }
-            }
+    let mut prev: Option<u64> = None;
+    for (&i, b) in &s.buckets {
+        let paused = prev.is_some_and(|p| i - p > gap);
+        prev = Some(i);
+        let value = b.lines.get(line).copied().flatten();
+        if (paused || value.is_none()) && !cur.is_empty() {
+            out.push(std::mem::take(&mut cur));
         }
-    } else {
-        // (min, index of min, max, index of max) per bucket; None when the
-        // bucket holds no value of this series.
-        let mut acc: Vec<Option<(f64, usize, f64, usize)>> = vec![None; axis.buckets];
-        for (k, (&ti, &y)) in t.iter().zip(ys).enumerate() {
-            let Some(y) = value(y) else { continue };
-            if let Some(slot) = acc.get_mut(axis.bucket(ti)) {
-                *slot = Some(match *slot {
-                    None => (y, k, y, k),
-                    Some((lo, klo, hi, khi)) => {
-                        let (lo, klo) = if y < lo { (y, k) } else { (lo, klo) };
-                        let (hi, khi) = if y > hi { (y, k) } else { (hi, khi) };
-                        (lo, klo, hi, khi)
-                    }
-                });
-            }
-        }
-        for (b, slot) in acc.iter().enumerate() {
-            match *slot {
-                // An empty bucket is a gap in the log (or in this series).
-                None => {
-                    if !cur.is_empty() {
-                        out.push(std::mem::take(&mut cur));
-                    }
-                }
-                Some((lo, klo, hi, khi)) => {
-                    let x = axis.bucket_x(b);
-                    if klo <= khi {
-                        cur.push((x, lo));
-                        cur.push((x, hi));
-                    } else {
-                        cur.push((x, hi));
-                        cur.push((x, lo));
-                    }
-                }
+        if let Some(e) = value {
+            let (a, z) = if e.hi.0 < e.lo.0 {
+                (e.hi, e.lo)
+            } else {
+                (e.lo, e.hi)
+            };
+            cur.push((x_of(a.0, s.t_min, unit), f64::from(a.1)));
+            if a != z {
+                cur.push((x_of(z.0, s.t_min, unit), f64::from(z.1)));
             }
         }
     }
@@ -204,26 +312,12 @@ fn pieces(axis: &Axis, t: &[u64], ys: &[Option<f32>]) -> Pieces {
     out
 }
 
-/// x positions of lost packets: one per record, or one per bucket.
-fn lost_marks(axis: &Axis, t: &[u64], lost: &[bool]) -> Vec<f64> {
-    if axis.buckets == 0 {
-        return t
-            .iter()
-            .zip(lost)
-            .filter(|(_, &l)| l)
-            .map(|(&ti, _)| axis.x(ti))
-            .collect();
-    }
-    let mut hit = vec![false; axis.buckets];
-    for (&ti, _) in t.iter().zip(lost).filter(|(_, &l)| l) {
-        if let Some(h) = hit.get_mut(axis.bucket(ti)) {
-            *h = true;
-        }
-    }
-    hit.iter()
-        .enumerate()
-        .filter(|(_, &h)| h)
-        .map(|(b, _)| axis.bucket_x(b))
+/// x positions of lost packets: the first of each bucket.
+fn lost_marks(s: &ReplaySeries, unit: TimeUnit) -> Vec<f64> {
+    s.buckets
+        .values()
+        .filter_map(|b| b.lost)
+        .map(|t| x_of(t, s.t_min, unit))
         .collect()
 }
 
@@ -237,8 +331,9 @@ struct ReplayFigure {
     title: String,
     x_max: f64,
     unit: TimeUnit,
-    records: usize,
-    decimated: bool,
+    records: u64,
+    /// Width of a bucket when decimated, ms.
+    bucket_ms: Option<u64>,
     top: Vec<Line>,
     lost: Vec<f64>,
     tx: Option<Line>,
@@ -247,79 +342,52 @@ struct ReplayFigure {
     cap: Option<f32>,
 }
 
-fn check_len<T>(name: &str, col: &[T], n: usize) -> CliResult {
-    if col.is_empty() || col.len() == n {
-        Ok(())
-    } else {
-        Err(CliError::Input(format!(
-            "replay plot: column '{name}' has {} values for {n} records",
-            col.len()
-        )))
-    }
-}
-
 /// Draw the time series of a replay to `path` (`.svg` or `.png`); refuses to
-/// replace an existing file unless `force`.
+/// replace an existing file unless `force`. Control characters of `title`
+/// (a log's name) are escaped.
 pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries) -> CliResult {
     super::check_destination(path, force)?;
     let s = series;
-    let n = s.t_ms.len();
-    if n == 0 {
+    if s.is_empty() {
         return Err(CliError::Input(
             "replay plot: the log has no records".into(),
         ));
     }
-    check_len("logged_rx_dbm", &s.logged_rx_dbm, n)?;
-    check_len("replayed_rx_dbm", &s.replayed_rx_dbm, n)?;
-    check_len("noise_floor_dbm", &s.noise_floor_dbm, n)?;
-    check_len("tx_power_dbm", &s.tx_power_dbm, n)?;
-    check_len("margin_db", &s.margin_db, n)?;
-    check_len("lost", &s.lost, n)?;
-    check_len("threshold_dbm", &s.threshold_dbm, n)?;
-
-    let t0 = s.t_ms.iter().copied().min().unwrap_or(0);
-    let t1 = s.t_ms.iter().copied().max().unwrap_or(0);
-    let span_ms = t1.saturating_sub(t0) as f64;
+    let span_ms = s.t_max.saturating_sub(s.t_min) as f64;
     let unit = time_unit(span_ms);
-    let columns = (WIDTH - LEFT - RIGHT - 2 * MARGIN) as usize;
-    let decimated = n > 2 * columns && span_ms > 0.0;
-    let axis = Axis {
-        t0,
-        span_ms,
-        unit,
-        buckets: if decimated { columns } else { 0 },
-    };
-
-    let line = |label, colour, col: &[Option<f32>]| {
-        (!col.is_empty()).then(|| Line {
+    let line = |label, colour, k: usize| {
+        let pieces = pieces(s, k, unit);
+        (!pieces.is_empty()).then_some(Line {
             label,
             colour,
-            pieces: pieces(&axis, &s.t_ms, col),
+            pieces,
         })
     };
     let top: Vec<Line> = [
-        line("noise floor", NOISE, &s.noise_floor_dbm),
-        line("received power, logged", LOGGED, &s.logged_rx_dbm),
-        line("received power, replayed", REPLAYED, &s.replayed_rx_dbm),
+        line("noise floor", NOISE, NOISE_LINE),
+        line("received power, logged", LOGGED, LOGGED_LINE),
+        line("received power, replayed", REPLAYED, REPLAYED_LINE),
         line(
             "loss threshold (noise + required SNR)",
             LOST,
-            &s.threshold_dbm,
+            THRESHOLD_LINE,
         ),
     ]
     .into_iter()
     .flatten()
     .collect();
     let fig = ReplayFigure {
-        title: title.to_string(),
+        title: printable(title),
         x_max: (span_ms / unit.ms).max(1e-9),
         unit,
-        records: n,
-        decimated,
+        records: s.records,
+        bucket_ms: s
+            .decimated()
+            .then(|| 1u64.checked_shl(s.shift).unwrap_or(u64::MAX)),
         top,
-        lost: lost_marks(&axis, &s.t_ms, &s.lost),
-        tx: line("transmit power chosen", TX, &s.tx_power_dbm),
-        margin: line("margin", MARGIN_C, &s.margin_db),
+        lost: lost_marks(s, unit),
+        tx: line("transmit power chosen", TX, TX_LINE),
+        margin: line("margin", MARGIN_C, MARGIN_LINE),
         limits: s.limits_dbm,
         cap: s.cap_tx_dbm,
     };
@@ -369,10 +437,13 @@ impl Figure for ReplayFigure {
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult<DB> {
-        let note = if self.decimated {
-            format!("{} records, min and max per pixel column", self.records)
-        } else {
-            format!("{} records", self.records)
+        let note = match self.bucket_ms {
+            Some(w) => format!(
+                "{} records, min and max per {} of time",
+                self.records,
+                duration(w)
+            ),
+            None => format!("{} records", self.records),
         };
         let root = root.titled(&format!("{}  ({note})", self.title), (FONT, 22))?;
         let (upper, lower) = root.split_vertically(HEIGHT * 55 / 100);
@@ -486,12 +557,9 @@ impl Figure for ReplayFigure {
         }
         // The limits in force, dashed: the radio's range and the EIRP cap.
         let marks = [
-            self.limits
-                .map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
-            self.limits
-                .map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
-            self.cap
-                .map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
+            self.limits.map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
+            self.limits.map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
+            self.cap.map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
         ];
         for (level, label, colour) in marks.into_iter().flatten() {
             let x_end = self.x_max;
@@ -502,12 +570,9 @@ impl Figure for ReplayFigure {
                     colour.stroke_width(1),
                 )
             });
-            chart
-                .draw_series(dashes)?
-                .label(label)
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
-                });
+            chart.draw_series(dashes)?.label(label).legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
+            });
         }
         if let Some(l) = &self.margin {
             let mut first = true;
@@ -538,54 +603,118 @@ impl Figure for ReplayFigure {
 mod tests {
     use super::*;
 
-    fn axis(n_buckets: usize, span: u64) -> Axis {
-        Axis {
-            t0: 0,
-            span_ms: span as f64,
-            unit: time_unit(span as f64),
-            buckets: n_buckets,
+    fn point(t_ms: u64, y: Option<f32>) -> ReplayPoint {
+        ReplayPoint {
+            t_ms,
+            logged_rx_dbm: y,
+            ..ReplayPoint::default()
         }
     }
 
-    #[test]
-    fn decimation_keeps_a_one_record_spike() {
-        let n = 100_000u64;
-        let t: Vec<u64> = (0..n).map(|k| k * 1000).collect();
-        let mut y: Vec<Option<f32>> = (0..n).map(|k| Some(-90.0 + (k % 7) as f32 * 0.1)).collect();
-        if let Some(v) = y.get_mut(54_321) {
-            *v = Some(-40.0);
+    fn series(points: impl IntoIterator<Item = ReplayPoint>) -> ReplaySeries {
+        let mut s = ReplaySeries::new();
+        for p in points {
+            s.push(p);
         }
-        let a = axis(1000, (n - 1) * 1000);
-        let p = pieces(&a, &t, &y);
-        let pts: Vec<(f64, f64)> = p.into_iter().flatten().collect();
-        assert!(pts.len() <= 2000, "{}", pts.len());
+        s
+    }
+
+    const SECONDS: TimeUnit = TimeUnit { name: "s", ms: 1e3 };
+
+    #[test]
+    fn decimation_keeps_a_one_record_spike_in_bounded_memory() {
+        let n = 1_000_000u64;
+        let s = series((0..n).map(|k| {
+            let y = if k == 654_321 {
+                -40.0
+            } else {
+                -90.0 + (k % 7) as f32 * 0.1
+            };
+            point(k * 1000, Some(y))
+        }));
+        assert_eq!(s.len(), n);
+        assert!(s.buckets.len() <= MAX_BUCKETS, "{}", s.buckets.len());
+        assert!(s.buckets.len() > MAX_BUCKETS / 2, "{}", s.buckets.len());
+        assert!(s.decimated());
+        let pts: Vec<(f64, f64)> = pieces(&s, LOGGED_LINE, SECONDS)
+            .into_iter()
+            .flatten()
+            .collect();
+        assert!(pts.len() <= 2 * MAX_BUCKETS, "{}", pts.len());
+        // The spike, at its own time.
         assert!(
-            pts.iter().any(|&(_, v)| (v + 40.0).abs() < 1e-6),
+            pts.iter()
+                .any(|&(x, v)| (v + 40.0).abs() < 1e-6 && (x - 654_321.0).abs() < 1e-6),
             "spike kept"
         );
         let lo = pts.iter().map(|p| p.1).fold(f64::INFINITY, f64::min);
         assert!((lo + 90.0).abs() < 1e-6);
+        // Lines without values are empty.
+        assert!(pieces(&s, TX_LINE, SECONDS).is_empty());
     }
 
     #[test]
-    fn gaps_cut_the_line() {
-        let t = vec![0, 1000, 2000, 3000, 4000];
-        let y = vec![Some(1.0), Some(2.0), None, Some(f32::NAN), Some(3.0)];
-        let p = pieces(&axis(0, 4000), &t, &y);
+    fn memory_does_not_grow_with_the_log_or_its_disorder() {
+        // Times jumping back and forth over a wide range, a few equal.
+        let mut s = ReplaySeries::new();
+        let mut x: u64 = 12345;
+        for _ in 0..300_000 {
+            // A 64-bit LCG (Knuth's MMIX constants, from memory).
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            s.push(point(x >> 20, Some((x % 1000) as f32)));
+        }
+        assert!(s.buckets.len() <= MAX_BUCKETS);
+        assert_eq!(s.len(), 300_000);
+        // The size the README states.
+        assert!(std::mem::size_of::<Bucket>() <= 224);
+        // Every bucket's values lie within the data.
+        for b in s.buckets.values() {
+            let e = b.lines[LOGGED_LINE].expect("value");
+            assert!(e.lo.1 <= e.hi.1 && e.lo.1 >= 0.0 && e.hi.1 < 1000.0);
+        }
+    }
+
+    #[test]
+    fn few_records_are_drawn_each_at_its_time() {
+        let s = series([
+            point(0, Some(1.0)),
+            point(1000, Some(2.0)),
+            point(2000, None),
+            point(3000, Some(f32::NAN)),
+            point(4000, Some(3.0)),
+        ]);
+        assert!(!s.decimated());
+        let p = pieces(&s, LOGGED_LINE, SECONDS);
         assert_eq!(p, vec![vec![(0.0, 1.0), (1.0, 2.0)], vec![(4.0, 3.0)]]);
         // A pause of more than ten typical intervals cuts the line too.
-        let t = vec![0, 1000, 2000, 3000, 60_000, 61_000];
-        let y = vec![Some(1.0); 6];
-        let p = pieces(&axis(0, 61_000), &t, &y);
+        let s = series([0, 1000, 2000, 3000, 60_000, 61_000].map(|t| point(t, Some(1.0))));
+        let p = pieces(&s, LOGGED_LINE, SECONDS);
         assert_eq!(p.iter().map(Vec::len).collect::<Vec<_>>(), vec![4, 2]);
     }
 
     #[test]
-    fn lost_marks_are_one_per_bucket() {
-        let t: Vec<u64> = (0..10_000).collect();
-        let lost: Vec<bool> = (0..10_000).map(|k| k % 2 == 0).collect();
-        assert_eq!(lost_marks(&axis(100, 9999), &t, &lost).len(), 100);
-        assert_eq!(lost_marks(&axis(0, 9999), &t, &lost).len(), 5000);
+    fn every_lost_packet_stays_visible() {
+        // One lost packet among a million: still marked, at its time.
+        let s = series((0..1_000_000u64).map(|k| ReplayPoint {
+            lost: k == 777_777,
+            ..point(k * 10, Some(-90.0))
+        }));
+        assert!(s.decimated());
+        assert_eq!(lost_marks(&s, SECONDS), vec![7_777.77]);
+        // Many: at most one mark per bucket, one per record when few.
+        let s = series((0..2_000u64).map(|k| ReplayPoint {
+            lost: k % 2 == 0,
+            ..point(k, None)
+        }));
+        assert_eq!(lost_marks(&s, SECONDS).len(), 1000);
+        let s = series((0..1_000_000u64).map(|k| ReplayPoint {
+            lost: k % 2 == 0,
+            ..point(k, None)
+        }));
+        let marks = lost_marks(&s, SECONDS).len();
+        assert!(marks <= MAX_BUCKETS && marks > MAX_BUCKETS / 2, "{marks}");
     }
 
     #[test]
@@ -594,26 +723,16 @@ mod tests {
         assert_eq!(time_unit(3600e3).name, "min");
         assert_eq!(time_unit(86400e3).name, "h");
         assert_eq!(time_unit(30.0 * 86400e3).name, "days");
+        assert_eq!(duration(512), "512 ms");
+        assert_eq!(duration(262_144), "4.4 min");
     }
 
     #[test]
-    fn mismatched_columns_are_refused() {
+    fn an_empty_series_is_refused() {
         let dir = tempfile::tempdir().expect("temp dir");
-        let s = ReplaySeries {
-            t_ms: vec![0, 1, 2],
-            logged_rx_dbm: vec![Some(1.0)],
-            ..Default::default()
-        };
-        let e = replay_plot(&dir.path().join("r.svg"), false, "t", &s).expect_err("refused");
+        let e = replay_plot(&dir.path().join("r.svg"), false, "t", &ReplaySeries::new())
+            .expect_err("empty");
         assert_eq!(e.exit_code(), 2);
-        assert!(e.to_string().contains("logged_rx_dbm"), "{e}");
-        let e = replay_plot(
-            &dir.path().join("r.svg"),
-            false,
-            "t",
-            &ReplaySeries::default(),
-        )
-        .expect_err("empty");
         assert!(e.to_string().contains("no records"), "{e}");
     }
 }
