@@ -10,6 +10,7 @@ use defmt_semihosting as _;
 use embedded_hal::delay::DelayNs;
 
 use headroom::control::{Controller, Observation, Outcome, ReplayStep, Summary};
+use headroom::record::LogRecord;
 use headroom_firmware_demo::clock::{Clock, Delay};
 use headroom_firmware_demo::radio::{Radio, SimRadio};
 use headroom_firmware_demo::{board, host, scenario};
@@ -87,6 +88,7 @@ fn run() -> bool {
                 return false;
             }
         };
+        let at_max = ctrl.at_top();
         let d = ctrl.update(&obs);
         let (outcome, snr) = match obs {
             Observation::Feedback {
@@ -96,16 +98,27 @@ fn run() -> bool {
             Observation::Lost { .. } => (Outcome::Lost, None),
             Observation::Beacon { .. } | Observation::Missing { .. } => (Outcome::Unjudged, None),
         };
-        summary.add(&ReplayStep {
+        // The packet as this device would log it: sent at `chosen`.
+        let sent = LogRecord {
             t_ms: obs.t_ms(),
-            chosen,
-            replayed_snr: snr,
-            outcome,
-            path_loss_estimate: d.path_loss(),
-            margin: d.margin(),
-            reason: d.reason,
-            next_tx: d.tx,
-        });
+            tx_dbm: Some(chosen.0),
+            ..LogRecord::default()
+        };
+        summary.add(
+            &sent,
+            &ReplayStep {
+                t_ms: obs.t_ms(),
+                chosen,
+                replayed_snr: snr,
+                outcome,
+                logged_lost: None,
+                at_max,
+                path_loss_estimate: d.path_loss(),
+                margin: d.margin(),
+                reason: d.reason,
+                next_tx: d.tx,
+            },
+        );
         defmt::info!(
             "pkt {=u32} t={=u64}ms tx={=f32}dBm {} snr={} -> {=f32}dBm {} margin={=f32}dB",
             k,
@@ -121,7 +134,7 @@ fn run() -> bool {
 
     let loss = summary.outage_fraction().unwrap_or(0.0);
     let mean = summary.mean_tx_dbm().map_or(f32::NAN, |m| m.0);
-    let saved_db = summary.energy_saving_db().map_or(0.0, |s| s.0);
+    let saved_db = summary.saving_vs_max_db().map_or(0.0, |s| s.0);
     // Fraction of the always-at-maximum radiated energy that was not spent.
     let saved_fraction = 1.0 - libm::exp10f(-saved_db / 10.0);
     defmt::info!(

@@ -12,9 +12,9 @@ use core::hint::black_box;
 
 use cortex_m_rt::entry;
 
-use headroom::control::{Controller, ControllerConfig, Observation, Replay};
-use headroom::record::LogRecord;
-use headroom::units::{Db, Dbm};
+use headroom::control::{settings, Controller, ControllerConfig, Fleet, Observation, Replay};
+use headroom::record::{LogHeader, LogRecord};
+use headroom::units::{Db, Dbi, Dbm};
 use headroom_firmware_demo::{host, probe_f32};
 
 /// The replay window, the engine's one value.
@@ -62,6 +62,29 @@ fn run() -> bool {
         black_box(replay.step(black_box(&rec)));
     }
     let s = replay.summary();
-    black_box((s.outage_fraction(), s.mean_tx_dbm(), s.energy_saving_db()));
+    black_box((
+        s.outage_fraction(),
+        s.outage_below_max(),
+        s.mean_tx_dbm(),
+        s.saving_vs_max_db(),
+        s.saving_vs_logged_db(),
+        s.logged.outage_fraction(),
+    ));
+    let mut fleet = Fleet::new();
+    fleet.add(s, black_box(0.01));
+    fleet.add(s, black_box(0.02));
+    black_box(&fleet);
+    // The settings resolution the replay on target runs, from a header of
+    // arbitrary values.
+    let header = LogHeader {
+        min_tx: Some(Dbm(probe_f32(7, 1))),
+        max_tx: Some(Dbm(probe_f32(7, 2))),
+        tx_step: Some(Db(probe_f32(7, 3))),
+        antenna_gain: Some(Dbi(probe_f32(7, 4))),
+        required_snr: Some(Db(probe_f32(7, 5))),
+        eirp_cap: Some(Dbm(probe_f32(7, 6))),
+        ..LogHeader::default()
+    };
+    black_box(settings::for_log(black_box(Some(&header))).is_ok());
     true
 }
