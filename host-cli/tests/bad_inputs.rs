@@ -741,7 +741,7 @@ fn cases() -> Vec<Case> {
         Case {
             input: "a binary log of only zero bytes",
             files: vec![("zeros.hrlog", vec![0u8; 4096])],
-            args: &["replay", "zeros.hrlog"],
+            args: &["replay", "zeros.hrlog", "--required-snr-db", "8"],
             exit: 2,
             names: &["zeros.hrlog"],
             finding: Some((Fix::Reported, "replayed as 0 records")),
@@ -749,7 +749,7 @@ fn cases() -> Vec<Case> {
         Case {
             input: "CSV log without `rssi_dbm`",
             files: vec![("nr.csv", text("t_ms,tx_dbm,noise_dbm\n0,14,-117\n"))],
-            args: &["replay", "nr.csv"],
+            args: &["replay", "nr.csv", "--required-snr-db", "8"],
             exit: 2,
             names: &["nr.csv", "rssi_dbm"],
             finding: Some((Fix::Reported, "a required column missing is accepted")),
@@ -757,7 +757,7 @@ fn cases() -> Vec<Case> {
         Case {
             input: "CSV log without `noise_dbm`",
             files: vec![("nn.csv", text("t_ms,tx_dbm,rssi_dbm\n0,14,-90\n"))],
-            args: &["replay", "nn.csv"],
+            args: &["replay", "nn.csv", "--required-snr-db", "8"],
             exit: 2,
             names: &["nn.csv", "noise_dbm"],
             finding: Some((Fix::Reported, "a required column missing is accepted")),

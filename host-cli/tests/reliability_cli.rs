@@ -70,11 +70,31 @@ fn a_closed_stderr_neither_panics_nor_changes_the_result() {
     let d = dir.path();
     damaged_log(d);
     // With stderr open: the warning is there (the case is a real one).
-    let o = run(d, &["replay", "cut.hrlog", "--out", "open.csv"]);
+    let o = run(
+        d,
+        &[
+            "replay",
+            "cut.hrlog",
+            "--required-snr-db",
+            "8",
+            "--out",
+            "open.csv",
+        ],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(stderr(&o).contains("warning"), "{}", stderr(&o));
     // Closed: same exit code, the decisions file committed, no temporary.
-    let o = with_closed_stderr(d, &["replay", "cut.hrlog", "--out", "closed.csv"]);
+    let o = with_closed_stderr(
+        d,
+        &[
+            "replay",
+            "cut.hrlog",
+            "--required-snr-db",
+            "8",
+            "--out",
+            "closed.csv",
+        ],
+    );
     assert_eq!(o.status.code(), Some(0));
     assert_eq!(
         fs::read(d.join("closed.csv")).unwrap(),
@@ -135,7 +155,7 @@ fn an_output_is_never_one_of_the_inputs() {
     let d = dir.path();
     fs::copy(example("examples/logs/orchard-868.csv"), d.join("log.csv")).unwrap();
     fs::copy(
-        example("examples/controllers/default.toml"),
+        example("examples/controllers/tuning.toml"),
         d.join("c.toml"),
     )
     .unwrap();
@@ -221,7 +241,7 @@ fn an_output_is_never_one_of_the_inputs() {
                     "tune",
                     "log.csv",
                     "--sweep",
-                    "required_snr_db=4..6:1",
+                    "deadband_db=0..2:1",
                     "--quiet",
                     "--plot",
                     "log.svg",
@@ -360,7 +380,7 @@ fn log_names_with_control_characters_in_every_replay_format() {
             }
             _ => {
                 // The forged heading stays inside the first log's line.
-                assert_eq!(out.matches("== fleet").count(), 2, "{out}");
+                assert!(out.matches("== fleet").count() >= 2, "{out}");
                 let headings = out.lines().filter(|l| l.starts_with("== fleet"));
                 assert_eq!(headings.count(), 1, "{out}");
             }

@@ -22,7 +22,7 @@ use std::path::{Path, PathBuf};
 
 use headroom::control::{Fleet, Outcome, ReplayStep, Summary};
 use headroom::record::codec::{Encoder, MAX_FRAME};
-use headroom::record::{DecisionRecord, LogRecord};
+use headroom::record::DecisionRecord;
 use serde_json::{Map, Value};
 
 use crate::atomic::AtomicFile;
@@ -30,7 +30,7 @@ use crate::error::{CliError, CliResult};
 use crate::fleet::settings::{Resolver, SettingArgs};
 use crate::fleet::{self, logs, report, HostReplay};
 use crate::logio::LogFormat;
-use crate::plot::{self, ReplaySeries};
+use crate::plot::{self, ReplayPoint, ReplaySeries};
 
 /// How the summaries are printed.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, clap::ValueEnum)]
@@ -104,6 +104,7 @@ pub struct Args {
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
     let list = logs::expand(&args.logs, args.strict)?;
+    crate::atomic::note_inputs(list.logs.iter().chain(&args.settings.config));
     for (p, why) in &list.skipped {
         warn(&format!("{}: skipped: {why}", p.display()));
     }
@@ -128,6 +129,7 @@ pub fn run(args: Args) -> CliResult {
         plot::check_destination(p, args.force)?;
     }
     if let Some(p) = &args.out {
+        crate::atomic::check_new(p, args.force)?;
         LogFormat::from_path(p).map_err(|_| {
             CliError::arg(
                 "--out",
@@ -153,14 +155,13 @@ pub fn run(args: Args) -> CliResult {
         let obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
         match args.format {
             ReplayFormat::Jsonl => {
-                let line = serde_json::to_string(&Value::Object(obj))
-                    .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+                let line = crate::output::json_line(&Value::Object(obj))?;
                 print_text(&format!("{line}\n"))?;
             }
             ReplayFormat::Json => blocks.push(obj),
             ReplayFormat::Table => {
                 use std::fmt::Write as _;
-                let _ = writeln!(table, "== {name}");
+                let _ = writeln!(table, "== {}", crate::error::printable(&name));
                 report::settings_table(&mut table, &settings.resolved);
                 let _ = writeln!(table);
                 report::summary_table(&mut table, &s);
@@ -182,8 +183,7 @@ pub fn run(args: Args) -> CliResult {
                 "fleet".into(),
                 Value::Object(report::fleet_json(&fleet, list.skipped.len(), &names)),
             );
-            let s = serde_json::to_string_pretty(&Value::Object(m))
-                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            let s = crate::output::json_text(&Value::Object(m))?;
             print_text(&format!("{s}\n"))
         }
         ReplayFormat::Table => {
@@ -199,8 +199,7 @@ pub fn run(args: Args) -> CliResult {
 
 /// A warning on stderr.
 fn warn(msg: &str) {
-    let mut e = io::stderr().lock();
-    let _ = writeln!(e, "headroom: warning: {}", crate::error::printable(msg));
+    crate::diag::warn(msg);
 }
 
 /// Text on stdout, flushed; a closed pipe is an error, not a panic.
@@ -234,7 +233,7 @@ fn replay_log(
         Some(p) => Some(DecisionWriter::create(p, args.force)?),
         None => None,
     };
-    let mut series = args.plot.as_ref().map(|_| ReplaySeries::default());
+    let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
     for rec in &mut reader {
         let rec = rec?;
         let step = replay.step(&rec);
@@ -242,9 +241,16 @@ fn replay_log(
             w.row(&step)?;
         }
         if let Some(s) = series.as_mut() {
-            push_series(s, &rec, &step);
-            s.threshold_dbm
-                .push(replay.loss_threshold(&rec).map(|d| d.0));
+            s.push(ReplayPoint {
+                t_ms: step.t_ms,
+                logged_rx_dbm: rec.rssi_dbm,
+                replayed_rx_dbm: step.replayed_rx(&rec).map(|d| d.0),
+                noise_floor_dbm: rec.noise_dbm,
+                tx_power_dbm: Some(step.chosen.0),
+                margin_db: Some(step.margin.0),
+                lost: step.outcome == Outcome::Lost,
+                threshold_dbm: replay.loss_threshold(&rec).map(|d| d.0),
+            });
         }
     }
     for d in reader.damage() {
@@ -260,7 +266,7 @@ fn replay_log(
         w.finish()?;
     }
     if let (Some(p), Some(s)) = (&args.plot, &mut series) {
-        if s.t_ms.is_empty() {
+        if s.is_empty() {
             return Err(CliError::arg(
                 "--plot",
                 format!("{}: the log has no records to draw", path.display()),
@@ -279,17 +285,6 @@ fn replay_log(
         plot::replay_plot(p, args.force, &format!("replay of {name}"), s)?;
     }
     Ok((settings, *replay.summary()))
-}
-
-/// One record's values for the plot, as logged or as the engine replayed them.
-fn push_series(s: &mut ReplaySeries, rec: &LogRecord, step: &ReplayStep) {
-    s.t_ms.push(step.t_ms);
-    s.logged_rx_dbm.push(rec.rssi_dbm);
-    s.replayed_rx_dbm.push(step.replayed_rx(rec).map(|d| d.0));
-    s.noise_floor_dbm.push(rec.noise_dbm);
-    s.tx_power_dbm.push(Some(step.chosen.0));
-    s.margin_db.push(Some(step.margin.0));
-    s.lost.push(step.outcome == Outcome::Lost);
 }
 
 /// The `--out` decisions, CSV or binary frames by the name's extension,

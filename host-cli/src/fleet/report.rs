@@ -300,7 +300,7 @@ pub fn fleet_table(out: &mut String, f: &Fleet, skipped: usize, names: &[String]
                 .ok()
                 .and_then(|k| names.get(k))
                 .map_or("", String::as_str);
-            format!("{} ({name})", pct(Some(w)))
+            format!("{} ({})", pct(Some(w)), crate::error::printable(name))
         },
     );
     let _ = writeln!(out, "{:<24}{worst}", "worst_outage_fraction");

@@ -157,8 +157,7 @@ pub fn one_line(s: &str) -> String {
 
 /// A settings file as a layer. Unknown keys are refused, with the known ones.
 pub fn load_config(path: &Path) -> CliResult<Layer> {
-    let text =
-        std::fs::read_to_string(path).map_err(|e| CliError::input_file(path, "cannot read", &e))?;
+    let text = crate::atomic::read_text(path)?;
     parse_config(&text).map_err(|e| CliError::arg("--config", format!("{}: {e}", path.display())))
 }
 

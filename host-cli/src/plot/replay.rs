@@ -145,7 +145,7 @@ impl Bucket {
 }
 
 /// The records of a replay, decimated as they are pushed: memory is bounded
-/// by [`MAX_BUCKETS`] buckets of 224 bytes whatever the length of the log
+/// by [`MAX_BUCKETS`] buckets of 264 bytes whatever the length of the log
 /// (under 1 MB with the map that holds them).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReplaySeries {
@@ -557,9 +557,12 @@ impl Figure for ReplayFigure {
         }
         // The limits in force, dashed: the radio's range and the EIRP cap.
         let marks = [
-            self.limits.map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
-            self.limits.map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
-            self.cap.map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
+            self.limits
+                .map(|l| (f64::from(l.0), "lowest allowed", GRID_C)),
+            self.limits
+                .map(|l| (f64::from(l.1), "highest allowed", GRID_C)),
+            self.cap
+                .map(|c| (f64::from(c), "EIRP cap - antenna gain", LOST)),
         ];
         for (level, label, colour) in marks.into_iter().flatten() {
             let x_end = self.x_max;
@@ -570,9 +573,12 @@ impl Figure for ReplayFigure {
                     colour.stroke_width(1),
                 )
             });
-            chart.draw_series(dashes)?.label(label).legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
-            });
+            chart
+                .draw_series(dashes)?
+                .label(label)
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 10, y)], colour.stroke_width(1))
+                });
         }
         if let Some(l) = &self.margin {
             let mut first = true;
@@ -668,7 +674,7 @@ mod tests {
         assert!(s.buckets.len() <= MAX_BUCKETS);
         assert_eq!(s.len(), 300_000);
         // The size the README states.
-        assert!(std::mem::size_of::<Bucket>() <= 224);
+        assert!(std::mem::size_of::<Bucket>() <= 264);
         // Every bucket's values lie within the data.
         for b in s.buckets.values() {
             let e = b.lines[LOGGED_LINE].expect("value");

@@ -118,16 +118,16 @@ pub struct Args {
 }
 
 fn warn(msg: &str) {
-    let mut e = io::stderr().lock();
-    let _ = writeln!(e, "headroom: warning: {}", crate::error::printable(msg));
+    crate::diag::warn(msg);
 }
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    let list = logs::expand(&args.logs, args.strict)?;
+    crate::atomic::note_inputs(list.logs.iter().chain(&args.settings.config));
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
     }
-    let list = logs::expand(&args.logs, args.strict)?;
     for (p, why) in &list.skipped {
         warn(&format!("{}: skipped: {why}", p.display()));
     }
@@ -224,8 +224,7 @@ pub fn run(args: Args) -> CliResult {
             }
             if args.format == TuneFormat::Jsonl {
                 let name = names.get(log).map_or("", String::as_str);
-                let line = report::jsonl_line(&grid, cand, name, &d.summary)
-                    .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+                let line = report::jsonl_line(&grid, cand, name, &d.summary)?;
                 writeln!(out, "{line}").map_err(|e| CliError::Io(format!("stdout: {e}")))?;
             }
         }
@@ -269,8 +268,7 @@ pub fn run(args: Args) -> CliResult {
     match args.format {
         TuneFormat::Jsonl => {}
         TuneFormat::Json => {
-            let s = serde_json::to_string_pretty(&result.json())
-                .map_err(|e| CliError::Io(format!("cannot encode JSON: {e}")))?;
+            let s = crate::output::json_text(&result.json())?;
             writeln!(out, "{s}").map_err(|e| CliError::Io(format!("stdout: {e}")))?;
         }
         TuneFormat::Table => {

@@ -358,12 +358,12 @@ pub fn jsonl_line(
     cand: usize,
     log: &str,
     s: &headroom::control::Summary,
-) -> serde_json::Result<String> {
+) -> crate::error::CliResult<String> {
     let mut m = Map::new();
     m.insert("log".into(), log.into());
     m.insert("candidate".into(), cand.into());
     m.insert("default".into(), (cand == 0).into());
     m.insert("settings".into(), Value::Object(grid.settings_json(cand)));
     m.extend(summary_json(s));
-    serde_json::to_string(&Value::Object(m))
+    crate::output::json_line(&Value::Object(m))
 }
