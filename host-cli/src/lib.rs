@@ -10,6 +10,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
+pub mod energy;
 pub mod error;
 pub mod link;
 pub mod logio;
