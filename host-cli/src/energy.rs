@@ -41,6 +41,7 @@ use headroom::Error;
 use serde::Deserialize;
 
 use crate::error::{CliError, CliResult};
+use crate::output::json_num;
 
 /// Largest profile file read, bytes.
 pub const MAX_FILE_BYTES: u64 = 1 << 20;
@@ -103,14 +104,19 @@ impl AirtimeSource {
         match self {
             AirtimeSource::Given => "given (airtime_ms)".to_string(),
             AirtimeSource::Chirp(m, pl) => format!(
-                "chirp SF{} {} kHz CR 4/{} preamble {} {} header{} low-data-rate {:?}, {pl} bytes",
+                "chirp SF{} {} kHz CR 4/{} preamble {} {} header{} low-data-rate {}, {pl} bytes",
                 m.spreading_factor,
                 m.bandwidth.0 / 1e3,
                 m.coding_rate + 4,
                 m.preamble_symbols,
                 if m.explicit_header { "explicit" } else { "implicit" },
                 if m.crc { " CRC" } else { "" },
-                m.low_data_rate,
+                match (m.low_data_rate, m.low_data_rate_on()) {
+                    (LowDataRate::Auto, Ok(true)) => "auto (on)",
+                    (LowDataRate::Auto, _) => "auto (off)",
+                    (LowDataRate::On, _) => "on",
+                    (LowDataRate::Off, _) => "off",
+                },
             ),
             AirtimeSource::Packet(m, pl) => format!(
                 "packet {} bit/s, preamble {} + sync {} + header {} + CRC {} bits, coding {}/{}, {pl} bytes",
@@ -234,6 +240,48 @@ fn fraction(key: &str, s: &str) -> CliResult<(u8, u8)> {
     let k: u8 = k.trim().parse().map_err(|_| bad())?;
     let n: u8 = n.trim().parse().map_err(|_| bad())?;
     Ok((k, n))
+}
+
+/// An engine refusal of an energy calculation, in words a user can act on:
+/// a power outside the profile's table names `tx_option` and the table's
+/// range, an interval shorter than a packet's active time names
+/// `interval_option`; any other error is kept as the engine says it, with
+/// its parameter renamed by `options` (as [`crate::error::engine_error`]).
+pub fn refusal(
+    e: &Error,
+    tx_option: &str,
+    interval_option: &str,
+    options: &[(&str, &str)],
+) -> CliError {
+    match *e {
+        Error::OutOfValidity {
+            param: "tx_dbm",
+            value,
+            min,
+            max,
+        } => CliError::arg(
+            tx_option,
+            format!(
+                "{value} dBm is outside the profile's transmit current table, {min}..{max} dBm \
+                 (the current is not extrapolated: add a point)"
+            ),
+        ),
+        Error::OutOfValidity {
+            param: "interval_s",
+            value,
+            min,
+            ..
+        } => CliError::arg(
+            interval_option,
+            format!(
+                "{} s is shorter than the active time of a reading, {} s \
+                 (airtime and receive window, times the expected attempts)",
+                json_num(value),
+                json_num(min)
+            ),
+        ),
+        _ => crate::error::engine_error(e, options),
+    }
 }
 
 /// Engine parameters named as the file's keys.
