@@ -75,6 +75,9 @@ enum Command {
     /// Replay a fleet of logs under a grid of controller settings: the Pareto front of power and loss.
     #[command(after_help = CAUTION)]
     Tune(cmd::tune::Args),
+    /// What packets cost the battery: airtime, duty cycle, charge per packet, mean current, battery life.
+    #[command(after_help = CAUTION)]
+    Battery(cmd::battery::Args),
 }
 
 /// Every option that takes a value takes it even when it begins with `-`
@@ -144,6 +147,7 @@ pub fn run() -> ExitCode {
         Command::Synth(a) => cmd::synth::run(a),
         Command::Convert(a) => cmd::convert::run(a),
         Command::Tune(a) => cmd::tune::run(a),
+        Command::Battery(a) => cmd::battery::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
