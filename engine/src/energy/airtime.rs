@@ -26,6 +26,8 @@
 //! optimisation is on when a symbol lasts more than 16 ms, as the data sheet
 //! requires (from memory: SF11 and SF12 at 125 kHz).
 
+use core::num::NonZeroU64;
+
 use crate::error::{positive, Error, Result};
 use crate::units::Hertz;
 
@@ -69,12 +71,14 @@ impl PacketModem {
     /// Bits on air for a payload of `payload` bytes (exact, integer).
     pub fn bits(&self, payload: u16) -> Result<u64> {
         let CodeRate { k, n } = self.coding;
-        if k == 0 || n < k {
+        let divisor = NonZeroU64::new(u64::from(k)).ok_or(Error::Unsupported("coding_rate"))?;
+        if n < k {
             return Err(Error::Unsupported("coding_rate"));
         }
         let coded_in =
             u64::from(self.header_bits) + 8 * u64::from(payload) + u64::from(self.crc_bits);
-        let coded = (coded_in * u64::from(n)).div_ceil(u64::from(k));
+        // Ceiling division by a divisor the type keeps non-zero (no panic path).
+        let coded = (coded_in * u64::from(n) + u64::from(k) - 1) / divisor;
         Ok(u64::from(self.preamble_bits) + u64::from(self.sync_bits) + coded)
     }
 
@@ -188,7 +192,14 @@ impl ChirpModem {
         let num = 8 * i32::from(payload) - 4 * sf + 28 + 16 * i32::from(self.crc)
             - 20 * i32::from(!self.explicit_header);
         let den = 4 * (sf - 2 * de);
-        let blocks = if num > 0 { (num + den - 1) / den } else { 0 };
+        let blocks = if num > 0 {
+            // den ≥ 4·(6 − 2) after check(); checked_div keeps the panic path out.
+            (num + den - 1)
+                .checked_div(den)
+                .ok_or(Error::NoSolution("payload_symbols"))?
+        } else {
+            0
+        };
         let n = 8 + blocks * (i32::from(self.coding_rate) + 4);
         u32::try_from(n).map_err(|_| Error::NoSolution("payload_symbols"))
     }
