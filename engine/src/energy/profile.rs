@@ -453,7 +453,7 @@ impl<const N: usize> EnergyProfile<N> {
     /// `q / interval + sleep` (or, with `sleep_outside_active`,
     /// `q / interval + sleep · (1 − active / interval)`). An interval
     /// shorter than the active time (airtime · attempts + receive window ·
-    /// attempts) is refused.
+    /// attempts) is refused, and so are `attempts` outside 1..=256.
     pub fn mean_current_for(
         &self,
         q: Microcoulombs,
@@ -462,6 +462,8 @@ impl<const N: usize> EnergyProfile<N> {
     ) -> Result<Microamps> {
         let t = positive("interval_s", interval.0)?;
         let q = non_negative("charge_uc", q.0)?;
+        // At most R + 1 = 256 attempts (max_retries is a u8).
+        let attempts = within("expected_attempts", attempts, 1.0, 256.0)?;
         let active_s = (self.airtime.0 + self.rx_window.0) * attempts / 1000.0;
         if t < active_s {
             return Err(Error::OutOfValidity {
@@ -589,6 +591,9 @@ mod tests {
         let d = prof.battery_life(i).unwrap_or_default();
         assert!((d.0 - 452.898_55).abs() < 1e-3, "{d:?}");
         assert!(prof.mean_current(Dbm(14.0), Seconds(0.1)).is_err());
+        assert!(prof
+            .mean_current_for(Microcoulombs(1.0), 0.5, Seconds(60.0))
+            .is_err());
     }
 
     #[test]
