@@ -15,6 +15,7 @@
 //! | [`fading`] | fade margin and availability (Rayleigh, Rician, log-normal, composite), cell coverage |
 //! | [`budget`] | line-item link budget and inverse solving |
 //! | [`control`] | the per-packet transmit-power controller and replay semantics |
+//! | [`energy`] | charge per packet, airtime, duty cycle, mean current and battery life |
 //! | [`record`] | field-log records and their framed binary codec |
 //! | [`sim`] | seeded channel simulation: drift, correlated shadowing, Rayleigh/Rician fading, bursts |
 //! | [`special`] | special functions (erfc, inverse normal, Bessel I0, Marcum Q) |
@@ -50,6 +51,7 @@
 
 pub mod budget;
 pub mod control;
+pub mod energy;
 pub mod error;
 pub mod fading;
 pub mod modulation;

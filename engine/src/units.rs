@@ -7,7 +7,9 @@
 //! absolute levels cannot be added.
 //!
 //! Linear quantities ([`Hertz`], [`Metres`], [`Kelvin`], [`Watts`],
-//! [`Milliwatts`]) are plain `f32` newtypes.
+//! [`Milliwatts`]) are plain `f32` newtypes, as are the energy quantities
+//! ([`Volts`], [`Milliamps`], [`Microamps`], [`Microcoulombs`],
+//! [`Milliseconds`], [`Seconds`], [`MilliampHours`], [`Days`], [`Microjoules`]).
 
 use core::ops::{Add, AddAssign, Neg, Sub, SubAssign};
 
@@ -79,6 +81,52 @@ newtype!(
     /// A power in milliwatts.
     Milliwatts
 );
+
+// --- energy quantities (see `crate::energy`) -------------------------------
+newtype!(
+    /// A supply voltage in volts.
+    Volts
+);
+newtype!(
+    /// A current in milliamperes (transmit and receive currents).
+    Milliamps
+);
+newtype!(
+    /// A current in microamperes (sleep and mean currents).
+    Microamps
+);
+newtype!(
+    /// A charge in microcoulombs (1 mA for 1 ms).
+    Microcoulombs
+);
+newtype!(
+    /// A duration in milliseconds (airtime, receive window).
+    Milliseconds
+);
+newtype!(
+    /// A duration in seconds (packet interval).
+    Seconds
+);
+newtype!(
+    /// A battery capacity in milliampere-hours.
+    MilliampHours
+);
+newtype!(
+    /// A duration in days (battery life).
+    Days
+);
+newtype!(
+    /// An energy in microjoules.
+    Microjoules
+);
+
+impl Microcoulombs {
+    /// Energy drawn from a supply at `v` volts: µC · V = µJ.
+    #[inline]
+    pub fn at_supply(self, v: Volts) -> Microjoules {
+        Microjoules(self.0 * v.0)
+    }
+}
 
 // --- relative + relative ---------------------------------------------------
 impl Add for Db {

@@ -7,7 +7,7 @@
 //!   engine's replay semantics and writes the decisions back as frames;
 //! - `cost`: instructions per controller update, measured with SysTick
 //!   under `qemu -icount shift=0`;
-//! - `panic_free`: links only if the controller update and the frame
+//! - `panic_free`: links only if the controller update, the energy arithmetic and the frame
 //!   encoder have no panic path left (feature `panic-free-check`).
 //!
 //! The firmware only feeds data to the engine and reports what it says; the

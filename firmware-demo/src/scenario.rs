@@ -4,11 +4,16 @@
 //! plausible for a sub-GHz node, not any product's data.
 
 use headroom::control::{ControllerConfig, PowerSteps};
+use headroom::energy::airtime::{ChirpModem, LowDataRate};
+use headroom::energy::{Battery, EnergyProfile, TableError, TxCurrentTable};
 use headroom::propagation::PathLossModel;
 use headroom::sim::{
     ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory,
 };
-use headroom::units::{Db, Dbi, Dbm, Hertz, Metres};
+use headroom::units::{
+    Db, Dbi, Dbm, Hertz, Metres, Microamps, Microcoulombs, MilliampHours, Milliamps, Milliseconds,
+    Volts,
+};
 
 use crate::radio::PowerCapabilities;
 
@@ -94,4 +99,58 @@ pub fn channel() -> ChannelConfig {
         report_resolution: Some(Db(1.0)),
         steps,
     }
+}
+
+/// Points of the demo radio's transmit current table.
+pub const TX_POINTS: usize = 8;
+
+/// The demo radio's energy profile, invented for the demo (plausible for a
+/// sub-GHz node with a +22 dBm amplifier, not any product's data): supply
+/// current against output power over the radio's whole range, a chirp
+/// spread spectrum packet of 20 bytes at SF9 / 125 kHz, a 160 ms receive
+/// window, 900 µC of wake-up and sensor work per packet, 1.8 µA asleep, and
+/// a 3000 mAh battery.
+pub fn energy_profile() -> Result<EnergyProfile<TX_POINTS>, EnergySetupError> {
+    let table = TxCurrentTable::from_points(&[
+        (-9.0, 17.0),
+        (0.0, 19.5),
+        (5.0, 24.5),
+        (10.0, 30.0),
+        (14.0, 44.0),
+        (17.0, 75.0),
+        (20.0, 100.0),
+        (22.0, 120.0),
+    ])
+    .map_err(EnergySetupError::Table)?;
+    let modem = ChirpModem {
+        spreading_factor: 9,
+        bandwidth: Hertz(125e3),
+        coding_rate: 1,
+        preamble_symbols: 8,
+        explicit_header: true,
+        crc: true,
+        low_data_rate: LowDataRate::Auto,
+    };
+    let airtime = modem.airtime(20).map_err(EnergySetupError::Engine)?;
+    let profile = EnergyProfile::new(
+        Volts(3.3),
+        table,
+        airtime,
+        Milliseconds(160.0),
+        Milliamps(11.5),
+        Microcoulombs(900.0),
+        Microamps(1.8),
+    )
+    .map_err(EnergySetupError::Engine)?;
+    let battery = Battery::new(MilliampHours(3000.0)).map_err(EnergySetupError::Engine)?;
+    Ok(profile.with_battery(battery))
+}
+
+/// Why the demo's energy profile was refused.
+#[derive(Debug, Clone, Copy, PartialEq, defmt::Format)]
+pub enum EnergySetupError {
+    /// The transmit current table.
+    Table(TableError),
+    /// A value of the profile or the modem.
+    Engine(headroom::Error),
 }

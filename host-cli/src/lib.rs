@@ -11,6 +11,7 @@ use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
 pub mod atomic;
 pub mod diag;
+pub mod energy;
 pub mod error;
 pub mod fleet;
 pub mod link;
@@ -76,6 +77,9 @@ enum Command {
     /// Replay a fleet of logs under a grid of controller settings: the Pareto front of power and loss.
     #[command(after_help = CAUTION)]
     Tune(cmd::tune::Args),
+    /// What packets cost the battery: airtime, duty cycle, charge per packet, mean current, battery life.
+    #[command(after_help = CAUTION)]
+    Battery(cmd::battery::Args),
 }
 
 /// Every option that takes a value takes it even when it begins with `-`
@@ -147,6 +151,7 @@ pub fn run() -> ExitCode {
         Command::Synth(a) => cmd::synth::run(a),
         Command::Convert(a) => cmd::convert::run(a),
         Command::Tune(a) => cmd::tune::run(a),
+        Command::Battery(a) => cmd::battery::run(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

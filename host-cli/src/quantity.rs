@@ -167,3 +167,46 @@ mod tests {
         assert!(number("nan").is_err());
     }
 }
+
+/// A duration with its unit: `250ms`, `30s`, `15min`, `1h`, `2d`, returned
+/// in seconds. A bare number is refused: `15` could be seconds or minutes.
+pub fn duration(s: &str) -> Result<headroom::units::Seconds, String> {
+    let (x, unit) = split(s)?;
+    let scale = match unit {
+        "ms" => 1e-3,
+        "s" => 1.0,
+        "min" => 60.0,
+        "h" => 3600.0,
+        "d" => 86_400.0,
+        "" => {
+            return Err(format!(
+                "'{s}' needs a unit: give it as 250ms, 30s, 15min, 1h or 2d"
+            ))
+        }
+        _ => {
+            return Err(format!(
+                "unknown duration unit '{unit}' (use ms, s, min, h or d)"
+            ))
+        }
+    };
+    Ok(headroom::units::Seconds(to_f32(x * scale, s)?))
+}
+
+#[cfg(test)]
+mod duration_tests {
+    use super::duration;
+    use headroom::units::Seconds;
+
+    #[test]
+    fn durations_with_units() {
+        assert_eq!(duration("15min"), Ok(Seconds(900.0)));
+        assert_eq!(duration("30s"), Ok(Seconds(30.0)));
+        assert_eq!(duration("1h"), Ok(Seconds(3600.0)));
+        assert_eq!(duration("250ms"), Ok(Seconds(0.25)));
+        assert_eq!(duration("2 d"), Ok(Seconds(172_800.0)));
+        let bare = duration("15").unwrap_err();
+        assert!(bare.contains("needs a unit"), "{bare}");
+        assert!(duration("15 fortnights").is_err());
+        assert!(duration("min").is_err());
+    }
+}

@@ -4,5 +4,6 @@
 #![forbid(unsafe_code)]
 
 pub mod budget;
+pub mod energy;
 pub mod propagation;
 pub mod signal;

@@ -10,7 +10,9 @@ use defmt_semihosting as _;
 use embedded_hal::delay::DelayNs;
 
 use headroom::control::{Controller, Observation, Outcome, ReplayStep, Summary};
+use headroom::energy::EnergyTally;
 use headroom::record::LogRecord;
+use headroom::units::Seconds;
 use headroom_firmware_demo::clock::{Clock, Delay};
 use headroom_firmware_demo::radio::{Radio, SimRadio};
 use headroom_firmware_demo::{board, host, scenario};
@@ -62,9 +64,19 @@ fn run() -> bool {
         WINDOW
     );
 
+    let energy = match scenario::energy_profile() {
+        Ok(e) => e,
+        Err(e) => {
+            defmt::error!("energy profile refused: {}", e);
+            return false;
+        }
+    };
+
     // The engine's replay totals count packets, losses and power the same
-    // way for the live loop as for a replayed log.
+    // way for the live loop as for a replayed log; its energy tally adds up
+    // the charge of each packet at the power it was sent.
     let mut summary = Summary::new(top);
+    let mut tally = EnergyTally::new();
     for k in 0..scenario::PACKETS {
         let chosen = ctrl.tx();
         if let Err(e) = radio.set_tx_power(chosen) {
@@ -98,6 +110,22 @@ fn run() -> bool {
             Observation::Lost { .. } => (Outcome::Lost, None),
             Observation::Beacon { .. } | Observation::Missing { .. } => (Outcome::Unjudged, None),
         };
+        match energy.packet_cost(chosen) {
+            Ok(cost) => tally.add(
+                obs.t_ms(),
+                &cost,
+                energy.sleep_current(),
+                match outcome {
+                    Outcome::Delivered => Some(true),
+                    Outcome::Lost => Some(false),
+                    Outcome::Unjudged => None,
+                },
+            ),
+            Err(e) => {
+                defmt::error!("packet {=u32}: no charge at {=f32} dBm: {}", k, chosen.0, e);
+                return false;
+            }
+        }
         // The packet as this device would log it: sent at `chosen`.
         let sent = LogRecord {
             t_ms: obs.t_ms(),
@@ -148,6 +176,25 @@ fn run() -> bool {
         saved_db,
         saved_fraction * 100.0,
         summary.power_changes
+    );
+    // Charge and projected battery life of the controller against always
+    // sending at the highest allowed power, at the demo's packet interval.
+    let per_packet = tally.charge_per_packet().map_or(f32::NAN, |q| q.0);
+    let per_delivered = tally.charge_per_delivered().map_or(f32::NAN, |q| q.0);
+    let mean = tally.mean_current();
+    let life = mean.and_then(|i| energy.battery_life(i).ok());
+    let interval = Seconds(scenario::channel().packet_interval_ms as f32 / 1000.0);
+    let max_mean = energy.mean_current(top, interval).ok();
+    let max_life = max_mean.and_then(|i| energy.battery_life(i).ok());
+    defmt::info!(
+        "energy: {=f32} uC per packet, {=f32} uC per delivered packet, mean current {=f32} uA, \
+         battery life {=f32} days (always-max: {=f32} uA, {=f32} days)",
+        per_packet,
+        per_delivered,
+        mean.map_or(f32::NAN, |i| i.0),
+        life.map_or(f32::NAN, |d| d.0),
+        max_mean.map_or(f32::NAN, |i| i.0),
+        max_life.map_or(f32::NAN, |d| d.0)
     );
     defmt::info!(
         "stack (differs by board): {=usize} of {=usize} bytes used",

@@ -1,4 +1,6 @@
-//! Panic-freedom, part 1: the controller update and the replay step.
+//! Panic-freedom, part 1: the controller update, the replay step and the
+//! energy arithmetic (current table, charge, mean current, battery life,
+//! resends, airtime, duty cycle, the energy tally).
 //!
 //! Built with `--features panic-free-check` this links only if no panic
 //! path is left after optimisation (see the crate's panic handler). Inputs
@@ -13,8 +15,16 @@ use core::hint::black_box;
 use cortex_m_rt::entry;
 
 use headroom::control::{settings, Controller, ControllerConfig, Fleet, Observation, Replay};
+use headroom::energy::airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
+use headroom::energy::duty::{duty_cycle, en_300_220_sub_bands, min_interval};
+use headroom::energy::{
+    Battery, Delivery, EnergyProfile, EnergyTally, Refinements, TxCurrentTable,
+};
 use headroom::record::{LogHeader, LogRecord};
-use headroom::units::{Db, Dbi, Dbm};
+use headroom::units::{
+    Db, Dbi, Dbm, Hertz, Microamps, Microcoulombs, MilliampHours, Milliamps, Milliseconds, Seconds,
+    Volts,
+};
 use headroom_firmware_demo::{host, probe_f32};
 
 /// The replay window, the engine's one value.
@@ -86,5 +96,94 @@ fn run() -> bool {
         ..LogHeader::default()
     };
     black_box(settings::for_log(black_box(Some(&header))).is_ok());
+    energy()
+}
+
+/// The energy functions on arbitrary inputs (any f32 bits, any integer).
+fn energy() -> bool {
+    let mut tally = EnergyTally::new();
+    for k in 0..black_box(256u32) {
+        let (a, b, c) = (probe_f32(k, 4), probe_f32(k, 5), probe_f32(k, 6));
+        let mut table = TxCurrentTable::<4>::new();
+        for lane in 0..black_box(5u32) {
+            black_box(
+                table
+                    .push(Dbm(probe_f32(k, lane)), Milliamps(probe_f32(k, lane + 7)))
+                    .ok(),
+            );
+        }
+        let profile = EnergyProfile::new(
+            Volts(a),
+            table,
+            Milliseconds(b),
+            Milliseconds(c),
+            Milliamps(a),
+            Microcoulombs(b),
+            Microamps(c),
+        )
+        .and_then(|p| {
+            p.with_refinements(Refinements {
+                usable_fraction: Some(a),
+                self_discharge_per_year: Some(b),
+                sleep_outside_active: k % 2 == 0,
+            })
+        })
+        .map(|p| match Battery::new(MilliampHours(c)) {
+            Ok(bat) => p.with_battery(bat),
+            Err(_) => p,
+        });
+        let p = Dbm(probe_f32(k, 8));
+        let loss = probe_f32(k, 9);
+        let retries = black_box((k % 256) as u8);
+        if let Ok(profile) = black_box(profile) {
+            if let Ok(cost) = profile.packet_cost(p) {
+                tally.add(
+                    u64::from(k) * 1000,
+                    &cost,
+                    profile.sleep_current(),
+                    Some(k % 3 == 0),
+                );
+            }
+            black_box(profile.charge_per_delivered(p, loss, retries).ok());
+            let mean = profile.mean_current_with_resends(p, Seconds(a), loss, retries);
+            black_box(mean.and_then(|i| profile.battery_life(i)).ok());
+        }
+        black_box(Delivery::new(loss, retries).ok());
+        let chirp = ChirpModem {
+            spreading_factor: black_box((k % 16) as u8),
+            bandwidth: Hertz(a),
+            coding_rate: black_box((k % 6) as u8),
+            preamble_symbols: black_box((k * 7) as u16),
+            explicit_header: k % 2 == 0,
+            crc: k % 3 == 0,
+            low_data_rate: [LowDataRate::Auto, LowDataRate::On, LowDataRate::Off]
+                .get((k % 3) as usize)
+                .copied()
+                .unwrap_or(LowDataRate::Auto),
+        };
+        black_box(chirp.airtime(black_box((k * 13) as u8)).ok());
+        let packet = PacketModem {
+            bit_rate: b,
+            preamble_bits: black_box((k * 31) as u16),
+            sync_bits: black_box((k * 5) as u16),
+            header_bits: black_box((k * 3) as u16),
+            crc_bits: black_box((k * 11) as u16),
+            coding: CodeRate {
+                k: black_box((k % 5) as u8),
+                n: black_box((k % 9) as u8),
+            },
+        };
+        black_box(packet.airtime(black_box((k * 977) as u16)).ok());
+        black_box(duty_cycle(Milliseconds(a), Seconds(b)).ok());
+        black_box(min_interval(Milliseconds(a), c).ok());
+        black_box(en_300_220_sub_bands(Hertz(a), Hertz(b)).count());
+    }
+    let mut merged = EnergyTally::new();
+    merged.merge(black_box(&tally));
+    black_box((
+        merged.charge_per_packet(),
+        merged.charge_per_delivered(),
+        merged.mean_current(),
+    ));
     true
 }

@@ -1,5 +1,6 @@
 //! One module per subcommand: each has its clap `Args` and a `run`.
 
+pub mod battery;
 pub mod ber;
 pub mod budget;
 pub mod convert;
