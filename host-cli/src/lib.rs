@@ -13,6 +13,7 @@ pub mod atomic;
 pub mod error;
 pub mod link;
 pub mod logio;
+pub mod names;
 pub mod output;
 pub mod plot;
 pub mod quantity;

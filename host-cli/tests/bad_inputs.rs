@@ -144,7 +144,7 @@ fn cases() -> Vec<Case> {
         Case {
             input: "negative bandwidth as a separate word (`--bandwidth -5`)",
             files: vec![],
-            args: &["noise", "--bandwidth", "-5", "--noise-figure-db", "6"],
+            args: &["noise", "--bandwidth", "-5kHz", "--noise-figure-db", "6"],
             exit: 2,
             names: &["--bandwidth", "greater than zero"],
             finding: None,

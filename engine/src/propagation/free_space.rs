@@ -28,15 +28,31 @@ pub(crate) fn db20(x: f32) -> f32 {
 /// `20·log10(4πd/λ)` (ITU-R P.525-4, eq. (4)).
 ///
 /// `f` and `d` must be finite and strictly positive. The formula holds in the
-/// far field; at distances comparable to the wavelength it can give a
-/// negative loss, which is returned as computed (it is the formula, not a
-/// measurement).
+/// far field only: a distance below one wavelength (where it would give a
+/// loss below about 22 dB, and a negative one below λ/4π) is refused with
+/// [`crate::Error::OutOfValidity`]. The far field of an antenna of largest
+/// dimension D begins at 2D²/λ (Fraunhofer distance; common practice): see
+/// [`far_field_distance`].
 pub fn free_space_path_loss(f: Hertz, d: Metres) -> Result<Db> {
     let f = positive("frequency_hz", f.0)?;
     let d = positive("distance_m", d.0)?;
+    let lambda = crate::units::SPEED_OF_LIGHT_M_PER_S / f;
+    super::distance_at_least(d, lambda)?;
     Ok(Db(solved(
         "path_loss_db",
         db20(d) + db20(f) + FSPL_CONSTANT_DB,
+    )?))
+}
+
+/// Far-field (Fraunhofer) distance `2D²/λ` of an antenna whose largest
+/// dimension is `aperture`, but at least one wavelength (common practice).
+pub fn far_field_distance(f: Hertz, aperture: Metres) -> Result<Metres> {
+    let f = positive("frequency_hz", f.0)?;
+    let dim = non_negative("aperture_m", aperture.0)?;
+    let lambda = crate::units::SPEED_OF_LIGHT_M_PER_S / f;
+    Ok(Metres(solved(
+        "far_field_m",
+        (2.0 * dim * dim / lambda).max(lambda),
     )?))
 }
 

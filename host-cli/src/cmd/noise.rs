@@ -18,7 +18,7 @@ use crate::quantity;
 /// (noiseless) receiver is assumed.
 #[derive(clap::Args)]
 pub struct Args {
-    /// Noise bandwidth (e.g. 125kHz, 2MHz; a bare number is in Hz).
+    /// Noise bandwidth with its unit (e.g. 125kHz, 2MHz).
     #[arg(long, value_parser = quantity::frequency)]
     pub bandwidth: Hertz,
     /// Receiver noise figure in dB (e.g. 6 or 6dB).
