@@ -150,14 +150,15 @@ pub fn db(s: &str) -> Result<Db, String> {
     }
 }
 
-/// An antenna gain (`2.15dBi`, `0dBd`, or a bare number in dBi).
+/// A gain: an antenna's (`2.15dBi`, `0dBd`, or a bare number in dBi) or an
+/// amplifier's (`20dB`).
 pub fn gain(s: &str) -> Result<Dbi, String> {
     let (x, unit) = split(s)?;
     let x = to_f32(x, s)?;
     match unit_key(unit).as_str() {
-        "" | "dbi" => Ok(Dbi(x)),
+        "" | "dbi" | "db" => Ok(Dbi(x)),
         "dbd" => Ok(Dbi(x + headroom::units::DIPOLE_GAIN_DBI)),
-        _ => Err(format!("unknown gain unit '{unit}' (use dBi or dBd)")),
+        _ => Err(format!("unknown gain unit '{unit}' (use dBi, dBd or dB)")),
     }
 }
 
