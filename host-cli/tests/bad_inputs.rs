@@ -312,7 +312,7 @@ fn cases() -> Vec<Case> {
         },
         Case {
             input: "availability of 1 in a link file",
-            files: link("availability = 0.99", "availability = 1.0"),
+            files: link("availability = \"99%\"", "availability = 1.0"),
             args: &["budget", "link.toml"],
             exit: 2,
             names: &["link.toml", "fade.availability"],
@@ -573,7 +573,7 @@ fn cases() -> Vec<Case> {
         },
         Case {
             input: "scenario: NaN frequency",
-            files: scen("frequency = 868.0e6", "frequency = nan"),
+            files: scen("frequency = \"868MHz\"", "frequency = nan"),
             args: synth,
             exit: 2,
             names: &["scen.toml", "channel.frequency"],
