@@ -293,6 +293,15 @@ pub struct LoadedLink {
     pub warnings: Vec<String>,
 }
 
+/// `r` with an input error pointing at the help of subcommand `cmd`, where
+/// its units, ranges and names are listed.
+pub fn pointing_at_help(cmd: &str, r: CliResult) -> CliResult {
+    r.map_err(|e| match e {
+        CliError::Input(m) => CliError::Input(format!("{m} (see 'headroom {cmd} --help')")),
+        other => other,
+    })
+}
+
 /// Print a warning on stderr and keep it for the JSON `warnings` list.
 pub fn warn(warnings: &mut Vec<String>, msg: String) {
     eprintln!("headroom: warning: {msg}");

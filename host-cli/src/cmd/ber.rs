@@ -63,6 +63,10 @@ fn order_error(e: headroom::Error, scheme: Scheme) -> CliError {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("ber", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let m = modulation(args.modulation, args.order)?;
     let mut rep = Report::new();
     rep.value("modulation", json!(names::name(&args.modulation)));

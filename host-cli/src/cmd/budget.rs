@@ -154,6 +154,10 @@ pub fn report(l: &LoadedLink) -> CliResult<Report> {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("budget", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
     }

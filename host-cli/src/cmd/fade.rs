@@ -71,6 +71,10 @@ fn param_error(e: headroom::Error) -> CliError {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("fade", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let m = model(&args)?;
     let mut rep = Report::new();
     rep.value("model", json!(names::name(&args.model)));

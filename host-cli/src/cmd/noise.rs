@@ -34,6 +34,10 @@ pub struct Args {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("noise", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let (nf, te) = match (args.noise_figure_db, args.temperature_k) {
         (Some(nf), _) => {
             let te = noise_temperature_from_figure(nf)

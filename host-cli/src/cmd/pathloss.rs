@@ -118,6 +118,10 @@ fn opt(e: headroom::Error, model: Model) -> CliError {
 
 /// Run the command.
 pub fn run(a: Args) -> CliResult {
+    crate::link::pointing_at_help("pathloss", run_inner(a))
+}
+
+fn run_inner(a: Args) -> CliResult {
     let mut warnings = Vec::new();
     let mut p = PathParams::new(a.model);
     p.exponent = a.exponent;

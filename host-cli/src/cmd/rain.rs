@@ -120,6 +120,10 @@ fn opt(e: headroom::Error) -> CliError {
 
 /// Run the command.
 pub fn run(a: Args) -> CliResult {
+    crate::link::pointing_at_help("rain", run_inner(a))
+}
+
+fn run_inner(a: Args) -> CliResult {
     let (k, alpha) = rain_coefficients(a.frequency, a.tilt, a.elevation).map_err(opt)?;
     let gamma =
         rain_specific_attenuation(a.frequency, a.rain_rate, a.tilt, a.elevation).map_err(opt)?;

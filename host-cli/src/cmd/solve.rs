@@ -48,6 +48,10 @@ pub struct Args {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("solve", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let l = link::load(&args.link, args.frequency)?;
     let target = args.target_margin.unwrap_or(l.target_margin);
     let mut rep = Report::new();
