@@ -630,6 +630,17 @@ pub fn free_space_frequency_scaling(
     Ok(Db(2.0 * r.0 * (k - 1.0)))
 }
 
+/// Change of one antenna's gain, in dB, when a link moves from `f1` to `f2`
+/// with that antenna's effective aperture held fixed: `G = 4πA/λ²`, so
+/// `+20·log10(f2/f1)` (common practice).
+pub fn fixed_aperture_gain_change(f1: Hertz, f2: Hertz) -> Result<Db, Error> {
+    let r = ratio_db(
+        "frequency",
+        positive("frequency", f2.0)? / positive("frequency", f1.0)?,
+    )?;
+    Ok(Db(2.0 * r.0))
+}
+
 /// Factor by which the free-space range grows when a link moves from `f1` to
 /// `f2` at the same margin (range ∝ received-power ratio^(1/2) in free space).
 pub fn free_space_range_scaling(
@@ -772,6 +783,9 @@ mod tests {
             free_space_frequency_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::OneFixedAperture)
                 .unwrap_or(Db(f32::NAN));
         assert!(s.0.abs() < 1e-5);
+        // Doubling the frequency with a fixed aperture: +6.02 dB of gain.
+        let g = fixed_aperture_gain_change(Hertz(1e9), Hertz(2e9)).unwrap_or(Db(f32::NAN));
+        assert!((g.0 - 6.0206).abs() < 1e-3);
         let r = free_space_range_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::FixedGains)
             .unwrap_or(f32::NAN);
         assert!((r - 0.5).abs() < 1e-5);

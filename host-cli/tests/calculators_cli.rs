@@ -575,3 +575,68 @@ fn hints_are_given_only_where_they_help() {
     );
     assert!(!err.contains("2400000000"), "{err}");
 }
+
+// --- coverage curve and frequency scaling ------------------------------------------------
+
+#[test]
+fn coverage_curve_marks_the_range_at_the_target_margin() {
+    let p = example("orchard-sensor.toml");
+    let p = p.to_str().expect("utf-8");
+    let v = json(&["budget", p, "--sweep", "distance", "--points", "9"]);
+    let range = num(&v, "range_at_target_m");
+    let target = num(&v, "target_margin_db");
+    let pts = v["points"].as_array().expect("points");
+    assert_eq!(pts.len(), 9, "{v}");
+    // The margin falls through the target between the points around the range.
+    let below = pts
+        .iter()
+        .find(|r| num(r, "distance_m") > range)
+        .expect("a point beyond");
+    let above = pts
+        .iter()
+        .rev()
+        .find(|r| num(r, "distance_m") < range)
+        .expect("a point within");
+    assert!(
+        num(below, "margin_db") < target && num(above, "margin_db") > target,
+        "{v}"
+    );
+    // The same range as `solve --for range`.
+    let s = json(&["solve", p, "--for", "range"]);
+    assert!((num(&s, "range_m") - range).abs() < 0.5, "{s}");
+    let dir = tempfile::tempdir().expect("tempdir");
+    let plot = dir.path().join("coverage.svg");
+    let out = run(&[
+        "budget",
+        p,
+        "--sweep",
+        "frequency",
+        "--plot",
+        plot.to_str().expect("utf-8"),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = std::fs::read_to_string(&plot).expect("plot written");
+    assert!(svg.contains("margin against frequency"));
+}
+
+#[test]
+fn fixed_apertures_turn_the_frequency_penalty_into_a_gain() {
+    let p = example("smallsat-ground-station.toml");
+    let p = p.to_str().expect("utf-8");
+    let base = num(&json(&["budget", p]), "margin_db");
+    let at = |antennas: &str| {
+        num(
+            &json(&["budget", p, "--frequency", "873MHz", "--antennas", antennas]),
+            "margin_db",
+        ) - base
+    };
+    // Twice the frequency in free space: −6.02 dB with fixed gains, 0 with one
+    // fixed aperture, +6.02 dB with both (G = 4πA/λ², common practice).
+    assert!((at("fixed-gains") + 6.0206).abs() < 0.01);
+    assert!(at("one-fixed-aperture").abs() < 0.01);
+    assert!((at("fixed-apertures") - 6.0206).abs() < 0.01);
+}
