@@ -128,6 +128,14 @@ pub struct Item {
     /// A loss as a positive number (`"0.8dB"`).
     #[serde(default)]
     pub loss: Option<Q>,
+    /// An antenna's dish diameter: with `efficiency` (and no `gain`) it gives
+    /// the gain η·(πD/λ)²; with a `gain`, the gain is checked against the
+    /// most the aperture can give (η = 1), and the far field against 2D²/λ.
+    #[serde(default)]
+    pub dish_diameter: Option<Q>,
+    /// Aperture efficiency of the dish, 0..1 (typically 0.5-0.7, common practice).
+    #[serde(default)]
+    pub efficiency: Option<Q>,
     /// Receive side, with `gain`: an amplifier of this noise figure.
     #[serde(default)]
     pub noise_figure: Option<Q>,
@@ -534,8 +542,25 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
         Some(f) => fade(f)?,
     };
     let mut link = Link::new(tx_power, path_loss, noise, requirement, fade);
+    let mut largest_dish: Option<Metres> = None;
     for (i, item) in file.items.iter().enumerate() {
-        push_item(&mut link, i, item)?;
+        if let Some(d) = push_item(&mut link, i, item, frequency)? {
+            largest_dish = Some(Metres(largest_dish.map_or(d.0, |l| l.0.max(d.0))));
+        }
+    }
+    if let (Some(dish), Some(d)) = (largest_dish, distance) {
+        let ff = headroom::propagation::far_field_distance(frequency, dish)?;
+        if d.0 < ff.0 {
+            warn(
+                &mut warnings,
+                format!(
+                    "path.distance {} is inside the far field of a {} dish (2D²/λ = {}): the path loss is underestimated",
+                    show::distance(d.0),
+                    show::distance(dish.0),
+                    show::distance(ff.0)
+                ),
+            );
+        }
     }
     let target_margin = match file.solve.as_ref().and_then(|s| s.target_margin.as_ref()) {
         Some(q) => {
@@ -658,7 +683,13 @@ fn fade(f: &FadeSpec) -> CliResult<FadeAllowance> {
     })
 }
 
-fn push_item(link: &mut Link<MAX_ITEMS>, i: usize, item: &Item) -> CliResult {
+/// Push one `[[item]]`; the dish diameter it names, if any.
+fn push_item(
+    link: &mut Link<MAX_ITEMS>,
+    i: usize,
+    item: &Item,
+    f: Hertz,
+) -> CliResult<Option<Metres>> {
     let key = format!("item[{i}] '{}'", item.name);
     let side: names::Side = names::parse(&key, "side", &item.side)?;
     let side = match side {
@@ -666,10 +697,59 @@ fn push_item(link: &mut Link<MAX_ITEMS>, i: usize, item: &Item) -> CliResult {
         names::Side::Path => Side::Path,
         names::Side::Rx => Side::Receiver,
     };
-    let gain = match (&item.gain, &item.loss) {
-        (Some(q), None) => Db(read(&key, q, Q::gain)?.0),
-        (None, Some(q)) => -read(&key, q, Q::db)?,
-        _ => return Err(CliError::arg(&key, "give exactly one of gain or loss")),
+    let dish = read_opt(
+        &format!("{key} dish_diameter"),
+        &item.dish_diameter,
+        Q::distance,
+    )?;
+    let efficiency = read_opt(&format!("{key} efficiency"), &item.efficiency, Q::fraction)?;
+    let dish_gain = |eta: f32| -> CliResult<Option<Db>> {
+        dish.map(|d| {
+            headroom::propagation::gain_from_dish(d, eta, f)
+                .map(|g| Db(g.0))
+                .map_err(|e| CliError::arg(&key, e))
+        })
+        .transpose()
+    };
+    let gain = match (&item.gain, &item.loss, dish, efficiency) {
+        (Some(q), None, _, None) => {
+            let g = Db(read(&key, q, Q::gain)?.0);
+            if let Some(most) = dish_gain(1.0)? {
+                if g.0 > most.0 {
+                    return Err(CliError::arg(
+                        &key,
+                        format!(
+                            "a gain of {} is more than a {} dish can give at {} ({} at 100 % efficiency)",
+                            show::db(g.0),
+                            show::distance(dish.map_or(0.0, |d| d.0)),
+                            show::frequency(f.0),
+                            show::db(most.0)
+                        ),
+                    ));
+                }
+            }
+            g
+        }
+        (None, None, Some(_), Some(eta)) => dish_gain(eta)?.unwrap_or(Db(0.0)),
+        (None, None, Some(_), None) => {
+            return Err(CliError::arg(
+                &key,
+                "dish_diameter without gain needs efficiency (0.5-0.7 is common practice)",
+            ))
+        }
+        (_, _, None, Some(_)) | (Some(_), _, Some(_), Some(_)) => {
+            return Err(CliError::arg(
+                &key,
+                "efficiency goes with dish_diameter and no gain",
+            ))
+        }
+        (None, Some(q), None, None) => -read(&key, q, Q::db)?,
+        _ => {
+            return Err(CliError::arg(
+                &key,
+                "give exactly one of gain, loss or dish_diameter",
+            ))
+        }
     };
     within(&key, gain.0, range::ITEM_DB, show::db)?;
     let noise_figure = read_opt(&format!("{key} noise_figure"), &item.noise_figure, Q::db)?;
@@ -721,5 +801,6 @@ fn push_item(link: &mut Link<MAX_ITEMS>, i: usize, item: &Item) -> CliResult {
         }
     };
     link.push_item(&item.name, side, gain, noise)
-        .map_err(|e| CliError::arg(&key, e))
+        .map_err(|e| CliError::arg(&key, e))?;
+    Ok(dish)
 }

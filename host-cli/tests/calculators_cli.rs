@@ -640,3 +640,100 @@ fn fixed_apertures_turn_the_frequency_penalty_into_a_gain() {
     assert!(at("one-fixed-aperture").abs() < 0.01);
     assert!((at("fixed-apertures") - 6.0206).abs() < 0.01);
 }
+
+// --- antennas from their apertures --------------------------------------------------------
+
+fn dish_link(item: &str, distance: &str) -> String {
+    format!(
+        r#"frequency = "11.7GHz"
+[transmitter]
+power = "10dBm"
+[[item]]
+name = "dish"
+side = "rx"
+{item}
+[path]
+model = "free-space"
+distance = "{distance}"
+[receiver]
+bandwidth = "1MHz"
+noise_figure = "2dB"
+[requirement]
+snr = "10dB"
+"#
+    )
+}
+
+#[test]
+fn a_dish_gives_its_gain_and_refuses_more() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    // η(πD/λ)² for 1.2 m at 11.7 GHz and η = 0.6: 41.14 dBi (check value in
+    // engine/src/propagation/free_space.rs).
+    let v = json(&[
+        "budget",
+        &write(
+            &dir,
+            "dish.toml",
+            &dish_link("dish_diameter = \"1.2m\"\nefficiency = 0.6", "10km"),
+        ),
+    ]);
+    let g = v["line_items"][0]["gain_db"].as_f64().expect("gain");
+    assert!((g - 41.14).abs() < 0.01, "{v}");
+    // 45 dBi is more than 1.2 m can give at 100 % efficiency (43.35 dBi).
+    refused(
+        &[
+            "budget",
+            &write(
+                &dir,
+                "more.toml",
+                &dish_link("gain = \"45dBi\"\ndish_diameter = \"1.2m\"", "10km"),
+            ),
+        ],
+        &["'dish'", "more than a 1.2 m dish", "43.35 dB"],
+    );
+    // 50 m is inside the far field (2D²/λ = 112 m): a warning.
+    let out = run(&[
+        "budget",
+        &write(
+            &dir,
+            "near.toml",
+            &dish_link("dish_diameter = \"1.2m\"\nefficiency = \"60%\"", "50m"),
+        ),
+    ]);
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("far field") && err.contains("112.4 m"),
+        "{err}"
+    );
+}
+
+#[test]
+fn jakes_area_coverage_is_within_reach() {
+    // 75 % at the cell edge with σ/n = 2 covers about 90 % of the area
+    // (Jakes 1974, §2.5, figure of area coverage; common practice).
+    let v = json(&[
+        "fade",
+        "--model",
+        "lognormal",
+        "--sigma",
+        "8dB",
+        "--availability",
+        "75%",
+        "--exponent",
+        "4",
+    ]);
+    assert!((num(&v, "area_coverage") - 0.907).abs() < 0.002, "{v}");
+    refused(
+        &[
+            "fade",
+            "--model",
+            "rayleigh",
+            "--availability",
+            "75%",
+            "--exponent",
+            "4",
+        ],
+        &["--exponent", "lognormal"],
+    );
+}

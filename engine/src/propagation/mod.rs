@@ -25,7 +25,7 @@ mod two_ray;
 
 pub use free_space::{
     aperture_from_gain, far_field_distance, free_space_path_loss, gain_from_aperture,
-    power_flux_density, received_power_from_pfd,
+    gain_from_dish, power_flux_density, received_power_from_pfd,
 };
 pub use hata::{cost231_hata, okumura_hata, Extrapolation, HataEnvironment};
 pub use indoor::{

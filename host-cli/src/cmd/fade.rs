@@ -1,7 +1,7 @@
 //! `headroom fade`: the fade margin an availability needs, or the
 //! availability a margin gives, under one fading model.
 
-use headroom::fading::{margin_for_outage, outage_for_margin, FadingModel};
+use headroom::fading::{area_coverage, margin_for_outage, outage_for_margin, FadingModel};
 use headroom::units::Db;
 use serde_json::{json, Value};
 
@@ -35,6 +35,11 @@ pub struct Args {
     /// Standard deviation of log-normal shadowing in dB, 4 or 4dB.
     #[arg(long = "sigma", alias = "sigma-db", value_parser = quantity::db)]
     pub sigma_db: Option<Db>,
+    /// With --model lognormal and --availability (the probability at the
+    /// cell edge): the path-loss exponent n, 1-10, for the fraction of the
+    /// cell's area covered (Jakes, area_coverage).
+    #[arg(long, value_parser = quantity::number)]
+    pub exponent: Option<f32>,
     /// Output format.
     #[arg(long, value_enum, default_value_t)]
     pub format: Format,
@@ -84,6 +89,12 @@ fn run_inner(args: Args) -> CliResult {
     if let Some(s) = args.sigma_db {
         rep.num("sigma_db", s.0, "dB");
     }
+    if args.exponent.is_some() && args.availability.is_none() {
+        return Err(CliError::arg(
+            "--exponent",
+            "goes with --availability (the cell-edge probability)",
+        ));
+    }
     match (&args.availability, args.margin_db) {
         (Some(text), _) => {
             let outage = quantity::outage(text).map_err(|e| CliError::arg("--availability", e))?;
@@ -91,6 +102,27 @@ fn run_inner(args: Args) -> CliResult {
             rep.value("availability", prob(1.0 - outage));
             rep.value("outage", prob(outage));
             rep.num("margin_db", margin.0, "dB");
+            if let Some(n) = args.exponent {
+                let (Fading::Lognormal, Some(sigma)) = (args.model, args.sigma_db) else {
+                    return Err(CliError::arg(
+                        "--exponent",
+                        "the area coverage needs --model lognormal and --sigma",
+                    ));
+                };
+                let area = area_coverage((1.0 - outage) as f32, sigma, n).map_err(|e| match e {
+                    headroom::Error::OutOfValidity {
+                        param: "path_loss_exponent",
+                        ..
+                    } => CliError::arg("--exponent", "must be 1 to 10"),
+                    other => param_error(other),
+                })?;
+                rep.num("path_loss_exponent", n, "");
+                rep.value("area_coverage", prob(f64::from(area)));
+                rep.value(
+                    "area_coverage_method",
+                    json!("Jakes 1974, section 2.5 (edge availability, sigma, n)"),
+                );
+            }
         }
         (None, Some(margin)) => {
             let outage = f64::from(outage_for_margin(m, margin).map_err(param_error)?);
