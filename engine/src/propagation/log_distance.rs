@@ -30,7 +30,7 @@ pub(crate) fn reference_loss(f: Hertz, d0: Metres, pl_d0: Option<Db>) -> Result<
 /// an exponent of 30 is a typing slip, not a channel).
 ///
 /// The model describes the loss beyond its reference distance: `d < d0`
-/// is refused with [`Error::OutOfValidity`].
+/// is refused with [`crate::Error::OutOfValidity`].
 pub fn log_distance(
     f: Hertz,
     d: Metres,

@@ -7,9 +7,10 @@ use headroom::units::{Db, Hertz, Metres};
 use serde_json::Value;
 
 use crate::error::{CliError, CliResult};
+use crate::link::range as link_range;
 use crate::names::{self, Environment, Extrapolate, Form, Keys, Model, PathParams};
 use crate::output::{Format, Report};
-use crate::quantity;
+use crate::quantity::{self, show};
 
 /// Arguments of `headroom pathloss`.
 ///
@@ -122,6 +123,27 @@ pub fn run(a: Args) -> CliResult {
 }
 
 fn run_inner(a: Args) -> CliResult {
+    // Plausible ranges (as for link files) catch a slip of a thousand; a
+    // value that is not positive is left to the engine to name.
+    for (flag, x, range, shown) in [
+        (
+            "--frequency",
+            a.frequency.0,
+            link_range::FREQUENCY_HZ,
+            show::frequency as fn(f32) -> String,
+        ),
+        (
+            "--distance",
+            a.distance.0,
+            link_range::DISTANCE_M,
+            show::distance,
+        ),
+    ] {
+        if x > 0.0 {
+            quantity::check_range(x, range.0, range.1, &shown)
+                .map_err(|e| CliError::arg(flag, e))?;
+        }
+    }
     let mut warnings = Vec::new();
     let mut p = PathParams::new(a.model);
     p.exponent = a.exponent;
