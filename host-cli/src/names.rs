@@ -321,6 +321,9 @@ pub enum Fading {
     Lognormal,
     /// Log-normal shadowing times Rayleigh (Suzuki): needs sigma.
     Composite,
+    /// Log-normal shadowing times Rician (a line of sight under moving
+    /// shadows): needs a K factor and sigma.
+    RicianLognormal,
 }
 
 impl Fading {
@@ -331,6 +334,7 @@ impl Fading {
             FadingModel::Rician { .. } => Fading::Rician,
             FadingModel::LogNormal { .. } => Fading::Lognormal,
             FadingModel::Composite { .. } => Fading::Composite,
+            FadingModel::RicianLogNormal { .. } => Fading::RicianLognormal,
         }
     }
 
@@ -359,6 +363,13 @@ impl Fading {
                     Ok(FadingModel::LogNormal { sigma })
                 }
                 (None, Some(sigma)) => Ok(FadingModel::Composite { sigma }),
+            },
+            Fading::RicianLognormal => match (k, sigma) {
+                (None, _) => Err(needs(&k_key)),
+                (_, None) => Err(needs(&s_key)),
+                (Some(k_factor), Some(sigma)) => {
+                    Ok(FadingModel::RicianLogNormal { k_factor, sigma })
+                }
             },
         }
     }
@@ -630,6 +641,7 @@ mod tests {
         for &f in Fading::value_variants() {
             let (k, s) = match f {
                 Fading::Rician => (Some(Db(6.0)), None),
+                Fading::RicianLognormal => (Some(Db(6.0)), Some(Db(4.0))),
                 Fading::Rayleigh => (None, None),
                 _ => (None, Some(Db(4.0))),
             };
