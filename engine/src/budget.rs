@@ -20,7 +20,7 @@ use heapless::{String, Vec};
 use crate::error::{finite, non_negative, positive, probability, Error};
 use crate::fading::{margin_for_availability, FadingModel};
 use crate::modulation::{required_ebn0, Modulation};
-use crate::noise::{system_noise_temperature, thermal_noise, T0_K};
+use crate::noise::{noise_temperature_from_figure, thermal_noise, T0_K};
 use crate::propagation::PathLossModel;
 use crate::units::{Db, Dbm, Hertz, Kelvin, Metres};
 
@@ -50,6 +50,33 @@ impl Side {
     }
 }
 
+/// How a receive-side line item adds noise.
+///
+/// The receive-side items, in their listed order, form the receive chain:
+/// first the antenna gains ([`ItemNoise::None`], before the antenna
+/// terminals), then passive losses and amplifiers, then the receiver with
+/// its [`NoiseSpec::noise_figure`]. Transmitter- and path-side items are
+/// always [`ItemNoise::None`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum ItemNoise {
+    /// No noise of its own: an antenna gain, or any transmitter- or
+    /// path-side item.
+    None,
+    /// A passive loss at a physical temperature: its equivalent input noise
+    /// temperature is `T·(L − 1)` (common practice; e.g. Pozar, Microwave
+    /// Engineering, §10.1, attenuator noise temperature).
+    Passive {
+        /// Physical temperature of the lossy item (290 K when not known).
+        temperature: Kelvin,
+    },
+    /// An amplifier of the item's gain and this noise figure.
+    Amplifier {
+        /// Noise figure of the amplifier.
+        noise_figure: Db,
+    },
+}
+
 /// One named gain (positive) or loss (negative gain) of the chain.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LineItem {
@@ -59,6 +86,8 @@ pub struct LineItem {
     pub side: Side,
     /// Gain in dB; a loss is negative.
     pub gain: Db,
+    /// How it adds noise (receive side only).
+    pub noise: ItemNoise,
 }
 
 /// What the receiver needs to decode.
@@ -128,6 +157,11 @@ pub enum BudgetError {
     NameTooLong,
     /// A calculation refused its input.
     Input(Error),
+    /// A noise description on a transmitter- or path-side item.
+    NoiseOffReceiveSide,
+    /// An item without noise of its own (an antenna gain) after a passive
+    /// loss or an amplifier on the receive side: antenna gains come first.
+    AntennaAfterChain,
 }
 
 impl From<Error> for BudgetError {
@@ -144,6 +178,13 @@ impl fmt::Display for BudgetError {
                 write!(f, "line item name longer than {ITEM_NAME_LEN} bytes")
             }
             BudgetError::Input(e) => e.fmt(f),
+            BudgetError::NoiseOffReceiveSide => {
+                f.write_str("a noise figure or temperature belongs to a receive-side item")
+            }
+            BudgetError::AntennaAfterChain => f.write_str(
+                "a receive-side gain without a noise figure (an antenna) must come before the \
+                 passive losses and amplifiers of the receive chain; give an amplifier its noise_figure",
+            ),
         }
     }
 }
@@ -196,6 +237,20 @@ pub struct Link<const N: usize> {
     pub fade: FadeAllowance,
 }
 
+/// The receive chain's noise, from [`Link::receive_chain`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ReceiveChain {
+    /// System noise temperature at the antenna terminals.
+    pub at_antenna: Kelvin,
+    /// System noise temperature at the receiver input (end of the chain).
+    pub at_receiver_input: Kelvin,
+    /// Gain of the chain items (passive losses and amplifiers), dB.
+    pub chain_gain: Db,
+    /// Sum of the antenna gains before the chain, dB.
+    pub antenna_gain: Db,
+}
+
 /// Everything a budget evaluation gives.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -206,8 +261,17 @@ pub struct BudgetResult {
     pub rx_power: Dbm,
     /// Noise power in the noise bandwidth at the receiver input.
     pub noise_power: Dbm,
-    /// System noise temperature at the receiver input.
+    /// System noise temperature referred to the receiver input (the end of
+    /// the receive chain, where `rx_power` is given): the Friis cascade of
+    /// the antenna, the receive-chain items and the receiver.
     pub system_temperature: Kelvin,
+    /// The same system noise temperature referred to the antenna terminals
+    /// (after the antenna gains, before the first chain item).
+    pub system_temperature_antenna: Kelvin,
+    /// Sum of the receive-side antenna gains (items before the chain).
+    pub rx_antenna_gain: Db,
+    /// Figure of merit G/T at the antenna terminals, dB/K.
+    pub g_over_t: Db,
     /// Carrier-to-noise ratio.
     pub cn: Db,
     /// Carrier-to-noise density, dB-Hz.
@@ -248,9 +312,42 @@ impl<const N: usize> Link<N> {
         }
     }
 
-    /// Add a named gain (or, negative, a loss).
+    /// Add a named gain (or, negative, a loss) that adds no noise of its
+    /// own (an antenna gain; any transmitter- or path-side item).
     pub fn push(&mut self, name: &str, side: Side, gain: Db) -> Result<(), BudgetError> {
+        self.push_item(name, side, gain, ItemNoise::None)
+    }
+
+    /// Add a named item with its noise (see [`ItemNoise`]). A receive-side
+    /// gain without noise (an antenna) after a passive loss or an amplifier
+    /// is refused, as is noise on another side.
+    pub fn push_item(
+        &mut self,
+        name: &str,
+        side: Side,
+        gain: Db,
+        noise: ItemNoise,
+    ) -> Result<(), BudgetError> {
         finite("line item gain", gain.0)?;
+        match (side, noise) {
+            (Side::Receiver, ItemNoise::None) => {
+                if self
+                    .items
+                    .iter()
+                    .any(|i| i.side == Side::Receiver && i.noise != ItemNoise::None)
+                {
+                    return Err(BudgetError::AntennaAfterChain);
+                }
+            }
+            (Side::Receiver, ItemNoise::Passive { temperature }) => {
+                non_negative("item temperature", temperature.0)?;
+            }
+            (Side::Receiver, ItemNoise::Amplifier { noise_figure }) => {
+                non_negative("item noise figure", noise_figure.0)?;
+            }
+            (_, ItemNoise::None) => {}
+            _ => return Err(BudgetError::NoiseOffReceiveSide),
+        }
         let mut n = String::new();
         n.push_str(name).map_err(|()| BudgetError::NameTooLong)?;
         self.items
@@ -258,8 +355,66 @@ impl<const N: usize> Link<N> {
                 name: n,
                 side,
                 gain,
+                noise,
             })
             .map_err(|_| BudgetError::CapacityFull)
+    }
+
+    /// EIRP at transmit power `tx`: `tx` plus the transmitter-side items.
+    pub fn eirp_at(&self, tx: Dbm) -> Dbm {
+        tx + self.side_total(Side::Transmitter)
+    }
+
+    /// The receive chain's noise: system noise temperature at the antenna
+    /// terminals by Friis' cascade in temperatures,
+    /// `Tsys = Ta + Te1 + Te2/G1 + … + Trx/(G1·…·Gn)`, over the receive-side
+    /// passive losses (`Te = T·(L − 1)`) and amplifiers (`Te = T0·(F − 1)`)
+    /// in their listed order and the receiver last; with the chain's gain
+    /// `G1·…·Gn` in dB and the antenna gains before it.
+    ///
+    /// For a feeder of loss L at temperature Tp before the receiver, referred
+    /// to the receiver input this is `Ta/L + Tp·(1 − 1/L) + Trx` (common
+    /// practice; e.g. Pozar, Microwave Engineering, §10.1).
+    pub fn receive_chain(&self) -> Result<ReceiveChain, Error> {
+        let ta = non_negative(
+            "antenna temperature",
+            self.noise.antenna_temperature.unwrap_or(Kelvin(T0_K)).0,
+        )?;
+        let nf = Db(non_negative("noise figure", self.noise.noise_figure.0)?);
+        let mut te = 0.0_f32;
+        let mut chain_gain_db = 0.0_f32;
+        let mut antenna_gain_db = 0.0_f32;
+        for i in self.items.iter().filter(|i| i.side == Side::Receiver) {
+            let g = finite("line item gain", i.gain.0)?;
+            let item_te = match i.noise {
+                ItemNoise::None => {
+                    antenna_gain_db += g;
+                    continue;
+                }
+                ItemNoise::Passive { temperature } => {
+                    let t = non_negative("item temperature", temperature.0)?;
+                    // A loss L = 1/G: Te = T·(L − 1).
+                    t * (libm::exp10f(-g / 10.0) - 1.0)
+                }
+                ItemNoise::Amplifier { noise_figure } => {
+                    noise_temperature_from_figure(noise_figure)?.0
+                }
+            };
+            te += item_te * libm::exp10f(-chain_gain_db / 10.0);
+            chain_gain_db += g;
+        }
+        te += noise_temperature_from_figure(nf)?.0 * libm::exp10f(-chain_gain_db / 10.0);
+        let at_antenna = ta + te;
+        let at_input = at_antenna * libm::exp10f(chain_gain_db / 10.0);
+        if !(at_antenna.is_finite() && at_input.is_finite() && at_input > 0.0) {
+            return Err(Error::NoSolution("system noise temperature"));
+        }
+        Ok(ReceiveChain {
+            at_antenna: Kelvin(at_antenna),
+            at_receiver_input: Kelvin(at_input),
+            chain_gain: Db(chain_gain_db),
+            antenna_gain: Db(antenna_gain_db),
+        })
     }
 
     /// Sum of the gains on one side.
@@ -310,17 +465,18 @@ impl<const N: usize> Link<N> {
         finite("path loss", self.path_loss.0)?;
         let bw = self.noise.bandwidth;
         positive("bandwidth", bw.0)?;
-        let nf = Db(non_negative("noise figure", self.noise.noise_figure.0)?);
+        non_negative("noise figure", self.noise.noise_figure.0)?;
 
         let eirp = self.tx_power + self.side_total(Side::Transmitter);
         let rx_power =
             eirp - self.path_loss + self.side_total(Side::Path) + self.side_total(Side::Receiver);
 
-        // System temperature at the receiver input: antenna temperature plus
-        // the receiver's equivalent input temperature Te = (F − 1)·T0.
-        let ta = self.noise.antenna_temperature.unwrap_or(Kelvin(T0_K));
-        let system_temperature = system_noise_temperature(ta, nf)?;
+        // System temperature referred to the receiver input, where the
+        // received power is given: the receive chain's Friis cascade.
+        let chain = self.receive_chain()?;
+        let system_temperature = chain.at_receiver_input;
         let noise_power = thermal_noise(bw, system_temperature)?;
+        let g_over_t = Db(chain.antenna_gain.0 - 10.0 * libm::log10f(chain.at_antenna.0));
         let cn = rx_power - noise_power;
         let cn0 = cn + ratio_db("bandwidth", bw.0)?;
         let (required_cn, bit_rate) = self.required_cn()?;
@@ -335,6 +491,9 @@ impl<const N: usize> Link<N> {
             rx_power,
             noise_power,
             system_temperature,
+            system_temperature_antenna: chain.at_antenna,
+            rx_antenna_gain: chain.antenna_gain,
+            g_over_t,
             cn,
             cn0,
             ebn0,
@@ -469,6 +628,17 @@ pub fn free_space_frequency_scaling(
         AntennaScaling::FixedApertures => 2.0,
     };
     Ok(Db(2.0 * r.0 * (k - 1.0)))
+}
+
+/// Change of one antenna's gain, in dB, when a link moves from `f1` to `f2`
+/// with that antenna's effective aperture held fixed: `G = 4πA/λ²`, so
+/// `+20·log10(f2/f1)` (common practice).
+pub fn fixed_aperture_gain_change(f1: Hertz, f2: Hertz) -> Result<Db, Error> {
+    let r = ratio_db(
+        "frequency",
+        positive("frequency", f2.0)? / positive("frequency", f1.0)?,
+    )?;
+    Ok(Db(2.0 * r.0))
 }
 
 /// Factor by which the free-space range grows when a link moves from `f1` to
@@ -613,6 +783,9 @@ mod tests {
             free_space_frequency_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::OneFixedAperture)
                 .unwrap_or(Db(f32::NAN));
         assert!(s.0.abs() < 1e-5);
+        // Doubling the frequency with a fixed aperture: +6.02 dB of gain.
+        let g = fixed_aperture_gain_change(Hertz(1e9), Hertz(2e9)).unwrap_or(Db(f32::NAN));
+        assert!((g.0 - 6.0206).abs() < 1e-3);
         let r = free_space_range_scaling(Hertz(1e9), Hertz(2e9), AntennaScaling::FixedGains)
             .unwrap_or(f32::NAN);
         assert!((r - 0.5).abs() < 1e-5);

@@ -80,6 +80,17 @@ pub enum FadingModel {
         /// Standard deviation of the local mean, dB.
         sigma: Db,
     },
+    /// Log-normal shadowing of the local mean times Rician fading around it
+    /// (the Suzuki composite with a line of sight): the Rician outage
+    /// averaged over the log-normal mean, as [`FadingModel::Composite`]
+    /// averages the Rayleigh one. K as for [`FadingModel::Rician`], σ as for
+    /// [`FadingModel::Composite`].
+    RicianLogNormal {
+        /// K factor of the Rician part, dB.
+        k_factor: Db,
+        /// Standard deviation of the local mean, dB.
+        sigma: Db,
+    },
 }
 
 /// A validated model, with the derived numbers each formula needs.
@@ -88,6 +99,7 @@ enum Checked {
     Rician { k: f32 },
     LogNormal { sigma: f32 },
     Composite { sigma: f32 },
+    RicianLogNormal { k: f32, sigma: f32 },
 }
 
 fn check(m: FadingModel) -> Result<Checked> {
@@ -105,6 +117,13 @@ fn check(m: FadingModel) -> Result<Checked> {
         FadingModel::Composite { sigma } => Checked::Composite {
             sigma: check_sigma(sigma)?,
         },
+        FadingModel::RicianLogNormal { k_factor, sigma } => {
+            let k_db = within("k_factor", k_factor.0, RICIAN_K_MIN_DB, RICIAN_K_MAX_DB)?;
+            Checked::RicianLogNormal {
+                k: libm::exp10f(k_db / 10.0),
+                sigma: check_sigma(sigma)?,
+            }
+        }
     })
 }
 
@@ -164,7 +183,7 @@ pub fn margin_for_outage(m: FadingModel, outage_target: f32) -> Result<Db> {
         }
         Checked::LogNormal { sigma } => Ok(Db(sigma * inverse_q(p)?)),
         Checked::Rician { .. } => bisect_margin(&model, p, -50.0, 150.0),
-        Checked::Composite { sigma } => {
+        Checked::Composite { sigma } | Checked::RicianLogNormal { sigma, .. } => {
             bisect_margin(&model, p, -50.0 - 10.0 * sigma, 150.0 + 10.0 * sigma)
         }
     }
@@ -173,18 +192,26 @@ pub fn margin_for_outage(m: FadingModel, outage_target: f32) -> Result<Db> {
 fn outage(model: &Checked, margin_db: f32) -> Result<f32> {
     Ok(match *model {
         Checked::Rayleigh => rayleigh_outage(margin_db),
-        Checked::Rician { k } => {
-            let m = libm::exp10f(margin_db / 10.0);
-            let b = libm::sqrtf(2.0 * (k + 1.0) / m);
-            if b.is_finite() {
-                marcum_q1_complement(libm::sqrtf(2.0 * k), b)?
-            } else {
-                1.0
-            }
-        }
+        Checked::Rician { k } => rician_outage(k, margin_db)?,
         Checked::LogNormal { sigma } => q_function(margin_db / sigma),
-        Checked::Composite { sigma } => composite_outage(margin_db, sigma),
+        Checked::Composite { sigma } => {
+            composite_outage(margin_db, sigma, |m| Ok(rayleigh_outage(m)))?
+        }
+        Checked::RicianLogNormal { k, sigma } => {
+            composite_outage(margin_db, sigma, |m| rician_outage(k, m))?
+        }
     })
+}
+
+/// Rician outage `1 − Q1(√(2K), √(2(K+1)/m))` with m = 10^(M/10).
+fn rician_outage(k: f32, margin_db: f32) -> Result<f32> {
+    let m = libm::exp10f(margin_db / 10.0);
+    let b = libm::sqrtf(2.0 * (k + 1.0) / m);
+    if b.is_finite() {
+        marcum_q1_complement(libm::sqrtf(2.0 * k), b)
+    } else {
+        Ok(1.0)
+    }
 }
 
 /// 1 − exp(−1/m) with m = 10^(M/10), computed as −expm1(−10^(−M/10)).
@@ -192,8 +219,9 @@ fn rayleigh_outage(margin_db: f32) -> f32 {
     -libm::expm1f(-libm::exp10f(-margin_db / 10.0))
 }
 
-/// Composite Simpson over z ∈ [−9, 9] of φ(z)·rayleigh_outage(M + σz).
-fn composite_outage(margin_db: f32, sigma: f32) -> f32 {
+/// Composite Simpson over z ∈ [−9, 9] of φ(z)·inner(M + σz), `inner` the
+/// outage of the fast fading around a local mean M + σz dB above threshold.
+fn composite_outage(margin_db: f32, sigma: f32, inner: impl Fn(f32) -> Result<f32>) -> Result<f32> {
     const Z_MAX: f32 = 9.0;
     const INV_SQRT_2PI: f32 = 0.398_942_3;
     let n = COMPOSITE_PANELS;
@@ -209,9 +237,9 @@ fn composite_outage(margin_db: f32, sigma: f32) -> f32 {
             2.0
         };
         let phi = INV_SQRT_2PI * libm::expf(-0.5 * z * z);
-        sum += w * phi * rayleigh_outage(margin_db + sigma * z);
+        sum += w * phi * inner(margin_db + sigma * z)?;
     }
-    (sum * h / 3.0).clamp(0.0, 1.0)
+    Ok((sum * h / 3.0).clamp(0.0, 1.0))
 }
 
 /// Finds the margin where the (decreasing) outage equals `target`.

@@ -16,6 +16,7 @@ pub mod error;
 pub mod fleet;
 pub mod link;
 pub mod logio;
+pub mod names;
 pub mod output;
 pub mod plot;
 pub mod quantity;

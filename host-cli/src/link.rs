@@ -2,55 +2,71 @@
 //! `headroom budget` and `headroom solve`.
 //!
 //! Quantities are strings with units (`"868MHz"`, `"1.2km"`, `"14dBm"`,
-//! `"2.15dBi"`, `"6dB"`) or bare numbers in the base unit. Unknown keys are
-//! refused, so that a misspelt setting is not silently ignored. The format is
-//! documented with an example in the README and in `examples/links/`.
+//! `"2.15dBi"`, `"6dB"`, `"99%"`), parsed by [`crate::quantity`]; a
+//! frequency, bandwidth, distance, height or power must carry its unit.
+//! Names (models, environments, modulations, fading models) come from
+//! [`crate::names`]. Unknown keys are refused, so that a misspelt setting is
+//! not silently ignored. The format is documented with an example in the
+//! README and in `examples/links/`.
 
 use std::path::Path;
 
-use clap::ValueEnum;
-use headroom::budget::{FadeAllowance, Link, NoiseSpec, Requirement, Side};
-use headroom::fading::FadingModel;
-use headroom::modulation::Modulation;
-use headroom::propagation::{
-    indoor_coefficients, Extrapolation, FloorLoss, HataEnvironment, IndoorCoefficients,
-    IndoorEnvironment, PathLossModel, TwoRayForm,
-};
-use headroom::units::{Db, Dbm, Hertz, Metres};
+use headroom::budget::{FadeAllowance, ItemNoise, Link, NoiseSpec, Requirement, Side};
+use headroom::propagation::PathLossModel;
+use headroom::units::{Db, Dbm, Hertz, Kelvin, Metres};
 use serde::Deserialize;
 
 use crate::error::{CliError, CliResult};
-use crate::quantity;
+use crate::names::{self, Environment, Extrapolate, Fading, Form, Keys, Model, PathParams, Scheme};
+use crate::quantity::{self, show, Q};
 
 /// Most line items a link file may list.
 pub const MAX_ITEMS: usize = 32;
 
-/// A quantity in a TOML file: a string with a unit or a bare number.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(untagged)]
-pub enum Q {
-    /// `"868MHz"`.
-    Text(String),
-    /// `868e6`.
-    Number(f64),
+/// Read `q` under `key` with accessor `f`.
+pub fn read<T>(key: &str, q: &Q, f: fn(&Q) -> Result<T, String>) -> CliResult<T> {
+    f(q).map_err(|e| CliError::arg(key, e))
 }
 
-impl Q {
-    fn text(&self) -> String {
-        match self {
-            Q::Text(s) => s.clone(),
-            Q::Number(x) => format!("{x}"),
-        }
-    }
+fn read_opt<T>(key: &str, q: &Option<Q>, f: fn(&Q) -> Result<T, String>) -> CliResult<Option<T>> {
+    q.as_ref().map(|q| read(key, q, f)).transpose()
 }
 
-fn parse<T>(key: &str, q: &Q, f: fn(&str) -> Result<T, String>) -> CliResult<T> {
-    f(&q.text()).map_err(|e| CliError::arg(key, e))
+/// Plausible ranges of the link file's settings, checked when read. They
+/// catch a unit slip (a frequency in Hz read as MHz, a distance in km read
+/// as m), not physics: the engine refuses what its formulas cannot take.
+pub mod range {
+    /// Carrier frequency: 100 kHz .. 300 GHz (common practice: the span of
+    /// the radio bands this tool's models cover).
+    pub const FREQUENCY_HZ: (f32, f32) = (100e3, 300e9);
+    /// Noise bandwidth: 1 Hz .. 10 GHz.
+    pub const BANDWIDTH_HZ: (f32, f32) = (1.0, 10e9);
+    /// Distance: 1 mm .. 400 000 km (about the Moon).
+    pub const DISTANCE_M: (f32, f32) = (1e-3, 4e8);
+    /// Antenna heights: 1 cm .. 10 km.
+    pub const HEIGHT_M: (f32, f32) = (0.01, 10e3);
+    /// Transmit power and power limits: −60 dBm .. +90 dBm (1 MW).
+    pub const POWER_DBM: (f32, f32) = (-60.0, 90.0);
+    /// A line item's gain or loss: up to 100 dB (the largest dishes give
+    /// about 70 dBi; common practice).
+    pub const ITEM_DB: (f32, f32) = (-100.0, 100.0);
+    /// Noise figure: 0 .. 30 dB.
+    pub const NOISE_FIGURE_DB: (f32, f32) = (0.0, 30.0);
+    /// Noise temperatures: 0 .. 10 000 K (common practice: a cold sky is a
+    /// few K, the sun in the beam of a small dish a few thousand).
+    pub const TEMPERATURE_K: (f32, f32) = (0.0, 10_000.0);
+    /// Required SNR or Eb/N0: −40 .. +60 dB.
+    pub const REQUIRED_DB: (f32, f32) = (-40.0, 60.0);
+    /// Bit rate: 1 bit/s .. 100 Gbit/s.
+    pub const BIT_RATE_BPS: (f32, f32) = (1.0, 100e9);
+    /// Fixed fade margin and target margin: −50 .. +100 dB.
+    pub const MARGIN_DB: (f32, f32) = (-50.0, 100.0);
+    /// Reference loss of log-distance, floor losses: 0 .. 200 dB.
+    pub const LOSS_DB: (f32, f32) = (0.0, 200.0);
 }
 
-fn need<'a, T>(key: &str, v: &'a Option<T>, model: &str) -> CliResult<&'a T> {
-    v.as_ref()
-        .ok_or_else(|| CliError::arg(key, format!("required by path model '{model}'")))
+fn within(key: &str, x: f32, (lo, hi): (f32, f32), shown: fn(f32) -> String) -> CliResult<f32> {
+    quantity::check_range(x, lo, hi, &shown).map_err(|e| CliError::arg(key, e))
 }
 
 /// The whole file.
@@ -87,6 +103,15 @@ pub struct LinkFile {
 pub struct Transmitter {
     /// Power at the transmitter output.
     pub power: Q,
+    /// Highest power the transmitter can give.
+    #[serde(default)]
+    pub max_power: Option<Q>,
+    /// Regulatory EIRP cap.
+    #[serde(default)]
+    pub eirp_cap: Option<Q>,
+    /// Regulatory ERP cap (EIRP cap − 2.15 dB); give this or `eirp_cap`.
+    #[serde(default)]
+    pub erp_cap: Option<Q>,
 }
 
 /// `[[item]]`: one gain or loss.
@@ -103,14 +128,29 @@ pub struct Item {
     /// A loss as a positive number (`"0.8dB"`).
     #[serde(default)]
     pub loss: Option<Q>,
+    /// An antenna's dish diameter: with `efficiency` (and no `gain`) it gives
+    /// the gain η·(πD/λ)²; with a `gain`, the gain is checked against the
+    /// most the aperture can give (η = 1), and the far field against 2D²/λ.
+    #[serde(default)]
+    pub dish_diameter: Option<Q>,
+    /// Aperture efficiency of the dish, 0..1 (typically 0.5-0.7, common practice).
+    #[serde(default)]
+    pub efficiency: Option<Q>,
+    /// Receive side, with `gain`: an amplifier of this noise figure.
+    #[serde(default)]
+    pub noise_figure: Option<Q>,
+    /// Receive side, with `loss`: the item's physical temperature (290 K
+    /// unless given); its loss adds noise at this temperature.
+    #[serde(default)]
+    pub temperature: Option<Q>,
 }
 
-/// `[path]`: the distance and the propagation model.
+/// `[path]`: the distance and the propagation model, with the parameters of
+/// [`crate::names::PathParams`] under the same names.
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct PathSpec {
-    /// `free-space`, `log-distance`, `two-ray`, `hata`, `cost231`, `indoor`,
-    /// or `fixed` (a given `loss`).
+    /// A model of [`crate::names::Model`], or `fixed` (a given `loss`).
     pub model: String,
     /// Distance between the antennas (not needed by `fixed`).
     #[serde(default)]
@@ -120,17 +160,17 @@ pub struct PathSpec {
     pub loss: Option<Q>,
     /// `log-distance`: exponent n.
     #[serde(default)]
-    pub exponent: Option<f64>,
+    pub exponent: Option<Q>,
     /// `log-distance`: reference distance d0 (default 1 m).
     #[serde(default)]
     pub reference_distance: Option<Q>,
     /// `log-distance`: loss at d0 (default: free space at d0).
     #[serde(default)]
     pub reference_loss: Option<Q>,
-    /// `two-ray`, `hata`, `cost231`: transmitter (base) antenna height.
+    /// `two-ray`, `hata`, `cost231`: transmitter (Hata: base) antenna height.
     #[serde(default)]
     pub tx_height: Option<Q>,
-    /// `two-ray`, `hata`, `cost231`: receiver (mobile) antenna height.
+    /// `two-ray`, `hata`, `cost231`: receiver (Hata: mobile) antenna height.
     #[serde(default)]
     pub rx_height: Option<Q>,
     /// `two-ray`: `exact` (default) or `asymptotic`.
@@ -138,23 +178,22 @@ pub struct PathSpec {
     pub form: Option<String>,
     /// `two-ray` exact: ground reflection coefficient (default −1).
     #[serde(default)]
-    pub reflection: Option<f64>,
-    /// `hata`: `open`, `suburban`, `medium-city`, `large-city`;
-    /// `cost231`: `medium-city` or `metropolitan`.
+    pub reflection: Option<Q>,
+    /// `hata`, `cost231`, `indoor`: the environment.
     #[serde(default)]
     pub environment: Option<String>,
+    /// Old spelling of `environment` for `indoor` (read with a warning).
+    #[serde(default)]
+    pub building: Option<String>,
     /// `hata`, `cost231`: `none` (default), `distance`, `frequency`, `distance-and-frequency`.
     #[serde(default)]
     pub extrapolate: Option<String>,
-    /// `indoor`: `residential`, `office`, `commercial`.
-    #[serde(default)]
-    pub building: Option<String>,
     /// `indoor`: floors between the terminals (default 0).
     #[serde(default)]
     pub floors: Option<u8>,
     /// `indoor`, own coefficients instead of the table: distance power loss coefficient N.
     #[serde(default)]
-    pub coefficient_n: Option<f64>,
+    pub coefficient_n: Option<Q>,
     /// `indoor`, own coefficients: loss through the first floor.
     #[serde(default)]
     pub floor_loss: Option<Q>,
@@ -194,10 +233,10 @@ pub struct RequirementSpec {
     pub order: Option<u32>,
     /// Target bit error rate.
     #[serde(default)]
-    pub ber: Option<f64>,
+    pub ber: Option<Q>,
     /// Bit rate in bit/s.
     #[serde(default)]
-    pub bit_rate: Option<f64>,
+    pub bit_rate: Option<Q>,
 }
 
 /// `[fade]`: `margin`, or `model` + `availability` (+ `k_factor` / `sigma`).
@@ -207,12 +246,12 @@ pub struct FadeSpec {
     /// A fixed margin.
     #[serde(default)]
     pub margin: Option<Q>,
-    /// `rayleigh`, `rician`, `lognormal`, `composite`.
+    /// A model of [`crate::names::Fading`].
     #[serde(default)]
     pub model: Option<String>,
-    /// Availability as a fraction (0.99).
+    /// Availability as a fraction (0.99) or a percentage (`"99%"`).
     #[serde(default)]
-    pub availability: Option<f64>,
+    pub availability: Option<Q>,
     /// Rician K factor.
     #[serde(default)]
     pub k_factor: Option<Q>,
@@ -230,6 +269,17 @@ pub struct SolveSpec {
     pub target_margin: Option<Q>,
 }
 
+/// The transmitter's limits from the link file.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Limits {
+    /// Highest power the transmitter gives.
+    pub max_power: Option<Dbm>,
+    /// Regulatory EIRP cap (an ERP cap is stored as its EIRP).
+    pub eirp_cap: Option<Dbm>,
+    /// Whether the cap was given as ERP.
+    pub cap_given_as_erp: bool,
+}
+
 /// A link file turned into engine values.
 pub struct LoadedLink {
     /// Name from the file, or the file name.
@@ -244,163 +294,132 @@ pub struct LoadedLink {
     pub link: Link<MAX_ITEMS>,
     /// `[solve] target_margin`.
     pub target_margin: Db,
+    /// The transmitter's limits.
+    pub limits: Limits,
+    /// Things that do not stop the calculation but weaken its answer (also
+    /// printed on stderr as they are found).
+    pub warnings: Vec<String>,
 }
 
-/// A modulation named as for `headroom ber --modulation`, built by the same code.
-fn modulation(name: &str, order: Option<u32>) -> CliResult<Modulation> {
-    let scheme = crate::cmd::ber::Scheme::from_str(name, false)
-        .map_err(|_| {
-            CliError::arg(
-                "requirement.modulation",
-                format!("unknown modulation '{name}' (bpsk, qpsk, dbpsk, fsk-coherent, fsk-noncoherent, psk, qam)"),
-            )
-        })?;
-    crate::cmd::ber::modulation_keyed(scheme, order, "requirement.order")
-}
-
-/// A fading model named as for `headroom fade --model`, built by the same code.
-fn fading(name: &str, k_factor: Option<Db>, sigma: Option<Db>) -> CliResult<FadingModel> {
-    let model = crate::cmd::fade::Model::from_str(name, false).map_err(|_| {
-        CliError::arg(
-            "fade.model",
-            format!("unknown fading model '{name}' (rayleigh, rician, lognormal, composite)"),
-        )
-    })?;
-    crate::cmd::fade::model_keyed(model, (k_factor, "fade.k_factor"), (sigma, "fade.sigma"))
-}
-
-fn extrapolation(s: Option<&str>) -> CliResult<Extrapolation> {
-    Ok(match s.unwrap_or("none") {
-        "none" => Extrapolation::Refuse,
-        "distance" => Extrapolation::ExtendedDistance,
-        "frequency" => Extrapolation::ExtendedFrequency,
-        "distance-and-frequency" => Extrapolation::ExtendedDistanceAndFrequency,
-        other => {
-            return Err(CliError::arg(
-                "path.extrapolate",
-                format!("unknown '{other}' (none, distance, frequency, distance-and-frequency)"),
-            ))
-        }
+/// `r` with an input error pointing at the help of subcommand `cmd`, where
+/// its units, ranges and names are listed.
+pub fn pointing_at_help(cmd: &str, r: CliResult) -> CliResult {
+    r.map_err(|e| match e {
+        CliError::Input(m) => CliError::Input(format!("{m} (see 'headroom {cmd} --help')")),
+        other => other,
     })
+}
+
+/// Print a warning on stderr and keep it for the JSON `warnings` list.
+pub fn warn(warnings: &mut Vec<String>, msg: String) {
+    eprintln!("headroom: warning: {msg}");
+    warnings.push(msg);
 }
 
 impl PathSpec {
     /// The engine model this spec names (`None` for `fixed`).
-    pub fn model(&self, frequency: Hertz) -> CliResult<Option<PathLossModel>> {
-        let m = self.model.as_str();
-        let height = |key: &str, q: &Option<Q>| -> CliResult<Metres> {
-            parse(key, need(key, q, m)?, quantity::distance)
-        };
-        Ok(Some(match m {
-            "fixed" => return Ok(None),
-            "free-space" => PathLossModel::FreeSpace,
-            "log-distance" => PathLossModel::LogDistance {
-                d0: match &self.reference_distance {
-                    Some(q) => parse("path.reference_distance", q, quantity::distance)?,
-                    None => Metres(1.0),
-                },
-                pl_d0: match &self.reference_loss {
-                    Some(q) => Some(parse("path.reference_loss", q, quantity::db)?),
-                    None => None,
-                },
-                exponent: *need("path.exponent", &self.exponent, m)? as f32,
-            },
-            "two-ray" => PathLossModel::TwoRay {
-                ht: height("path.tx_height", &self.tx_height)?,
-                hr: height("path.rx_height", &self.rx_height)?,
-                form: match self.form.as_deref().unwrap_or("exact") {
-                    "exact" => TwoRayForm::Exact { reflection: self.reflection.unwrap_or(-1.0) as f32 },
-                    "asymptotic" => TwoRayForm::Asymptotic,
-                    other => {
-                        return Err(CliError::arg("path.form", format!("unknown '{other}' (exact, asymptotic)")))
-                    }
-                },
-            },
-            "hata" => PathLossModel::Hata {
-                ht: height("path.tx_height", &self.tx_height)?,
-                hr: height("path.rx_height", &self.rx_height)?,
-                env: match need("path.environment", &self.environment, m)?.as_str() {
-                    "open" => HataEnvironment::Open,
-                    "suburban" => HataEnvironment::Suburban,
-                    "medium-city" => HataEnvironment::MediumCity,
-                    "large-city" => HataEnvironment::LargeCity,
-                    other => {
-                        return Err(CliError::arg(
-                            "path.environment",
-                            format!("unknown '{other}' (open, suburban, medium-city, large-city)"),
-                        ))
-                    }
-                },
-                ext: extrapolation(self.extrapolate.as_deref())?,
-            },
-            "cost231" => PathLossModel::Cost231 {
-                ht: height("path.tx_height", &self.tx_height)?,
-                hr: height("path.rx_height", &self.rx_height)?,
-                metropolitan: match self.environment.as_deref().unwrap_or("medium-city") {
-                    "medium-city" => false,
-                    "metropolitan" | "large-city" => true,
-                    other => {
-                        return Err(CliError::arg(
-                            "path.environment",
-                            format!("unknown '{other}' for cost231 (medium-city, metropolitan)"),
-                        ))
-                    }
-                },
-                ext: extrapolation(self.extrapolate.as_deref())?,
-            },
-            "indoor" => {
-                let coeffs = match self.coefficient_n {
-                    Some(n) => IndoorCoefficients {
-                        distance_power_coefficient_n: n as f32,
-                        floor_loss: match &self.floor_loss {
-                            Some(q) => FloorLoss::Linear {
-                                first: parse("path.floor_loss", q, quantity::db)?,
-                                per_extra_floor: match &self.floor_loss_per_extra_floor {
-                                    Some(q) => parse("path.floor_loss_per_extra_floor", q, quantity::db)?,
-                                    None => Db(0.0),
-                                },
-                            },
-                            None => FloorLoss::SameFloorOnly,
-                        },
-                    },
-                    None => {
-                        let env = match need("path.building", &self.building, m)?.as_str() {
-                            "residential" => IndoorEnvironment::Residential,
-                            "office" => IndoorEnvironment::Office,
-                            "commercial" => IndoorEnvironment::Commercial,
-                            other => {
-                                return Err(CliError::arg(
-                                    "path.building",
-                                    format!("unknown '{other}' (residential, office, commercial)"),
-                                ))
-                            }
-                        };
-                        indoor_coefficients(frequency, env)?
-                    }
-                };
-                PathLossModel::Indoor { floors: self.floors.unwrap_or(0), coeffs }
+    pub fn model(
+        &self,
+        frequency: Hertz,
+        warnings: &mut Vec<String>,
+    ) -> CliResult<Option<PathLossModel>> {
+        if self.model == "fixed" {
+            for (key, given) in [
+                ("path.distance", self.distance.is_some()),
+                ("path.exponent", self.exponent.is_some()),
+                ("path.tx_height", self.tx_height.is_some()),
+                ("path.environment", self.environment.is_some()),
+            ] {
+                if given {
+                    return Err(CliError::arg(key, "does not apply to model fixed"));
+                }
             }
-            other => {
+            return Ok(None);
+        }
+        let model: Model = names::parse("path.model", "model", &self.model).map_err(|_| {
+            CliError::arg(
+                "path.model",
+                format!(
+                    "unknown model '{}' ({}, fixed)",
+                    self.model,
+                    names::list::<Model>()
+                ),
+            )
+        })?;
+        let height = |key: &str, q: &Option<Q>| -> CliResult<Option<Metres>> {
+            read_opt(key, q, Q::distance)?
+                .map(|h| within(key, h.0, range::HEIGHT_M, show::distance).map(Metres))
+                .transpose()
+        };
+        let loss = |key: &str, q: &Option<Q>| -> CliResult<Option<Db>> {
+            read_opt(key, q, Q::db)?
+                .map(|l| within(key, l.0, range::LOSS_DB, show::db).map(Db))
+                .transpose()
+        };
+        let environment = match (&self.environment, &self.building) {
+            (Some(_), Some(_)) => {
                 return Err(CliError::arg(
-                    "path.model",
-                    format!(
-                        "unknown model '{other}' (free-space, log-distance, two-ray, hata, cost231, indoor, fixed)"
-                    ),
+                    "path.building",
+                    "old spelling of path.environment: give one",
                 ))
             }
-        }))
+            (Some(e), None) => Some(e),
+            (None, Some(b)) => {
+                warn(
+                    warnings,
+                    "path.building is the old spelling of path.environment; it will be refused in a later release".into(),
+                );
+                Some(b)
+            }
+            (None, None) => None,
+        };
+        let mut p = PathParams::new(model);
+        p.exponent = read_opt("path.exponent", &self.exponent, Q::number)?;
+        p.reference_distance = read_opt(
+            "path.reference_distance",
+            &self.reference_distance,
+            Q::distance,
+        )?;
+        p.reference_loss = loss("path.reference_loss", &self.reference_loss)?;
+        p.tx_height = height("path.tx_height", &self.tx_height)?;
+        p.rx_height = height("path.rx_height", &self.rx_height)?;
+        p.form = self
+            .form
+            .as_deref()
+            .map(|f| names::parse::<Form>("path.form", "two-ray form", f))
+            .transpose()?;
+        p.reflection = read_opt("path.reflection", &self.reflection, Q::number)?;
+        p.environment = environment
+            .map(|e| names::parse::<Environment>("path.environment", "environment", e))
+            .transpose()?;
+        p.extrapolate = self
+            .extrapolate
+            .as_deref()
+            .map(|e| names::parse::<Extrapolate>("path.extrapolate", "extrapolation", e))
+            .transpose()?;
+        p.floors = self.floors;
+        p.coefficient_n = read_opt("path.coefficient_n", &self.coefficient_n, Q::number)?;
+        p.floor_loss = loss("path.floor_loss", &self.floor_loss)?;
+        p.floor_loss_per_extra_floor = loss(
+            "path.floor_loss_per_extra_floor",
+            &self.floor_loss_per_extra_floor,
+        )?;
+        p.build(frequency, Keys::File("path")).map(Some)
     }
 }
 
-/// The keys of a link file by the engine parameter they become, so that an
-/// engine error names the key.
-const KEYS: &[(&str, &str)] = &[
-    ("availability", "fade.availability"),
-    ("k_factor", "fade.k_factor"),
-    ("sigma", "fade.sigma"),
-    ("frequency_hz", "frequency"),
-    ("distance_m", "path.distance"),
-];
+/// The key of a link file that a setting of [`crate::names`] comes from.
+pub fn key_of(setting: &str) -> String {
+    match setting {
+        "frequency" => "frequency".into(),
+        "k_factor" | "sigma" | "availability" => format!("fade.{setting}"),
+        other => format!("path.{other}"),
+    }
+}
+
+fn engine_error(e: &headroom::Error) -> CliError {
+    names::engine_error(e, &key_of)
+}
 
 /// Read and check a link file.
 pub fn load(path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
@@ -424,32 +443,59 @@ fn one_line(s: &str) -> String {
 }
 
 fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
+    let mut warnings = Vec::new();
     let frequency = match frequency {
         Some(f) => f,
-        None => parse("frequency", &file.frequency, quantity::frequency)?,
+        None => read("frequency", &file.frequency, Q::frequency)?,
     };
-    let tx_power: Dbm = parse(
-        "transmitter.power",
-        &file.transmitter.power,
-        quantity::power,
+    within(
+        "frequency",
+        frequency.0,
+        range::FREQUENCY_HZ,
+        show::frequency,
     )?;
-    let model = file.path.model(frequency)?;
-    let distance = match &file.path.distance {
-        Some(q) => Some(parse("path.distance", q, quantity::distance)?),
-        None => None,
+    let power = |key: &str, q: &Q| -> CliResult<Dbm> {
+        let p = read(key, q, Q::power)?;
+        within(key, p.0, range::POWER_DBM, show::dbm).map(Dbm)
     };
+    let t = &file.transmitter;
+    let tx_power = power("transmitter.power", &t.power)?;
+    let limits = Limits {
+        max_power: t
+            .max_power
+            .as_ref()
+            .map(|q| power("transmitter.max_power", q))
+            .transpose()?,
+        eirp_cap: match (&t.eirp_cap, &t.erp_cap) {
+            (Some(_), Some(_)) => {
+                return Err(CliError::arg(
+                    "transmitter.erp_cap",
+                    "give eirp_cap or erp_cap, not both",
+                ))
+            }
+            (Some(q), None) => Some(power("transmitter.eirp_cap", q)?),
+            (None, Some(q)) => Some(headroom::units::eirp_from_erp(power(
+                "transmitter.erp_cap",
+                q,
+            )?)),
+            (None, None) => None,
+        },
+        cap_given_as_erp: t.erp_cap.is_some(),
+    };
+    let model = file.path.model(frequency, &mut warnings)?;
+    let distance = read_opt("path.distance", &file.path.distance, Q::distance)?
+        .map(|d| within("path.distance", d.0, range::DISTANCE_M, show::distance).map(Metres))
+        .transpose()?;
     let path_loss = match (&model, distance) {
-        (None, _) => parse(
+        (None, _) => read(
             "path.loss",
             file.path
                 .loss
                 .as_ref()
                 .ok_or_else(|| CliError::arg("path.loss", "required by path model 'fixed'"))?,
-            quantity::db,
+            Q::db,
         )?,
-        (Some(m), Some(d)) => m
-            .path_loss(frequency, d)
-            .map_err(|e| CliError::arg("path", e))?,
+        (Some(m), Some(d)) => m.path_loss(frequency, d).map_err(|e| engine_error(&e))?,
         (Some(_), None) => {
             return Err(CliError::arg(
                 "path.distance",
@@ -457,105 +503,74 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
             ))
         }
     };
+    let bandwidth = read("receiver.bandwidth", &file.receiver.bandwidth, Q::frequency)?;
+    within(
+        "receiver.bandwidth",
+        bandwidth.0,
+        range::BANDWIDTH_HZ,
+        show::frequency,
+    )?;
+    let noise_figure = read("receiver.noise_figure", &file.receiver.noise_figure, Q::db)?;
+    within(
+        "receiver.noise_figure",
+        noise_figure.0,
+        range::NOISE_FIGURE_DB,
+        show::db,
+    )?;
+    let antenna_temperature = read_opt(
+        "receiver.antenna_temperature",
+        &file.receiver.antenna_temperature,
+        Q::temperature,
+    )?;
+    if let Some(ta) = antenna_temperature {
+        within(
+            "receiver.antenna_temperature",
+            ta.0,
+            range::TEMPERATURE_K,
+            show::kelvin,
+        )?;
+    }
     let noise = NoiseSpec {
-        bandwidth: parse(
-            "receiver.bandwidth",
-            &file.receiver.bandwidth,
-            quantity::frequency,
-        )?,
-        noise_figure: parse(
-            "receiver.noise_figure",
-            &file.receiver.noise_figure,
-            quantity::db,
-        )?,
-        antenna_temperature: match &file.receiver.antenna_temperature {
-            Some(q) => Some(parse(
-                "receiver.antenna_temperature",
-                q,
-                quantity::temperature,
-            )?),
-            None => None,
-        },
+        bandwidth,
+        noise_figure,
+        antenna_temperature,
     };
-    let r = &file.requirement;
-    let bit_rate = || -> CliResult<f32> {
-        r.bit_rate.map(|b| b as f32).ok_or_else(|| {
-            CliError::arg("requirement.bit_rate", "required with ebn0 or modulation")
-        })
-    };
-    let requirement = match (&r.snr, &r.ebn0, &r.modulation) {
-        (Some(q), None, None) => {
-            Requirement::CarrierToNoise(parse("requirement.snr", q, quantity::db)?)
-        }
-        (None, Some(q), None) => Requirement::EbN0 {
-            ebn0: parse("requirement.ebn0", q, quantity::db)?,
-            bit_rate_bps: bit_rate()?,
-        },
-        (None, None, Some(m)) => Requirement::Modulation {
-            modulation: modulation(m, r.order)?,
-            ber: r
-                .ber
-                .ok_or_else(|| CliError::arg("requirement.ber", "required with modulation"))?
-                as f32,
-            bit_rate_bps: bit_rate()?,
-        },
-        _ => return Err(CliError::arg(
-            "requirement",
-            "give exactly one of snr, ebn0 (with bit_rate) or modulation (with ber and bit_rate)",
-        )),
-    };
+    let requirement = requirement(&file.requirement)?;
     let fade = match &file.fade {
         None => FadeAllowance::None,
-        Some(f) => match (&f.margin, &f.model) {
-            (Some(q), None) => FadeAllowance::Fixed(parse("fade.margin", q, quantity::db)?),
-            (None, Some(m)) => {
-                let k = match &f.k_factor {
-                    Some(q) => Some(parse("fade.k_factor", q, quantity::db)?),
-                    None => None,
-                };
-                let s = match &f.sigma {
-                    Some(q) => Some(parse("fade.sigma", q, quantity::db)?),
-                    None => None,
-                };
-                FadeAllowance::Model {
-                    model: fading(m, k, s)?,
-                    availability: f.availability.ok_or_else(|| {
-                        CliError::arg("fade.availability", "required with fade.model")
-                    })? as f32,
-                }
-            }
-            _ => {
-                return Err(CliError::arg(
-                    "fade",
-                    "give either margin or model (with availability)",
-                ))
-            }
-        },
+        Some(f) => fade(f)?,
     };
     let mut link = Link::new(tx_power, path_loss, noise, requirement, fade);
+    let mut largest_dish: Option<Metres> = None;
     for (i, item) in file.items.iter().enumerate() {
-        let key = format!("item[{i}] '{}'", item.name);
-        let side = match item.side.as_str() {
-            "tx" => Side::Transmitter,
-            "path" => Side::Path,
-            "rx" => Side::Receiver,
-            other => {
-                return Err(CliError::arg(
-                    &key,
-                    format!("side '{other}' is not tx, path or rx"),
-                ))
-            }
-        };
-        let gain = match (&item.gain, &item.loss) {
-            (Some(q), None) => Db(parse(&key, q, quantity::gain)?.0),
-            (None, Some(q)) => -parse(&key, q, quantity::db)?,
-            _ => return Err(CliError::arg(&key, "give exactly one of gain or loss")),
-        };
-        link.push(&item.name, side, gain)
-            .map_err(|e| CliError::arg(&key, e))?;
+        if let Some(d) = push_item(&mut link, i, item, frequency)? {
+            largest_dish = Some(Metres(largest_dish.map_or(d.0, |l| l.0.max(d.0))));
+        }
+    }
+    if let (Some(dish), Some(d)) = (largest_dish, distance) {
+        let ff = headroom::propagation::far_field_distance(frequency, dish)?;
+        if d.0 < ff.0 {
+            warn(
+                &mut warnings,
+                format!(
+                    "path.distance {} is inside the far field of a {} dish (2D²/λ = {}): the path loss is underestimated",
+                    show::distance(d.0),
+                    show::distance(dish.0),
+                    show::distance(ff.0)
+                ),
+            );
+        }
     }
     let target_margin = match file.solve.as_ref().and_then(|s| s.target_margin.as_ref()) {
-        Some(q) => parse("solve.target_margin", q, quantity::db)?,
+        Some(q) => {
+            let m = read("solve.target_margin", q, Q::db)?;
+            Db(within(
+                "solve.target_margin",
+                m.0,
+                range::MARGIN_DB,
+                show::db,
+            )?)
+        }
         None => Db(0.0),
     };
     let name = file.name.unwrap_or_else(|| {
@@ -565,8 +580,22 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
     });
     // Evaluate once here, so that a value only the evaluation refuses (an
     // availability of 1, say) is reported with the file and its key.
-    link.evaluate()
-        .map_err(|e| crate::error::engine_error(&e, KEYS))?;
+    let r = link.evaluate().map_err(|e| engine_error(&e))?;
+    if let (Some(m), Some(d)) = (&model, distance) {
+        if let Some(w) = m.degraded(frequency, d) {
+            warn(&mut warnings, format!("path: {w}"));
+        }
+    }
+    if r.rx_power.0 > link.tx_power.0 {
+        warn(
+            &mut warnings,
+            format!(
+                "the received power ({}) is above the transmitted power ({}): check the gains and the path",
+                show::dbm(r.rx_power.0),
+                show::dbm(link.tx_power.0)
+            ),
+        );
+    }
     Ok(LoadedLink {
         name,
         frequency,
@@ -574,5 +603,203 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
         model,
         link,
         target_margin,
+        limits,
+        warnings,
     })
+}
+
+fn requirement(r: &RequirementSpec) -> CliResult<Requirement> {
+    let required = |key: &str, q: &Q| -> CliResult<Db> {
+        let x = read(key, q, Q::db)?;
+        within(key, x.0, range::REQUIRED_DB, show::db).map(Db)
+    };
+    let bit_rate = || -> CliResult<f32> {
+        let q = r.bit_rate.as_ref().ok_or_else(|| {
+            CliError::arg("requirement.bit_rate", "required with ebn0 or modulation")
+        })?;
+        let b = read("requirement.bit_rate", q, Q::number)?;
+        within("requirement.bit_rate", b, range::BIT_RATE_BPS, |x| {
+            format!("{x} bit/s")
+        })
+    };
+    Ok(match (&r.snr, &r.ebn0, &r.modulation) {
+        (Some(q), None, None) => Requirement::CarrierToNoise(required("requirement.snr", q)?),
+        (None, Some(q), None) => Requirement::EbN0 {
+            ebn0: required("requirement.ebn0", q)?,
+            bit_rate_bps: bit_rate()?,
+        },
+        (None, None, Some(m)) => Requirement::Modulation {
+            modulation: names::parse::<Scheme>("requirement.modulation", "modulation", m)?
+                .build(r.order, "requirement.order")?,
+            ber: read(
+                "requirement.ber",
+                r.ber
+                    .as_ref()
+                    .ok_or_else(|| CliError::arg("requirement.ber", "required with modulation"))?,
+                Q::fraction,
+            )?,
+            bit_rate_bps: bit_rate()?,
+        },
+        _ => return Err(CliError::arg(
+            "requirement",
+            "give exactly one of snr, ebn0 (with bit_rate) or modulation (with ber and bit_rate)",
+        )),
+    })
+}
+
+fn fade(f: &FadeSpec) -> CliResult<FadeAllowance> {
+    Ok(match (&f.margin, &f.model) {
+        (Some(q), None) => {
+            let m = read("fade.margin", q, Q::db)?;
+            FadeAllowance::Fixed(Db(within("fade.margin", m.0, range::MARGIN_DB, show::db)?))
+        }
+        (None, Some(m)) => {
+            let k = read_opt("fade.k_factor", &f.k_factor, Q::db)?;
+            let s = read_opt("fade.sigma", &f.sigma, Q::db)?;
+            let model = names::parse::<Fading>("fade.model", "fading model", m)?.build(
+                k,
+                s,
+                Keys::File("fade"),
+            )?;
+            let outage = read(
+                "fade.availability",
+                f.availability.as_ref().ok_or_else(|| {
+                    CliError::arg("fade.availability", "required with fade.model")
+                })?,
+                Q::outage,
+            )?;
+            FadeAllowance::Model {
+                model,
+                availability: (1.0 - outage) as f32,
+            }
+        }
+        _ => {
+            return Err(CliError::arg(
+                "fade",
+                "give either margin or model (with availability)",
+            ))
+        }
+    })
+}
+
+/// Push one `[[item]]`; the dish diameter it names, if any.
+fn push_item(
+    link: &mut Link<MAX_ITEMS>,
+    i: usize,
+    item: &Item,
+    f: Hertz,
+) -> CliResult<Option<Metres>> {
+    let key = format!("item[{i}] '{}'", item.name);
+    let side: names::Side = names::parse(&key, "side", &item.side)?;
+    let side = match side {
+        names::Side::Tx => Side::Transmitter,
+        names::Side::Path => Side::Path,
+        names::Side::Rx => Side::Receiver,
+    };
+    let dish = read_opt(
+        &format!("{key} dish_diameter"),
+        &item.dish_diameter,
+        Q::distance,
+    )?;
+    let efficiency = read_opt(&format!("{key} efficiency"), &item.efficiency, Q::fraction)?;
+    let dish_gain = |eta: f32| -> CliResult<Option<Db>> {
+        dish.map(|d| {
+            headroom::propagation::gain_from_dish(d, eta, f)
+                .map(|g| Db(g.0))
+                .map_err(|e| CliError::arg(&key, e))
+        })
+        .transpose()
+    };
+    let gain = match (&item.gain, &item.loss, dish, efficiency) {
+        (Some(q), None, _, None) => {
+            let g = Db(read(&key, q, Q::gain)?.0);
+            if let Some(most) = dish_gain(1.0)? {
+                if g.0 > most.0 {
+                    return Err(CliError::arg(
+                        &key,
+                        format!(
+                            "a gain of {} is more than a {} dish can give at {} ({} at 100 % efficiency)",
+                            show::db(g.0),
+                            show::distance(dish.map_or(0.0, |d| d.0)),
+                            show::frequency(f.0),
+                            show::db(most.0)
+                        ),
+                    ));
+                }
+            }
+            g
+        }
+        (None, None, Some(_), Some(eta)) => dish_gain(eta)?.unwrap_or(Db(0.0)),
+        (None, None, Some(_), None) => {
+            return Err(CliError::arg(
+                &key,
+                "dish_diameter without gain needs efficiency (0.5-0.7 is common practice)",
+            ))
+        }
+        (_, _, None, Some(_)) | (Some(_), _, Some(_), Some(_)) => {
+            return Err(CliError::arg(
+                &key,
+                "efficiency goes with dish_diameter and no gain",
+            ))
+        }
+        (None, Some(q), None, None) => -read(&key, q, Q::db)?,
+        _ => {
+            return Err(CliError::arg(
+                &key,
+                "give exactly one of gain, loss or dish_diameter",
+            ))
+        }
+    };
+    within(&key, gain.0, range::ITEM_DB, show::db)?;
+    let noise_figure = read_opt(&format!("{key} noise_figure"), &item.noise_figure, Q::db)?;
+    let temperature = read_opt(
+        &format!("{key} temperature"),
+        &item.temperature,
+        Q::temperature,
+    )?;
+    if let Some(t) = temperature {
+        within(
+            &format!("{key} temperature"),
+            t.0,
+            range::TEMPERATURE_K,
+            show::kelvin,
+        )?;
+    }
+    let noise = match (side, &item.loss, noise_figure, temperature) {
+        (Side::Receiver, None, Some(nf), None) => {
+            within(
+                &format!("{key} noise_figure"),
+                nf.0,
+                range::NOISE_FIGURE_DB,
+                show::db,
+            )?;
+            ItemNoise::Amplifier { noise_figure: nf }
+        }
+        (Side::Receiver, Some(_), None, t) => ItemNoise::Passive {
+            temperature: t.unwrap_or(Kelvin(headroom::noise::T0_K)),
+        },
+        (Side::Receiver, None, None, None) => ItemNoise::None,
+        (Side::Receiver, _, Some(_), _) => {
+            return Err(CliError::arg(
+                &key,
+                "noise_figure goes with gain (an amplifier), not with loss",
+            ))
+        }
+        (Side::Receiver, None, _, Some(_)) => {
+            return Err(CliError::arg(
+                &key,
+                "temperature goes with loss (a passive item), not with gain",
+            ))
+        }
+        (_, _, None, None) => ItemNoise::None,
+        _ => {
+            return Err(CliError::arg(
+                &key,
+                "noise_figure and temperature apply to receive-side (rx) items only",
+            ))
+        }
+    };
+    link.push_item(&item.name, side, gain, noise)
+        .map_err(|e| CliError::arg(&key, e))?;
+    Ok(dish)
 }

@@ -73,7 +73,7 @@ fn solve_closes_the_loop_through_the_budget() {
     );
     let pl = json(&["solve", p, "--for", "path-loss", "--target-margin", "0"]);
     let pl0 = b["path_loss_db"].as_f64().expect("number");
-    assert!((pl["path_loss_db"].as_f64().expect("number") - (pl0 + margin)).abs() < 1e-3);
+    assert!((pl["max_path_loss_db"].as_f64().expect("number") - (pl0 + margin)).abs() < 1e-3);
 }
 
 fn fails_with(args: &[&str], needle: &str) {
@@ -106,7 +106,7 @@ fn bad_link_files_get_one_line_errors() {
     let fixed = write(
         "fixed.toml",
         &good.replace(
-            "model = \"log-distance\"",
+            "model = \"log-distance\"\ndistance = \"1.4km\"\nreference_distance = \"100m\"   # free space up to 100 m ...\nexponent = 3.2",
             "model = \"fixed\"\nloss = \"120dB\"",
         ),
     );

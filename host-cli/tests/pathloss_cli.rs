@@ -195,7 +195,7 @@ fn bad_arguments_exit_2_with_one_line() {
             "50",
         ]),
         "--rain-height",
-        "needs a unit",
+        "give a unit",
     );
     rejected_by_parser(
         &headroom(&[

@@ -122,7 +122,7 @@ fn ber_json() {
         "ber",
         "--modulation",
         "fsk-noncoherent",
-        "--ebn0-db",
+        "--ebn0",
         "10",
         "--format",
         "json",
@@ -132,7 +132,7 @@ fn ber_json() {
         "ber",
         "--modulation",
         "bpsk",
-        "--ebn0-db",
+        "--ebn0",
         "12",
         "--format",
         "json",
@@ -191,7 +191,7 @@ fn fade_json() {
         "fade",
         "--model",
         "lognormal",
-        "--sigma-db",
+        "--sigma",
         "8",
         "--availability",
         "90%",
@@ -204,7 +204,7 @@ fn fade_json() {
         "fade",
         "--model",
         "rician",
-        "--k-factor-db",
+        "--k-factor",
         "10",
         "--availability",
         "0.999",
@@ -218,7 +218,7 @@ fn fade_json() {
         "fade",
         "--model",
         "rician",
-        "--k-factor-db",
+        "--k-factor",
         "10",
         "--margin-db",
         &ms,
@@ -255,34 +255,34 @@ fn fade_refusals() {
     );
     refused(
         &["fade", "--model", "rician", "--availability", "0.9"],
-        "--k-factor-db",
+        "--k-factor",
     );
     refused(
         &[
             "fade",
             "--model",
             "rician",
-            "--k-factor-db",
+            "--k-factor",
             "40",
             "--availability",
             "0.9",
         ],
-        "--k-factor-db",
+        "--k-factor",
     );
     refused(
         &["fade", "--model", "composite", "--availability", "0.9"],
-        "--sigma-db",
+        "--sigma",
     );
     refused(
         &[
             "fade",
             "--model",
             "rayleigh",
-            "--sigma-db",
+            "--sigma",
             "8",
             "--availability",
             "0.9",
         ],
-        "--sigma-db",
+        "--sigma",
     );
 }

@@ -65,3 +65,53 @@ pub fn evaluate(l: &RefLink) -> RefBudget {
         margin_db: cn - l.required_cn_db - l.fade_db,
     }
 }
+
+/// One stage of a receive chain, for [`system_temperature_k`].
+#[derive(Debug, Clone, Copy)]
+pub enum RefStage {
+    /// A passive loss `loss_db` (positive) at physical temperature `temperature_k`.
+    Passive {
+        /// Loss, dB.
+        loss_db: f64,
+        /// Physical temperature, K.
+        temperature_k: f64,
+    },
+    /// An amplifier.
+    Amplifier {
+        /// Gain, dB.
+        gain_db: f64,
+        /// Noise figure, dB.
+        noise_figure_db: f64,
+    },
+}
+
+/// System noise temperature at the receiver input (after the chain), walking
+/// the chain from the antenna towards the receiver with output-referred
+/// noise temperatures: an attenuator of loss L at temperature Tp passes
+/// `T/L + Tp·(1 − 1/L)` (the thermal-equilibrium argument: a matched load at
+/// Tp behind it sees Tp), an amplifier of gain G and noise figure F gives
+/// `G·(T + T0·(F − 1))`; the receiver adds its own `T0·(F − 1)` at its input.
+/// Written from those definitions, not from the engine's input-referred sum.
+pub fn system_temperature_k(antenna_k: f64, chain: &[RefStage], receiver_nf_db: f64) -> f64 {
+    let mut t = antenna_k;
+    for s in chain {
+        t = match *s {
+            RefStage::Passive {
+                loss_db,
+                temperature_k,
+            } => {
+                let l = 10f64.powf(loss_db / 10.0);
+                t / l + temperature_k * (1.0 - 1.0 / l)
+            }
+            RefStage::Amplifier {
+                gain_db,
+                noise_figure_db,
+            } => {
+                let g = 10f64.powf(gain_db / 10.0);
+                let te = T0 * (10f64.powf(noise_figure_db / 10.0) - 1.0);
+                g * (t + te)
+            }
+        };
+    }
+    t + T0 * (10f64.powf(receiver_nf_db / 10.0) - 1.0)
+}

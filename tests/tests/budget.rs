@@ -2,10 +2,11 @@
 //! `tests/src/budget.rs`, and against check values of the trade.
 
 use headroom::budget::{
-    free_space_frequency_scaling, AntennaScaling, FadeAllowance, Link, NoiseSpec, Requirement, Side,
+    free_space_frequency_scaling, AntennaScaling, BudgetError, FadeAllowance, ItemNoise, Link,
+    NoiseSpec, Requirement, Side,
 };
 use headroom::units::{Db, Dbm, Hertz, Kelvin};
-use headroom_tests::budget::{evaluate, RefLink};
+use headroom_tests::budget::{evaluate, system_temperature_k, RefLink, RefStage};
 use proptest::prelude::*;
 
 /// Largest difference allowed between engine (f32) and reference (f64) on a
@@ -198,4 +199,166 @@ fn range_scales_inversely_with_frequency_when_gains_are_fixed() {
         free_space_frequency_scaling(Hertz(868e6), Hertz(2.44e9), AntennaScaling::FixedApertures)
             .expect("valid");
     assert!((apertures.0 - 8.977).abs() < 0.01, "{apertures:?}");
+}
+
+// --- the receive chain's noise ------------------------------------------------
+
+fn chain_link(ta: f32, nf: f32) -> Link<16> {
+    Link::new(
+        Dbm(0.0),
+        Db(100.0),
+        NoiseSpec {
+            bandwidth: Hertz(10e3),
+            noise_figure: Db(nf),
+            antenna_temperature: Some(Kelvin(ta)),
+        },
+        Requirement::CarrierToNoise(Db(10.0)),
+        FadeAllowance::None,
+    )
+}
+
+#[test]
+fn feeder_before_the_receiver_gives_the_textbook_system_temperature() {
+    // A low-noise ground station: Ta = 50 K, a 1 dB feeder at 290 K, then a
+    // receiver of 0.5 dB noise figure. Textbook result at the receiver input
+    // (common practice; e.g. Pozar, Microwave Engineering, §10.1):
+    // T_sys = Ta/L + Tp·(1 − 1/L) + Trx
+    //       = 39.716 + 59.645 + 35.385 = 134.746 K,
+    // computed here in f64 and by the independent reference in
+    // tests/src/budget.rs (output-referred walk of the chain).
+    let mut l = chain_link(50.0, 0.5);
+    l.push("yagi", Side::Receiver, Db(14.0)).expect("antenna");
+    l.push_item(
+        "feeder",
+        Side::Receiver,
+        Db(-1.0),
+        ItemNoise::Passive {
+            temperature: Kelvin(290.0),
+        },
+    )
+    .expect("feeder");
+    let r = l.evaluate().expect("budget");
+    let big_l = 10f64.powf(0.1);
+    let trx = 290.0 * (10f64.powf(0.05) - 1.0);
+    let textbook = 50.0 / big_l + 290.0 * (1.0 - 1.0 / big_l) + trx;
+    assert!((textbook - 134.746).abs() < 0.001, "{textbook}");
+    let reference = system_temperature_k(
+        50.0,
+        &[RefStage::Passive {
+            loss_db: 1.0,
+            temperature_k: 290.0,
+        }],
+        0.5,
+    );
+    assert!((reference - textbook).abs() < 1e-9);
+    assert!(
+        (f64::from(r.system_temperature.0) - textbook).abs() / textbook < 1e-5,
+        "{r:?}"
+    );
+    // Counting the feeder as signal loss only would leave T = Ta + Trx =
+    // 85.4 K at the same point: C/N 1.98 dB too optimistic.
+    let optimistic = 10.0 * (textbook / (50.0 + trx)).log10();
+    assert!((optimistic - 1.98).abs() < 0.01, "{optimistic}");
+    // G/T at the antenna terminals: 14 dBi − 10·log10(T_sys·L).
+    let gt = 14.0 - 10.0 * (textbook * big_l).log10();
+    assert!((f64::from(r.g_over_t.0) - gt).abs() < MAX_ERROR_DB, "{r:?}");
+}
+
+#[test]
+fn an_antenna_gain_after_the_chain_is_refused() {
+    let mut l = chain_link(290.0, 3.0);
+    l.push_item(
+        "lna",
+        Side::Receiver,
+        Db(20.0),
+        ItemNoise::Amplifier {
+            noise_figure: Db(1.0),
+        },
+    )
+    .expect("lna");
+    assert_eq!(
+        l.push("yagi", Side::Receiver, Db(14.0)),
+        Err(BudgetError::AntennaAfterChain)
+    );
+    assert_eq!(
+        l.push_item(
+            "pa",
+            Side::Transmitter,
+            Db(20.0),
+            ItemNoise::Amplifier {
+                noise_figure: Db(1.0)
+            }
+        ),
+        Err(BudgetError::NoiseOffReceiveSide)
+    );
+}
+
+fn stage() -> impl Strategy<Value = RefStage> {
+    prop_oneof![
+        (0.1f64..6.0, 20.0f64..400.0).prop_map(|(loss_db, temperature_k)| RefStage::Passive {
+            loss_db,
+            temperature_k
+        }),
+        (5.0f64..35.0, 0.3f64..8.0).prop_map(|(gain_db, noise_figure_db)| {
+            RefStage::Amplifier {
+                gain_db,
+                noise_figure_db,
+            }
+        }),
+    ]
+}
+
+proptest! {
+    /// Any chain of passive losses and amplifiers: the engine's Friis cascade
+    /// (input-referred, f32) against the reference's output-referred walk (f64).
+    #[test]
+    fn receive_chain_matches_reference(
+        ta in 5.0f64..3000.0,
+        nf in 0.3f64..12.0,
+        chain in proptest::collection::vec(stage(), 0..5),
+    ) {
+        let mut l = chain_link(ta as f32, nf as f32);
+        l.push("antenna", Side::Receiver, Db(10.0)).expect("antenna");
+        for s in &chain {
+            let (gain, noise) = match *s {
+                RefStage::Passive { loss_db, temperature_k } => (
+                    -loss_db,
+                    ItemNoise::Passive { temperature: Kelvin(temperature_k as f32) },
+                ),
+                RefStage::Amplifier { gain_db, noise_figure_db } => (
+                    gain_db,
+                    ItemNoise::Amplifier { noise_figure: Db(noise_figure_db as f32) },
+                ),
+            };
+            l.push_item("stage", Side::Receiver, Db(gain as f32), noise).expect("stage");
+        }
+        let r = l.evaluate().expect("budget");
+        let t = system_temperature_k(f64::from(ta as f32), &chain_f32(&chain), f64::from(nf as f32));
+        let err_db = 10.0 * (f64::from(r.system_temperature.0) / t).log10();
+        prop_assert!(err_db.abs() < MAX_ERROR_DB, "{} K vs {t} K", r.system_temperature.0);
+    }
+}
+
+/// The chain with each number rounded to f32, as the engine receives it.
+fn chain_f32(chain: &[RefStage]) -> Vec<RefStage> {
+    let r = |x: f64| f64::from(x as f32);
+    chain
+        .iter()
+        .map(|s| match *s {
+            RefStage::Passive {
+                loss_db,
+                temperature_k,
+            } => RefStage::Passive {
+                loss_db: r(loss_db),
+                temperature_k: r(temperature_k),
+            },
+            RefStage::Amplifier {
+                gain_db,
+                noise_figure_db,
+            } => RefStage::Amplifier {
+                gain_db: r(gain_db),
+                noise_figure_db: r(noise_figure_db),
+            },
+        })
+        .collect()
 }

@@ -703,3 +703,85 @@ proptest! {
         prop_assert!((f64::from(got) - want).abs() <= 1e-4, "{got} vs {want}");
     }
 }
+
+// ---------------------------------------------------------------------------
+// Rician under log-normal shadowing
+
+/// The engine's Simpson rule (f32) against the reference's adaptive
+/// quadrature of the Rician outage over the log-normal mean (f64), at
+/// margins that give outages from about 0.3 down to 1e-4.
+#[test]
+fn rician_lognormal_outage_matches_reference() {
+    for (k, s) in [
+        (-5.0, 2.0),
+        (0.0, 6.0),
+        (6.0, 4.0),
+        (12.0, 2.0),
+        (15.0, 8.0),
+    ] {
+        for margin in [0.0, 3.0, 12.0, 25.0] {
+            let m = FadingModel::RicianLogNormal {
+                k_factor: Db(k as f32),
+                sigma: Db(s as f32),
+            };
+            let want = reference::outage(reference::Fading::RicianLogNormal(k, s), margin);
+            if want < 1e-5 {
+                continue;
+            }
+            let got = f64::from(ok(outage_for_margin(m, Db(margin as f32)), "outage"));
+            // As for the other fading models: relative error of the outage.
+            assert!(
+                rel(got, want) <= MAX_REL_OUTAGE,
+                "{m:?} at {margin} dB: {got} vs {want}"
+            );
+        }
+    }
+}
+
+#[test]
+fn rician_lognormal_meets_its_limits() {
+    // With little shadowing it is the Rician margin; with a weak line of
+    // sight (K = −30 dB) the Suzuki (Rayleigh × log-normal) one.
+    let rician = ok(
+        margin_for_availability(FadingModel::Rician { k_factor: Db(6.0) }, 0.99),
+        "rician",
+    );
+    let thin = ok(
+        margin_for_availability(
+            FadingModel::RicianLogNormal {
+                k_factor: Db(6.0),
+                sigma: Db(0.1),
+            },
+            0.99,
+        ),
+        "rician-lognormal",
+    );
+    assert!((thin.0 - rician.0).abs() < 0.05, "{thin:?} vs {rician:?}");
+    let suzuki = ok(
+        margin_for_availability(FadingModel::Composite { sigma: Db(4.0) }, 0.99),
+        "composite",
+    );
+    let weak = ok(
+        margin_for_availability(
+            FadingModel::RicianLogNormal {
+                k_factor: Db(-30.0),
+                sigma: Db(4.0),
+            },
+            0.99,
+        ),
+        "rician-lognormal",
+    );
+    assert!((weak.0 - suzuki.0).abs() < 0.05, "{weak:?} vs {suzuki:?}");
+    // Shadowing costs margin on top of the Rician fading.
+    let shadowed = ok(
+        margin_for_availability(
+            FadingModel::RicianLogNormal {
+                k_factor: Db(6.0),
+                sigma: Db(4.0),
+            },
+            0.99,
+        ),
+        "rician-lognormal",
+    );
+    assert!(shadowed.0 > rician.0 + 1.0, "{shadowed:?} vs {rician:?}");
+}

@@ -28,15 +28,31 @@ pub(crate) fn db20(x: f32) -> f32 {
 /// `20·log10(4πd/λ)` (ITU-R P.525-4, eq. (4)).
 ///
 /// `f` and `d` must be finite and strictly positive. The formula holds in the
-/// far field; at distances comparable to the wavelength it can give a
-/// negative loss, which is returned as computed (it is the formula, not a
-/// measurement).
+/// far field only: a distance below one wavelength (where it would give a
+/// loss below about 22 dB, and a negative one below λ/4π) is refused with
+/// [`crate::Error::OutOfValidity`]. The far field of an antenna of largest
+/// dimension D begins at 2D²/λ (Fraunhofer distance; common practice): see
+/// [`far_field_distance`].
 pub fn free_space_path_loss(f: Hertz, d: Metres) -> Result<Db> {
     let f = positive("frequency_hz", f.0)?;
     let d = positive("distance_m", d.0)?;
+    let lambda = crate::units::SPEED_OF_LIGHT_M_PER_S / f;
+    super::distance_at_least(d, lambda)?;
     Ok(Db(solved(
         "path_loss_db",
         db20(d) + db20(f) + FSPL_CONSTANT_DB,
+    )?))
+}
+
+/// Far-field (Fraunhofer) distance `2D²/λ` of an antenna whose largest
+/// dimension is `aperture`, but at least one wavelength (common practice).
+pub fn far_field_distance(f: Hertz, aperture: Metres) -> Result<Metres> {
+    let f = positive("frequency_hz", f.0)?;
+    let dim = non_negative("aperture_m", aperture.0)?;
+    let lambda = crate::units::SPEED_OF_LIGHT_M_PER_S / f;
+    Ok(Metres(solved(
+        "far_field_m",
+        (2.0 * dim * dim / lambda).max(lambda),
     )?))
 }
 
@@ -75,6 +91,14 @@ pub fn gain_from_aperture(area_m2: f32, efficiency: f32, f: Hertz) -> Result<Dbi
     Ok(Dbi(solved("gain_dbi", g)?))
 }
 
+/// Gain of a circular dish of diameter `diameter` and aperture efficiency
+/// `efficiency`: `G = η·(πD/λ)²`, [`gain_from_aperture`] with `A = πD²/4`.
+/// At η = 1 this is the most any antenna of that aperture can give.
+pub fn gain_from_dish(diameter: Metres, efficiency: f32, f: Hertz) -> Result<Dbi> {
+    let d = positive("dish_diameter_m", diameter.0)?;
+    gain_from_aperture(core::f32::consts::PI * d * d / 4.0, efficiency, f)
+}
+
 /// Physical area (m²) of an antenna of gain `g` and aperture efficiency
 /// `efficiency`: `A = G·λ²/(4π·η)`. The inverse of [`gain_from_aperture`].
 pub fn aperture_from_gain(g: Dbi, efficiency: f32, f: Hertz) -> Result<f32> {
@@ -88,6 +112,21 @@ pub fn aperture_from_gain(g: Dbi, efficiency: f32, f: Hertz) -> Result<f32> {
 fn aperture_efficiency(eta: f32) -> Result<f32> {
     let eta = positive("efficiency", eta)?;
     within("efficiency", eta, 0.0, 1.0)
+}
+
+#[cfg(test)]
+mod dish_tests {
+    use super::*;
+
+    #[test]
+    fn dish_gain_check_value() {
+        // G = η(πD/λ)²: a 1.2 m dish at 11.7 GHz, η = 0.6 (λ = 25.623 mm):
+        // (π·1.2/0.025623)² = 21 647, ×0.6 = 12 988 → 41.14 dBi
+        // (common practice; computed here in f64 by hand).
+        let g = gain_from_dish(Metres(1.2), 0.6, Hertz(11.7e9)).unwrap_or(Dbi(f32::NAN));
+        assert!((g.0 - 41.136).abs() < 0.01, "{g:?}");
+        assert!(gain_from_dish(Metres(0.0), 0.6, Hertz(1e9)).is_err());
+    }
 }
 
 #[cfg(test)]

@@ -110,6 +110,21 @@ impl Family {
     }
 }
 
+/// Whether `f` or `d` lies outside the published range of Hata
+/// (`cost231 == false`) or COST 231-Hata: an answer there is an
+/// extrapolation.
+pub(crate) fn outside_published(cost231: bool, f: Hertz, d: Metres) -> bool {
+    let family = if cost231 {
+        Family::Cost231 {
+            metropolitan: false,
+        }
+    } else {
+        Family::Hata(HataEnvironment::Open)
+    };
+    let ((fmin, fmax), _) = family.frequency_range();
+    !((fmin..=fmax).contains(&f.0) && (D_MIN_M..=D_MAX_M).contains(&d.0))
+}
+
 /// The model written as `L = a + b·log10(d_km)`.
 #[derive(Clone, Copy)]
 pub(crate) struct HataLine {

@@ -143,14 +143,7 @@ pub(crate) fn indoor_range(
     let (base, n) = indoor_terms(f, floors, coeffs)?;
     let l = finite("max_loss_db", max_loss.0)?;
     let d = crate::error::solved("range_m", libm::exp10f((l - base) / n))?;
-    if d < 1.0 {
-        return Err(Error::OutOfValidity {
-            param: "distance_m",
-            value: d,
-            min: 1.0,
-            max: f32::INFINITY,
-        });
-    }
+    super::distance_at_least(d, 1.0)?;
     Ok(Metres(d))
 }
 

@@ -24,14 +24,14 @@ mod rain;
 mod two_ray;
 
 pub use free_space::{
-    aperture_from_gain, free_space_path_loss, gain_from_aperture, power_flux_density,
-    received_power_from_pfd,
+    aperture_from_gain, far_field_distance, free_space_path_loss, gain_from_aperture,
+    gain_from_dish, power_flux_density, received_power_from_pfd,
 };
 pub use hata::{cost231_hata, okumura_hata, Extrapolation, HataEnvironment};
 pub use indoor::{
     indoor_coefficients, itu_indoor, FloorLoss, IndoorCoefficients, IndoorEnvironment,
 };
-pub use log_distance::log_distance;
+pub use log_distance::{log_distance, EXPONENT_RANGE};
 pub use rain::{
     rain_attenuation_exceeded, rain_coefficients, rain_specific_attenuation, Polarisation,
     SlantPath,
@@ -40,6 +40,21 @@ pub use two_ray::{two_ray, two_ray_crossover, TwoRayForm};
 
 use crate::error::{finite, solved, Error, Result};
 use crate::units::{Db, Hertz, Metres};
+
+/// `d` when it is at least `min` (the model's shortest valid distance),
+/// else [`Error::OutOfValidity`] naming `distance_m`.
+pub(crate) fn distance_at_least(d: f32, min: f32) -> Result<f32> {
+    if d < min {
+        Err(Error::OutOfValidity {
+            param: "distance_m",
+            value: d,
+            min,
+            max: f32::INFINITY,
+        })
+    } else {
+        Ok(d)
+    }
+}
 
 /// A distance-dependent path-loss model with its fixed parameters.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -120,6 +135,25 @@ impl PathLossModel {
         }
     }
 
+    /// Why an answer of [`PathLossModel::path_loss`] at `f` and `d` is only
+    /// degraded, when it is: a Hata model applied beyond its published range
+    /// under an [`Extrapolation`]. `None` when nothing weakens it.
+    pub fn degraded(&self, f: Hertz, d: Metres) -> Option<&'static str> {
+        match *self {
+            PathLossModel::Hata { ext, .. } if ext != Extrapolation::Refuse => {
+                hata::outside_published(false, f, d).then_some(
+                    "Okumura-Hata extrapolated beyond its published range (150-1500 MHz, 1-20 km)",
+                )
+            }
+            PathLossModel::Cost231 { ext, .. } if ext != Extrapolation::Refuse => {
+                hata::outside_published(true, f, d).then_some(
+                    "COST 231-Hata extrapolated beyond its published range (1500-2000 MHz, 1-20 km)",
+                )
+            }
+            _ => None,
+        }
+    }
+
     /// Largest distance at which the loss does not exceed `max_loss` (the
     /// range solver).
     ///
@@ -147,7 +181,10 @@ impl PathLossModel {
             PathLossModel::FreeSpace => {
                 let f = crate::error::positive("frequency_hz", f.0)?;
                 let log_d = (lmax - free_space::FSPL_CONSTANT_DB - free_space::db20(f)) / 20.0;
-                Ok(Metres(solved("range_m", libm::exp10f(log_d))?))
+                let d = solved("range_m", libm::exp10f(log_d))?;
+                let lambda = crate::units::SPEED_OF_LIGHT_M_PER_S / f;
+                distance_at_least(d, lambda)?;
+                Ok(Metres(d))
             }
             PathLossModel::LogDistance {
                 d0,
@@ -157,14 +194,7 @@ impl PathLossModel {
                 let n = crate::error::positive("exponent", exponent)?;
                 let l0 = log_distance::reference_loss(f, d0, pl_d0)?;
                 let d = solved("range_m", d0.0 * libm::exp10f((lmax - l0.0) / (10.0 * n)))?;
-                if d < d0.0 {
-                    return Err(Error::OutOfValidity {
-                        param: "distance_m",
-                        value: d,
-                        min: d0.0,
-                        max: f32::INFINITY,
-                    });
-                }
+                distance_at_least(d, d0.0)?;
                 Ok(Metres(d))
             }
             PathLossModel::TwoRay { ht, hr, form } => {

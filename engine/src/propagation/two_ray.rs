@@ -37,8 +37,8 @@ pub enum TwoRayForm {
         reflection: f32,
     },
     /// The `d⁴` law `40·log10(d) − 20·log10(ht) − 20·log10(hr)`, meant for
-    /// distances well beyond [`two_ray_crossover`]. Not refused at shorter
-    /// distances (where it underestimates the loss): the caller chose it.
+    /// distances beyond [`two_ray_crossover`]. Refused at shorter distances,
+    /// where it falls below free space and underestimates the loss.
     Asymptotic,
 }
 
@@ -97,7 +97,11 @@ pub fn two_ray(f: Hertz, d: Metres, ht: Metres, hr: Metres, form: TwoRayForm) ->
     let d = positive("distance_m", d.0)?;
     let l = match form {
         TwoRayForm::Exact { reflection } => exact(g, d, reflection_coefficient(reflection)?)?,
-        TwoRayForm::Asymptotic => asymptotic(g, d)?,
+        TwoRayForm::Asymptotic => {
+            let dc = crossover(g)?;
+            super::distance_at_least(d, dc)?;
+            asymptotic(g, d)?
+        }
     };
     Ok(Db(l))
 }
@@ -105,9 +109,12 @@ pub fn two_ray(f: Hertz, d: Metres, ht: Metres, hr: Metres, form: TwoRayForm) ->
 /// Crossover distance `dc = 4π·ht·hr/λ`, where the free-space and `d⁴`
 /// asymptotes meet.
 pub fn two_ray_crossover(f: Hertz, ht: Metres, hr: Metres) -> Result<Metres> {
-    let g = geometry(f, ht, hr)?;
+    Ok(Metres(crossover(geometry(f, ht, hr)?)?))
+}
+
+fn crossover(g: Geometry) -> Result<f32> {
     let dc = 4.0 * core::f32::consts::PI * g.ht * g.hr * g.f / SPEED_OF_LIGHT_M_PER_S;
-    Ok(Metres(solved("crossover_m", dc)?))
+    solved("crossover_m", dc)
 }
 
 /// Largest horizontal distance at which the two-ray loss does not exceed
@@ -140,7 +147,10 @@ pub(crate) fn two_ray_range(
     match form {
         TwoRayForm::Asymptotic => {
             let log_d = (lmax + db20(g.ht) + db20(g.hr)) / 40.0;
-            Ok(Metres(solved("range_m", libm::exp10f(log_d))?))
+            let d = solved("range_m", libm::exp10f(log_d))?;
+            let dc = crossover(g)?;
+            super::distance_at_least(d, dc)?;
+            Ok(Metres(d))
         }
         TwoRayForm::Exact { reflection } => {
             let gamma = reflection_coefficient(reflection)?;
@@ -260,6 +270,24 @@ mod tests {
             TwoRayForm::Asymptotic
         )
         .is_err());
+        // Below the crossover (about 763 m here) the asymptote is refused.
+        let below = two_ray(
+            f,
+            Metres(100.0),
+            Metres(10.0),
+            Metres(2.0),
+            TwoRayForm::Asymptotic,
+        );
+        assert!(
+            matches!(
+                below,
+                Err(Error::OutOfValidity {
+                    param: "distance_m",
+                    ..
+                })
+            ),
+            "{below:?}"
+        );
         let g = TwoRayForm::Exact { reflection: -1.5 };
         assert!(two_ray(f, Metres(1.0), Metres(1.0), Metres(1.0), g).is_err());
     }

@@ -1,47 +1,14 @@
 //! `headroom ber`: the Eb/N0 a modulation needs for a bit error rate, or
 //! the bit error rate at an Eb/N0 (AWGN channel).
 
-use clap::ValueEnum;
 use headroom::modulation::{bit_error_rate, required_ebn0, Modulation};
 use headroom::units::Db;
 use serde_json::{json, Value};
 
 use crate::error::{CliError, CliResult};
+use crate::names::{self, Scheme};
 use crate::output::{Format, Report};
 use crate::quantity;
-
-/// Modulation scheme.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
-pub enum Scheme {
-    /// Coherent BPSK.
-    Bpsk,
-    /// Coherent QPSK, Gray coded.
-    Qpsk,
-    /// Differentially coherent BPSK.
-    Dbpsk,
-    /// Binary orthogonal FSK, coherent detection.
-    FskCoherent,
-    /// Binary orthogonal FSK, non-coherent detection.
-    FskNoncoherent,
-    /// M-PSK, Gray coded: needs --order (a power of two).
-    Psk,
-    /// Square M-QAM, Gray coded: needs --order (4, 16, 64, 256, ...).
-    Qam,
-}
-
-impl Scheme {
-    fn name(self) -> &'static str {
-        match self {
-            Scheme::Bpsk => "bpsk",
-            Scheme::Qpsk => "qpsk",
-            Scheme::Dbpsk => "dbpsk",
-            Scheme::FskCoherent => "fsk-coherent",
-            Scheme::FskNoncoherent => "fsk-noncoherent",
-            Scheme::Psk => "psk",
-            Scheme::Qam => "qam",
-        }
-    }
-}
 
 /// Arguments of `headroom ber`.
 #[derive(clap::Args)]
@@ -57,46 +24,16 @@ pub struct Args {
     /// the required Eb/N0.
     #[arg(long, value_parser = quantity::number, allow_hyphen_values = true)]
     pub ber: Option<f32>,
-    /// Eb/N0 in dB: prints the bit error rate instead.
-    #[arg(long, value_parser = quantity::db, allow_hyphen_values = true)]
+    /// Eb/N0 in dB (3 or 3dB): prints the bit error rate instead.
+    #[arg(long = "ebn0", alias = "ebn0-db", value_parser = quantity::db, allow_hyphen_values = true)]
     pub ebn0_db: Option<Db>,
     /// Output format.
     #[arg(long, value_enum, default_value_t)]
     pub format: Format,
 }
 
-/// The engine's modulation for `scheme`, with `order` named `order_key` in
-/// errors (`--order` here, `requirement.order` in a link file).
-pub(crate) fn modulation_keyed(
-    scheme: Scheme,
-    order: Option<u32>,
-    order_key: &str,
-) -> CliResult<Modulation> {
-    let need = |o: Option<u32>| {
-        o.ok_or_else(|| {
-            CliError::arg(
-                order_key,
-                format!("modulation {} needs an order M", scheme.name()),
-            )
-        })
-    };
-    match (scheme, order) {
-        (Scheme::Psk, o) => Ok(Modulation::Psk { order: need(o)? }),
-        (Scheme::Qam, o) => Ok(Modulation::Qam { order: need(o)? }),
-        (_, Some(_)) => Err(CliError::arg(
-            order_key,
-            format!("applies to psk and qam only, not to {}", scheme.name()),
-        )),
-        (Scheme::Bpsk, None) => Ok(Modulation::Bpsk),
-        (Scheme::Qpsk, None) => Ok(Modulation::Qpsk),
-        (Scheme::Dbpsk, None) => Ok(Modulation::Dbpsk),
-        (Scheme::FskCoherent, None) => Ok(Modulation::FskCoherent),
-        (Scheme::FskNoncoherent, None) => Ok(Modulation::FskNoncoherent),
-    }
-}
-
 fn modulation(scheme: Scheme, order: Option<u32>) -> CliResult<Modulation> {
-    modulation_keyed(scheme, order, "--order")
+    scheme.build(order, "--order")
 }
 
 /// A probability as a JSON number with seven significant digits (a BER of
@@ -126,9 +63,13 @@ fn order_error(e: headroom::Error, scheme: Scheme) -> CliError {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("ber", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let m = modulation(args.modulation, args.order)?;
     let mut rep = Report::new();
-    rep.value("modulation", json!(args.modulation.name()));
+    rep.value("modulation", json!(names::name(&args.modulation)));
     if let Some(o) = args.order {
         rep.value("order", json!(o));
     }
@@ -148,12 +89,12 @@ pub fn run(args: Args) -> CliResult {
         (None, Some(e)) => {
             let ber = bit_error_rate(m, e).map_err(|err| match err {
                 headroom::Error::Unsupported(_) => order_error(err, args.modulation),
-                other => CliError::arg("--ebn0-db", other),
+                other => CliError::arg("--ebn0", other),
             })?;
             rep.num("ebn0_db", e.0, "dB");
             rep.value("ber", prob(ber));
         }
-        (None, None) => return Err(CliError::arg("--ber", "give --ber or --ebn0-db")),
+        (None, None) => return Err(CliError::arg("--ber", "give --ber or --ebn0")),
     }
     rep.print(args.format)
 }

@@ -1,38 +1,14 @@
 //! `headroom fade`: the fade margin an availability needs, or the
 //! availability a margin gives, under one fading model.
 
-use clap::ValueEnum;
-use headroom::fading::{margin_for_outage, outage_for_margin, FadingModel};
+use headroom::fading::{area_coverage, margin_for_outage, outage_for_margin, FadingModel};
 use headroom::units::Db;
 use serde_json::{json, Value};
 
 use crate::error::{CliError, CliResult};
+use crate::names::{self, Fading, Keys};
 use crate::output::{Format, Report};
 use crate::quantity;
-
-/// Fading model.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
-pub enum Model {
-    /// Rayleigh (no line of sight).
-    Rayleigh,
-    /// Rician: needs --k-factor-db (−30 to 26 dB).
-    Rician,
-    /// Log-normal shadowing: needs --sigma-db (0 to 20 dB).
-    Lognormal,
-    /// Log-normal shadowing times Rayleigh (Suzuki): needs --sigma-db.
-    Composite,
-}
-
-impl Model {
-    fn name(self) -> &'static str {
-        match self {
-            Model::Rayleigh => "rayleigh",
-            Model::Rician => "rician",
-            Model::Lognormal => "lognormal",
-            Model::Composite => "composite",
-        }
-    }
-}
 
 /// Arguments of `headroom fade`.
 ///
@@ -44,7 +20,7 @@ impl Model {
 pub struct Args {
     /// Fading model.
     #[arg(long, value_enum)]
-    pub model: Model,
+    pub model: Fading,
     /// Required availability, as a fraction strictly between 0 and 1 (0.999)
     /// or as a percentage with its sign (99.9%). A bare number of 1 or more
     /// (such as 99) is refused as ambiguous. Prints the margin.
@@ -53,51 +29,20 @@ pub struct Args {
     /// Fade margin in dB: prints the availability instead.
     #[arg(long, value_parser = quantity::db, allow_hyphen_values = true)]
     pub margin_db: Option<Db>,
-    /// Rician K factor in dB (line-of-sight over scattered power).
-    #[arg(long, value_parser = quantity::db, allow_hyphen_values = true)]
+    /// Rician K factor in dB (line-of-sight over scattered power), 6 or 6dB.
+    #[arg(long = "k-factor", alias = "k-factor-db", value_parser = quantity::db, allow_hyphen_values = true)]
     pub k_factor_db: Option<Db>,
-    /// Standard deviation of log-normal shadowing in dB.
-    #[arg(long, value_parser = quantity::db)]
+    /// Standard deviation of log-normal shadowing in dB, 4 or 4dB.
+    #[arg(long = "sigma", alias = "sigma-db", value_parser = quantity::db)]
     pub sigma_db: Option<Db>,
+    /// With --model lognormal and --availability (the probability at the
+    /// cell edge): the path-loss exponent n, 1-10, for the fraction of the
+    /// cell's area covered (Jakes, area_coverage).
+    #[arg(long, value_parser = quantity::number)]
+    pub exponent: Option<f32>,
     /// Output format.
     #[arg(long, value_enum, default_value_t)]
     pub format: Format,
-}
-
-/// Outage `1 − availability` from `0.999` or `99.9%`, computed from the text
-/// in f64 so that 99.9999 % keeps its digits.
-pub fn parse_outage(s: &str) -> Result<f64, String> {
-    let t = s.trim();
-    let (num, percent) = match t.strip_suffix('%') {
-        Some(n) => (n.trim(), true),
-        None => (t, false),
-    };
-    let x: f64 = num.parse().map_err(|_| format!("'{s}' is not a number"))?;
-    if !x.is_finite() {
-        return Err(format!("'{s}' is not a finite number"));
-    }
-    let outage = if percent {
-        if !(x > 0.0 && x < 100.0) {
-            return Err(format!("'{s}' must be strictly between 0% and 100%"));
-        }
-        (100.0 - x) / 100.0
-    } else {
-        if x >= 1.0 {
-            return Err(format!(
-                "'{s}' is ambiguous: give a fraction below 1 (0.99) or a percentage with its sign (99%)"
-            ));
-        }
-        if x <= 0.0 {
-            return Err(format!("'{s}' must be strictly between 0 and 1"));
-        }
-        1.0 - x
-    };
-    let o = outage as f32;
-    if o > 0.0 && o < 1.0 {
-        Ok(outage)
-    } else {
-        Err(format!("'{s}' is too close to 0 or 1 to compute with"))
-    }
 }
 
 /// A probability as a JSON number with seven significant digits (tiny
@@ -110,43 +55,8 @@ fn prob(x: f64) -> Value {
 }
 
 fn model(args: &Args) -> CliResult<FadingModel> {
-    model_keyed(
-        args.model,
-        (args.k_factor_db, "--k-factor-db"),
-        (args.sigma_db, "--sigma-db"),
-    )
-}
-
-/// The engine's fading model for `model` and its parameters, each given with
-/// the name errors use for it (`--sigma-db` here, `fade.sigma` in a link file).
-pub(crate) fn model_keyed(
-    model: Model,
-    (k, k_key): (Option<Db>, &str),
-    (s, s_key): (Option<Db>, &str),
-) -> CliResult<FadingModel> {
-    let name = model.name();
-    let unused = |key: &str| CliError::arg(key, format!("does not apply to model {name}"));
-    let needs = |key: &str| CliError::arg(key, format!("model {name} needs {key}"));
-    match model {
-        Model::Rayleigh => match (k, s) {
-            (Some(_), _) => Err(unused(k_key)),
-            (_, Some(_)) => Err(unused(s_key)),
-            _ => Ok(FadingModel::Rayleigh),
-        },
-        Model::Rician => match (k, s) {
-            (_, Some(_)) => Err(unused(s_key)),
-            (None, _) => Err(needs(k_key)),
-            (Some(k), None) => Ok(FadingModel::Rician { k_factor: k }),
-        },
-        Model::Lognormal | Model::Composite => match (k, s) {
-            (Some(_), _) => Err(unused(k_key)),
-            (None, None) => Err(needs(s_key)),
-            (None, Some(sigma)) if model == Model::Lognormal => {
-                Ok(FadingModel::LogNormal { sigma })
-            }
-            (None, Some(sigma)) => Ok(FadingModel::Composite { sigma }),
-        },
-    }
+    args.model
+        .build(args.k_factor_db, args.sigma_db, Keys::Flags)
 }
 
 /// The engine's complaint about a model parameter, named by its flag.
@@ -154,9 +64,9 @@ fn param_error(e: headroom::Error) -> CliError {
     let flag = match e {
         headroom::Error::OutOfValidity {
             param: "k_factor", ..
-        } => "--k-factor-db",
+        } => "--k-factor",
         headroom::Error::OutOfValidity { param: "sigma", .. }
-        | headroom::Error::NotPositive("sigma") => "--sigma-db",
+        | headroom::Error::NotPositive("sigma") => "--sigma",
         headroom::Error::NotFinite("margin") => "--margin-db",
         headroom::Error::NoSolution(_) => "--availability",
         _ => "--model",
@@ -166,22 +76,53 @@ fn param_error(e: headroom::Error) -> CliError {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("fade", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let m = model(&args)?;
     let mut rep = Report::new();
-    rep.value("model", json!(args.model.name()));
+    rep.value("model", json!(names::name(&args.model)));
     if let Some(k) = args.k_factor_db {
         rep.num("k_factor_db", k.0, "dB");
     }
     if let Some(s) = args.sigma_db {
         rep.num("sigma_db", s.0, "dB");
     }
+    if args.exponent.is_some() && args.availability.is_none() {
+        return Err(CliError::arg(
+            "--exponent",
+            "goes with --availability (the cell-edge probability)",
+        ));
+    }
     match (&args.availability, args.margin_db) {
         (Some(text), _) => {
-            let outage = parse_outage(text).map_err(|e| CliError::arg("--availability", e))?;
+            let outage = quantity::outage(text).map_err(|e| CliError::arg("--availability", e))?;
             let margin = margin_for_outage(m, outage as f32).map_err(param_error)?;
             rep.value("availability", prob(1.0 - outage));
             rep.value("outage", prob(outage));
             rep.num("margin_db", margin.0, "dB");
+            if let Some(n) = args.exponent {
+                let (Fading::Lognormal, Some(sigma)) = (args.model, args.sigma_db) else {
+                    return Err(CliError::arg(
+                        "--exponent",
+                        "the area coverage needs --model lognormal and --sigma",
+                    ));
+                };
+                let area = area_coverage((1.0 - outage) as f32, sigma, n).map_err(|e| match e {
+                    headroom::Error::OutOfValidity {
+                        param: "path_loss_exponent",
+                        ..
+                    } => CliError::arg("--exponent", "must be 1 to 10"),
+                    other => param_error(other),
+                })?;
+                rep.num("path_loss_exponent", n, "");
+                rep.value("area_coverage", prob(f64::from(area)));
+                rep.value(
+                    "area_coverage_method",
+                    json!("Jakes 1974, section 2.5 (edge availability, sigma, n)"),
+                );
+            }
         }
         (None, Some(margin)) => {
             let outage = f64::from(outage_for_margin(m, margin).map_err(param_error)?);
@@ -197,23 +138,4 @@ pub fn run(args: Args) -> CliResult {
         }
     }
     rep.print(args.format)
-}
-
-#[cfg(test)]
-mod tests {
-    use super::parse_outage;
-
-    #[test]
-    fn availability_text() {
-        assert!((parse_outage("0.99").unwrap_or(0.0) - 0.01).abs() < 1e-12);
-        assert!((parse_outage("99.9%").unwrap_or(0.0) - 0.001).abs() < 1e-12);
-        assert!((parse_outage("99.99999 %").unwrap_or(0.0) - 1e-7).abs() < 1e-15);
-        assert!(parse_outage("99").is_err());
-        assert!(parse_outage("1").is_err());
-        assert!(parse_outage("0").is_err());
-        assert!(parse_outage("100%").is_err());
-        assert!(parse_outage("-5%").is_err());
-        assert!(parse_outage("nan").is_err());
-        assert!(parse_outage("0.9x").is_err());
-    }
 }

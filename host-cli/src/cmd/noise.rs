@@ -18,7 +18,7 @@ use crate::quantity;
 /// (noiseless) receiver is assumed.
 #[derive(clap::Args)]
 pub struct Args {
-    /// Noise bandwidth (e.g. 125kHz, 2MHz; a bare number is in Hz).
+    /// Noise bandwidth with its unit (e.g. 125kHz, 2MHz).
     #[arg(long, value_parser = quantity::frequency)]
     pub bandwidth: Hertz,
     /// Receiver noise figure in dB (e.g. 6 or 6dB).
@@ -34,6 +34,10 @@ pub struct Args {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("noise", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let (nf, te) = match (args.noise_figure_db, args.temperature_k) {
         (Some(nf), _) => {
             let te = noise_temperature_from_figure(nf)

@@ -24,15 +24,15 @@ and --tilt. The slant-path attenuation (ITU-R P.618-13) needs --exceeded-percent
 --station-height and --latitude together, and then reads --rain-rate as R0.01, the rate exceeded \
 for 0.01 % of an average year.", "\n\n", caution!()))]
 pub struct Args {
-    /// Carrier frequency, e.g. 12GHz (bare number: Hz). P.838: 1-1000 GHz;
+    /// Carrier frequency, e.g. 12GHz (unit required). P.838: 1-1000 GHz;
     /// slant path (P.618): 1-55 GHz.
     #[arg(long, value_parser = quantity::frequency)]
     frequency: Hertz,
-    /// Rain rate in mm/h (plain number). For the slant path: R0.01.
-    #[arg(long, value_parser = quantity::number)]
+    /// Rain rate in mm/h, 0-300 (25 or 25mm/h). For the slant path: R0.01.
+    #[arg(long, value_parser = rain_rate)]
     rain_rate: f32,
-    /// Path elevation angle in degrees, 0-90 (above 0 for the slant path).
-    #[arg(long, value_parser = quantity::number)]
+    /// Path elevation angle, 0-90 deg (above 0 for the slant path), 30 or 30deg.
+    #[arg(long, value_parser = quantity::angle)]
     elevation: f32,
     /// Polarisation tilt relative to the horizontal in degrees (-180..180), or
     /// horizontal (0), vertical (90), circular (45).
@@ -43,14 +43,14 @@ pub struct Args {
     exceeded_percent: Option<f32>,
     /// Slant path: rain height above mean sea level (ITU-R P.839), with its
     /// unit, e.g. 3.6km or 3600m.
-    #[arg(long, value_parser = height)]
+    #[arg(long, value_parser = rain_height)]
     rain_height: Option<Metres>,
     /// Slant path: earth-station height above mean sea level, with its unit,
     /// e.g. 120m.
-    #[arg(long, value_parser = height, allow_negative_numbers = true)]
+    #[arg(long, value_parser = station_height, allow_negative_numbers = true)]
     station_height: Option<Metres>,
-    /// Slant path: earth-station latitude in degrees, -90..90 (north positive).
-    #[arg(long, value_parser = quantity::number, allow_negative_numbers = true)]
+    /// Slant path: earth-station latitude, -90..90 deg (north positive), 51.5 or 51.5deg.
+    #[arg(long, value_parser = quantity::angle, allow_negative_numbers = true)]
     latitude: Option<f32>,
     /// Output format.
     #[arg(long, value_enum, default_value = "table")]
@@ -63,19 +63,42 @@ fn tilt(s: &str) -> Result<f32, String> {
         "horizontal" | "h" => Ok(0.0),
         "vertical" | "v" => Ok(90.0),
         "circular" | "c" => Ok(45.0),
-        _ => quantity::number(s.trim_end_matches("deg")).map_err(|_| {
+        _ => quantity::angle(s).map_err(|_| {
             format!("'{s}' is neither an angle in degrees nor horizontal/vertical/circular")
         }),
     }
 }
 
-/// A height that must carry its unit: a bare `3.6` is ambiguous between
-/// metres and kilometres here, and a wrong guess gives a silent 0 dB.
-fn height(s: &str) -> Result<Metres, String> {
-    if s.trim().ends_with(|c: char| c.is_ascii_digit() || c == '.') {
-        return Err(format!("'{s}' needs a unit, e.g. {s}km or {s}m"));
-    }
-    quantity::distance(s)
+/// Plausible rain height above mean sea level: 0-10 km (ITU-R P.839 gives
+/// up to about 5.5 km; common practice).
+const RAIN_HEIGHT_M: (f32, f32) = (0.0, 10e3);
+/// Plausible earth-station height: -500 m (below sea level) to 8 km.
+const STATION_HEIGHT_M: (f32, f32) = (-500.0, 8e3);
+/// Plausible rain rate: 0-300 mm/h (common practice: the highest R0.01 of
+/// ITU-R P.837 maps are about 150 mm/h).
+const RAIN_RATE_MM_H: (f32, f32) = (0.0, 300.0);
+
+fn height(s: &str, (lo, hi): (f32, f32)) -> Result<Metres, String> {
+    let h = quantity::distance(s)?;
+    quantity::check_range(h.0, lo, hi, &quantity::show::distance).map(Metres)
+}
+
+/// A rain height with its unit, e.g. 3.6km (a bare 3.6 is refused: metres
+/// and kilometres are both plausible, and a wrong guess gives a silent 0 dB).
+fn rain_height(s: &str) -> Result<Metres, String> {
+    height(s, RAIN_HEIGHT_M)
+}
+
+/// An earth-station height with its unit, e.g. 120m.
+fn station_height(s: &str) -> Result<Metres, String> {
+    height(s, STATION_HEIGHT_M)
+}
+
+fn rain_rate(s: &str) -> Result<f32, String> {
+    let r = quantity::number(s.trim_end_matches("mm/h"))?;
+    quantity::check_range(r, RAIN_RATE_MM_H.0, RAIN_RATE_MM_H.1, &|x| {
+        format!("{x} mm/h")
+    })
 }
 
 /// The options of `rain` by the engine parameter they become, so that an
@@ -97,6 +120,10 @@ fn opt(e: headroom::Error) -> CliError {
 
 /// Run the command.
 pub fn run(a: Args) -> CliResult {
+    crate::link::pointing_at_help("rain", run_inner(a))
+}
+
+fn run_inner(a: Args) -> CliResult {
     let (k, alpha) = rain_coefficients(a.frequency, a.tilt, a.elevation).map_err(opt)?;
     let gamma =
         rain_specific_attenuation(a.frequency, a.rain_rate, a.tilt, a.elevation).map_err(opt)?;

@@ -3,20 +3,20 @@
 use std::path::PathBuf;
 
 use clap::ValueEnum;
-use headroom::units::{Db, Dbm, Hertz};
+use headroom::units::{erp_from_eirp, Db, Dbm, Hertz};
 use serde_json::json;
 
 use crate::error::{CliError, CliResult};
 use crate::link;
 use crate::output::{Format, Report};
-use crate::quantity;
+use crate::quantity::{self, show};
 
 /// What to solve for.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum Unknown {
     /// Transmit power that leaves the target margin (or gives --rx-power).
     TxPower,
-    /// Largest path loss that leaves the target margin.
+    /// Largest path loss that leaves the target margin (max_path_loss_db).
     PathLoss,
     /// Largest distance, under the link's path model, that leaves the target margin.
     Range,
@@ -35,7 +35,7 @@ pub struct Args {
     #[arg(long, value_parser = quantity::db, allow_hyphen_values = true)]
     pub target_margin: Option<Db>,
     /// With --for tx-power: solve for this received power instead of a margin.
-    #[arg(long, value_parser = quantity::power, allow_hyphen_values = true, conflicts_with = "target_margin")]
+    #[arg(long, value_parser = quantity::power_with_unit, allow_hyphen_values = true, conflicts_with = "target_margin")]
     pub rx_power: Option<Dbm>,
     /// Solve at this carrier frequency instead of the file's: shows how the
     /// answer scales with frequency (antenna gains held fixed).
@@ -48,6 +48,10 @@ pub struct Args {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    crate::link::pointing_at_help("solve", run_inner(args))
+}
+
+fn run_inner(args: Args) -> CliResult {
     let l = link::load(&args.link, args.frequency)?;
     let target = args.target_margin.unwrap_or(l.target_margin);
     let mut rep = Report::new();
@@ -66,10 +70,24 @@ pub fn run(args: Args) -> CliResult {
                 }
             };
             rep.num("tx_power_dbm", tx.0, "dBm");
+            let eirp = l.link.eirp_at(tx);
+            rep.num("eirp_dbm", eirp.0, "dBm");
+            rep.num("erp_dbm", erp_from_eirp(eirp).0, "dBm");
+            let mut warnings = l.warnings.clone();
+            let within = crate::cmd::budget::check_limits(&l, tx, eirp, &mut warnings);
+            if let Some(m) = l.limits.max_power {
+                rep.num("max_tx_power_dbm", m.0, "dBm");
+            }
+            if let Some(c) = l.limits.eirp_cap {
+                rep.num("eirp_cap_dbm", c.0, "dBm");
+            }
+            rep.value("within_limits", json!(within));
+            rep.value("warnings", json!(warnings));
+            return rep.print(args.format);
         }
         Unknown::PathLoss => {
             rep.num("target_margin_db", target.0, "dB");
-            rep.num("path_loss_db", l.link.max_path_loss(target)?.0, "dB");
+            rep.num("max_path_loss_db", l.link.max_path_loss(target)?.0, "dB");
         }
         Unknown::Range => {
             let model = l.model.as_ref().ok_or_else(|| {
@@ -79,13 +97,15 @@ pub fn run(args: Args) -> CliResult {
                 )
             })?;
             rep.num("target_margin_db", target.0, "dB");
-            rep.num("path_loss_db", l.link.max_path_loss(target)?.0, "dB");
+            rep.num("max_path_loss_db", l.link.max_path_loss(target)?.0, "dB");
             let d = l
                 .link
                 .max_range(model, l.frequency, target)
-                .map_err(|e| CliError::arg("range", e))?;
+                .map_err(|e| crate::names::engine_error(&e, &link::key_of))?;
             rep.num("range_m", d.0, "m");
+            rep.value("range", json!(show::distance(d.0)));
         }
     }
+    rep.value("warnings", json!(l.warnings));
     rep.print(args.format)
 }

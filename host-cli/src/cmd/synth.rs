@@ -17,6 +17,8 @@ use crate::error::{CliError, CliResult};
 use crate::logio;
 use crate::output::{Format, Report};
 
+mod scenario_units;
+
 /// Most records one run writes (about 0.5 GB of CSV).
 const MAX_RECORDS: u64 = 10_000_000;
 
@@ -45,25 +47,29 @@ pub struct Args {
 
 /// A scenario file.
 ///
+/// Quantities take the unit strings of link files and the command line
+/// ([`crate::quantity`]); names and parameters are those of
+/// [`crate::names`] (`path_loss` is spelt as a link file's `[path]`).
+///
 /// ```toml
 /// description = "free text, copied nowhere"   # optional
 ///
 /// [channel]                       # headroom::sim::ChannelConfig
-/// frequency = 868.0e6             # Hz
+/// frequency = "868MHz"
 /// packet_interval_ms = 60000
 /// start_ms = 0                    # optional, time stamp of packet 0
-/// tx_antenna_gain = 2.0           # dBi, optional (0)
-/// rx_antenna_gain = 5.0           # dBi, optional (0)
-/// fading = { rician = { k_db = 6.0 } }   # or "rayleigh", or "none"
+/// tx_antenna_gain = "2dBi"        # optional (0)
+/// rx_antenna_gain = "5dBi"        # optional (0)
+/// fading = { model = "rician", k_factor = "6dB" }   # or "rayleigh", or "none"
 /// fading_correlation = 0.0        # optional, [0, 1), lag-1 correlation
-/// min_snr = -15.0                 # dB, optional: packets below are lost
-/// report_resolution = 1.0         # dB, optional: readings rounded to this
-/// path_loss = { log-distance = { d0 = 1.0, pl_d0 = 31.2, exponent = 3.2 } }   # headroom::propagation::PathLossModel
-/// trajectory = { start = 1200.0, speed_m_per_s = 0.0, min = 1200.0, max = 1200.0 }  # m, m/s
-/// shadowing = { sigma = 4.0, decorrelation_distance = 50.0, time_constant_s = 3600.0 }  # optional
-/// noise = { mean = -117.0, jitter = 0.7, bursts = { rate_per_hour = 0.5, mean_duration_s = 120.0 }, burst_rise = 15.0 }
+/// min_snr = "-15dB"               # optional: packets below are lost
+/// report_resolution = "1dB"       # optional: readings rounded to this
+/// path_loss = { model = "log-distance", reference_distance = "1m", reference_loss = "31.2dB", exponent = 3.2 }
+/// trajectory = { start = "1.2km", speed_m_per_s = 0.0, min = "1.2km", max = "1.2km" }
+/// shadowing = { sigma = "4dB", decorrelation_distance = "50m", time_constant_s = 3600.0 }  # optional
+/// noise = { mean = "-117dBm", jitter = "0.7dB", bursts = { rate_per_hour = 0.5, mean_duration_s = 120.0 }, burst_rise = "15dB" }
 /// feedback_dropouts = { rate_per_hour = 0.2, mean_duration_s = 600.0 }   # optional
-/// steps = [ { at_packet = 5000, change = 20.0 }, { at_packet = 5600, change = -20.0 } ]  # optional, ≤ 16
+/// steps = [ { at_packet = 5000, change = "20dB" }, { at_packet = 5600, change = "-20dB" } ]  # optional, ≤ 16
 ///
 /// [power]                         # headroom::sim::PowerPattern
 /// levels_dbm = [2.0, 8.0, 14.0]   # dBm, cycled, ≤ 32; one entry for a fixed power
@@ -71,7 +77,7 @@ pub struct Args {
 ///
 /// [radio]                         # optional; written into the log's header
 /// device_id = 7
-/// min_tx_dbm = -4.0
+/// min_tx_dbm = -4.0               # or "-4dBm"
 /// max_tx_dbm = 14.0
 /// tx_step_db = 2.0
 /// antenna_gain_dbi = 2.0
@@ -81,6 +87,11 @@ pub struct Args {
 /// start = 1000                    # index of the first damaged record
 /// length = 50                     # records damaged
 /// ```
+///
+/// The spellings of the previous release are still read, each with a
+/// warning on stderr: bare numbers for the frequency (Hz), distances (m) and
+/// the noise mean (dBm), and the engine's own `path_loss = { hata = { ht,
+/// hr, env, ext = "refuse" } }` and `fading = { rician = { k_db } }` forms.
 ///
 /// Fault kinds: `"feedback_dropout"`, `"stuck_rssi"`,
 /// `{ saturation = { level = DBM } }`, `{ noise_burst = { rise = DB } }`,
@@ -184,15 +195,36 @@ impl Radio {
 
 /// Read and check a scenario file.
 pub fn load_scenario(path: &Path) -> CliResult<Scenario> {
+    load_scenario_warn(path, &mut Vec::new())
+}
+
+/// [`load_scenario`], keeping the warnings.
+pub fn load_scenario_warn(path: &Path, warnings: &mut Vec<String>) -> CliResult<Scenario> {
     let text = crate::atomic::read_text(path)?;
-    parse_scenario(&text).map_err(|e| match e {
+    parse_scenario_warn(&text, warnings).map_err(|e| match e {
         CliError::Input(m) => CliError::Input(format!("{}: {m}", path.display())),
         other => other,
     })
 }
 
-/// Parse a scenario from TOML text; errors name the line.
+/// Parse a scenario from TOML text; errors name the line. Warnings about
+/// old spellings are printed on stderr.
 pub fn parse_scenario(text: &str) -> CliResult<Scenario> {
+    let mut warnings = Vec::new();
+    parse_scenario_warn(text, &mut warnings)
+}
+
+/// [`parse_scenario`], keeping the warnings.
+pub fn parse_scenario_warn(text: &str, warnings: &mut Vec<String>) -> CliResult<Scenario> {
+    let normalised = match text.parse::<toml_edit::DocumentMut>() {
+        Ok(mut doc) => {
+            scenario_units::normalise(&mut doc, warnings)?;
+            doc.to_string()
+        }
+        // A syntax error: let the reader below report it with its line.
+        Err(_) => text.to_string(),
+    };
+    let text = normalised.as_str();
     let sc: Scenario = toml::from_str(text).map_err(|e| {
         let line = e.span().map(|s| {
             text.get(..s.start)
@@ -280,7 +312,8 @@ pub fn run(args: Args) -> CliResult {
             format!("must be between 1 and {MAX_RECORDS}"),
         ));
     }
-    let sc = load_scenario(&args.scenario)?;
+    let mut warnings = Vec::new();
+    let sc = load_scenario_warn(&args.scenario, &mut warnings)?;
     let header = sc.radio.as_ref().map(Radio::header).transpose()?;
     let mut out = logio::create(&args.out, args.force, header)?;
     let tally = simulate(&sc, args.seed, args.records, |r| out.write(r))?;
@@ -296,7 +329,8 @@ pub fn run(args: Args) -> CliResult {
         .value("lost", tally.lost.into())
         .value("feedback_lost", tally.feedback_lost.into())
         .value("in_noise_burst", tally.in_noise_burst.into())
-        .value("faulty_records", tally.faulty.into());
+        .value("faulty_records", tally.faulty.into())
+        .value("warnings", warnings.into());
     rep.print(args.format)
 }
 

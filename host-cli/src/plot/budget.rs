@@ -383,6 +383,99 @@ impl Figure for LevelDiagram {
     }
 }
 
+/// A coverage curve: the margin against distance or frequency, with the
+/// target margin and the point where the curve meets it marked.
+pub struct CoverageCurve {
+    /// Title.
+    pub title: String,
+    /// Axis label of x (`distance (m)`, `frequency (MHz)`).
+    pub x_label: String,
+    /// x values, in the axis unit, increasing.
+    pub x: Vec<f64>,
+    /// Margin at each x, dB.
+    pub margin_db: Vec<f64>,
+    /// Target margin, dB.
+    pub target_db: f64,
+    /// Where the margin meets the target, in the axis unit, with its label.
+    pub marker: Option<(f64, String)>,
+    /// Logarithmic x axis.
+    pub log_x: bool,
+}
+
+impl Figure for CoverageCurve {
+    fn size(&self) -> (u32, u32) {
+        (900, 560)
+    }
+
+    fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> DrawResult<DB> {
+        let (x0, x1) = finite_range(self.x.iter().copied()).unwrap_or((1.0, 10.0));
+        let (lo, hi) = finite_range(self.margin_db.iter().copied().chain([self.target_db]))
+            .unwrap_or((-10.0, 10.0));
+        let y = padded(lo, hi, 0.08, 2.0);
+        let points: Vec<(f64, f64)> = self
+            .x
+            .iter()
+            .copied()
+            .zip(self.margin_db.iter().copied())
+            .collect();
+        let mut builder = ChartBuilder::on(root);
+        builder
+            .caption(&self.title, (FONT, 22))
+            .margin(16)
+            .x_label_area_size(52)
+            .y_label_area_size(64);
+        let target = self.target_db;
+        let marker = self.marker.clone();
+        macro_rules! body {
+            ($chart:ident) => {{
+                $chart
+                    .configure_mesh()
+                    .x_desc(self.x_label.as_str())
+                    .y_desc("margin (dB)")
+                    .y_label_formatter(&|v| signed(*v, 0))
+                    .axis_desc_style((FONT, 16))
+                    .label_style((FONT, 14))
+                    .light_line_style(RGBColor(235, 235, 235))
+                    .draw()?;
+                $chart.draw_series(LineSeries::new(points.clone(), LEVEL.stroke_width(2)))?;
+                $chart.draw_series(std::iter::once(DashedPathElement::new(
+                    vec![(x0, target), (x1, target)],
+                    6,
+                    4,
+                    SENS.stroke_width(2),
+                )))?;
+                if let Some((xm, label)) = &marker {
+                    $chart.draw_series(std::iter::once(PathElement::new(
+                        vec![(*xm, y.start), (*xm, y.end)],
+                        GOOD.stroke_width(2),
+                    )))?;
+                    $chart.draw_series(std::iter::once(Text::new(
+                        label.clone(),
+                        (*xm, y.end),
+                        (FONT, 15)
+                            .into_font()
+                            .color(&GOOD)
+                            .pos(Pos::new(HPos::Left, VPos::Top)),
+                    )))?;
+                }
+            }};
+        }
+        if self.log_x {
+            let mut chart = builder.build_cartesian_2d((x0..x1).log_scale(), y.clone())?;
+            body!(chart);
+        } else {
+            let mut chart = builder.build_cartesian_2d(x0..x1, y.clone())?;
+            body!(chart);
+        }
+        Ok(())
+    }
+}
+
+/// Draw a coverage curve to `path` (`.svg` or `.png`).
+pub fn coverage_plot(path: &Path, force: bool, curve: &CoverageCurve) -> CliResult {
+    save(path, force, curve)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

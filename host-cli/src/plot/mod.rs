@@ -22,7 +22,7 @@ mod budget;
 mod pareto;
 mod replay;
 
-pub use budget::budget_plot;
+pub use budget::{budget_plot, coverage_plot, CoverageCurve};
 pub use pareto::{pareto_plot, FrontMarks};
 pub use replay::{replay_plot, ReplayPoint, ReplaySeries};
 
