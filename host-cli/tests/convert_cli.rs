@@ -249,7 +249,7 @@ fn csv_input_errors_are_clear() {
             "2: column t_ms: '1.5' is not a whole number of milliseconds",
         ),
         ("t_ms,rssi_dbm\n,2\n", "2: column t_ms: empty"),
-        ("", "no header row"),
+        ("", "empty log (0 bytes)"),
         ("t_ms,t_ms\n1,2\n", "1: column t_ms appears twice"),
     ];
     for (i, (text, want)) in cases.iter().enumerate() {

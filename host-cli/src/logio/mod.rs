@@ -51,12 +51,13 @@ mod csv;
 
 use std::fmt;
 use std::fs::File;
+use std::io::Read;
 use std::path::Path;
 
 pub use headroom::record::{LogHeader, LogRecord};
 
 use crate::atomic::AtomicFile;
-use crate::error::{CliError, CliResult};
+use crate::error::{printable, CliError, CliResult};
 
 /// Longest CSV line accepted, in bytes.
 pub const MAX_LINE: usize = 4096;
@@ -97,6 +98,177 @@ impl fmt::Display for LogFormat {
     }
 }
 
+/// Damaged regions kept in detail; the rest are only counted (see
+/// [`DamageSummary`]), so that a file of any number of damaged regions
+/// costs the same memory.
+pub const DAMAGE_DETAIL: usize = 16;
+/// Header events (a second or late header frame) kept in detail; the rest
+/// are only counted.
+pub const HEADER_EVENT_DETAIL: usize = 16;
+
+/// A field of a log record, as a CSV column names it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Field {
+    /// Time of the packet, ms.
+    TMs,
+    /// Transmit power, dBm.
+    TxDbm,
+    /// Received power at the far end, dBm.
+    RssiDbm,
+    /// Noise floor at the far end, dBm.
+    NoiseDbm,
+    /// SNR at the far end, dB: read where a log has no noise floor
+    /// (noise = RSSI − SNR, [`headroom::record::noise_from_snr`]).
+    SnrDb,
+}
+
+impl Field {
+    /// Every field, in the order a CSV writer puts its columns (`snr_db`,
+    /// read only, last).
+    pub const ALL: [Field; 5] = [
+        Field::TMs,
+        Field::TxDbm,
+        Field::RssiDbm,
+        Field::NoiseDbm,
+        Field::SnrDb,
+    ];
+
+    /// The column name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Field::TMs => "t_ms",
+            Field::TxDbm => "tx_dbm",
+            Field::RssiDbm => "rssi_dbm",
+            Field::NoiseDbm => "noise_dbm",
+            Field::SnrDb => "snr_db",
+        }
+    }
+
+    /// The field a column name names (any case).
+    pub fn from_name(name: &str) -> Option<Field> {
+        Field::ALL
+            .into_iter()
+            .find(|f| f.name().eq_ignore_ascii_case(name))
+    }
+
+    fn names() -> String {
+        Field::ALL.map(Field::name).join(", ")
+    }
+}
+
+/// `--column FIELD=NAME`: the CSV column `NAME` holds `FIELD`.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ColumnMap {
+    /// The field.
+    pub field: Field,
+    /// The column's name in the log (matched without regard to case).
+    pub column: String,
+}
+
+impl std::str::FromStr for ColumnMap {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<Self, String> {
+        let Some((field, column)) = s.split_once('=') else {
+            return Err(format!(
+                "'{}' is not FIELD=NAME (for example rssi_dbm=RSSI; fields: {})",
+                printable(s),
+                Field::names()
+            ));
+        };
+        let (field, column) = (field.trim(), column.trim());
+        let Some(f) = Field::from_name(field) else {
+            return Err(format!(
+                "'{}' is not a log field (fields: {})",
+                printable(field),
+                Field::names()
+            ));
+        };
+        if column.is_empty() {
+            return Err(format!("{}= names no column", f.name()));
+        }
+        Ok(ColumnMap {
+            field: f,
+            column: column.to_string(),
+        })
+    }
+}
+
+/// How to read a log: its format if the name does not tell, CSV columns
+/// named otherwise, strictness, and whether the readings a replay needs
+/// must be there.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct ReadOptions {
+    /// The format; `None`: told by the file name's extension.
+    pub format: Option<LogFormat>,
+    /// CSV columns named otherwise (ignored for binary logs, which have no
+    /// column names).
+    pub columns: Vec<ColumnMap>,
+    /// Any damage is an error item, a damaged header an error at open.
+    pub strict: bool,
+    /// A CSV log must have the columns a replay judges by: `t_ms`,
+    /// `tx_dbm`, `rssi_dbm`, and `noise_dbm` or `snr_db`; without one it is
+    /// refused at open, naming the column.
+    pub require_readings: bool,
+}
+
+/// The options of a command that reads logs, to flatten into its
+/// arguments (`#[command(flatten)]`).
+#[derive(Clone, Debug, Default, clap::Args)]
+pub struct InputArgs {
+    /// Format of the log(s), where the file name does not tell (standard
+    /// input `-`, other extensions).
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub from: Option<LogFormat>,
+    /// A CSV column named otherwise: `--column rssi_dbm=RSSI` reads the
+    /// column `RSSI` as `rssi_dbm` (repeatable; fields: t_ms, tx_dbm,
+    /// rssi_dbm, noise_dbm, snr_db).
+    #[arg(long = "column", value_name = "FIELD=NAME")]
+    pub columns: Vec<ColumnMap>,
+    /// Any damage is an error: a damaged or lost header, a damaged binary
+    /// region (instead of skipping it).
+    #[arg(long)]
+    pub strict: bool,
+}
+
+impl InputArgs {
+    /// The read options these arguments give.
+    pub fn options(&self) -> ReadOptions {
+        ReadOptions {
+            format: self.from,
+            columns: self.columns.clone(),
+            strict: self.strict,
+            require_readings: true,
+        }
+    }
+}
+
+/// Whether a log's header was read.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum HeaderStatus {
+    /// The log has a header, read intact.
+    Present,
+    /// The log has no header (it was written without one).
+    Absent,
+    /// The log had a header that is lost or damaged (binary: frame 0 lost
+    /// or failing its CRC; CSV: a malformed `# headroom-log` block); `why`
+    /// says which. A CSV header keeps its fields that were read.
+    Damaged {
+        /// What was wrong, with its position.
+        why: String,
+    },
+}
+
+impl fmt::Display for HeaderStatus {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            HeaderStatus::Present => f.write_str("present"),
+            HeaderStatus::Absent => f.write_str("absent"),
+            HeaderStatus::Damaged { why } => write!(f, "damaged: {why}"),
+        }
+    }
+}
+
 /// A damaged region of a binary log that the reader skipped.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct Damage {
@@ -118,11 +290,134 @@ impl fmt::Display for Damage {
             "byte {}: skipped {} damaged byte{} ({} frame{} lost): {}",
             self.byte_offset,
             self.bytes_skipped,
-            if self.bytes_skipped == 1 { "" } else { "s" },
+            plural(self.bytes_skipped),
             self.frames_skipped,
-            if self.frames_skipped == 1 { "" } else { "s" },
+            plural(self.frames_skipped),
             self.why
         )
+    }
+}
+
+/// Every damaged region of a log, counted (the first [`DAMAGE_DETAIL`] are
+/// also kept in detail, [`LogReader::damage`]).
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct DamageSummary {
+    /// Damaged regions.
+    pub regions: u64,
+    /// Bytes skipped in all of them.
+    pub bytes: u64,
+    /// Frames lost in all of them.
+    pub frames_lost: u64,
+    /// Regions by what was wrong with their first piece (one entry per
+    /// kind of damage: a handful at most).
+    pub by_kind: Vec<(String, u64)>,
+}
+
+impl DamageSummary {
+    /// Count one region.
+    fn add(&mut self, d: &Damage, kind: String) {
+        self.regions += 1;
+        self.bytes += d.bytes_skipped;
+        self.frames_lost += d.frames_skipped;
+        match self.by_kind.iter_mut().find(|(k, _)| *k == kind) {
+            Some((_, n)) => *n += 1,
+            None => self.by_kind.push((kind, 1)),
+        }
+    }
+}
+
+/// A header frame after the first one, or after the records.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct HeaderEvent {
+    /// Offset in the file of the frame.
+    pub byte_offset: u64,
+    /// Records read before it.
+    pub after_records: u64,
+    /// Header fields (their CSV keys) that differ from the header in force
+    /// (empty: the same header again; all of them when there was none).
+    pub differs: Vec<&'static str>,
+    /// Whether the log had a header before this one.
+    pub had_header: bool,
+}
+
+impl fmt::Display for HeaderEvent {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let place = if self.after_records > 0 {
+            format!(
+                "after {} record{}",
+                self.after_records,
+                plural(self.after_records)
+            )
+        } else {
+            "before the records".to_string()
+        };
+        if !self.had_header {
+            write!(
+                f,
+                "byte {}: a header frame {place}, not at the start: ignored (the log is read as without a header)",
+                self.byte_offset
+            )
+        } else if self.differs.is_empty() {
+            write!(
+                f,
+                "byte {}: the header frame again, {place} (same fields)",
+                self.byte_offset
+            )
+        } else {
+            write!(
+                f,
+                "byte {}: another header frame {place} with different {}: ignored (the first header applies)",
+                self.byte_offset,
+                self.differs.join(", ")
+            )
+        }
+    }
+}
+
+/// The header fields that differ between `a` and `b`, by CSV key (floats
+/// compared bit for bit).
+fn header_differences(a: &LogHeader, b: &LogHeader) -> Vec<&'static str> {
+    let bits = |v: Option<f32>| v.map(f32::to_bits);
+    let pairs = [
+        ("device_id", a.device_id == b.device_id),
+        ("epoch_ms", a.epoch_ms == b.epoch_ms),
+        (
+            "min_tx_dbm",
+            bits(a.min_tx.map(|v| v.0)) == bits(b.min_tx.map(|v| v.0)),
+        ),
+        (
+            "max_tx_dbm",
+            bits(a.max_tx.map(|v| v.0)) == bits(b.max_tx.map(|v| v.0)),
+        ),
+        (
+            "tx_step_db",
+            bits(a.tx_step.map(|v| v.0)) == bits(b.tx_step.map(|v| v.0)),
+        ),
+        (
+            "antenna_gain_dbi",
+            bits(a.antenna_gain.map(|v| v.0)) == bits(b.antenna_gain.map(|v| v.0)),
+        ),
+        (
+            "required_snr_db",
+            bits(a.required_snr.map(|v| v.0)) == bits(b.required_snr.map(|v| v.0)),
+        ),
+        (
+            "eirp_cap_dbm",
+            bits(a.eirp_cap.map(|v| v.0)) == bits(b.eirp_cap.map(|v| v.0)),
+        ),
+    ];
+    pairs
+        .into_iter()
+        .filter(|(_, same)| !same)
+        .map(|(k, _)| k)
+        .collect()
+}
+
+fn plural(n: u64) -> &'static str {
+    if n == 1 {
+        ""
+    } else {
+        "s"
     }
 }
 
@@ -138,22 +433,58 @@ enum Inner {
     Binary(Box<binary::BinaryReader>),
 }
 
-/// Open a log, its format told by the extension.
+/// The name standing for standard input.
+pub const STDIN: &str = "-";
+
+/// Open a log, its format told by the extension; every column optional.
 pub fn open(path: &Path) -> CliResult<LogReader> {
     open_as(path, None)
 }
 
-/// Open a log in `format`, or by the extension if `None`.
+/// Open a log in `format`, or by the extension if `None`; every column
+/// optional.
 pub fn open_as(path: &Path, format: Option<LogFormat>) -> CliResult<LogReader> {
-    let format = match format {
+    open_with(
+        path,
+        &ReadOptions {
+            format,
+            ..ReadOptions::default()
+        },
+    )
+}
+
+/// Open a log (`-`: standard input) as `opts` say. The input is read once,
+/// front to back, so pipes, standard input and other special files work
+/// like files.
+pub fn open_with(path: &Path, opts: &ReadOptions) -> CliResult<LogReader> {
+    let stdin = path.as_os_str() == STDIN;
+    let format = match opts.format {
         Some(f) => f,
+        None if stdin => return Err(CliError::Input(
+            "standard input: cannot tell the log format (name it with --from csv or --from binary)"
+                .into(),
+        )),
         None => LogFormat::from_path(path)?,
     };
-    let file = File::open(path).map_err(|e| CliError::input_file(path, "cannot open", &e))?;
-    let name = path.display().to_string();
+    let (name, input): (String, Box<dyn Read + Send>) = if stdin {
+        ("standard input".into(), Box::new(std::io::stdin()))
+    } else {
+        let file = File::open(path).map_err(|e| CliError::input_file(path, "cannot open", &e))?;
+        if file.metadata().is_ok_and(|m| m.is_dir()) {
+            return Err(CliError::Input(format!(
+                "{}: is a folder, not a log",
+                printable(&path.display().to_string())
+            )));
+        }
+        (printable(&path.display().to_string()), Box::new(file))
+    };
     let inner = match format {
-        LogFormat::Csv => Inner::Csv(Box::new(csv::CsvReader::new(name, path, file)?)),
-        LogFormat::Binary => Inner::Binary(Box::new(binary::BinaryReader::new(name, file)?)),
+        LogFormat::Csv => Inner::Csv(Box::new(csv::CsvReader::new(name, input, opts)?)),
+        LogFormat::Binary => Inner::Binary(Box::new(binary::BinaryReader::new(
+            name,
+            input,
+            opts.strict,
+        )?)),
     };
     Ok(LogReader { inner })
 }
@@ -167,7 +498,8 @@ impl LogReader {
         }
     }
 
-    /// The log's header, if it has one.
+    /// The log's header, if it has one (a damaged CSV header: the fields
+    /// that were read).
     pub fn header(&self) -> Option<&LogHeader> {
         match &self.inner {
             Inner::Csv(r) => r.header(),
@@ -175,11 +507,38 @@ impl LogReader {
         }
     }
 
-    /// Damaged regions skipped so far (binary logs; always empty for CSV).
+    /// Whether the header was present, absent, or lost or damaged.
+    pub fn header_status(&self) -> &HeaderStatus {
+        match &self.inner {
+            Inner::Csv(r) => r.header_status(),
+            Inner::Binary(r) => r.header_status(),
+        }
+    }
+
+    /// The first [`DAMAGE_DETAIL`] damaged regions skipped so far (binary
+    /// logs; always empty for CSV). [`LogReader::damage_summary`] counts
+    /// them all.
     pub fn damage(&self) -> &[Damage] {
         match &self.inner {
             Inner::Csv(_) => &[],
             Inner::Binary(r) => r.damage(),
+        }
+    }
+
+    /// Every damaged region skipped so far, counted.
+    pub fn damage_summary(&self) -> DamageSummary {
+        match &self.inner {
+            Inner::Csv(_) => DamageSummary::default(),
+            Inner::Binary(r) => r.damage_summary().clone(),
+        }
+    }
+
+    /// Header frames after the first one or after the records (binary), the
+    /// first [`HEADER_EVENT_DETAIL`] of them.
+    pub fn header_events(&self) -> &[HeaderEvent] {
+        match &self.inner {
+            Inner::Csv(_) => &[],
+            Inner::Binary(r) => r.header_events(),
         }
     }
 
@@ -192,8 +551,31 @@ impl LogReader {
         }
     }
 
+    /// Records read so far.
+    pub fn records_read(&self) -> u64 {
+        match &self.inner {
+            Inner::Csv(r) => r.records_read(),
+            Inner::Binary(r) => r.records_read(),
+        }
+    }
+
+    /// What a command should tell the user about this log, one line each,
+    /// each starting with the log's name: a lost or damaged header, noise
+    /// computed from SNR, damage (the first [`DAMAGE_DETAIL`] regions, then
+    /// a count), header frames after the first, and, once the log is read
+    /// to its end, columns empty in every row and a log without records.
+    /// The reader prints nothing itself.
+    pub fn warnings(&self) -> Vec<String> {
+        match &self.inner {
+            Inner::Csv(r) => r.warnings(),
+            Inner::Binary(r) => r.warnings(),
+        }
+    }
+
     /// In strict mode the first damage of a binary log is an error item
-    /// that ends the stream. CSV errors are always error items.
+    /// that ends the stream. CSV errors are always error items. (Better
+    /// given when opening: [`ReadOptions::strict`], which also makes a
+    /// damaged header an error.)
     pub fn set_strict(&mut self, strict: bool) {
         if let Inner::Binary(r) = &mut self.inner {
             r.set_strict(strict);
