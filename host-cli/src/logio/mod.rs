@@ -684,6 +684,405 @@ mod tests {
             .collect()
     }
 
+    use headroom::record::codec::{encode_frame, Frame, VERSION};
+    use headroom::units::Dbm;
+
+    /// Open `bytes` written to a file `name` in a fresh folder.
+    fn open_bytes(name: &str, bytes: &[u8], opts: &ReadOptions) -> CliResult<LogReader> {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let p = dir.path().join(name);
+        std::fs::write(&p, bytes).expect("seed");
+        open_with(&p, opts)
+    }
+
+    fn full() -> ReadOptions {
+        ReadOptions {
+            require_readings: true,
+            ..ReadOptions::default()
+        }
+    }
+
+    fn all(log: &mut LogReader) -> Vec<LogRecord> {
+        log.by_ref().map(|r| r.expect("record")).collect()
+    }
+
+    fn err(r: CliResult<LogReader>) -> String {
+        match r {
+            Ok(_) => panic!("opened"),
+            Err(e) => {
+                assert_eq!(e.exit_code(), 2, "{e}");
+                e.to_string()
+            }
+        }
+    }
+
+    #[test]
+    fn snr_instead_of_noise_is_a_full_log() {
+        let text = b"t_ms,tx_dbm,rssi_dbm,snr_db\n0,14,-100,7.5\n1,14,-101,\n2,14,,3\n";
+        let mut log = open_bytes("snr.csv", text, &full()).expect("open");
+        let got = all(&mut log);
+        assert_eq!(got[0].noise_dbm, Some(-107.5));
+        // Without an SNR or without an RSSI there is no noise floor.
+        assert_eq!(got[1].noise_dbm, None);
+        assert_eq!(got[2].noise_dbm, None);
+        let w = log.warnings().join("\n");
+        assert!(
+            w.contains("noise_dbm computed as rssi_dbm - snr_db in 1 row "),
+            "{w}"
+        );
+        // A logged noise floor wins over the SNR.
+        let text = b"t_ms,tx_dbm,rssi_dbm,noise_dbm,snr_db\n0,14,-100,-120,7.5\n1,14,-100,,7.5\n";
+        let got = all(&mut open_bytes("both.csv", text, &full()).expect("open"));
+        assert_eq!(got[0].noise_dbm, Some(-120.0));
+        assert_eq!(got[1].noise_dbm, Some(-107.5));
+    }
+
+    #[test]
+    fn a_log_without_a_reading_column_is_refused_naming_it() {
+        for (text, want) in [
+            (
+                "t_ms,tx_dbm,noise_dbm\n0,1,2\n",
+                "missing required column rssi_dbm (accepted names: rssi_dbm, or name yours with --column rssi_dbm=NAME; the header row has: t_ms, tx_dbm, noise_dbm)",
+            ),
+            (
+                "t_ms,tx_dbm,rssi_dbm\n0,1,2\n",
+                "missing required column noise_dbm or snr_db (accepted names: noise_dbm, snr_db, or name yours with --column noise_dbm=NAME or --column snr_db=NAME",
+            ),
+            ("t_ms,rssi_dbm,snr_db\n0,1,2\n", "missing required column tx_dbm"),
+            ("tx_dbm,rssi_dbm,snr_db\n0,1,2\n", "missing required column t_ms"),
+        ] {
+            let e = err(open_bytes("x.csv", text.as_bytes(), &full()));
+            assert!(e.contains(want), "{text:?}: {e}");
+            assert!(e.contains("x.csv:1: "), "{e}");
+        }
+        // Without the requirement (a conversion), the log opens and says
+        // which column it lacks.
+        let mut log =
+            open_bytes("x.csv", b"t_ms,tx_dbm\n0,1\n", &ReadOptions::default()).expect("open");
+        assert_eq!(all(&mut log).len(), 1);
+        let w = log.warnings().join("\n");
+        assert!(
+            w.contains("no column rssi_dbm: absent in every record"),
+            "{w}"
+        );
+        assert!(w.contains("no column noise_dbm"), "{w}");
+    }
+
+    #[test]
+    fn columns_named_otherwise_are_mapped() {
+        let m: ColumnMap = "rssi_dbm=RSSI".parse().expect("map");
+        assert_eq!(m.field, Field::RssiDbm);
+        assert_eq!(m.column, "RSSI");
+        for (bad, want) in [
+            (
+                "rssi=RSSI",
+                "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db)",
+            ),
+            ("rssi_dbm", "is not FIELD=NAME"),
+            ("rssi_dbm=", "names no column"),
+        ] {
+            let e = bad.parse::<ColumnMap>().expect_err(bad);
+            assert!(e.contains(want), "{bad}: {e}");
+        }
+        let opts = ReadOptions {
+            columns: vec![
+                "rssi_dbm=Rssi".parse().expect("map"),
+                "snr_db=lsnr".parse().expect("map"),
+                "t_ms=time".parse().expect("map"),
+                "tx_dbm=power".parse().expect("map"),
+            ],
+            ..full()
+        };
+        let text = b"time,power,RSSI,LSNR,rssi_dbm\n5,10,-90,-10,1\n";
+        let got = all(&mut open_bytes("m.csv", text, &opts).expect("open"));
+        assert_eq!(
+            got,
+            vec![LogRecord {
+                t_ms: 5,
+                tx_dbm: Some(10.0),
+                rssi_dbm: Some(-90.0),
+                noise_dbm: Some(-80.0),
+            }]
+        );
+        // A mapped column that is not there is named as mapped.
+        let e = err(open_bytes("m.csv", b"time,power,snr_db\n1,2,3\n", &opts));
+        assert!(
+            e.contains("missing required column Rssi (as rssi_dbm)"),
+            "{e}"
+        );
+        // The same field mapped twice.
+        let twice = ReadOptions {
+            columns: vec![
+                "rssi_dbm=a".parse().expect("map"),
+                "rssi_dbm=b".parse().expect("map"),
+            ],
+            ..full()
+        };
+        let e = err(open_bytes("m.csv", text, &twice));
+        assert!(e.contains("--column: rssi_dbm is mapped twice"), "{e}");
+    }
+
+    #[test]
+    fn an_all_empty_column_is_a_warning_at_the_end() {
+        let text = b"t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,14,-90,\n1,14,-91, \n";
+        let mut log = open_bytes("e.csv", text, &full()).expect("open");
+        assert!(log.warnings().is_empty(), "nothing known before reading");
+        assert_eq!(all(&mut log).len(), 2);
+        let w = log.warnings();
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(
+            w[0].ends_with("/e.csv: column noise_dbm (noise_dbm) is empty in all 2 rows"),
+            "{w:?}"
+        );
+    }
+
+    #[test]
+    fn csv_header_status_bom_and_strict() {
+        let rows = "t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,14,-90,-120\n";
+        let block = "# headroom-log 1.1\n# max_tx_dbm: 5\n";
+        // Present, absent.
+        let log = open_bytes("p.csv", format!("{block}{rows}").as_bytes(), &full()).expect("open");
+        assert_eq!(log.header_status(), &HeaderStatus::Present);
+        assert_eq!(log.header().and_then(|h| h.max_tx), Some(Dbm(5.0)));
+        let log = open_bytes("a.csv", rows.as_bytes(), &full()).expect("open");
+        assert_eq!(log.header_status(), &HeaderStatus::Absent);
+        assert_eq!(log.header(), None);
+        // A byte-order mark before the block: the block is read.
+        let mut bom = b"\xEF\xBB\xBF".to_vec();
+        bom.extend_from_slice(format!("{block}{rows}").as_bytes());
+        let log = open_bytes("bom.csv", &bom, &full()).expect("open");
+        assert_eq!(log.header_status(), &HeaderStatus::Present);
+        assert_eq!(log.header().and_then(|h| h.max_tx), Some(Dbm(5.0)));
+        // And before a header row without a block.
+        let mut bom = b"\xEF\xBB\xBF".to_vec();
+        bom.extend_from_slice(rows.as_bytes());
+        let mut log = open_bytes("bom.csv", &bom, &full()).expect("open");
+        assert_eq!(all(&mut log).len(), 1);
+        // A malformed block: damaged, the other fields kept, the bad line
+        // named; an error under strict.
+        let bad = format!("# headroom-log 1.1\n# min_tx_dbm: 2\n# max_tx_dbm: 1x\n{rows}");
+        let log = open_bytes("d.csv", bad.as_bytes(), &full()).expect("open");
+        match log.header_status() {
+            HeaderStatus::Damaged { why } => assert!(
+                why.contains(
+                    "line 3: header block damaged: max_tx_dbm: '1x' is not a finite number"
+                ),
+                "{why}"
+            ),
+            other => panic!("{other:?}"),
+        }
+        assert_eq!(log.header().and_then(|h| h.min_tx), Some(Dbm(2.0)));
+        assert_eq!(log.header().and_then(|h| h.max_tx), None);
+        assert!(log
+            .warnings()
+            .join("")
+            .contains("d.csv: line 3: header block damaged"));
+        let strict = ReadOptions {
+            strict: true,
+            ..full()
+        };
+        let e = err(open_bytes("d.csv", bad.as_bytes(), &strict));
+        assert!(
+            e.contains("header block damaged") && e.contains("--strict"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn empty_and_zero_logs_are_refused() {
+        for (name, bytes, want) in [
+            ("z.hrlog", vec![], "z.hrlog: empty log (0 bytes)"),
+            (
+                "z.hrlog",
+                vec![0u8; 4000],
+                "z.hrlog: 4000 bytes, all zero: no frame",
+            ),
+            ("z.csv", vec![], "z.csv: empty log (0 bytes)"),
+            (
+                "z.csv",
+                vec![0u8; 4000],
+                "z.csv: starts with zero bytes, not text",
+            ),
+        ] {
+            let e = err(open_bytes(name, &bytes, &ReadOptions::default()));
+            assert!(e.contains(want), "{e}");
+        }
+        // A header and no record: opens, and says so at the end.
+        let mut log =
+            open_bytes("h.csv", b"t_ms,tx_dbm,rssi_dbm,noise_dbm\n", &full()).expect("open");
+        assert!(all(&mut log).is_empty());
+        let w = log.warnings();
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(w[0].ends_with("/h.csv: the log holds no record"), "{w:?}");
+    }
+
+    /// Frames: a header with `max_tx` (if any) at seq 0, then `n` records.
+    fn frames(header: Option<f32>, n: u64) -> (Vec<u8>, Vec<usize>) {
+        let mut bytes = Vec::new();
+        let mut ends = Vec::new();
+        let mut buf = [0u8; headroom::record::codec::MAX_FRAME];
+        let mut seq = 0u16;
+        if let Some(max) = header {
+            let h = LogHeader {
+                max_tx: Some(Dbm(max)),
+                ..LogHeader::default()
+            };
+            let f = Frame::Header {
+                header: h,
+                version: VERSION,
+            };
+            bytes.extend_from_slice(encode_frame(0, &f, &mut buf).expect("frame"));
+            ends.push(bytes.len());
+            seq = 1;
+        }
+        for t in 0..n {
+            let f = Frame::Record(rec(t));
+            bytes.extend_from_slice(encode_frame(seq, &f, &mut buf).expect("frame"));
+            ends.push(bytes.len());
+            seq = seq.wrapping_add(1);
+        }
+        (bytes, ends)
+    }
+
+    #[test]
+    fn binary_header_status() {
+        let (good, ends) = frames(Some(5.0), 3);
+        let log = open_bytes("g.hrlog", &good, &full()).expect("open");
+        assert_eq!(log.header_status(), &HeaderStatus::Present);
+        let (none, _) = frames(None, 3);
+        let mut log = open_bytes("n.hrlog", &none, &full()).expect("open");
+        assert_eq!(log.header_status(), &HeaderStatus::Absent);
+        assert_eq!(all(&mut log).len(), 3);
+        // A bad CRC in the header frame: damaged, records still read.
+        let mut bad = good.clone();
+        bad[ends[0] - 3] ^= 0x40;
+        let mut log = open_bytes("b.hrlog", &bad, &full()).expect("open");
+        match log.header_status() {
+            HeaderStatus::Damaged { why } => assert!(
+                why.contains("byte 0: the header frame is damaged (CRC-32C mismatch)"),
+                "{why}"
+            ),
+            other => panic!("{other:?}"),
+        }
+        assert_eq!(log.header(), None);
+        assert_eq!(all(&mut log).len(), 3);
+        assert!(log.warnings()[0].contains("b.hrlog: byte 0: the header frame is damaged"));
+        // Frame 0 lost whole (the file starts at frame 1).
+        let log = open_bytes("l.hrlog", &good[ends[0]..], &full()).expect("open");
+        assert!(
+            matches!(log.header_status(), HeaderStatus::Damaged { why } if why.contains("frame 0 (the header) is missing"))
+        );
+        // Strict: either is an error at open that says it is the header.
+        let strict = ReadOptions {
+            strict: true,
+            ..full()
+        };
+        for bytes in [&bad[..], &good[ends[0]..]] {
+            let e = err(open_bytes("s.hrlog", bytes, &strict));
+            assert!(e.contains("header") && e.contains("--strict"), "{e}");
+        }
+    }
+
+    #[test]
+    fn second_and_late_headers_are_reported() {
+        let (mut bytes, _) = frames(Some(5.0), 2);
+        let (again, _) = frames(Some(14.0), 1);
+        let at = bytes.len();
+        bytes.extend_from_slice(&again);
+        let mut log = open_bytes("two.hrlog", &bytes, &full()).expect("open");
+        assert_eq!(all(&mut log).len(), 3);
+        assert_eq!(log.header().and_then(|h| h.max_tx), Some(Dbm(5.0)));
+        assert_eq!(
+            log.header_events(),
+            &[HeaderEvent {
+                byte_offset: at as u64,
+                after_records: 2,
+                differs: vec!["max_tx_dbm"],
+                had_header: true,
+            }]
+        );
+        let w = log.warnings().join("\n");
+        assert!(
+            w.contains(&format!("two.hrlog: byte {at}: another header frame after 2 records with different max_tx_dbm: ignored (the first header applies)")),
+            "{w}"
+        );
+        // The same header repeated after the records is reported too.
+        let (mut bytes, _) = frames(Some(5.0), 2);
+        let (again, _) = frames(Some(5.0), 0);
+        bytes.extend_from_slice(&again);
+        let mut log = open_bytes("rep.hrlog", &bytes, &full()).expect("open");
+        all(&mut log);
+        assert!(log
+            .warnings()
+            .join("")
+            .contains("the header frame again, after 2 records (same fields)"));
+        // A header after records in a log that had none.
+        let (mut bytes, _) = frames(None, 1);
+        bytes.extend_from_slice(&again);
+        let mut log = open_bytes("late.hrlog", &bytes, &full()).expect("open");
+        all(&mut log);
+        assert!(log
+            .warnings()
+            .join("")
+            .contains("a header frame after 1 record, not at the start: ignored"));
+    }
+
+    #[test]
+    fn damage_detail_stays_bounded_on_a_worst_case() {
+        // 100 000 damaged regions: each a record frame with a flipped CRC
+        // byte, between intact frames.
+        let (clean, _) = frames(Some(5.0), 1);
+        let mut bytes = clean.clone();
+        let mut buf = [0u8; headroom::record::codec::MAX_FRAME];
+        let mut seq = 2u16;
+        for t in 0..100_000u64 {
+            let f = encode_frame(seq, &Frame::Record(rec(t)), &mut buf).expect("frame");
+            let n = f.len();
+            let mut bad = f.to_vec();
+            bad[n - 2] ^= 0x01;
+            if bad[n - 2] == 0 {
+                bad[n - 2] = 0x55;
+            }
+            bytes.extend_from_slice(&bad);
+            seq = seq.wrapping_add(1);
+            let f = encode_frame(seq, &Frame::Record(rec(t)), &mut buf).expect("frame");
+            bytes.extend_from_slice(f);
+            seq = seq.wrapping_add(1);
+        }
+        let mut log = open_bytes("worst.hrlog", &bytes, &ReadOptions::default()).expect("open");
+        let n = log.by_ref().filter(Result::is_ok).count();
+        assert_eq!(n, 100_001);
+        assert_eq!(log.damage().len(), DAMAGE_DETAIL);
+        let s = log.damage_summary();
+        assert_eq!(s.regions, 100_000);
+        assert_eq!(s.frames_lost, 100_000);
+        // By the fault of the first piece: a flip in the CRC, or in a COBS
+        // code byte; one entry per kind, the counts adding up.
+        assert!(s.by_kind.len() <= 2, "{:?}", s.by_kind);
+        assert_eq!(s.by_kind.iter().map(|(_, n)| n).sum::<u64>(), 100_000);
+        let w = log.warnings();
+        assert_eq!(w.len(), DAMAGE_DETAIL + 1, "{w:?}");
+        assert!(
+            w[DAMAGE_DETAIL].contains("100000 damaged regions in all"),
+            "{w:?}"
+        );
+    }
+
+    #[test]
+    fn standard_input_needs_a_named_format() {
+        let e = err(open_with(Path::new(STDIN), &ReadOptions::default()));
+        assert!(
+            e.contains("standard input: cannot tell the log format (name it with --from"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn file_names_with_control_characters_are_escaped() {
+        let e = err(open_bytes("a\x1b[2Jb.csv", b"", &full()));
+        assert!(e.contains("a\\u{1b}[2Jb.csv: empty log"), "{e}");
+    }
+
     #[test]
     fn a_writer_dropped_without_finish_leaves_no_file_and_no_temp() {
         for name in ["out.csv", "out.hrlog"] {
