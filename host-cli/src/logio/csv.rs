@@ -603,8 +603,8 @@ fn parse_header_line(text: &str, h: &mut LogHeader) -> Result<(), String> {
     let bad = |what: &str| {
         format!(
             "{}: '{}' is not {what}",
-            printable(key),
-            printable(&show(value.as_bytes()))
+            show(key.as_bytes()),
+            show(value.as_bytes())
         )
     };
     let float = || -> Result<Option<f32>, String> {
@@ -679,7 +679,7 @@ fn find_columns(
     let seen = || {
         names
             .iter()
-            .map(|c| printable(&show(unquote(c))))
+            .map(|c| show(unquote(c)))
             .collect::<Vec<_>>()
             .join(", ")
     };
@@ -749,14 +749,15 @@ fn unquote(cell: &[u8]) -> &[u8] {
     }
 }
 
-/// A cell for an error message: text, at most 40 characters.
+/// A cell for an error message: text, at most 40 characters, control
+/// characters escaped.
 fn show(cell: &[u8]) -> String {
     let s = String::from_utf8_lossy(cell);
     if s.chars().count() > 40 {
         let cut: String = s.chars().take(40).collect();
-        format!("{cut}...")
+        format!("{}...", printable(&cut))
     } else {
-        s.into_owned()
+        printable(&s)
     }
 }
 

@@ -1,40 +1,55 @@
 //! Reading and writing field logs, streaming, in constant memory.
 //!
-//! Two formats, told apart by the file name's extension (or chosen
-//! explicitly with [`open_as`] / [`create_as`]):
+//! Two formats, told apart by the file name's extension (or named with
+//! `--from` / [`ReadOptions::format`], [`create_as`]):
 //!
 //! - **CSV** (`.csv`): a header row naming the columns, in any order:
-//!   `t_ms` (required, whole milliseconds), `tx_dbm`, `rssi_dbm`,
-//!   `noise_dbm` (optional; an empty cell is a reading that was not logged).
-//!   Other columns are ignored. Lines starting with `#` are comments; a
-//!   comment block opening with `# headroom-log` before the header row
-//!   carries the [`LogHeader`] (`# device_id: 42`, `# max_tx_dbm: 14`, ...).
-//!   Numbers are decimal; `nan`, `inf` and `-inf` are read as those floats
-//!   so that the controller sees such readings and reports them as ignored.
-//!   Cells are not quoted (a surrounding pair of `"` is tolerated).
+//!   `t_ms` (whole milliseconds), `tx_dbm`, `rssi_dbm`, and `noise_dbm` or
+//!   `snr_db` (an empty cell is a reading that was not logged). A log with
+//!   an SNR and no noise floor is a full log: noise = RSSI − SNR, per row,
+//!   by [`headroom::record::noise_from_snr`]. Columns named otherwise are
+//!   mapped with `--column FIELD=NAME` ([`ColumnMap`]). Other columns are
+//!   ignored. Lines starting with `#` are comments; a comment block opening
+//!   with `# headroom-log` before the header row carries the [`LogHeader`]
+//!   (`# device_id: 42`, `# max_tx_dbm: 14`, ...). A UTF-8 byte-order mark
+//!   first is skipped. Numbers are decimal; `nan`, `inf` and `-inf` are
+//!   read as those floats so that the controller sees such readings and
+//!   reports them as ignored. Cells are not quoted (a surrounding pair of
+//!   `"` is tolerated).
 //! - **binary** (`.hrlog`): the framed format of `headroom::record::codec`
 //!   (see `docs/log-format.md`): COBS frames with CRC-32C, resynchronising at
 //!   the next `0x00` after damage.
 //!
+//! A command that reads logs flattens [`InputArgs`] into its arguments and
+//! opens each with [`open_with`]:
+//!
 //! ```ignore
-//! let mut log = logio::open(Path::new("field.csv"))?;
-//! let header = log.header().copied();
+//! let mut log = logio::open_with(Path::new("field.csv"), &args.input.options())?;
+//! let header = log.header().copied(); // and log.header_status()
 //! let mut out = logio::create(Path::new("field.hrlog"), false, header)?;
 //! for rec in &mut log {
 //!     out.write(&rec?)?;
 //! }
 //! out.finish()?; // fsync + rename into place; dropping `out` instead discards it
-//! for d in log.damage() {
-//!     eprintln!("{d}");
+//! for w in log.warnings() {
+//!     diag.warn(&w); // the reader prints nothing itself
 //! }
 //! ```
 //!
-//! Reading: each item is one record or an error naming the file and the
-//! line and column (CSV) or byte offset (binary). After a bad CSV row the
-//! next item is the next row; after an I/O error or a broken limit the
-//! stream ends. A damaged binary region is skipped and recorded in
-//! [`LogReader::damage`], unless [`LogReader::set_strict`] is on, which turns
-//! the first damage into an error item that ends the stream.
+//! Reading: the input (a file, `-` for standard input, a named pipe or
+//! another special file) is read once, front to back: the line of a CSV
+//! error is counted in the bytes already read. Each item is one record or
+//! an error naming the file and the line and column (CSV) or byte offset
+//! (binary). After a bad CSV row the next item is the next row; after an
+//! I/O error or a broken limit the stream ends. A damaged binary region is
+//! skipped and counted ([`LogReader::damage_summary`]; the first
+//! [`DAMAGE_DETAIL`] also in detail, [`LogReader::damage`]), unless
+//! [`ReadOptions::strict`], which turns the first damage into an error item
+//! that ends the stream and a lost or damaged header into an error at open
+//! ([`LogReader::header_status`] tells which without it). A header frame
+//! after the first one or after records is reported
+//! ([`LogReader::header_events`]), never applied. An empty log, or one of
+//! zero bytes only, is refused at open.
 //!
 //! Writing goes through [`crate::atomic::AtomicFile`]: a temporary file in
 //! the destination's directory that [`LogWriter::finish`] flushes, fsyncs
@@ -44,7 +59,12 @@
 //! Limits against hostile files: a CSV line is at most [`MAX_LINE`] bytes,
 //! the comment block before the header row at most [`MAX_PREAMBLE`] bytes; a
 //! binary frame is at most [`headroom::record::codec::MAX_FRAME`] bytes
-//! (longer runs are damage, not memory).
+//! (longer runs are damage, not memory). Memory per log read does not grow
+//! with its length nor with its damage: about 256 KiB of read buffer
+//! (binary) or 64 KiB of parser buffer plus two 64 KiB copies for line
+//! numbers (CSV), at most [`DAMAGE_DETAIL`] damaged regions and
+//! [`HEADER_EVENT_DETAIL`] header events in detail, and one counter per
+//! kind of damage.
 
 mod binary;
 mod csv;
@@ -713,6 +733,28 @@ mod tests {
                 assert_eq!(e.exit_code(), 2, "{e}");
                 e.to_string()
             }
+        }
+    }
+
+    #[test]
+    fn every_record_field_survives_csv_and_binary() {
+        // Every field set, without `..`: a field added to `LogRecord` must
+        // be set here, and then fails this test until both writers and
+        // readers carry it (see DEVELOPERS.md, "Adding a log field").
+        let r = LogRecord {
+            t_ms: 1_234_567,
+            tx_dbm: Some(13.5),
+            rssi_dbm: Some(-101.25),
+            noise_dbm: Some(-117.75),
+        };
+        for name in ["all.csv", "all.hrlog"] {
+            let dir = tempfile::tempdir().expect("temp dir");
+            let p = dir.path().join(name);
+            let mut w = create(&p, false, None).expect("create");
+            w.write(&r).expect("write");
+            w.finish().expect("finish");
+            let got = all(&mut open_with(&p, &full()).expect("open"));
+            assert_eq!(got, vec![r], "{name}");
         }
     }
 
