@@ -46,6 +46,8 @@ pub(super) struct BinaryReader {
     header_event_count: u64,
     frames: u64,
     records: u64,
+    /// Records with a `tx_dbm`, `rssi_dbm`, `noise_dbm`.
+    filled: [u64; 3],
     other: u64,
     strict: bool,
     /// Whether the damage found while opening was given as a strict error.
@@ -75,6 +77,7 @@ impl BinaryReader {
             header_event_count: 0,
             frames: 0,
             records: 0,
+            filled: [0; 3],
             other: 0,
             strict,
             strict_reported: false,
@@ -182,6 +185,15 @@ impl BinaryReader {
         }
         if self.done && self.records == 0 {
             out.push(format!("{name}: the log holds no record"));
+        } else if self.done {
+            for (n, f) in self.filled.iter().zip(["tx_dbm", "rssi_dbm", "noise_dbm"]) {
+                if *n == 0 {
+                    out.push(format!(
+                        "{name}: {f} is absent in all {} records",
+                        self.records
+                    ));
+                }
+            }
         }
         out
     }
@@ -290,6 +302,13 @@ impl BinaryReader {
                         }
                         Frame::Record(r) => {
                             self.records += 1;
+                            for (n, v) in
+                                self.filled
+                                    .iter_mut()
+                                    .zip([r.tx_dbm, r.rssi_dbm, r.noise_dbm])
+                            {
+                                *n += u64::from(v.is_some());
+                            }
                             return Some(Ok(r));
                         }
                         Frame::Decision(_) | Frame::Other { .. } => {

@@ -931,6 +931,20 @@ mod tests {
     }
 
     #[test]
+    fn a_binary_field_absent_in_every_record_is_a_warning() {
+        // `frames` writes records without a noise floor.
+        let (bytes, _) = frames(Some(5.0), 3);
+        let mut log = open_bytes("nn.hrlog", &bytes, &full()).expect("open");
+        assert_eq!(all(&mut log).len(), 3);
+        let w = log.warnings();
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(
+            w[0].ends_with("/nn.hrlog: noise_dbm is absent in all 3 records"),
+            "{w:?}"
+        );
+    }
+
+    #[test]
     fn empty_and_zero_logs_are_refused() {
         for (name, bytes, want) in [
             ("z.hrlog", vec![], "z.hrlog: empty log (0 bytes)"),
@@ -1103,7 +1117,8 @@ mod tests {
         assert!(s.by_kind.len() <= 2, "{:?}", s.by_kind);
         assert_eq!(s.by_kind.iter().map(|(_, n)| n).sum::<u64>(), 100_000);
         let w = log.warnings();
-        assert_eq!(w.len(), DAMAGE_DETAIL + 1, "{w:?}");
+        // The regions kept, the totals, and the reading these records lack.
+        assert_eq!(w.len(), DAMAGE_DETAIL + 2, "{w:?}");
         assert!(
             w[DAMAGE_DETAIL].contains("100000 damaged regions in all"),
             "{w:?}"
