@@ -77,7 +77,17 @@ struct LineLimit<R> {
     /// The last chunk passed on, and the one before.
     last: Chunk,
     before: Chunk,
+    /// Lines of `# headroom-log` blocks after the header row: the first
+    /// [`super::HEADER_EVENT_DETAIL`], and how many in all.
+    late_blocks: Vec<u64>,
+    late_block_count: u64,
+    /// The last bytes passed on (fewer than [`LATE_BLOCK`]), for a block
+    /// mark split between two chunks.
+    carry: Vec<u8>,
 }
+
+/// A header block's first line, after the newline that ends the line before.
+const LATE_BLOCK: &[u8] = b"\n# headroom-log";
 
 impl<R> LineLimit<R> {
     fn new(inner: R, lines: u64) -> Self {
@@ -89,6 +99,40 @@ impl<R> LineLimit<R> {
             passed: 0,
             last: Chunk::default(),
             before: Chunk::default(),
+            late_blocks: Vec::new(),
+            late_block_count: 0,
+            carry: Vec::new(),
+        }
+    }
+
+    /// Note the `# headroom-log` lines in `bytes`, about to be passed on
+    /// (the comment lines after the header row, which the CSV parser skips
+    /// without a word). `self.lines` is still the count before them.
+    fn find_late_blocks(&mut self, bytes: &[u8]) {
+        let keep = LATE_BLOCK.len() - 1;
+        // A mark split between the last chunk and this one.
+        let mut joined = std::mem::take(&mut self.carry);
+        let from_carry = joined.len();
+        joined.extend_from_slice(bytes.get(..keep.min(bytes.len())).unwrap_or(&[]));
+        if memchr::memmem::find(&joined, LATE_BLOCK).is_some_and(|i| i < from_carry) {
+            self.late_block(self.lines + 1);
+        }
+        for i in memchr::memmem::find_iter(bytes, LATE_BLOCK) {
+            let before = bytes.get(..=i).map_or(0, count_newlines);
+            self.late_block(self.lines + before + 1);
+        }
+        let tail = joined.len().saturating_sub(keep);
+        self.carry = if bytes.len() >= keep {
+            bytes.get(bytes.len() - keep..).unwrap_or(&[]).to_vec()
+        } else {
+            joined.get(tail..).unwrap_or(&[]).to_vec()
+        };
+    }
+
+    fn late_block(&mut self, line: u64) {
+        self.late_block_count += 1;
+        if self.late_blocks.len() < super::HEADER_EVENT_DETAIL {
+            self.late_blocks.push(line);
         }
     }
 
@@ -123,13 +167,16 @@ impl<R: Read> Read for LineLimit<R> {
         let scan = scan_lines(chunk, self.run);
         match scan.long_at {
             None => {
+                self.find_late_blocks(chunk);
                 self.keep(chunk, scan.newlines);
                 self.run = scan.run;
                 Ok(n)
             }
             Some(start) => {
                 let line = self.lines + scan.newlines + 1;
-                self.keep(chunk.get(..start).unwrap_or(&[]), scan.newlines);
+                let passed = chunk.get(..start).unwrap_or(&[]);
+                self.find_late_blocks(passed);
+                self.keep(passed, scan.newlines);
                 if start == 0 {
                     Err(too_long(line))
                 } else {
@@ -239,6 +286,8 @@ pub(super) struct CsvReader {
     filled: [u64; 4],
     /// Rows whose noise floor was computed from the SNR.
     noise_from_snr: u64,
+    /// Lines of further `# headroom-log` blocks before the header row.
+    late_blocks: Vec<u64>,
 }
 
 impl CsvReader {
@@ -310,6 +359,7 @@ impl CsvReader {
             rows: 0,
             filled: [0; 4],
             noise_from_snr: 0,
+            late_blocks: pre.late_blocks,
         })
     }
 
@@ -338,6 +388,24 @@ impl CsvReader {
                 "{name}: noise_dbm computed as rssi_dbm - snr_db in {} row{} (the log has no noise floor there)",
                 self.noise_from_snr,
                 plural(self.noise_from_snr)
+            ));
+        }
+        for line in &self.late_blocks {
+            out.push(format!(
+                "{name}:{line}: a '# {MAGIC}' block after the first: ignored (the first header applies)"
+            ));
+        }
+        let limit = self.rdr.get_ref();
+        for line in &limit.late_blocks {
+            out.push(format!(
+                "{name}:{line}: a '# {MAGIC}' block after the header row: ignored (the header before the rows applies)"
+            ));
+        }
+        let listed = self.late_blocks.len() + limit.late_blocks.len();
+        let total = self.late_blocks.len() as u64 + limit.late_block_count;
+        if total > listed as u64 {
+            out.push(format!(
+                "{name}: {total} '# {MAGIC}' blocks after the first in all (the first {listed} shown)"
             ));
         }
         if self.done {
@@ -522,6 +590,9 @@ struct Preamble {
     status: HeaderStatus,
     /// Lines read.
     lines: u64,
+    /// Lines of `# headroom-log` blocks after the first (at most
+    /// [`super::HEADER_EVENT_DETAIL`]: the preamble is short).
+    late_blocks: Vec<u64>,
 }
 
 /// Read the `#` comment lines before the header row; parse a header block.
@@ -530,6 +601,8 @@ struct Preamble {
 fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Preamble> {
     let mut header: Option<LogHeader> = None;
     let mut status = HeaderStatus::Absent;
+    let mut late_blocks = Vec::new();
+    let mut in_block = false;
     let mut lines = 0u64;
     let mut total = 0usize;
     let mut line = Vec::with_capacity(128);
@@ -560,23 +633,33 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
         }
         let text = String::from_utf8_lossy(&line);
         let text = text.trim_start_matches('#').trim();
-        if lines == 1 {
-            if let Some(rest) = text.strip_prefix(MAGIC) {
-                let version = rest.trim();
-                if let Some(major) = version.split('.').next().filter(|m| !m.is_empty()) {
-                    if major != "1" {
-                        return Err(CliError::Input(format!(
-                            "{name}:1: {MAGIC} version {} is not supported (this build reads 1.x)",
-                            printable(version)
-                        )));
-                    }
+        if let Some(rest) = text
+            .strip_prefix(MAGIC)
+            .filter(|r| r.is_empty() || r.starts_with(char::is_whitespace))
+        {
+            if header.is_some() {
+                // A second block: its lines are not read into the first.
+                if late_blocks.len() < super::HEADER_EVENT_DETAIL {
+                    late_blocks.push(lines);
                 }
-                header = Some(LogHeader::default());
-                status = HeaderStatus::Present;
+                in_block = false;
+                continue;
             }
+            let version = rest.trim();
+            if let Some(major) = version.split('.').next().filter(|m| !m.is_empty()) {
+                if major != "1" {
+                    return Err(CliError::Input(format!(
+                        "{name}:{lines}: {MAGIC} version {} is not supported (this build reads 1.x)",
+                        printable(version)
+                    )));
+                }
+            }
+            header = Some(LogHeader::default());
+            status = HeaderStatus::Present;
+            in_block = true;
             continue;
         }
-        if let Some(h) = header.as_mut() {
+        if let (Some(h), true) = (header.as_mut(), in_block) {
             if let Err(why) = parse_header_line(text, h) {
                 if matches!(status, HeaderStatus::Present) {
                     status = HeaderStatus::Damaged {
@@ -590,6 +673,7 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
         header,
         status,
         lines,
+        late_blocks,
     })
 }
 
@@ -1061,6 +1145,36 @@ mod tests {
         let mut r = LineLimit::new(&ok[..], 0);
         let mut sink = Vec::new();
         assert_eq!(r.read_to_end(&mut sink).unwrap(), MAX_LINE + 1);
+    }
+
+    #[test]
+    fn late_header_blocks_are_found_in_any_chunking() {
+        let mut text = b"t_ms,tx_dbm\n".to_vec();
+        for i in 0..500 {
+            text.extend_from_slice(format!("{i},1\n").as_bytes());
+            if i % 100 == 99 {
+                text.extend_from_slice(b"# headroom-log 1.1\n# max_tx_dbm: 20\n");
+            }
+        }
+        // Lines of the blocks: 1 header row, then 100 rows and 2 lines each.
+        let want: Vec<u64> = (0..5u64).map(|k| 2 + 100 * (k + 1) + 2 * k).collect();
+        struct Trickle<'a>(&'a [u8], usize);
+        impl Read for Trickle<'_> {
+            fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+                let n = self.1.min(buf.len()).min(self.0.len());
+                buf[..n].copy_from_slice(&self.0[..n]);
+                self.0 = &self.0[n..];
+                Ok(n)
+            }
+        }
+        for chunk in [1usize, 2, 5, 7, 13, 14, 15, 16, 64, 4096] {
+            let mut r = LineLimit::new(Trickle(&text, chunk), 0);
+            let mut sink = Vec::new();
+            r.read_to_end(&mut sink).unwrap();
+            assert_eq!(sink, text);
+            assert_eq!(r.late_blocks, want, "chunk {chunk}");
+            assert_eq!(r.late_block_count, 5);
+        }
     }
 
     #[test]

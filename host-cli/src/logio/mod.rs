@@ -945,6 +945,28 @@ mod tests {
     }
 
     #[test]
+    fn csv_header_blocks_after_the_first_are_reported() {
+        let text = "# exported by the gateway\n# headroom-log 1.1\n# max_tx_dbm: 5\n\
+                    # headroom-log 1.1\n# max_tx_dbm: 20\n\
+                    t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,5,-90,-120\n\
+                    # headroom-log 1.1\n# max_tx_dbm: 30\n1,5,-90,-120\n";
+        let mut log = open_bytes("b.csv", text.as_bytes(), &full()).expect("open");
+        // The block may follow free comment lines; only the first applies.
+        assert_eq!(log.header_status(), &HeaderStatus::Present);
+        assert_eq!(log.header().and_then(|h| h.max_tx), Some(Dbm(5.0)));
+        assert_eq!(all(&mut log).len(), 2);
+        let w = log.warnings().join("\n");
+        assert!(
+            w.contains("b.csv:4: a '# headroom-log' block after the first: ignored"),
+            "{w}"
+        );
+        assert!(
+            w.contains("b.csv:8: a '# headroom-log' block after the header row: ignored"),
+            "{w}"
+        );
+    }
+
+    #[test]
     fn empty_and_zero_logs_are_refused() {
         for (name, bytes, want) in [
             ("z.hrlog", vec![], "z.hrlog: empty log (0 bytes)"),
