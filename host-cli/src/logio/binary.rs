@@ -54,6 +54,8 @@ pub(super) struct BinaryReader {
     strict_reported: bool,
     /// A record read while opening (a log without a header frame).
     first: Option<LogRecord>,
+    /// Whether the stream ended at a header of another major version.
+    refused_version: bool,
 }
 
 impl BinaryReader {
@@ -82,10 +84,11 @@ impl BinaryReader {
             strict,
             strict_reported: false,
             first: None,
+            refused_version: false,
         };
         // Read up to the first intact frame, to know the header.
         let first = match r.next_inner(true) {
-            Some(Err(e)) if strict && r.frames == 0 => {
+            Some(Err(e)) if strict && r.frames == 0 && !r.refused_version => {
                 // Damage before any intact frame: where the header is.
                 return Err(CliError::Input(format!(
                     "{e} (the header frame is lost or damaged: --strict reads a log only with its header)"
@@ -252,6 +255,7 @@ impl BinaryReader {
                 Some(Event::Damaged { offset, len, error }) => {
                     if let CodecError::UnknownVersion { .. } = error {
                         self.done = true;
+                        self.refused_version = true;
                         return Some(Err(CliError::Input(format!(
                             "{}: byte {offset}: {error}",
                             self.name

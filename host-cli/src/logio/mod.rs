@@ -103,7 +103,7 @@ impl LogFormat {
             Some(e) if e.eq_ignore_ascii_case(BINARY_EXT) => Ok(LogFormat::Binary),
             _ => Err(CliError::Input(format!(
                 "{}: cannot tell the log format from the file name (use .csv or .{BINARY_EXT}, or name the format)",
-                path.display()
+                printable(&path.display().to_string())
             ))),
         }
     }
@@ -1058,6 +1058,38 @@ mod tests {
         for bytes in [&bad[..], &good[ends[0]..]] {
             let e = err(open_bytes("s.hrlog", bytes, &strict));
             assert!(e.contains("header") && e.contains("--strict"), "{e}");
+        }
+    }
+
+    #[test]
+    fn a_newer_major_version_is_named_as_such_even_when_strict() {
+        // A header frame of version 2.0, sealed by hand: kind, seq, magic,
+        // 2, 0, two zero varints and four absent options, CRC-32C, COBS
+        // (every block shorter than 254 bytes: one code byte per zero).
+        let mut p = vec![0u8, 0, 0, b'h', b'r', b'l', b'g', 2, 0, 0, 0, 0, 0, 0, 0];
+        let crc = headroom::record::crc::crc32c(&p);
+        p.extend_from_slice(&crc.to_le_bytes());
+        let mut wire = Vec::new();
+        for block in p.split(|&b| b == 0) {
+            wire.push(block.len() as u8 + 1);
+            wire.extend_from_slice(block);
+        }
+        wire.push(0);
+        for opts in [
+            full(),
+            ReadOptions {
+                strict: true,
+                ..full()
+            },
+        ] {
+            let e = err(open_bytes("v2.hrlog", &wire, &opts));
+            assert!(
+                e.contains(
+                    "byte 0: log format version 2.0 is not supported (this build reads 1.x)"
+                ),
+                "{e}"
+            );
+            assert!(!e.contains("lost or damaged"), "{e}");
         }
     }
 
