@@ -650,7 +650,7 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
                 if major != "1" {
                     return Err(CliError::Input(format!(
                         "{name}:{lines}: {MAGIC} version {} is not supported (this build reads 1.x)",
-                        printable(version)
+                        show(version.as_bytes())
                     )));
                 }
             }
@@ -761,11 +761,15 @@ fn find_columns(
         }
     }
     let seen = || {
-        names
+        let mut shown: Vec<String> = names
             .iter()
+            .take(SHOWN_CELLS)
             .map(|c| show(unquote(c)))
-            .collect::<Vec<_>>()
-            .join(", ")
+            .collect();
+        if names.len() > SHOWN_CELLS {
+            shown.push(format!("and {} more", names.len() - SHOWN_CELLS));
+        }
+        shown.join(", ")
     };
     let missing = |fields: &[Field]| {
         let want: Vec<String> = fields
@@ -834,16 +838,23 @@ fn unquote(cell: &[u8]) -> &[u8] {
 }
 
 /// A cell for an error message: text, at most 40 characters, control
-/// characters escaped.
+/// characters escaped (and at most 80 characters once escaped).
 fn show(cell: &[u8]) -> String {
     let s = String::from_utf8_lossy(cell);
-    if s.chars().count() > 40 {
-        let cut: String = s.chars().take(40).collect();
-        format!("{}...", printable(&cut))
-    } else {
-        printable(&s)
+    let cut: String = s.chars().take(40).collect();
+    let mut out = printable(&cut);
+    let long = cut.len() < s.len();
+    if out.chars().count() > 80 {
+        out = out.chars().take(80).collect();
+        out.push_str("...");
+    } else if long {
+        out.push_str("...");
     }
+    out
 }
+
+/// Header-row cells named in a message: the first 10, then how many more.
+const SHOWN_CELLS: usize = 10;
 
 /// A whole number of digits, no sign; `None` if not or if it overflows.
 pub(super) fn parse_u64(s: &[u8]) -> Option<u64> {

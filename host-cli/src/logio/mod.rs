@@ -1189,6 +1189,27 @@ mod tests {
     }
 
     #[test]
+    fn messages_stay_short_whatever_the_header_row() {
+        // Found by fuzzing (kept in fuzz/regressions/csv_log/): a header row
+        // of many cells full of control characters made a 2 KB message.
+        let mut row = Vec::new();
+        for _ in 0..60 {
+            row.extend_from_slice(&[0x1b; 60]);
+            row.push(b',');
+        }
+        row.extend_from_slice(b"t_ms\n1\n");
+        let e = err(open_bytes("wide.csv", &row, &full()));
+        assert!(e.len() < 1200, "{} bytes: {e}", e.len());
+        assert!(e.contains("and 51 more"), "{e}");
+        assert!(!e.chars().any(char::is_control), "{e}");
+        let mut v = b"# headroom-log 2".to_vec();
+        v.extend_from_slice(&[0x1b; 3000]);
+        v.extend_from_slice(b"\nt_ms\n");
+        let e = err(open_bytes("v.csv", &v, &full()));
+        assert!(e.len() < 300, "{} bytes: {e}", e.len());
+    }
+
+    #[test]
     fn file_names_with_control_characters_are_escaped() {
         let e = err(open_bytes("a\x1b[2Jb.csv", b"", &full()));
         assert!(e.contains("a\\u{1b}[2Jb.csv: empty log"), "{e}");

@@ -95,39 +95,53 @@ pub(super) fn decode(src: &[u8], dst: &mut [u8]) -> Result<usize, CodecError> {
     let n = src.len().saturating_sub(1);
     let out = dst.get_mut(..n).ok_or(CodecError::FrameTooLong)?;
     out.copy_from_slice(src.get(1..).unwrap_or(&[]));
-    let mut prev = match src.first() {
+    let first = match src.first() {
         Some(&0) => return Err(CodecError::Cobs),
         Some(&c) => c,
         None => return Ok(0),
     };
-    let mut i = usize::from(prev);
-    // Code bytes removed so far: the byte at `src[j]` (after them) is at
-    // `out[j - 1 - removed]`.
-    let mut removed = 0usize;
+    let mut i = usize::from(first);
+    // `src[j]` (after the code bytes removed so far) is at `out[j - base]`.
+    let mut base = 1usize;
+    // Whether the block before `src[i]` was full (code 0xFF): then the code
+    // byte at `i` stands for no zero and is removed.
+    let mut full = first == 0xFF;
+    if !full {
+        // Every frame of this format: each code byte becomes the 0x00 it
+        // stands for, until a code 0 or 0xFF (`i >= 1` here).
+        while let Some(&code) = src.get(i) {
+            if code.wrapping_sub(1) >= 0xFE {
+                break;
+            }
+            *out.get_mut(i - 1).ok_or(CodecError::Cobs)? = 0;
+            i += usize::from(code);
+        }
+    }
+    // The rest, from a code 0 (not COBS) or the first full block on.
     while let Some(&code) = src.get(i) {
         if code == 0 {
             return Err(CodecError::Cobs);
         }
-        // i >= 1 here, and removed < i (each removal follows a block of 254).
-        let at = i.checked_sub(1 + removed).ok_or(CodecError::Cobs)?;
-        if prev == 0xFF {
-            // Move the rest one byte to the front, over the code byte (a
-            // loop of checked accesses: no panic path for the firmware).
-            for k in at..n.saturating_sub(removed + 1) {
+        // `i >= base`: each code byte removed follows a block of 254 bytes.
+        let at = i.wrapping_sub(base);
+        if full {
+            // Move the rest one byte to the front, over the code byte
+            // (checked accesses: no panic path for the firmware).
+            for k in at..n.saturating_sub(base) {
                 let next = out.get(k + 1).copied().unwrap_or(0);
                 if let Some(slot) = out.get_mut(k) {
                     *slot = next;
                 }
             }
-            removed += 1;
+            base += 1;
         } else {
             *out.get_mut(at).ok_or(CodecError::Cobs)? = 0;
         }
-        prev = code;
+        full = code == 0xFF;
         i += usize::from(code);
     }
     if i == src.len() {
-        Ok(n.saturating_sub(removed))
+        Ok((n + 1).saturating_sub(base))
     } else {
         Err(CodecError::Cobs)
     }
