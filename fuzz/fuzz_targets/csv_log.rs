@@ -2,5 +2,5 @@
 #![no_main]
 
 libfuzzer_sys::fuzz_target!(|data: &[u8]| {
-    headroom_fuzz::cli::csv_log_with(data, true);
+    headroom_fuzz::cli::csv_log(data);
 });

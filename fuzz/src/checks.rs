@@ -223,8 +223,8 @@ fn raw_stream(b: &mut Bytes<'_>) {
     // Every piece through the one-frame decoder; what decodes must encode
     // again to bytes that decode to the same thing.
     for piece in stream.split(|&x| x == 0) {
-        let mut p = piece.to_vec();
-        if let Ok(d) = decode_frame(&mut p) {
+        let p = piece.to_vec();
+        if let Ok(d) = decode_frame(&p) {
             check_reencode(&d);
         }
     }
@@ -253,8 +253,8 @@ fn check_reencode(d: &Decoded) {
         !body.contains(&0),
         "an encoded frame holds no 0x00 before its end"
     );
-    let mut p = body.to_vec();
-    match decode_frame(&mut p) {
+    let p = body.to_vec();
+    match decode_frame(&p) {
         Ok(d2) => {
             assert_eq!(d2.seq, d.seq);
             assert_eq!(

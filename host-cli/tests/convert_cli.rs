@@ -249,7 +249,7 @@ fn csv_input_errors_are_clear() {
             "2: column t_ms: '1.5' is not a whole number of milliseconds",
         ),
         ("t_ms,rssi_dbm\n,2\n", "2: column t_ms: empty"),
-        ("", "no header row"),
+        ("", "empty log (0 bytes)"),
         ("t_ms,t_ms\n1,2\n", "1: column t_ms appears twice"),
     ];
     for (i, (text, want)) in cases.iter().enumerate() {
@@ -376,5 +376,246 @@ fn not_a_log_is_damage_not_a_crash() {
     assert_eq!(
         std::fs::read_to_string(&c).unwrap(),
         "t_ms,tx_dbm,rssi_dbm,noise_dbm\n"
+    );
+}
+
+/// Wait for `child` at most `limit` (a harness timeout: the child is killed
+/// and the test fails if it hangs); its output.
+fn wait_or_kill(mut child: std::process::Child, limit: std::time::Duration) -> Output {
+    let start = std::time::Instant::now();
+    loop {
+        match child.try_wait().unwrap() {
+            Some(_) => return child.wait_with_output().unwrap(),
+            None if start.elapsed() > limit => {
+                let _ = child.kill();
+                let out = child.wait_with_output().unwrap();
+                panic!("headroom hung; stderr: {}", stderr(&out));
+            }
+            None => std::thread::sleep(std::time::Duration::from_millis(20)),
+        }
+    }
+}
+
+/// A CSV log of `n` rows with a header block.
+fn csv_rows(n: u64) -> String {
+    let mut text =
+        String::from("# headroom-log 1.1\n# max_tx_dbm: 5\nt_ms,tx_dbm,rssi_dbm,snr_db\n");
+    for i in 0..n {
+        text.push_str(&format!(
+            "{},{},{},{}\n",
+            i * 250,
+            5,
+            -100 - (i % 7) as i64,
+            3
+        ));
+    }
+    text
+}
+
+#[cfg(unix)]
+#[test]
+fn a_named_pipe_loses_no_row_and_does_not_hang() {
+    use std::io::Write as _;
+    let dir = tempfile::tempdir().unwrap();
+    let fifo = dir.path().join("live.csv");
+    let made = Command::new("mkfifo").arg(&fifo).status().unwrap();
+    assert!(made.success());
+    let out = dir.path().join("live.hrlog");
+    let back = dir.path().join("back.csv");
+    let n = 60_000;
+    let text = csv_rows(n);
+    let child = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .arg("convert")
+        .arg(&fifo)
+        .arg(&out)
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let writer = {
+        let fifo = fifo.clone();
+        std::thread::spawn(move || {
+            let mut f = std::fs::OpenOptions::new().write(true).open(&fifo).unwrap();
+            // In pieces, so that the reader sees partial lines.
+            for part in text.as_bytes().chunks(7_919) {
+                f.write_all(part).unwrap();
+            }
+        })
+    };
+    let o = wait_or_kill(child, std::time::Duration::from_secs(120));
+    writer.join().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains(&format!("converted {n} record(s)")),
+        "{}",
+        stderr(&o)
+    );
+    // Every row, the header block and the noise floor from the SNR.
+    let o = headroom(&[&out, &back]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(&back).unwrap();
+    assert!(csv.contains("# max_tx_dbm: 5\n"), "{csv}");
+    assert_eq!(
+        csv.lines().filter(|l| !l.starts_with('#')).count() as u64,
+        n + 1
+    );
+    assert!(
+        csv.contains(&format!("\n{},5,-100,-103\n", 7 * 250)),
+        "{csv}"
+    );
+}
+
+#[cfg(unix)]
+#[test]
+fn a_named_pipe_with_a_bad_row_names_its_line() {
+    // The line of an error comes from the bytes already read: the pipe is
+    // not opened a second time (which hung, or ate rows).
+    use std::io::Write as _;
+    let dir = tempfile::tempdir().unwrap();
+    let fifo = dir.path().join("bad.csv");
+    assert!(Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .unwrap()
+        .success());
+    let out = dir.path().join("bad.hrlog");
+    let mut text = csv_rows(20_000);
+    text.push_str("5000001,5,abc,3\n");
+    let child = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .arg("convert")
+        .arg(&fifo)
+        .arg(&out)
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let writer = {
+        let fifo = fifo.clone();
+        std::thread::spawn(move || {
+            let mut f = std::fs::OpenOptions::new().write(true).open(&fifo).unwrap();
+            // The reader stops at the bad row; a closed pipe is fine here.
+            let _ = f.write_all(text.as_bytes());
+        })
+    };
+    let o = wait_or_kill(child, std::time::Duration::from_secs(120));
+    writer.join().unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("bad.csv:20004: column rssi_dbm: 'abc' is not a number"),
+        "{}",
+        stderr(&o)
+    );
+}
+
+#[test]
+fn standard_input_with_from() {
+    use std::io::Write as _;
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("in.csv");
+    let run = |flags: &[&str]| {
+        let mut child = Command::new(env!("CARGO_BIN_EXE_headroom"))
+            .arg("convert")
+            .arg("-")
+            .arg(&out)
+            .args(flags)
+            .stdin(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut stdin = child.stdin.take().unwrap();
+        let _ = stdin.write_all(csv_rows(3).as_bytes());
+        drop(stdin);
+        wait_or_kill(child, std::time::Duration::from_secs(60))
+    };
+    let o = run(&[]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("standard input: cannot tell the log format (name it with --from"),
+        "{}",
+        stderr(&o)
+    );
+    let o = run(&["--from", "csv"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(&out).unwrap();
+    assert!(
+        csv.ends_with(
+            "t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,5,-100,-103\n250,5,-101,-104\n500,5,-102,-105\n"
+        ),
+        "{csv}"
+    );
+}
+
+#[test]
+fn columns_named_otherwise_bom_and_warnings() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("dev.csv");
+    let b = dir.path().join("dev.hrlog");
+    let c = dir.path().join("back.csv");
+    let mut text = b"\xEF\xBB\xBF# headroom-log 1.1\n# max_tx_dbm: 5\n".to_vec();
+    text.extend_from_slice(b"ms,Power,RSSI,SNR,noise_dbm\n0,5,-90,-10,\n1,5,-91,-11,\n");
+    std::fs::write(&a, &text).unwrap();
+    let o = headroom_flags(
+        &[&a, &b],
+        &[
+            "--column",
+            "t_ms=ms",
+            "--column",
+            "tx_dbm=power",
+            "--column",
+            "rssi_dbm=rssi",
+            "--column",
+            "snr_db=snr",
+        ],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let err = stderr(&o);
+    // The SNR use and the empty column are said, not silent.
+    assert!(
+        err.contains("noise_dbm computed as rssi_dbm - snr_db in 2 rows"),
+        "{err}"
+    );
+    assert!(
+        err.contains("column noise_dbm (noise_dbm) is empty in all 2 rows"),
+        "{err}"
+    );
+    assert!(headroom(&[&b, &c]).status.success());
+    assert_eq!(
+        std::fs::read_to_string(&c).unwrap(),
+        "# headroom-log 1.1\n# device_id: 0\n# epoch_ms: 0\n# max_tx_dbm: 5\n\
+         t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,5,-90,-80\n1,5,-91,-80\n"
+    );
+    // An unknown field is refused by the argument parser, naming the fields.
+    let o = headroom_flags(&[&a, &b], &["--column", "rssi=RSSI", "--force"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains(
+            "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db)"
+        ),
+        "{}",
+        stderr(&o)
+    );
+}
+
+#[test]
+fn a_late_header_is_reported_by_convert() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("two.hrlog");
+    let c = dir.path().join("two.csv");
+    let (mut bytes, _) = engine_log(&a, 20);
+    let mut enc = Encoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let other = LogHeader {
+        max_tx: Some(Dbm(20.0)),
+        ..LogHeader::default()
+    };
+    let at = bytes.len();
+    bytes.extend_from_slice(enc.header(&other, &mut buf).unwrap());
+    std::fs::write(&a, &bytes).unwrap();
+    let o = headroom(&[&a, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains(&format!(
+            "two.hrlog: byte {at}: another header frame after 20 records with different device_id, epoch_ms, min_tx_dbm, max_tx_dbm, tx_step_db, antenna_gain_dbi, required_snr_db, eirp_cap_dbm: ignored (the first header applies)"
+        )),
+        "{}",
+        stderr(&o)
     );
 }

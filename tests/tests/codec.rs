@@ -168,8 +168,8 @@ fn every_kind_round_trips() {
             "only the delimiter is 0x00"
         );
         assert!(wire.len() <= MAX_FRAME);
-        let mut body = wire[..wire.len() - 1].to_vec();
-        assert_eq!(decode_frame(&mut body), Ok(Decoded { seq, frame: *f }));
+        let body = wire[..wire.len() - 1].to_vec();
+        assert_eq!(decode_frame(&body), Ok(Decoded { seq, frame: *f }));
     }
 }
 
@@ -229,9 +229,9 @@ fn a_newer_major_version_is_refused() {
     let n = payload.len();
     let crc = crc32c(&payload[..n - 4]);
     payload[n - 4..].copy_from_slice(&crc.to_le_bytes());
-    let mut again = cobs_encode_for_test(&payload);
+    let again = cobs_encode_for_test(&payload);
     assert_eq!(
-        decode_frame(&mut again),
+        decode_frame(&again),
         Err(CodecError::UnknownVersion {
             major: 2,
             minor: VERSION.minor
@@ -244,8 +244,8 @@ fn a_newer_major_version_is_refused() {
     payload.push(0x2A);
     let crc = crc32c(&payload);
     payload.extend_from_slice(&crc.to_le_bytes());
-    let mut again = cobs_encode_for_test(&payload);
-    match decode_frame(&mut again) {
+    let again = cobs_encode_for_test(&payload);
+    match decode_frame(&again) {
         Ok(Decoded {
             frame: Frame::Header { header: h, version },
             ..
@@ -254,6 +254,118 @@ fn a_newer_major_version_is_refused() {
             assert_eq!(version.minor, VERSION.minor + 1);
         }
         other => panic!("{other:?}"),
+    }
+}
+
+/// A header payload written byte by byte from `docs/log-format.md`: kind 0,
+/// seq 0, magic, `1.minor`, device id 42, epoch 1500 ms (`dc 0b`), min tx
+/// 2 dBm, max tx 14 dBm, no step, antenna gain 2.15 dBi; then `tail` (the
+/// 1.1 fields, or nothing for 1.0), sealed with its CRC and COBS.
+fn hand_made_header(minor: u8, tail: &[u8]) -> Vec<u8> {
+    let mut p = vec![0u8, 0, 0];
+    p.extend_from_slice(b"hrlg");
+    p.extend_from_slice(&[1, minor, 42, 0xdc, 0x0b]);
+    for v in [Some(2.0f32), Some(14.0), None, Some(2.15)] {
+        match v {
+            Some(x) => {
+                p.push(1);
+                p.extend_from_slice(&x.to_le_bytes());
+            }
+            None => p.push(0),
+        }
+    }
+    p.extend_from_slice(tail);
+    let crc = crc32c(&p);
+    p.extend_from_slice(&crc.to_le_bytes());
+    cobs_encode_for_test(&p)
+}
+
+#[test]
+fn a_1_0_header_has_no_required_snr_nor_cap_and_a_1_1_header_has_both() {
+    let base = LogHeader {
+        device_id: 42,
+        epoch_ms: 1500,
+        min_tx: Some(Dbm(2.0)),
+        max_tx: Some(Dbm(14.0)),
+        tx_step: None,
+        antenna_gain: Some(Dbi(2.15)),
+        required_snr: None,
+        eirp_cap: None,
+    };
+    // 1.0: the header ends after the antenna gain.
+    assert_eq!(
+        decode_frame(&hand_made_header(0, &[])),
+        Ok(Decoded {
+            seq: 0,
+            frame: Frame::Header {
+                header: base,
+                version: headroom::record::codec::Version { major: 1, minor: 0 },
+            }
+        })
+    );
+    // 1.1: required SNR -15 dB, EIRP cap 16.15 dBm appended.
+    let mut tail = vec![1u8];
+    tail.extend_from_slice(&(-15.0f32).to_le_bytes());
+    tail.push(1);
+    tail.extend_from_slice(&16.15f32.to_le_bytes());
+    let want = LogHeader {
+        required_snr: Some(Db(-15.0)),
+        eirp_cap: Some(Dbm(16.15)),
+        ..base
+    };
+    assert_eq!(
+        decode_frame(&hand_made_header(1, &tail)),
+        Ok(Decoded {
+            seq: 0,
+            frame: Frame::Header {
+                header: want,
+                version: VERSION,
+            }
+        })
+    );
+    // And the encoder writes exactly those bytes for that header.
+    let mut buf = [0u8; MAX_FRAME];
+    let wire = encode_frame(
+        0,
+        &Frame::Header {
+            header: want,
+            version: VERSION,
+        },
+        &mut buf,
+    )
+    .unwrap();
+    assert_eq!(&wire[..wire.len() - 1], &hand_made_header(1, &tail)[..]);
+}
+
+#[test]
+fn the_documented_empty_headers_decode_and_the_1_1_one_is_what_the_encoder_writes() {
+    // docs/log-format.md, "Worked example" (CRC-32C computed with a
+    // bit-by-bit implementation of the Castagnoli polynomial, outside the
+    // project).
+    let v11: [u8; 23] = [
+        0x01, 0x01, 0x01, 0x07, 0x68, 0x72, 0x6c, 0x67, 0x01, 0x01, 0x01, 0x01, 0x01, 0x01, 0x01,
+        0x01, 0x01, 0x05, 0xd2, 0xf8, 0x07, 0xf0, 0x00,
+    ];
+    let v10: [u8; 21] = [
+        0x01, 0x01, 0x01, 0x06, 0x68, 0x72, 0x6c, 0x67, 0x01, 0x01, 0x01, 0x01, 0x01, 0x01, 0x01,
+        0x05, 0x4a, 0x52, 0x3e, 0xc6, 0x00,
+    ];
+    let mut buf = [0u8; MAX_FRAME];
+    let wire = Encoder::new()
+        .header(&LogHeader::default(), &mut buf)
+        .unwrap();
+    assert_eq!(wire, &v11[..]);
+    for (bytes, minor) in [(&v11[..], 1u8), (&v10[..], 0)] {
+        match decode_frame(&bytes[..bytes.len() - 1]) {
+            Ok(Decoded {
+                seq: 0,
+                frame: Frame::Header { header, version },
+            }) => {
+                assert_eq!(header, LogHeader::default());
+                assert_eq!((version.major, version.minor), (1, minor));
+            }
+            other => panic!("{other:?}"),
+        }
     }
 }
 
@@ -449,8 +561,8 @@ proptest! {
         for r in &recs {
             let f = enc.record(r, &mut buf).unwrap();
             // Each frame alone, decoded in place.
-            let mut one = f[..f.len() - 1].to_vec();
-            match decode_frame(&mut one) {
+            let one = f[..f.len() - 1].to_vec();
+            match decode_frame(&one) {
                 Ok(Decoded { frame: Frame::Record(got), .. }) => prop_assert!(same_bits(r, &got)),
                 other => prop_assert!(false, "{other:?}"),
             }
@@ -474,8 +586,8 @@ proptest! {
         let d = DecisionRecord { t_ms: t, tx_dbm: f32::from_bits(tx), outcome: o, reason: why };
         let mut buf = [0u8; MAX_FRAME];
         let f = encode_frame(seq, &Frame::Decision(d), &mut buf).unwrap().to_vec();
-        let mut one = f[..f.len() - 1].to_vec();
-        match decode_frame(&mut one) {
+        let one = f[..f.len() - 1].to_vec();
+        match decode_frame(&one) {
             Ok(Decoded { seq: s, frame: Frame::Decision(got) }) => {
                 prop_assert_eq!(s, seq);
                 prop_assert_eq!((got.t_ms, got.tx_dbm.to_bits(), got.outcome, got.reason), (t, tx, o, why));
@@ -498,8 +610,8 @@ proptest! {
             prop_assert!(off + len <= bytes.len() as u64);
             at = off + len;
         }
-        let mut copy = bytes.clone();
-        let _ = decode_frame(&mut copy);
+        let copy = bytes.clone();
+        let _ = decode_frame(&copy);
     }
 
     #[test]

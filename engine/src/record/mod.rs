@@ -20,6 +20,18 @@ pub mod crc;
 #[cfg(feature = "serde")]
 pub mod codec;
 
+/// The noise floor, dBm, of a packet logged with its RSSI and SNR instead:
+/// SNR = signal − noise in dB, so noise = RSSI − SNR (common practice). It
+/// takes the RSSI as the signal's power; a radio whose RSSI includes the
+/// noise reads a noise floor up to 3 dB high at an SNR of 0 dB, more below.
+///
+/// ```
+/// assert_eq!(headroom::record::noise_from_snr(-100.0, 7.5), -107.5);
+/// ```
+pub fn noise_from_snr(rssi_dbm: f32, snr_db: f32) -> f32 {
+    rssi_dbm - snr_db
+}
+
 /// One logged packet. `None` is a reading that was not logged (an empty CSV
 /// cell): such a record cannot be judged by a replay.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]

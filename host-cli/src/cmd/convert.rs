@@ -8,23 +8,20 @@ use crate::logio::{self, LogFormat};
 /// Arguments of `headroom convert`.
 #[derive(clap::Args)]
 pub struct Args {
-    /// Log to read (`.csv` or `.hrlog`; see --from).
+    /// Log to read (`.csv` or `.hrlog`, `-` for standard input; see
+    /// --from).
     pub input: PathBuf,
     /// Log to write (`.csv` or `.hrlog`; see --to).
     pub output: PathBuf,
     /// Format of the output, if its file name does not tell.
     #[arg(long, value_enum)]
     pub to: Option<LogFormat>,
-    /// Format of the input, if its file name does not tell.
-    #[arg(long, value_enum)]
-    pub from: Option<LogFormat>,
     /// Replace the output if it exists.
     #[arg(long)]
     pub force: bool,
-    /// Fail on the first damaged region of a binary input instead of
-    /// skipping it.
-    #[arg(long)]
-    pub strict: bool,
+    /// How to read the input.
+    #[command(flatten)]
+    pub read: logio::InputArgs,
 }
 
 /// Run the command.
@@ -38,11 +35,13 @@ pub fn run(args: Args) -> CliResult {
             ),
         ));
     }
-    let mut input = match args.from {
-        None => logio::open(&args.input)?,
-        from => logio::open_as(&args.input, from)?,
+    // A conversion moves the readings a log has and judges none: a CSV
+    // without a reading column converts (a warning names it).
+    let opts = logio::ReadOptions {
+        require_readings: false,
+        ..args.read.options()
     };
-    input.set_strict(args.strict);
+    let mut input = logio::open_with(&args.input, &opts)?;
     let header = input.header().copied();
     let (to, mut output) = match args.to {
         None => (
@@ -60,8 +59,8 @@ pub fn run(args: Args) -> CliResult {
     let written = output.records_written();
     output.finish()?;
     let name = args.input.display();
-    for d in input.damage() {
-        crate::diag::warn(format!("{name}: {d}"));
+    for w in input.warnings() {
+        crate::diag::warn(w);
     }
     if input.other_frames() > 0 {
         crate::diag::note(format!(
@@ -69,12 +68,13 @@ pub fn run(args: Args) -> CliResult {
             input.other_frames()
         ));
     }
-    let lost: u64 = input.damage().iter().map(|d| d.frames_skipped).sum();
+    let damage = input.damage_summary();
     crate::diag::info(format!(
-        "converted {written} record(s) from {} to {} ({} damaged region(s), {lost} frame(s) lost)",
+        "converted {written} record(s) from {} to {} ({} damaged region(s), {} frame(s) lost)",
         input.format(),
         to,
-        input.damage().len()
+        damage.regions,
+        damage.frames_lost
     ));
     Ok(())
 }

@@ -92,10 +92,8 @@ pub struct Args {
     /// Replace the files of `--out` and `--plot` if they exist (never an input).
     #[arg(long)]
     force: bool,
-    /// Any damage in a log, a damaged header above all, or a log of a
-    /// directory that cannot be read, is an error.
-    #[arg(long)]
-    strict: bool,
+    #[command(flatten)]
+    input: crate::logio::InputArgs,
     /// Format of the summary.
     #[arg(long, value_enum, default_value_t = ReplayFormat::Table)]
     format: ReplayFormat,
@@ -103,7 +101,7 @@ pub struct Args {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
-    let list = logs::expand(&args.logs, args.strict)?;
+    let list = logs::expand(&args.logs, args.input.strict)?;
     crate::atomic::note_inputs(list.logs.iter().chain(&args.settings.config));
     for (p, why) in &list.skipped {
         warn(&format!("{}: skipped: {why}", p.display()));
@@ -222,10 +220,7 @@ fn replay_log(
     let fleet::OpenLog {
         mut reader,
         settings,
-    } = fleet::open(path, resolver, None)?;
-    if args.strict {
-        reader.set_strict(true);
-    }
+    } = fleet::open(path, &args.input.options(), resolver, None)?;
     let cfg = settings.resolved.config;
     let mut replay = HostReplay::new(cfg)
         .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
@@ -253,10 +248,10 @@ fn replay_log(
             });
         }
     }
-    for d in reader.damage() {
-        warn(&format!("{}: {d}", path.display()));
+    for w in reader.warnings() {
+        warn(&w);
     }
-    if replay.summary().records == 0 && !reader.damage().is_empty() {
+    if replay.summary().records == 0 && reader.damage_summary().regions > 0 {
         return Err(CliError::Input(format!(
             "{}: no readable record, only damaged bytes: is it a headroom log?",
             path.display()

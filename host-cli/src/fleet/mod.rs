@@ -16,7 +16,7 @@ use headroom::control::Replay;
 pub use headroom::control::REPLAY_WINDOW;
 
 use crate::error::CliResult;
-use crate::logio::{self, LogReader};
+use crate::logio::{self, HeaderStatus, LogReader, ReadOptions};
 use settings::{LogSettings, Resolver};
 
 /// The replay every host command runs.
@@ -30,9 +30,16 @@ pub struct OpenLog {
     pub settings: LogSettings,
 }
 
-/// Open `path` and resolve its settings (with `extra` on top of the flags).
-pub fn open(path: &Path, resolver: &Resolver, extra: Option<&Layer>) -> CliResult<OpenLog> {
-    let reader = logio::open(path)?;
-    let settings = resolver.resolve(path, reader.header(), false, extra)?;
+/// Open `path` with `opts` and resolve its settings (with `extra` on top of
+/// the flags); a lost or damaged header is said in the warnings.
+pub fn open(
+    path: &Path,
+    opts: &ReadOptions,
+    resolver: &Resolver,
+    extra: Option<&Layer>,
+) -> CliResult<OpenLog> {
+    let reader = logio::open_with(path, opts)?;
+    let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
+    let settings = resolver.resolve(path, reader.header(), damaged, extra)?;
     Ok(OpenLog { reader, settings })
 }

@@ -1,15 +1,16 @@
 //! CSV logs: a streaming reader over `csv::ByteRecord` (no allocation per
-//! row) and a writer.
+//! row) that reads its input once, front to back, and a writer.
 
 use std::fmt;
-use std::fs::File;
 use std::io::{self, BufRead, BufReader, Read, Write};
-use std::path::{Path, PathBuf};
 
+use headroom::record::noise_from_snr;
 use headroom::units::{Db, Dbi, Dbm};
 
-use super::{LogHeader, LogRecord, MAX_LINE, MAX_PREAMBLE};
-use crate::error::{CliError, CliResult};
+use super::{
+    plural, Field, HeaderStatus, LogHeader, LogRecord, ReadOptions, MAX_LINE, MAX_PREAMBLE,
+};
+use crate::error::{printable, CliError, CliResult};
 
 /// First word of the comment block that carries a [`LogHeader`].
 const MAGIC: &str = "headroom-log";
@@ -17,7 +18,9 @@ const MAGIC: &str = "headroom-log";
 /// format's version numbers.
 const VERSION: &str = "1.1";
 /// Column names, in the order the writer puts them.
-const COLUMNS: [&str; 4] = ["t_ms", "tx_dbm", "rssi_dbm", "noise_dbm"];
+const COLUMNS: [Field; 4] = [Field::TMs, Field::TxDbm, Field::RssiDbm, Field::NoiseDbm];
+/// The UTF-8 byte-order mark some editors put first.
+const BOM: &[u8] = b"\xEF\xBB\xBF";
 
 /// A line over [`MAX_LINE`] bytes, found while reading.
 #[derive(Debug)]
@@ -33,10 +36,34 @@ impl fmt::Display for LineTooLong {
 
 impl std::error::Error for LineTooLong {}
 
+/// The bytes last handed to the CSV parser, kept to number the line of an
+/// error from the bytes already read (the input is never read twice).
+#[derive(Default)]
+struct Chunk {
+    bytes: Vec<u8>,
+    /// Offset of its first byte in the parser's input.
+    start: u64,
+    /// Lines finished before it.
+    lines: u64,
+}
+
+impl Chunk {
+    /// The 1-based line of parser-input offset `at`, if it is in this chunk.
+    fn line_of(&self, at: u64) -> Option<u64> {
+        let i = usize::try_from(at.checked_sub(self.start)?).ok()?;
+        let before = self.bytes.get(..i)?;
+        // `at` itself must be in the chunk.
+        self.bytes.get(i)?;
+        Some(self.lines + count_newlines(before) + 1)
+    }
+}
+
 /// Fails the read once a line grows past [`MAX_LINE`], so a file without
 /// newlines cannot make the CSV parser buffer it whole. The bytes before a
 /// too-long line are passed on first, so the rows before it are still read;
-/// the error comes with the next read.
+/// the error comes with the next read. Keeps a copy of the last two chunks
+/// it passed on (the CSV parser's buffer is one chunk), so that the line of
+/// any row the parser has just read is known without reading again.
 struct LineLimit<R> {
     inner: R,
     /// Bytes since the last newline.
@@ -45,6 +72,89 @@ struct LineLimit<R> {
     lines: u64,
     /// Line number of a too-long line found in the last chunk.
     deferred: Option<u64>,
+    /// Bytes passed on so far.
+    passed: u64,
+    /// The last chunk passed on, and the one before.
+    last: Chunk,
+    before: Chunk,
+    /// Lines of `# headroom-log` blocks after the header row: the first
+    /// [`super::HEADER_EVENT_DETAIL`], and how many in all.
+    late_blocks: Vec<u64>,
+    late_block_count: u64,
+    /// The last bytes passed on (fewer than [`LATE_BLOCK`]), for a block
+    /// mark split between two chunks.
+    carry: Vec<u8>,
+}
+
+/// A header block's first line, after the newline that ends the line before.
+const LATE_BLOCK: &[u8] = b"\n# headroom-log";
+
+impl<R> LineLimit<R> {
+    fn new(inner: R, lines: u64) -> Self {
+        LineLimit {
+            inner,
+            run: 0,
+            lines,
+            deferred: None,
+            passed: 0,
+            last: Chunk::default(),
+            before: Chunk::default(),
+            late_blocks: Vec::new(),
+            late_block_count: 0,
+            carry: Vec::new(),
+        }
+    }
+
+    /// Note the `# headroom-log` lines in `bytes`, about to be passed on
+    /// (the comment lines after the header row, which the CSV parser skips
+    /// without a word). `self.lines` is still the count before them.
+    fn find_late_blocks(&mut self, bytes: &[u8]) {
+        let keep = LATE_BLOCK.len() - 1;
+        // A mark split between the last chunk and this one.
+        let mut joined = std::mem::take(&mut self.carry);
+        let from_carry = joined.len();
+        joined.extend_from_slice(bytes.get(..keep.min(bytes.len())).unwrap_or(&[]));
+        if memchr::memmem::find(&joined, LATE_BLOCK).is_some_and(|i| i < from_carry) {
+            self.late_block(self.lines + 1);
+        }
+        for i in memchr::memmem::find_iter(bytes, LATE_BLOCK) {
+            let before = bytes.get(..=i).map_or(0, count_newlines);
+            self.late_block(self.lines + before + 1);
+        }
+        let tail = joined.len().saturating_sub(keep);
+        self.carry = if bytes.len() >= keep {
+            bytes.get(bytes.len() - keep..).unwrap_or(&[]).to_vec()
+        } else {
+            joined.get(tail..).unwrap_or(&[]).to_vec()
+        };
+    }
+
+    fn late_block(&mut self, line: u64) {
+        self.late_block_count += 1;
+        if self.late_blocks.len() < super::HEADER_EVENT_DETAIL {
+            self.late_blocks.push(line);
+        }
+    }
+
+    /// The 1-based line of parser-input offset `at` (a byte already passed
+    /// on, at most two chunks back); 0 if it is not known.
+    fn line_of(&self, at: u64) -> u64 {
+        self.last
+            .line_of(at)
+            .or_else(|| self.before.line_of(at))
+            .unwrap_or(0)
+    }
+
+    /// Keep a copy of `bytes`, passed on, which hold `newlines` newlines.
+    fn keep(&mut self, bytes: &[u8], newlines: u64) {
+        std::mem::swap(&mut self.last, &mut self.before);
+        self.last.bytes.clear();
+        self.last.bytes.extend_from_slice(bytes);
+        self.last.start = self.passed;
+        self.last.lines = self.lines;
+        self.passed += bytes.len() as u64;
+        self.lines += newlines;
+    }
 }
 
 impl<R: Read> Read for LineLimit<R> {
@@ -55,14 +165,18 @@ impl<R: Read> Read for LineLimit<R> {
         let n = self.inner.read(buf)?;
         let chunk = buf.get(..n).unwrap_or(&[]);
         let scan = scan_lines(chunk, self.run);
-        self.lines += scan.newlines;
         match scan.long_at {
             None => {
+                self.find_late_blocks(chunk);
+                self.keep(chunk, scan.newlines);
                 self.run = scan.run;
                 Ok(n)
             }
             Some(start) => {
-                let line = self.lines + 1;
+                let line = self.lines + scan.newlines + 1;
+                let passed = chunk.get(..start).unwrap_or(&[]);
+                self.find_late_blocks(passed);
+                self.keep(passed, scan.newlines);
                 if start == 0 {
                     Err(too_long(line))
                 } else {
@@ -138,118 +252,193 @@ struct Columns {
     tx: Option<usize>,
     rssi: Option<usize>,
     noise: Option<usize>,
+    snr: Option<usize>,
 }
 
-/// Line numbers of byte offsets, for error messages. The CSV parser's own
-/// line count skips comment and blank lines, so this counts newlines in the
-/// file itself, through a second handle, only when an error needs a line,
-/// and onwards from the last offset asked (cost: one pass over the file at
-/// most, however many errors).
-struct LineMap {
-    path: PathBuf,
-    file: Option<BufReader<File>>,
-    /// Offset in the file counted up to, and newlines before it.
-    at: u64,
-    lines: u64,
-    /// Bytes of the file before the CSV parser's input (the comment block).
-    base: u64,
-}
+/// The reading columns, in the order of [`CsvReader::filled`].
+const READINGS: [Field; 4] = [Field::TxDbm, Field::RssiDbm, Field::NoiseDbm, Field::SnrDb];
 
-impl LineMap {
-    /// The 1-based line holding byte `csv_byte` of the CSV parser's input.
-    fn line(&mut self, csv_byte: u64) -> u64 {
-        let target = self.base + csv_byte;
-        if target < self.at || self.file.is_none() {
-            self.at = 0;
-            self.lines = 0;
-            self.file = File::open(&self.path).ok().map(BufReader::new);
+impl Columns {
+    fn reading(&self, k: usize) -> Option<usize> {
+        match k {
+            0 => self.tx,
+            1 => self.rssi,
+            2 => self.noise,
+            _ => self.snr,
         }
-        let Some(f) = self.file.as_mut() else {
-            return 0;
-        };
-        while self.at < target {
-            let buf = match f.fill_buf() {
-                Ok(b) if !b.is_empty() => b,
-                _ => break,
-            };
-            let take = buf
-                .len()
-                .min(usize::try_from(target - self.at).unwrap_or(usize::MAX));
-            let part = buf.get(..take).unwrap_or(&[]);
-            self.lines += count_newlines(part);
-            self.at += take as u64;
-            f.consume(take);
-        }
-        self.lines + 1
     }
 }
 
+type Input = io::Chain<io::Cursor<Vec<u8>>, Box<dyn Read + Send>>;
+
 pub(super) struct CsvReader {
     name: String,
-    rdr: ::csv::Reader<LineLimit<io::Chain<io::Cursor<Vec<u8>>, File>>>,
+    rdr: ::csv::Reader<LineLimit<Input>>,
     rec: ::csv::ByteRecord,
     cols: Columns,
-    lines: LineMap,
+    /// The name each column was found under (for warnings).
+    col_names: [Option<String>; 4],
     header: Option<LogHeader>,
+    status: HeaderStatus,
     done: bool,
+    rows: u64,
+    /// Rows with a value in each reading column ([`READINGS`] order).
+    filled: [u64; 4],
+    /// Rows whose noise floor was computed from the SNR.
+    noise_from_snr: u64,
+    /// Lines of further `# headroom-log` blocks before the header row.
+    late_blocks: Vec<u64>,
 }
 
 impl CsvReader {
-    pub(super) fn new(name: String, path: &Path, file: File) -> CliResult<Self> {
-        let mut input = BufReader::with_capacity(8 * 1024, file);
-        let (header, line_base, base) = read_preamble(&name, &mut input)?;
-        let mut lines = LineMap {
-            path: path.to_path_buf(),
-            file: None,
-            at: 0,
-            lines: 0,
-            base,
-        };
-        // The CSV parser buffers by itself: hand it the file directly, after
-        // what the preamble reader had buffered already.
+    pub(super) fn new(
+        name: String,
+        input: Box<dyn Read + Send>,
+        opts: &ReadOptions,
+    ) -> CliResult<Self> {
+        let mut input = BufReader::with_capacity(8 * 1024, input);
+        let start = input
+            .fill_buf()
+            .map_err(|e| CliError::Io(format!("{name}: cannot read: {e}")))?;
+        if start.is_empty() {
+            return Err(CliError::Input(format!(
+                "{name}: empty log (0 bytes): no header row"
+            )));
+        }
+        if start.iter().all(|&b| b == 0) {
+            return Err(CliError::Input(format!(
+                "{name}: starts with zero bytes, not text (is it a CSV log?)"
+            )));
+        }
+        if start.starts_with(BOM) {
+            input.consume(BOM.len());
+        }
+        let pre = read_preamble(&name, &mut input)?;
+        if opts.strict {
+            if let HeaderStatus::Damaged { why } = &pre.status {
+                return Err(CliError::Input(format!(
+                    "{name}: {why} (--strict reads a log only with an intact header)"
+                )));
+            }
+        }
+        // The CSV parser buffers by itself: hand it the input directly,
+        // after what the preamble reader had buffered already.
         let rest = input.buffer().to_vec();
         let input = io::Cursor::new(rest).chain(input.into_inner());
-        let limited = LineLimit {
-            inner: input,
-            run: 0,
-            lines: line_base,
-            deferred: None,
-        };
         let mut rdr = ::csv::ReaderBuilder::new()
             .has_headers(true)
             .flexible(false)
             .quoting(false)
             .comment(Some(b'#'))
             .buffer_capacity(64 * 1024)
-            .from_reader(limited);
+            .from_reader(LineLimit::new(input, pre.lines));
         let names = match rdr.byte_headers() {
             Ok(h) => h.clone(),
             Err(e) => {
                 let at = last_byte(&rdr);
-                return Err(csv_error(&name, &mut lines, at, e).0);
+                return Err(csv_error(&name, rdr.get_ref(), at, e).0);
             }
         };
         if names.is_empty() || (names.len() == 1 && names.get(0) == Some(b"")) {
             return Err(CliError::Input(format!(
                 "{name}: no header row (expected columns {})",
-                COLUMNS.join(",")
+                COLUMNS.map(Field::name).join(",")
             )));
         }
-        let header_line = lines.line(last_byte(&rdr));
-        let cols = find_columns(&name, header_line, &names)?;
+        let header_line = rdr.get_ref().line_of(last_byte(&rdr));
+        let (cols, col_names) = find_columns(&name, header_line, &names, opts)?;
         Ok(CsvReader {
             name,
             rdr,
             rec: ::csv::ByteRecord::new(),
             cols,
-            lines,
-            header,
+            col_names,
+            header: pre.header,
+            status: pre.status,
             done: false,
+            rows: 0,
+            filled: [0; 4],
+            noise_from_snr: 0,
+            late_blocks: pre.late_blocks,
         })
     }
 
     pub(super) fn header(&self) -> Option<&LogHeader> {
         self.header.as_ref()
+    }
+
+    pub(super) fn header_status(&self) -> &HeaderStatus {
+        &self.status
+    }
+
+    pub(super) fn records_read(&self) -> u64 {
+        self.rows
+    }
+
+    pub(super) fn warnings(&self) -> Vec<String> {
+        let name = &self.name;
+        let mut out = Vec::new();
+        if let HeaderStatus::Damaged { why } = &self.status {
+            out.push(format!(
+                "{name}: {why}: the header's other fields were read, this one is unknown"
+            ));
+        }
+        if self.noise_from_snr > 0 {
+            out.push(format!(
+                "{name}: noise_dbm computed as rssi_dbm - snr_db in {} row{} (the log has no noise floor there)",
+                self.noise_from_snr,
+                plural(self.noise_from_snr)
+            ));
+        }
+        for line in &self.late_blocks {
+            out.push(format!(
+                "{name}:{line}: a '# {MAGIC}' block after the first: ignored (the first header applies)"
+            ));
+        }
+        let limit = self.rdr.get_ref();
+        for line in &limit.late_blocks {
+            out.push(format!(
+                "{name}:{line}: a '# {MAGIC}' block after the header row: ignored (the header before the rows applies)"
+            ));
+        }
+        let listed = self.late_blocks.len() + limit.late_blocks.len();
+        let total = self.late_blocks.len() as u64 + limit.late_block_count;
+        if total > listed as u64 {
+            out.push(format!(
+                "{name}: {total} '# {MAGIC}' blocks after the first in all (the first {listed} shown)"
+            ));
+        }
+        if self.done {
+            if self.rows == 0 {
+                out.push(format!("{name}: the log holds no record"));
+            } else {
+                for (k, f) in READINGS.iter().enumerate() {
+                    let present = self.cols.reading(k).is_some();
+                    if !present && *f != Field::SnrDb {
+                        let covered = *f == Field::NoiseDbm && self.cols.snr.is_some();
+                        if !covered {
+                            out.push(format!(
+                                "{name}: no column {}: absent in every record",
+                                f.name()
+                            ));
+                        }
+                    } else if present && self.filled.get(k) == Some(&0) {
+                        let col = self
+                            .col_names
+                            .get(k)
+                            .and_then(Option::as_deref)
+                            .unwrap_or(f.name());
+                        out.push(format!(
+                            "{name}: column {} ({}) is empty in all {} rows",
+                            printable(col),
+                            f.name(),
+                            self.rows
+                        ));
+                    }
+                }
+            }
+        }
+        out
     }
 
     pub(super) fn next(&mut self) -> Option<CliResult<LogRecord>> {
@@ -262,9 +451,12 @@ impl CsvReader {
                 None
             }
             Ok(true) => match self.parse_row() {
-                Ok(r) => Some(Ok(r)),
+                Ok(r) => {
+                    self.rows += 1;
+                    Some(Ok(r))
+                }
                 Err((col, why)) => {
-                    let line = self.lines.line(last_byte(&self.rdr));
+                    let line = self.rdr.get_ref().line_of(last_byte(&self.rdr));
                     Some(Err(CliError::Input(format!(
                         "{}:{line}: column {col}: {why}",
                         self.name
@@ -273,7 +465,7 @@ impl CsvReader {
             },
             Err(e) => {
                 let at = last_byte(&self.rdr);
-                let (err, fatal) = csv_error(&self.name, &mut self.lines, at, e);
+                let (err, fatal) = csv_error(&self.name, self.rdr.get_ref(), at, e);
                 self.done = fatal;
                 Some(Err(err))
             }
@@ -281,18 +473,36 @@ impl CsvReader {
     }
 
     /// The record in `self.rec`, or the bad column and why.
-    fn parse_row(&self) -> Result<LogRecord, (&'static str, String)> {
+    fn parse_row(&mut self) -> Result<LogRecord, (&'static str, String)> {
         let rec = &self.rec;
         let cols = self.cols;
         let t_cell = unquote(rec.get(cols.t).unwrap_or(b""));
         let Some(t_ms) = parse_u64(t_cell) else {
             return Err(bad_time(t_cell));
         };
+        let tx_dbm = float_cell(rec, cols.tx, "tx_dbm")?;
+        let rssi_dbm = float_cell(rec, cols.rssi, "rssi_dbm")?;
+        let mut noise_dbm = float_cell(rec, cols.noise, "noise_dbm")?;
+        let snr_db = match cols.snr {
+            Some(_) => float_cell(rec, cols.snr, "snr_db")?,
+            None => None,
+        };
+        for (k, v) in [tx_dbm, rssi_dbm, noise_dbm, snr_db].iter().enumerate() {
+            if let (Some(_), Some(n)) = (v, self.filled.get_mut(k)) {
+                *n += 1;
+            }
+        }
+        if noise_dbm.is_none() {
+            if let (Some(rssi), Some(snr)) = (rssi_dbm, snr_db) {
+                noise_dbm = Some(noise_from_snr(rssi, snr));
+                self.noise_from_snr += 1;
+            }
+        }
         Ok(LogRecord {
             t_ms,
-            tx_dbm: float_cell(rec, cols.tx, "tx_dbm")?,
-            rssi_dbm: float_cell(rec, cols.rssi, "rssi_dbm")?,
-            noise_dbm: float_cell(rec, cols.noise, "noise_dbm")?,
+            tx_dbm,
+            rssi_dbm,
+            noise_dbm,
         })
     }
 }
@@ -337,7 +547,6 @@ fn bad_float(col: &'static str, cell: &[u8]) -> (&'static str, String) {
     (col, format!("'{}' is not a number", show(cell)))
 }
 
-/// A CSV parser error as a CLI error, and whether the stream must end.
 /// Offset in the CSV parser's input of the last byte of the row just read.
 /// (A row's own recorded position is where the parser started looking for
 /// it, before skipping blank and comment lines.)
@@ -347,16 +556,16 @@ fn last_byte<R: Read>(rdr: &::csv::Reader<R>) -> u64 {
 
 /// A CSV parser error (`at`: the last byte read) as a CLI error, and
 /// whether the stream must end.
-fn csv_error(name: &str, lines: &mut LineMap, at: u64, e: ::csv::Error) -> (CliError, bool) {
+fn csv_error<R>(name: &str, lines: &LineLimit<R>, at: u64, e: ::csv::Error) -> (CliError, bool) {
     match e.kind() {
         ::csv::ErrorKind::UnequalLengths {
             expected_len, len, ..
         } => {
-            let line = lines.line(at);
+            let line = lines.line_of(at);
             (
                 CliError::Input(format!(
                     "{name}:{line}: row has {len} cell{}, the header row has {expected_len}",
-                    if *len == 1 { "" } else { "s" }
+                    plural(*len)
                 )),
                 false,
             )
@@ -368,17 +577,32 @@ fn csv_error(name: &str, lines: &mut LineMap, at: u64, e: ::csv::Error) -> (CliE
                 (CliError::Io(format!("{name}: cannot read: {io}")), true)
             }
         }
-        _ => (CliError::Input(format!("{name}: {e}")), true),
+        _ => (
+            CliError::Input(format!("{name}: {}", printable(&e.to_string()))),
+            true,
+        ),
     }
 }
 
+/// What the comment lines before the header row said.
+struct Preamble {
+    header: Option<LogHeader>,
+    status: HeaderStatus,
+    /// Lines read.
+    lines: u64,
+    /// Lines of `# headroom-log` blocks after the first (at most
+    /// [`super::HEADER_EVENT_DETAIL`]: the preamble is short).
+    late_blocks: Vec<u64>,
+}
+
 /// Read the `#` comment lines before the header row; parse a header block.
-/// Returns the header, the number of lines and of bytes read.
-fn read_preamble(
-    name: &str,
-    input: &mut BufReader<File>,
-) -> CliResult<(Option<LogHeader>, u64, u64)> {
+/// A line of the block that does not read (a bad value) damages the header:
+/// the other lines are still read, and the status says which line.
+fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Preamble> {
     let mut header: Option<LogHeader> = None;
+    let mut status = HeaderStatus::Absent;
+    let mut late_blocks = Vec::new();
+    let mut in_block = false;
     let mut lines = 0u64;
     let mut total = 0usize;
     let mut line = Vec::with_capacity(128);
@@ -409,38 +633,65 @@ fn read_preamble(
         }
         let text = String::from_utf8_lossy(&line);
         let text = text.trim_start_matches('#').trim();
-        if lines == 1 {
-            if let Some(rest) = text.strip_prefix(MAGIC) {
-                let version = rest.trim();
-                if let Some(major) = version.split('.').next().filter(|m| !m.is_empty()) {
-                    if major != "1" {
-                        return Err(CliError::Input(format!(
-                            "{name}:1: {MAGIC} version {version} is not supported (this build reads 1.x)"
-                        )));
-                    }
+        if let Some(rest) = text
+            .strip_prefix(MAGIC)
+            .filter(|r| r.is_empty() || r.starts_with(char::is_whitespace))
+        {
+            if header.is_some() {
+                // A second block: its lines are not read into the first.
+                if late_blocks.len() < super::HEADER_EVENT_DETAIL {
+                    late_blocks.push(lines);
                 }
-                header = Some(LogHeader::default());
+                in_block = false;
+                continue;
             }
+            let version = rest.trim();
+            if let Some(major) = version.split('.').next().filter(|m| !m.is_empty()) {
+                if major != "1" {
+                    return Err(CliError::Input(format!(
+                        "{name}:{lines}: {MAGIC} version {} is not supported (this build reads 1.x)",
+                        show(version.as_bytes())
+                    )));
+                }
+            }
+            header = Some(LogHeader::default());
+            status = HeaderStatus::Present;
+            in_block = true;
             continue;
         }
-        if let Some(h) = header.as_mut() {
-            parse_header_line(name, lines, text, h)?;
+        if let (Some(h), true) = (header.as_mut(), in_block) {
+            if let Err(why) = parse_header_line(text, h) {
+                if matches!(status, HeaderStatus::Present) {
+                    status = HeaderStatus::Damaged {
+                        why: format!("line {lines}: header block damaged: {why}"),
+                    };
+                }
+            }
         }
     }
-    Ok((header, lines, total as u64))
+    Ok(Preamble {
+        header,
+        status,
+        lines,
+        late_blocks,
+    })
 }
 
-fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> CliResult {
+/// Read one `key: value` line of a header block into `h`; lines without a
+/// `:` are comments, unknown keys belong to newer versions: both ignored.
+fn parse_header_line(text: &str, h: &mut LogHeader) -> Result<(), String> {
     let Some((key, value)) = text.split_once(':') else {
         return Ok(());
     };
     let (key, value) = (key.trim(), value.trim());
     let bad = |what: &str| {
-        CliError::Input(format!(
-            "{name}:{line}: header {key}: '{value}' is not {what}"
-        ))
+        format!(
+            "{}: '{}' is not {what}",
+            show(key.as_bytes()),
+            show(value.as_bytes())
+        )
     };
-    let float = || -> CliResult<Option<f32>> {
+    let float = || -> Result<Option<f32>, String> {
         if value.is_empty() {
             return Ok(None);
         }
@@ -465,16 +716,43 @@ fn parse_header_line(name: &str, line: u64, text: &str, h: &mut LogHeader) -> Cl
     Ok(())
 }
 
-fn find_columns(name: &str, line: u64, names: &::csv::ByteRecord) -> CliResult<Columns> {
-    let mut found: [Option<usize>; 4] = [None; 4];
+/// The column of each field: under the name a `--column` mapping gives it,
+/// else under its own name (any case). With `require_readings`, a log
+/// without `tx_dbm`, `rssi_dbm`, or either of `noise_dbm` and `snr_db` is
+/// refused, naming the column.
+fn find_columns(
+    name: &str,
+    line: u64,
+    names: &::csv::ByteRecord,
+    opts: &ReadOptions,
+) -> CliResult<(Columns, [Option<String>; 4])> {
+    let mut wanted: Vec<(Field, String)> = Field::ALL
+        .into_iter()
+        .map(|f| (f, f.name().to_string()))
+        .collect();
+    let mut mapped: Vec<Field> = Vec::new();
+    for m in &opts.columns {
+        if mapped.contains(&m.field) {
+            return Err(CliError::arg(
+                "--column",
+                format!("{} is mapped twice", m.field.name()),
+            ));
+        }
+        mapped.push(m.field);
+        if let Some(w) = wanted.iter_mut().find(|(f, _)| *f == m.field) {
+            w.1.clone_from(&m.column);
+        }
+    }
+    let mut found: [Option<usize>; 5] = [None; 5];
     for (i, cell) in names.iter().enumerate() {
         let cell = unquote(cell);
-        for (k, col) in COLUMNS.iter().enumerate() {
+        for (k, (_, col)) in wanted.iter().enumerate() {
             if cell.eq_ignore_ascii_case(col.as_bytes()) {
                 if let Some(slot) = found.get_mut(k) {
                     if slot.is_some() {
                         return Err(CliError::Input(format!(
-                            "{name}:{line}: column {col} appears twice"
+                            "{name}:{line}: column {} appears twice",
+                            printable(col)
                         )));
                     }
                     *slot = Some(i);
@@ -482,15 +760,70 @@ fn find_columns(name: &str, line: u64, names: &::csv::ByteRecord) -> CliResult<C
             }
         }
     }
-    let [t, tx, rssi, noise] = found;
-    let Some(t) = t else {
-        let seen: Vec<String> = names.iter().map(|c| show(unquote(c))).collect();
-        return Err(CliError::Input(format!(
-            "{name}:{line}: missing required column t_ms (the header row has: {})",
-            seen.join(", ")
-        )));
+    let seen = || {
+        let mut shown: Vec<String> = names
+            .iter()
+            .take(SHOWN_CELLS)
+            .map(|c| show(unquote(c)))
+            .collect();
+        if names.len() > SHOWN_CELLS {
+            shown.push(format!("and {} more", names.len() - SHOWN_CELLS));
+        }
+        shown.join(", ")
     };
-    Ok(Columns { t, tx, rssi, noise })
+    let missing = |fields: &[Field]| {
+        let want: Vec<String> = fields
+            .iter()
+            .map(|f| {
+                let col = wanted
+                    .iter()
+                    .find(|(g, _)| g == f)
+                    .map_or(f.name(), |(_, c)| c.as_str());
+                if col == f.name() {
+                    col.to_string()
+                } else {
+                    format!("{} (as {})", printable(col), f.name())
+                }
+            })
+            .collect();
+        let maps: Vec<String> = fields
+            .iter()
+            .map(|f| format!("--column {}=NAME", f.name()))
+            .collect();
+        CliError::Input(format!(
+            "{name}:{line}: missing required column {} (accepted names: {}, or name yours with {}; the header row has: {})",
+            want.join(" or "),
+            fields.iter().map(|f| f.name()).collect::<Vec<_>>().join(", "),
+            maps.join(" or "),
+            seen()
+        ))
+    };
+    let [t, tx, rssi, noise, snr] = found;
+    let Some(t) = t else {
+        return Err(missing(&[Field::TMs]));
+    };
+    if opts.require_readings {
+        if tx.is_none() {
+            return Err(missing(&[Field::TxDbm]));
+        }
+        if rssi.is_none() {
+            return Err(missing(&[Field::RssiDbm]));
+        }
+        if noise.is_none() && snr.is_none() {
+            return Err(missing(&[Field::NoiseDbm, Field::SnrDb]));
+        }
+    }
+    let col_name = |i: Option<usize>| i.and_then(|i| names.get(i)).map(|c| show(unquote(c)));
+    Ok((
+        Columns {
+            t,
+            tx,
+            rssi,
+            noise,
+            snr,
+        },
+        [col_name(tx), col_name(rssi), col_name(noise), col_name(snr)],
+    ))
 }
 
 /// A cell without surrounding ASCII whitespace and one surrounding pair of
@@ -504,16 +837,24 @@ fn unquote(cell: &[u8]) -> &[u8] {
     }
 }
 
-/// A cell for an error message: text, at most 40 characters.
+/// A cell for an error message: text, at most 40 characters, control
+/// characters escaped (and at most 80 characters once escaped).
 fn show(cell: &[u8]) -> String {
     let s = String::from_utf8_lossy(cell);
-    if s.chars().count() > 40 {
-        let cut: String = s.chars().take(40).collect();
-        format!("{cut}...")
-    } else {
-        s.into_owned()
+    let cut: String = s.chars().take(40).collect();
+    let mut out = printable(&cut);
+    let long = cut.len() < s.len();
+    if out.chars().count() > 80 {
+        out = out.chars().take(80).collect();
+        out.push_str("...");
+    } else if long {
+        out.push_str("...");
     }
+    out
 }
+
+/// Header-row cells named in a message: the first 10, then how many more.
+const SHOWN_CELLS: usize = 10;
 
 /// A whole number of digits, no sign; `None` if not or if it overflows.
 pub(super) fn parse_u64(s: &[u8]) -> Option<u64> {
@@ -643,7 +984,7 @@ impl CsvEncoder {
                 writeln!(out, "# eirp_cap_dbm: {}", v.0)?;
             }
         }
-        writeln!(out, "{}", COLUMNS.join(","))
+        writeln!(out, "{}", COLUMNS.map(Field::name).join(","))
     }
 
     pub(super) fn write(&mut self, out: &mut dyn Write, r: &LogRecord) -> io::Result<()> {
@@ -791,12 +1132,7 @@ mod tests {
         text.extend(std::iter::repeat_n(b'9', MAX_LINE + 1));
         text.extend_from_slice(b"\n1,2\n");
         for chunk in [1usize, 7, 100, 4096, 65536] {
-            let mut r = LineLimit {
-                inner: &text[..],
-                run: 0,
-                lines: 0,
-                deferred: None,
-            };
+            let mut r = LineLimit::new(&text[..], 0);
             let mut got = 0usize;
             let mut buf = vec![0u8; chunk];
             let err = loop {
@@ -817,14 +1153,39 @@ mod tests {
         // Exactly MAX_LINE bytes is fine.
         let mut ok = vec![b'5'; MAX_LINE];
         ok.push(b'\n');
-        let mut r = LineLimit {
-            inner: &ok[..],
-            run: 0,
-            lines: 0,
-            deferred: None,
-        };
+        let mut r = LineLimit::new(&ok[..], 0);
         let mut sink = Vec::new();
         assert_eq!(r.read_to_end(&mut sink).unwrap(), MAX_LINE + 1);
+    }
+
+    #[test]
+    fn late_header_blocks_are_found_in_any_chunking() {
+        let mut text = b"t_ms,tx_dbm\n".to_vec();
+        for i in 0..500 {
+            text.extend_from_slice(format!("{i},1\n").as_bytes());
+            if i % 100 == 99 {
+                text.extend_from_slice(b"# headroom-log 1.1\n# max_tx_dbm: 20\n");
+            }
+        }
+        // Lines of the blocks: 1 header row, then 100 rows and 2 lines each.
+        let want: Vec<u64> = (0..5u64).map(|k| 2 + 100 * (k + 1) + 2 * k).collect();
+        struct Trickle<'a>(&'a [u8], usize);
+        impl Read for Trickle<'_> {
+            fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+                let n = self.1.min(buf.len()).min(self.0.len());
+                buf[..n].copy_from_slice(&self.0[..n]);
+                self.0 = &self.0[n..];
+                Ok(n)
+            }
+        }
+        for chunk in [1usize, 2, 5, 7, 13, 14, 15, 16, 64, 4096] {
+            let mut r = LineLimit::new(Trickle(&text, chunk), 0);
+            let mut sink = Vec::new();
+            r.read_to_end(&mut sink).unwrap();
+            assert_eq!(sink, text);
+            assert_eq!(r.late_blocks, want, "chunk {chunk}");
+            assert_eq!(r.late_block_count, 5);
+        }
     }
 
     #[test]

@@ -93,10 +93,8 @@ pub struct Args {
     /// pooled fleet).
     #[arg(long)]
     each_device: bool,
-    /// Any damage in a log, or a log of a directory that cannot be read, is
-    /// an error.
-    #[arg(long)]
-    strict: bool,
+    #[command(flatten)]
+    input: crate::logio::InputArgs,
     /// Format of the result.
     #[arg(long, value_enum, default_value_t = TuneFormat::Table)]
     format: TuneFormat,
@@ -123,7 +121,7 @@ fn warn(msg: &str) {
 
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
-    let list = logs::expand(&args.logs, args.strict)?;
+    let list = logs::expand(&args.logs, args.input.strict)?;
     crate::atomic::note_inputs(list.logs.iter().chain(&args.settings.config));
     if let Some(p) = &args.plot {
         plot::check_destination(p, args.force)?;
@@ -143,13 +141,11 @@ pub fn run(args: Args) -> CliResult {
         .ok_or_else(|| CliError::arg("LOG", "name at least one log"))?;
     // Refuse a bad combination before any replay (against the first log;
     // the others are checked as they run).
-    schedule::check_grid(first, &resolver, &grid)?;
-    let base = {
-        let reader = crate::logio::open(first)?;
-        resolver
-            .resolve(first, reader.header(), false, None)?
-            .resolved
-    };
+    let opts = args.input.options();
+    schedule::check_grid(first, &opts, &resolver, &grid)?;
+    let base = crate::fleet::open(first, &opts, &resolver, None)?
+        .settings
+        .resolved;
 
     let candidates = grid.len + 1;
     let nlogs = logs.len();
@@ -191,9 +187,7 @@ pub fn run(args: Args) -> CliResult {
                 .flat_map_iter(|(log, js)| {
                     let n = js.len();
                     let r = match logs.get(log) {
-                        Some(path) => {
-                            schedule::replay_group(path, &resolver, &grid, args.strict, &js)
-                        }
+                        Some(path) => schedule::replay_group(path, &opts, &resolver, &grid, &js),
                         None => js
                             .iter()
                             .map(|&(j, _)| {

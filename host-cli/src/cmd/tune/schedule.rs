@@ -12,6 +12,7 @@ use headroom::control::Summary;
 use crate::error::{CliError, CliResult};
 use crate::fleet::settings::Resolver;
 use crate::fleet::{self, HostReplay};
+use crate::logio::{HeaderStatus, ReadOptions};
 
 use super::sweep::Grid;
 
@@ -33,24 +34,22 @@ pub struct Done {
 /// numbers), decoding it once; the result of every job, in the order given.
 pub fn replay_group(
     path: &Path,
+    opts: &ReadOptions,
     resolver: &Resolver,
     grid: &Grid,
-    strict: bool,
     cands: &[(usize, usize)],
 ) -> Vec<(usize, CliResult<Done>)> {
     let mut out = Vec::with_capacity(cands.len());
-    let mut reader = match crate::logio::open(path) {
+    let mut reader = match crate::logio::open_with(path, opts) {
         Ok(r) => r,
         Err(e) => return cands.iter().map(|&(j, _)| (j, Err(e.clone()))).collect(),
     };
-    if strict {
-        reader.set_strict(true);
-    }
     let header = reader.header().copied();
+    let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
     let mut live: Vec<(usize, HostReplay, f32, Vec<String>)> = Vec::with_capacity(cands.len());
     for &(j, cand) in cands {
         let r = grid.layer(cand).and_then(|extra| {
-            let s = resolver.resolve(path, header.as_ref(), false, Some(&extra))?;
+            let s = resolver.resolve(path, header.as_ref(), damaged, Some(&extra))?;
             let replay = HostReplay::new(s.resolved.config).map_err(|e| {
                 CliError::Input(format!("{}: controller settings: {e}", path.display()))
             })?;
@@ -95,11 +94,9 @@ pub fn replay_group(
             break;
         }
     }
-    let damage: Vec<String> = reader
-        .damage()
-        .iter()
-        .map(|d| format!("{}: {d}", path.display()))
-        .collect();
+    // Bounded: the reader keeps the first damaged regions in detail and
+    // counts the rest.
+    let damage: Vec<String> = reader.warnings();
     out.extend(live.into_iter().map(|(j, replay, target, warnings)| {
         let mut w: Vec<String> = warnings
             .into_iter()
@@ -166,12 +163,13 @@ pub fn check_rereadable(path: &Path) -> CliResult {
 
 /// Check the grid against the first log before any replay: every
 /// candidate's settings resolve.
-pub fn check_grid(path: &Path, resolver: &Resolver, grid: &Grid) -> CliResult {
-    let reader = crate::logio::open(path)?;
+pub fn check_grid(path: &Path, opts: &ReadOptions, resolver: &Resolver, grid: &Grid) -> CliResult {
+    let reader = crate::logio::open_with(path, opts)?;
     let header = reader.header().copied();
+    let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
     for cand in 0..=grid.len {
         let extra = grid.layer(cand)?;
-        fleet::settings::Resolver::resolve(resolver, path, header.as_ref(), false, Some(&extra))
+        fleet::settings::Resolver::resolve(resolver, path, header.as_ref(), damaged, Some(&extra))
             .map_err(|e| match cand {
                 0 => e,
                 _ => CliError::arg(

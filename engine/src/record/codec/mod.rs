@@ -1,0 +1,413 @@
+//! The framed binary log format: encoder, one-frame decoder and a streaming
+//! decoder that resynchronises after damage. No allocation, no panics on any
+//! bytes.
+//!
+//! One layer per module, each using only the ones below it:
+//!
+//! 1. `cobs`: byte stuffing and the `0x00` delimiter;
+//! 2. [`crate::record::crc`]: the CRC-32C;
+//! 3. `payload`: kind, sequence number, body and CRC of one frame, and the
+//!    body of each kind (one field list per kind, shared by the encoder and
+//!    the decoder);
+//! 4. `stream`: [`FrameDecoder`], which cuts a byte stream into frames.
+//!
+//! This module holds the types all layers share and the one-frame API.
+//!
+//! A log is a sequence of frames, each terminated by one `0x00` byte:
+//!
+//! ```text
+//! frame   = COBS(payload) 0x00
+//! payload = kind:u8  seq:u16-le  body:postcard  crc:u32-le
+//! crc     = CRC-32C over kind, seq and body
+//! ```
+//!
+//! COBS (consistent overhead byte stuffing) removes every `0x00` from the
+//! payload for one byte of overhead per 254, so `0x00` only ever ends a
+//! frame: after any corruption a reader finds the next frame at the next
+//! `0x00`. The 16-bit sequence number counts frames from 0 (the header) and
+//! wraps; a reader uses the gap across a damaged region to tell how many
+//! frames were lost.
+//!
+//! | kind | frame | body (postcard, in this order) |
+//! |---|---|---|
+//! | 0 | header | magic `b"hrlg"`, major `u8`, minor `u8`, device id `u64`, epoch ms `u64`, min tx, max tx, tx step, antenna gain (each `Option<f32>`) |
+//! | 1 | record | `t_ms: u64`, `tx_dbm`, `rssi_dbm`, `noise_dbm` (each `Option<f32>`) |
+//! | 2 | decision | `t_ms: u64`, `tx_dbm: f32`, `outcome: u8`, `reason: u8` |
+//!
+//! postcard writes integers as LEB128 varints, `Option` as a 0/1 byte
+//! followed by the value, `f32` as 4 little-endian bytes (so NaN payloads
+//! survive bit for bit). The full layout and the versioning rule are in
+//! `docs/log-format.md`.
+//!
+//! ```
+//! use headroom::record::codec::{Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
+//! use headroom::record::{LogHeader, LogRecord};
+//!
+//! // Write: one frame at a time into a caller's buffer.
+//! let mut enc = Encoder::new();
+//! let mut buf = [0u8; MAX_FRAME];
+//! let mut log = [0u8; 2 * MAX_FRAME];
+//! let mut len = 0;
+//! let frame = enc.header(&LogHeader::default(), &mut buf)?;
+//! log[len..len + frame.len()].copy_from_slice(frame);
+//! len += frame.len();
+//! let r = LogRecord { t_ms: 5, rssi_dbm: Some(-91.5), ..Default::default() };
+//! let frame = enc.record(&r, &mut buf)?;
+//! log[len..len + frame.len()].copy_from_slice(frame);
+//! len += frame.len();
+//!
+//! // Read: feed chunks of any size.
+//! let mut dec: FrameDecoder = FrameDecoder::new();
+//! let mut records = 0;
+//! for chunk in log[..len].chunks(7) {
+//!     let mut input = chunk;
+//!     while let Some(event) = dec.feed(&mut input) {
+//!         if let Event::Frame { frame: Frame::Record(got), .. } = event {
+//!             assert_eq!(got, r);
+//!             records += 1;
+//!         }
+//!     }
+//! }
+//! assert_eq!(dec.finish(), None); // nothing left over
+//! assert_eq!(records, 1);
+//! # Ok::<(), headroom::record::codec::CodecError>(())
+//! ```
+
+use core::fmt;
+
+use super::{DecisionRecord, LogHeader, LogRecord};
+
+mod cobs;
+mod payload;
+mod stream;
+
+pub use stream::{Event, FrameDecoder};
+
+/// First four bytes of a header frame's body.
+pub const MAGIC: [u8; 4] = *b"hrlg";
+
+/// Format version written by this encoder.
+pub const VERSION: Version = Version { major: 1, minor: 1 };
+
+/// Largest payload (kind, seq, body, CRC) a frame may carry. Kept below 254
+/// so that COBS adds exactly one byte.
+pub const MAX_PAYLOAD: usize = 250;
+
+/// Largest frame on the wire: COBS-encoded [`MAX_PAYLOAD`] plus the `0x00`
+/// delimiter. A run of more bytes without `0x00` is damage.
+pub const MAX_FRAME: usize = MAX_PAYLOAD + 2;
+
+/// Smallest payload: kind, seq and CRC with an empty body.
+const MIN_PAYLOAD: usize = 1 + 2 + 4;
+
+/// Frame kind of the header.
+pub const KIND_HEADER: u8 = 0;
+/// Frame kind of a [`LogRecord`].
+pub const KIND_RECORD: u8 = 1;
+/// Frame kind of a [`DecisionRecord`].
+pub const KIND_DECISION: u8 = 2;
+
+/// A format version. Readers accept any minor version of their major
+/// version (newer minors only append fields and add frame kinds) and refuse
+/// other major versions.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Version {
+    /// Incompatible changes.
+    pub major: u8,
+    /// Compatible additions.
+    pub minor: u8,
+}
+
+/// Why bytes could not be encoded or decoded.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum CodecError {
+    /// The output buffer cannot hold the frame.
+    BufferTooSmall,
+    /// More than [`MAX_FRAME`] bytes without a `0x00` delimiter.
+    FrameTooLong,
+    /// Too few bytes for kind, sequence number and CRC.
+    TooShort,
+    /// The bytes are not valid COBS (a `0x00` inside, or a block running
+    /// past the end).
+    Cobs,
+    /// The CRC-32C does not match the frame's content.
+    Crc,
+    /// The CRC matched but the body does not decode as its kind says.
+    Payload,
+    /// A header frame without the `hrlg` magic.
+    BadMagic,
+    /// A header of a major version this decoder does not read.
+    UnknownVersion {
+        /// Major version found.
+        major: u8,
+        /// Minor version found.
+        minor: u8,
+    },
+    /// The stream ended inside a frame (no final `0x00`).
+    Truncated,
+    /// [`Frame::Other`] has no body to encode.
+    UnknownKind(u8),
+}
+
+impl fmt::Display for CodecError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            CodecError::BufferTooSmall => f.write_str("output buffer too small for the frame"),
+            CodecError::FrameTooLong => {
+                write!(f, "no frame delimiter within {MAX_FRAME} bytes")
+            }
+            CodecError::TooShort => f.write_str("frame too short"),
+            CodecError::Cobs => f.write_str("frame is not valid COBS"),
+            CodecError::Crc => f.write_str("CRC-32C mismatch"),
+            CodecError::Payload => f.write_str("frame content does not decode"),
+            CodecError::BadMagic => f.write_str("header frame without the log magic"),
+            CodecError::UnknownVersion { major, minor } => write!(
+                f,
+                "log format version {major}.{minor} is not supported (this build reads {}.x)",
+                VERSION.major
+            ),
+            CodecError::Truncated => f.write_str("log ends inside a frame"),
+            CodecError::UnknownKind(k) => write!(f, "frame kind {k} cannot be encoded"),
+        }
+    }
+}
+
+impl core::error::Error for CodecError {}
+
+/// The content of one frame.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Frame {
+    /// The log's header and the format version it was written in.
+    Header {
+        /// What the log says about its device.
+        header: LogHeader,
+        /// Format version of the log.
+        version: Version,
+    },
+    /// One logged packet.
+    Record(LogRecord),
+    /// One decision of a controller replaying on target.
+    Decision(DecisionRecord),
+    /// A frame of a kind this decoder does not know (from a newer minor
+    /// version); its CRC was good, its body is skipped.
+    Other {
+        /// The frame kind.
+        kind: u8,
+    },
+}
+
+/// One decoded frame and its sequence number.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Decoded {
+    /// Sequence number of the frame.
+    pub seq: u16,
+    /// Content of the frame.
+    pub frame: Frame,
+}
+
+/// Encode one frame with sequence number `seq` into `buf`; returns the
+/// frame's bytes, final `0x00` included. A header frame is written with
+/// this encoder's [`VERSION`] whatever `version` it holds.
+pub fn encode_frame<'b>(
+    seq: u16,
+    frame: &Frame,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
+    let mut payload = [0u8; MAX_PAYLOAD];
+    let len = payload::encode_payload(seq, frame, &mut payload)?;
+    let payload = payload.get(..len).ok_or(CodecError::BufferTooSmall)?;
+    let n = cobs::encode(payload, buf)?;
+    let delim = buf.get_mut(n).ok_or(CodecError::BufferTooSmall)?;
+    *delim = 0;
+    buf.get(..=n).ok_or(CodecError::BufferTooSmall)
+}
+
+/// Encode a header frame (sequence number 0) into `buf`.
+pub fn encode_header<'b>(header: &LogHeader, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+    encode_frame(
+        0,
+        &Frame::Header {
+            header: *header,
+            version: VERSION,
+        },
+        buf,
+    )
+}
+
+/// Encode a record frame with sequence number `seq` into `buf`.
+pub fn encode_record<'b>(
+    seq: u16,
+    record: &LogRecord,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
+    encode_frame(seq, &Frame::Record(*record), buf)
+}
+
+/// Encode a decision frame with sequence number `seq` into `buf`.
+pub fn encode_decision<'b>(
+    seq: u16,
+    decision: &DecisionRecord,
+    buf: &'b mut [u8],
+) -> Result<&'b [u8], CodecError> {
+    encode_frame(seq, &Frame::Decision(*decision), buf)
+}
+
+/// Writes frames with consecutive sequence numbers, the first one 0.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Encoder {
+    seq: u16,
+}
+
+impl Encoder {
+    /// An encoder whose next frame gets sequence number 0.
+    pub const fn new() -> Self {
+        Encoder { seq: 0 }
+    }
+
+    /// Sequence number of the next frame.
+    pub const fn next_seq(&self) -> u16 {
+        self.seq
+    }
+
+    /// Encode `frame` into `buf` and advance the sequence number (only on
+    /// success).
+    pub fn frame<'b>(&mut self, frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], CodecError> {
+        let out = encode_frame(self.seq, frame, buf)?;
+        self.seq = self.seq.wrapping_add(1);
+        Ok(out)
+    }
+
+    /// Encode a header frame.
+    pub fn header<'b>(
+        &mut self,
+        header: &LogHeader,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
+        self.frame(
+            &Frame::Header {
+                header: *header,
+                version: VERSION,
+            },
+            buf,
+        )
+    }
+
+    /// Encode a record frame.
+    pub fn record<'b>(
+        &mut self,
+        record: &LogRecord,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
+        self.frame(&Frame::Record(*record), buf)
+    }
+
+    /// Encode a decision frame.
+    pub fn decision<'b>(
+        &mut self,
+        decision: &DecisionRecord,
+        buf: &'b mut [u8],
+    ) -> Result<&'b [u8], CodecError> {
+        self.frame(&Frame::Decision(*decision), buf)
+    }
+}
+
+/// Decode one frame: its COBS bytes without the final `0x00`.
+pub fn decode_frame(frame: &[u8]) -> Result<Decoded, CodecError> {
+    if frame.len() > MAX_FRAME - 1 {
+        return Err(CodecError::FrameTooLong);
+    }
+    if frame.len() < MIN_PAYLOAD + 1 {
+        return Err(CodecError::TooShort);
+    }
+    if cobs::find_zero(frame).is_some() {
+        return Err(CodecError::Cobs);
+    }
+    let mut payload = [0u8; MAX_FRAME];
+    let n = cobs::decode(frame, &mut payload)?;
+    payload::decode_payload(payload.get(..n).ok_or(CodecError::Cobs)?)
+}
+
+#[cfg(test)]
+#[allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
+pub(crate) mod tests {
+    use super::*;
+    use crate::units::{Db, Dbi, Dbm};
+
+    /// A record for the tests of this module and its layers.
+    pub(super) fn rec(t: u64) -> LogRecord {
+        LogRecord {
+            t_ms: t,
+            tx_dbm: Some(10.0),
+            rssi_dbm: Some(-90.25),
+            noise_dbm: None,
+        }
+    }
+
+    #[test]
+    fn round_trip_each_kind() {
+        let mut buf = [0u8; MAX_FRAME];
+        let h = LogHeader {
+            device_id: 0x1234_5678_9abc,
+            epoch_ms: 1_790_000_000_000,
+            min_tx: Some(Dbm(-4.0)),
+            max_tx: Some(Dbm(14.0)),
+            tx_step: Some(Db(1.0)),
+            antenna_gain: Some(Dbi(2.15)),
+            required_snr: Some(Db(-15.0)),
+            eirp_cap: Some(Dbm(16.15)),
+        };
+        for (seq, f) in [
+            (
+                0u16,
+                Frame::Header {
+                    header: h,
+                    version: VERSION,
+                },
+            ),
+            (1, Frame::Record(rec(7))),
+            (
+                65535,
+                Frame::Decision(DecisionRecord {
+                    t_ms: 9,
+                    tx_dbm: 3.5,
+                    outcome: 2,
+                    reason: 7,
+                }),
+            ),
+        ] {
+            let n = encode_frame(seq, &f, &mut buf).unwrap().len();
+            assert_eq!(buf[n - 1], 0);
+            assert!(!buf[..n - 1].contains(&0));
+            let d = decode_frame(&buf[..n - 1]).unwrap();
+            assert_eq!(d, Decoded { seq, frame: f });
+        }
+    }
+    #[test]
+    fn small_buffer_is_an_error() {
+        let mut buf = [0u8; 8];
+        assert_eq!(
+            encode_record(1, &rec(1), &mut buf),
+            Err(CodecError::BufferTooSmall)
+        );
+    }
+    #[test]
+    fn crc_catches_a_flip() {
+        let mut buf = [0u8; MAX_FRAME];
+        let n = encode_record(3, &rec(1000), &mut buf).unwrap().len();
+        buf[5] ^= 0x10;
+        if buf[5] == 0 {
+            buf[5] = 0x10;
+        }
+        assert!(decode_frame(&buf[..n - 1]).is_err());
+    }
+}

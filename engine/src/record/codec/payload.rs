@@ -1,0 +1,631 @@
+//! Layer 3: the payload of a frame: kind, sequence number, body, CRC-32C
+//! (layer 2, [`crate::record::crc`]), and the bodies of each kind.
+//!
+//! Bodies are postcard. Headers and decisions are read by postcard; record
+//! bodies, the hot path, by [`record_body`], which reads the same grammar
+//! and is generated from the same field list as the encoder's
+//! [`WireRecord`] (see [`record_fields!`]).
+
+use serde::{Deserialize, Serialize};
+
+use super::{CodecError, Decoded, Frame, Version, KIND_DECISION, KIND_HEADER, KIND_RECORD};
+use super::{MAGIC, MAX_PAYLOAD, MIN_PAYLOAD, VERSION};
+use crate::record::crc::{crc32c, Crc32c};
+use crate::record::{DecisionRecord, LogHeader, LogRecord};
+use crate::units::{Db, Dbi, Dbm};
+
+#[derive(Serialize, Deserialize)]
+struct WireHeader {
+    magic: [u8; 4],
+    major: u8,
+    minor: u8,
+    #[serde(serialize_with = "leb128::serialize")]
+    device_id: u64,
+    #[serde(serialize_with = "leb128::serialize")]
+    epoch_ms: u64,
+    min_tx_dbm: Option<f32>,
+    max_tx_dbm: Option<f32>,
+    tx_step_db: Option<f32>,
+    antenna_gain_dbi: Option<f32>,
+}
+
+/// Header fields appended by format 1.1 after those of 1.0 (a 1.0 header
+/// ends before them; they are then absent).
+#[derive(Serialize, Deserialize)]
+struct WireHeaderV11 {
+    required_snr_db: Option<f32>,
+    eirp_cap_dbm: Option<f32>,
+}
+
+/// The one list of a record's fields, in wire order: each field, its wire
+/// type and the reader of that type. It generates the encoder's
+/// [`WireRecord`] (postcard), its conversion from a [`LogRecord`], and the
+/// hand-written body reader [`record_body`]. Both conversions build the
+/// whole [`LogRecord`] without `..`, so a field added to [`LogRecord`] and
+/// not here does not compile, and a field added here is read and written
+/// alike (`record_body_reads_what_postcard_reads` checks the reader against
+/// postcard's).
+macro_rules! record_fields {
+    ($($(#[$attr:meta])* $field:ident: $ty:ty => $take:ident,)*) => {
+        #[derive(Serialize, Deserialize)]
+        pub(super) struct WireRecord {
+            $($(#[$attr])* pub(super) $field: $ty,)*
+        }
+
+        impl From<&LogRecord> for WireRecord {
+            fn from(r: &LogRecord) -> Self {
+                WireRecord { $($field: r.$field,)* }
+            }
+        }
+
+        impl From<WireRecord> for LogRecord {
+            fn from(w: WireRecord) -> Self {
+                LogRecord { $($field: w.$field,)* }
+            }
+        }
+
+        /// A record body, read the way postcard reads a [`WireRecord`]
+        /// (same values, same inputs refused; bytes after the fields
+        /// ignored), without going through serde: postcard's generic path
+        /// cost about 130 of the 410 instructions of a record frame's
+        /// decoding (callgrind, x86-64), this one about 60 with the one-word
+        /// varint of [`take_varint_u64`] (about 115 with a byte loop for it).
+        pub(super) fn record_body(body: &[u8]) -> Option<LogRecord> {
+            let rest = body;
+            $(let ($field, rest) = $take(rest)?;)*
+            let _ = rest;
+            Some(LogRecord { $($field,)* })
+        }
+    };
+}
+
+record_fields! {
+    #[serde(serialize_with = "leb128::serialize")]
+    t_ms: u64 => take_varint_u64,
+    tx_dbm: Option<f32> => take_option_f32,
+    rssi_dbm: Option<f32> => take_option_f32,
+    noise_dbm: Option<f32> => take_option_f32,
+}
+
+#[derive(Serialize, Deserialize)]
+struct WireDecision {
+    #[serde(serialize_with = "leb128::serialize")]
+    t_ms: u64,
+    tx_dbm: f32,
+    outcome: u8,
+    reason: u8,
+}
+
+/// The `u64` fields written as LEB128 varint bytes, exactly as postcard
+/// writes a `u64` (so the wire format is postcard's), but through a fixed
+/// array and a byte tuple: postcard's own `u64` varint writer indexes its
+/// scratch array in a way the optimiser cannot prove in bounds, which left
+/// a panic path in the encoder. Headers and decisions are read by postcard,
+/// record bodies by [`record_body`], which reads the same grammar.
+mod leb128 {
+    use serde::ser::{SerializeTuple, Serializer};
+
+    /// Most bytes of a `u64` varint: ceil(64 / 7).
+    pub(super) const MAX_LEN: usize = 10;
+
+    /// The varint bytes of `v` and how many of them are used.
+    pub(super) fn encode(v: u64) -> ([u8; MAX_LEN], usize) {
+        let mut out = [0u8; MAX_LEN];
+        let mut rest = v;
+        let mut used = 0usize;
+        for slot in out.iter_mut() {
+            // Low 7 bits; the cast keeps them (rest & 0x7F < 128).
+            let low = (rest & 0x7F) as u8;
+            rest >>= 7;
+            used += 1;
+            if rest == 0 {
+                *slot = low;
+                break;
+            }
+            *slot = low | 0x80;
+        }
+        (out, used)
+    }
+
+    pub(super) fn serialize<S: Serializer>(v: &u64, s: S) -> Result<S::Ok, S::Error> {
+        let (bytes, used) = encode(*v);
+        // postcard writes a tuple as its elements, without a length.
+        let mut t = s.serialize_tuple(used)?;
+        for b in bytes.iter().take(used) {
+            t.serialize_element(b)?;
+        }
+        t.end()
+    }
+}
+
+/// Write the body of `frame` into `body`; returns its kind and length.
+fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError> {
+    let too_small = |_| CodecError::BufferTooSmall;
+    Ok(match frame {
+        Frame::Header { header: h, .. } => {
+            let base = postcard::to_slice(
+                &WireHeader {
+                    magic: MAGIC,
+                    major: VERSION.major,
+                    minor: VERSION.minor,
+                    device_id: h.device_id,
+                    epoch_ms: h.epoch_ms,
+                    min_tx_dbm: h.min_tx.map(|v| v.0),
+                    max_tx_dbm: h.max_tx.map(|v| v.0),
+                    tx_step_db: h.tx_step.map(|v| v.0),
+                    antenna_gain_dbi: h.antenna_gain.map(|v| v.0),
+                },
+                &mut *body,
+            )
+            .map_err(too_small)?
+            .len();
+            // The 1.1 fields follow the 1.0 ones, so a 1.0 reader (which
+            // ignores trailing bytes) still reads the header.
+            let ext = postcard::to_slice(
+                &WireHeaderV11 {
+                    required_snr_db: h.required_snr.map(|v| v.0),
+                    eirp_cap_dbm: h.eirp_cap.map(|v| v.0),
+                },
+                body.get_mut(base..).ok_or(CodecError::BufferTooSmall)?,
+            )
+            .map_err(too_small)?
+            .len();
+            (KIND_HEADER, base + ext)
+        }
+        Frame::Record(r) => (
+            KIND_RECORD,
+            postcard::to_slice(&WireRecord::from(r), body)
+                .map_err(too_small)?
+                .len(),
+        ),
+        Frame::Decision(d) => (
+            KIND_DECISION,
+            postcard::to_slice(
+                &WireDecision {
+                    t_ms: d.t_ms,
+                    tx_dbm: d.tx_dbm,
+                    outcome: d.outcome,
+                    reason: d.reason,
+                },
+                body,
+            )
+            .map_err(too_small)?
+            .len(),
+        ),
+        Frame::Other { kind } => return Err(CodecError::UnknownKind(*kind)),
+    })
+}
+
+/// Write the payload of `frame` (kind, `seq`, body, CRC) into `payload`;
+/// returns its length.
+pub(super) fn encode_payload(
+    seq: u16,
+    frame: &Frame,
+    payload: &mut [u8; MAX_PAYLOAD],
+) -> Result<usize, CodecError> {
+    let body_len = {
+        let (head, rest) = payload.split_at_mut(3);
+        let body = rest
+            .get_mut(..MAX_PAYLOAD - MIN_PAYLOAD)
+            .ok_or(CodecError::BufferTooSmall)?;
+        let (kind, used) = encode_body(frame, body)?;
+        let [k, s0, s1] = head else {
+            return Err(CodecError::BufferTooSmall);
+        };
+        *k = kind;
+        [*s0, *s1] = seq.to_le_bytes();
+        used
+    };
+    let crc_at = 3 + body_len;
+    let crc = crc32c(payload.get(..crc_at).ok_or(CodecError::BufferTooSmall)?);
+    payload
+        .get_mut(crc_at..crc_at + 4)
+        .ok_or(CodecError::BufferTooSmall)?
+        .copy_from_slice(&crc.to_le_bytes());
+    Ok(crc_at + 4)
+}
+
+/// A `u64` LEB128 varint as postcard reads it: at most
+/// [`leb128::MAX_LEN`] bytes, the last of ten at most 1 (no bits past 64);
+/// non-minimal encodings are accepted, as postcard accepts them.
+#[inline]
+fn take_varint_u64(bytes: &[u8]) -> Option<(u64, &[u8])> {
+    // A varint of up to 8 bytes (values below 2^56: every time stamp of a
+    // real log) in one word: the first byte without the continuation bit
+    // ends it, and three shift-and-mask steps pack the 7-bit groups. The
+    // byte-by-byte loop below cost 13 instructions per byte, about 70 per
+    // record of the bench log (5.4-byte time stamps); this about 20
+    // (callgrind, x86-64).
+    if let Some(w) = bytes.first_chunk::<8>() {
+        let w = u64::from_le_bytes(*w);
+        let stops = !w & 0x8080_8080_8080_8080;
+        if stops != 0 {
+            // 1..=8 bytes.
+            let len = (stops.trailing_zeros() / 8 + 1) as usize;
+            let x = w & (u64::MAX >> (64 - 8 * len)) & 0x7F7F_7F7F_7F7F_7F7F;
+            let x = (x & 0x007F_007F_007F_007F) | ((x & 0x7F00_7F00_7F00_7F00) >> 1);
+            let x = (x & 0x0000_3FFF_0000_3FFF) | ((x & 0x3FFF_0000_3FFF_0000) >> 2);
+            let x = (x & 0x0000_0000_0FFF_FFFF) | ((x & 0x0FFF_FFFF_0000_0000) >> 4);
+            return Some((x, bytes.get(len..).unwrap_or(&[])));
+        }
+    }
+    let mut out = 0u64;
+    for (i, &b) in bytes.iter().enumerate().take(leb128::MAX_LEN) {
+        out |= u64::from(b & 0x7F) << (7 * i);
+        if b & 0x80 == 0 {
+            if i == leb128::MAX_LEN - 1 && b > 1 {
+                return None;
+            }
+            return Some((out, bytes.get(i + 1..).unwrap_or(&[])));
+        }
+    }
+    None
+}
+
+/// An `Option<f32>` as postcard reads it: tag 0 (none) or 1 followed by
+/// four little-endian bytes; any other tag is refused.
+#[inline]
+fn take_option_f32(bytes: &[u8]) -> Option<(Option<f32>, &[u8])> {
+    match bytes {
+        [0, rest @ ..] => Some((None, rest)),
+        [1, a, b, c, d, rest @ ..] => Some((Some(f32::from_le_bytes([*a, *b, *c, *d])), rest)),
+        _ => None,
+    }
+}
+
+/// Decode a payload: kind, seq, body, CRC.
+pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
+    if p.len() < MIN_PAYLOAD {
+        return Err(CodecError::TooShort);
+    }
+    let (content, crc) = p
+        .split_at_checked(p.len() - 4)
+        .ok_or(CodecError::TooShort)?;
+    let &[c0, c1, c2, c3] = crc else {
+        return Err(CodecError::TooShort);
+    };
+    let want = [c0, c1, c2, c3];
+    let mut c = Crc32c::new();
+    c.update(content);
+    if c.value() != u32::from_le_bytes(want) {
+        return Err(CodecError::Crc);
+    }
+    let (head, body) = content.split_at_checked(3).ok_or(CodecError::TooShort)?;
+    let &[kind, s0, s1] = head else {
+        return Err(CodecError::TooShort);
+    };
+    let seq = u16::from_le_bytes([s0, s1]);
+    // Bytes after the fields this version knows are ignored (newer minors
+    // append fields).
+    let frame = match kind {
+        KIND_HEADER => {
+            let (h, rest) =
+                postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
+            // 1.0 headers end here; 1.1 appends its fields.
+            let ext = if rest.is_empty() || h.minor == 0 {
+                WireHeaderV11 {
+                    required_snr_db: None,
+                    eirp_cap_dbm: None,
+                }
+            } else {
+                postcard::take_from_bytes::<WireHeaderV11>(rest)
+                    .map_err(|_| CodecError::Payload)?
+                    .0
+            };
+            if h.magic != MAGIC {
+                return Err(CodecError::BadMagic);
+            }
+            if h.major != VERSION.major {
+                return Err(CodecError::UnknownVersion {
+                    major: h.major,
+                    minor: h.minor,
+                });
+            }
+            Frame::Header {
+                header: LogHeader {
+                    device_id: h.device_id,
+                    epoch_ms: h.epoch_ms,
+                    min_tx: h.min_tx_dbm.map(Dbm),
+                    max_tx: h.max_tx_dbm.map(Dbm),
+                    tx_step: h.tx_step_db.map(Db),
+                    antenna_gain: h.antenna_gain_dbi.map(Dbi),
+                    required_snr: ext.required_snr_db.map(Db),
+                    eirp_cap: ext.eirp_cap_dbm.map(Dbm),
+                },
+                version: Version {
+                    major: h.major,
+                    minor: h.minor,
+                },
+            }
+        }
+        KIND_RECORD => Frame::Record(record_body(body).ok_or(CodecError::Payload)?),
+        KIND_DECISION => {
+            let (d, _) =
+                postcard::take_from_bytes::<WireDecision>(body).map_err(|_| CodecError::Payload)?;
+            Frame::Decision(DecisionRecord {
+                t_ms: d.t_ms,
+                tx_dbm: d.tx_dbm,
+                outcome: d.outcome,
+                reason: d.reason,
+            })
+        }
+        kind => Frame::Other { kind },
+    };
+    Ok(Decoded { seq, frame })
+}
+
+#[cfg(test)]
+#[allow(
+    clippy::unwrap_used,
+    clippy::indexing_slicing,
+    clippy::cast_possible_truncation
+)]
+mod tests {
+    use super::*;
+    use crate::record::codec::{decode_frame, encode_record, MAX_FRAME};
+
+    #[test]
+    fn record_body_reads_what_postcard_reads() {
+        fn bits(r: &LogRecord) -> (u64, [Option<u32>; 3]) {
+            (
+                r.t_ms,
+                [r.tx_dbm, r.rssi_dbm, r.noise_dbm].map(|v| v.map(f32::to_bits)),
+            )
+        }
+        fn check(body: &[u8]) {
+            let ours = record_body(body);
+            let theirs = postcard::take_from_bytes::<WireRecord>(body)
+                .ok()
+                .map(|(r, _)| LogRecord::from(r));
+            assert_eq!(
+                ours.as_ref().map(bits),
+                theirs.as_ref().map(bits),
+                "{body:?}"
+            );
+        }
+        // Bytes from an LCG, drawn mostly from the values that matter to the
+        // grammar (option tags, varint continuation bits, the tenth byte's
+        // limit), every length up to 30.
+        let mut x: u32 = 3;
+        let mut next = || {
+            x = x.wrapping_mul(1_103_515_245).wrapping_add(12_345);
+            (x >> 16) as u8
+        };
+        for len in 0..30usize {
+            for _ in 0..4000 {
+                let mut body = [0u8; 30];
+                for b in body.iter_mut().take(len) {
+                    let r = next();
+                    *b = match r % 8 {
+                        0 => 0,
+                        1 => 1,
+                        2 => 2,
+                        3 => 0x80,
+                        4 => 0x81,
+                        5 => 0xFF,
+                        _ => next(),
+                    };
+                }
+                check(&body[..len]);
+            }
+        }
+        // Varints of every length 1..=11 with each last byte, then valid
+        // options and trailing bytes.
+        for n in 1..=11usize {
+            for last in [0u8, 1, 2, 0x7F, 0x80] {
+                let mut body = [0u8; 40];
+                body[..n - 1].fill(0xFF);
+                body[n - 1] = last;
+                body[n] = 1;
+                body[n + 1..n + 5].copy_from_slice(&(-90.5f32).to_le_bytes());
+                body[n + 5] = 0;
+                body[n + 6] = 1;
+                body[n + 7..n + 11]
+                    .copy_from_slice(&f32::NAN.to_bits().wrapping_add(3).to_le_bytes());
+                for end in n..=n + 14 {
+                    check(&body[..end]);
+                }
+            }
+        }
+        // Time stamps of every varint length, with bodies short and long
+        // enough for the one-word path and the byte loop alike.
+        for k in 0..64u32 {
+            for t in [1u64 << k, (1u64 << k) - 1, (1u64 << k) | 0x55] {
+                let mut body = [0u8; 40];
+                let (v, n) = leb128::encode(t);
+                body[..n].copy_from_slice(&v[..n]);
+                for end in 0..=n + 3 {
+                    check(&body[..end]);
+                }
+                assert_eq!(
+                    take_varint_u64(&body).map(|(x, r)| (x, r.len())),
+                    Some((t, 40 - n))
+                );
+            }
+        }
+        // Every encoded record reads back.
+        let mut buf = [0u8; MAX_FRAME];
+        for t in [0u64, 1, 127, 128, 1 << 35, u64::MAX] {
+            for v in [None, Some(-0.0f32), Some(14.0), Some(f32::INFINITY)] {
+                let r = LogRecord {
+                    t_ms: t,
+                    tx_dbm: v,
+                    rssi_dbm: Some(-97.25),
+                    noise_dbm: v,
+                };
+                let n = encode_record(9, &r, &mut buf).unwrap().len();
+                let d = decode_frame(&buf[..n - 1]).unwrap();
+                assert_eq!(d.frame, Frame::Record(r));
+            }
+        }
+    }
+    #[test]
+    fn own_varint_writes_what_postcard_writes() {
+        // The wire format is postcard's u64 varint; our writer must agree
+        // with postcard's own for every length 1..=10.
+        let mut values = [0u64; 3 * 10 + 2];
+        for k in 0..10u32 {
+            let edge = 1u64.checked_shl(7 * k).unwrap_or(0);
+            values[3 * k as usize] = edge;
+            values[3 * k as usize + 1] = edge.wrapping_sub(1);
+            values[3 * k as usize + 2] = edge.wrapping_add(1);
+        }
+        values[30] = u64::MAX;
+        values[31] = 1500;
+        for v in values {
+            let mut ours = [0u8; 16];
+            let mut theirs = [0u8; 16];
+            let a = postcard::to_slice(
+                &WireDecision {
+                    t_ms: v,
+                    tx_dbm: 1.0,
+                    outcome: 2,
+                    reason: 3,
+                },
+                &mut ours,
+            )
+            .unwrap()
+            .len();
+            // postcard's own u64 writer, for comparison.
+            let b = postcard::to_slice(&(v, 1.0f32, 2u8, 3u8), &mut theirs)
+                .unwrap()
+                .len();
+            assert_eq!(&ours[..a], &theirs[..b], "t_ms = {v}");
+            let (back, _) = postcard::take_from_bytes::<WireDecision>(&ours[..a]).unwrap();
+            assert_eq!(back.t_ms, v);
+        }
+        // The documented example: 1500 = dc 0b.
+        assert_eq!(
+            leb128::encode(1500),
+            ([0xdc, 0x0b, 0, 0, 0, 0, 0, 0, 0, 0], 2)
+        );
+        assert_eq!(leb128::encode(u64::MAX).1, leb128::MAX_LEN);
+    }
+
+    /// The payload of a header frame as a 1.0 writer made it: the 1.0 fields
+    /// only, minor version 0.
+    fn header_v10_payload(h: &LogHeader, out: &mut [u8; MAX_PAYLOAD]) -> usize {
+        out[0] = KIND_HEADER;
+        out[1..3].copy_from_slice(&0u16.to_le_bytes());
+        let n = postcard::to_slice(
+            &WireHeader {
+                magic: MAGIC,
+                major: 1,
+                minor: 0,
+                device_id: h.device_id,
+                epoch_ms: h.epoch_ms,
+                min_tx_dbm: h.min_tx.map(|v| v.0),
+                max_tx_dbm: h.max_tx.map(|v| v.0),
+                tx_step_db: h.tx_step.map(|v| v.0),
+                antenna_gain_dbi: h.antenna_gain.map(|v| v.0),
+            },
+            &mut out[3..],
+        )
+        .unwrap()
+        .len();
+        let crc = crc32c(&out[..3 + n]);
+        out[3 + n..3 + n + 4].copy_from_slice(&crc.to_le_bytes());
+        3 + n + 4
+    }
+
+    #[test]
+    fn a_1_0_header_reads_without_the_1_1_fields_and_a_1_1_header_with_them() {
+        let h = LogHeader {
+            device_id: 77,
+            epoch_ms: 1_790_000_000_000,
+            min_tx: Some(Dbm(2.0)),
+            max_tx: Some(Dbm(20.0)),
+            tx_step: Some(Db(2.0)),
+            antenna_gain: Some(Dbi(1.5)),
+            required_snr: Some(Db(-15.0)),
+            eirp_cap: Some(Dbm(16.15)),
+        };
+        // 1.0: the fields it has, the 1.1 fields absent.
+        let mut p = [0u8; MAX_PAYLOAD];
+        let n = header_v10_payload(&h, &mut p);
+        let d = decode_payload(&p[..n]).unwrap();
+        let want = LogHeader {
+            required_snr: None,
+            eirp_cap: None,
+            ..h
+        };
+        assert_eq!(
+            d.frame,
+            Frame::Header {
+                header: want,
+                version: Version { major: 1, minor: 0 }
+            }
+        );
+        // The same frame through the whole decoder (COBS and all).
+        let mut wire = [0u8; MAX_FRAME];
+        let m = crate::record::codec::cobs::encode(&p[..n], &mut wire).unwrap();
+        assert_eq!(decode_frame(&wire[..m]).unwrap().frame, d.frame);
+        // 1.1: both fields read back, and each alone.
+        for (snr, cap) in [
+            (Some(Db(-15.0)), Some(Dbm(16.15))),
+            (None, Some(Dbm(30.0))),
+            (Some(Db(8.0)), None),
+        ] {
+            let h = LogHeader {
+                required_snr: snr,
+                eirp_cap: cap,
+                ..h
+            };
+            let mut q = [0u8; MAX_PAYLOAD];
+            let n = encode_payload(
+                0,
+                &Frame::Header {
+                    header: h,
+                    version: VERSION,
+                },
+                &mut q,
+            )
+            .unwrap();
+            assert_eq!(
+                decode_payload(&q[..n]).unwrap().frame,
+                Frame::Header {
+                    header: h,
+                    version: Version { major: 1, minor: 1 }
+                }
+            );
+        }
+    }
+
+    #[test]
+    fn every_record_field_is_written_and_read() {
+        // Each field alone set to a distinctive value, the others default:
+        // the reader gets back exactly the record written, so a field the
+        // field list missed on one side would come back as its default.
+        let full = LogRecord {
+            t_ms: 0x1234_5678,
+            tx_dbm: Some(13.5),
+            rssi_dbm: Some(-101.25),
+            noise_dbm: Some(-117.0),
+        };
+        let mut q = [0u8; MAX_PAYLOAD];
+        for r in [
+            full,
+            LogRecord {
+                t_ms: 1,
+                ..LogRecord::default()
+            },
+            LogRecord {
+                tx_dbm: full.tx_dbm,
+                ..LogRecord::default()
+            },
+            LogRecord {
+                rssi_dbm: full.rssi_dbm,
+                ..LogRecord::default()
+            },
+            LogRecord {
+                noise_dbm: full.noise_dbm,
+                ..LogRecord::default()
+            },
+        ] {
+            let n = encode_payload(5, &Frame::Record(r), &mut q).unwrap();
+            assert_eq!(decode_payload(&q[..n]).unwrap().frame, Frame::Record(r));
+            let (w, _) = postcard::take_from_bytes::<WireRecord>(&q[3..n - 4]).unwrap();
+            assert_eq!(LogRecord::from(w), r);
+        }
+    }
+}
