@@ -546,3 +546,78 @@ fn fleet_refusals_and_skipped_entries() {
         assert!(stderr(&o).contains("c.csv"), "{}", stderr(&o));
     }
 }
+
+#[test]
+fn energy_reports_the_battery_life_of_the_field_policy_and_of_the_controller() {
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--energy",
+        &example("examples/energy/orchard-868.toml"),
+        "--format",
+        "json",
+    ]);
+    let v = json(&o);
+    let e = &v["logs"][0]["energy"];
+    for side in ["replayed", "logged"] {
+        for k in [
+            "charge_per_packet_uc",
+            "charge_per_delivered_uc",
+            "mean_current_ua",
+            "battery_life_days",
+        ] {
+            assert!(
+                e[side][k].as_f64().is_some_and(|x| x > 0.0),
+                "{side}.{k}: {e}"
+            );
+        }
+    }
+    // The controller sends at lower power than the fixed 14 dBm: less charge,
+    // longer life, and the gain is the difference of the two lives.
+    let (r, l) = (&e["replayed"], &e["logged"]);
+    assert!(r["charge_per_packet_uc"].as_f64() < l["charge_per_packet_uc"].as_f64());
+    let gain = e["battery_life_gain_days"].as_f64().expect("gain");
+    let diff =
+        r["battery_life_days"].as_f64().expect("r") - l["battery_life_days"].as_f64().expect("l");
+    assert!(
+        (gain - diff).abs() < 1e-2 * diff.abs().max(1.0),
+        "{gain} vs {diff}"
+    );
+    // A fixed interval instead of the time stamps: 5 min is the log's own.
+    let v2 = json(&headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--energy",
+        &example("examples/energy/orchard-868.toml"),
+        "--interval",
+        "5min",
+        "--format",
+        "json",
+    ]));
+    let i1 = e["replayed"]["mean_current_ua"].as_f64().expect("i");
+    let i2 = v2["logs"][0]["energy"]["replayed"]["mean_current_ua"]
+        .as_f64()
+        .expect("i");
+    assert!((i1 - i2).abs() < 1e-3 * i1, "{i1} vs {i2}");
+    // The table says it too.
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--energy",
+        &example("examples/energy/orchard-868.toml"),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("battery_life_gain"), "{}", stdout(&o));
+    // --interval without a profile, and a bare interval, are refused.
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--interval",
+        "5min",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let o = headroom(&[
+        &example("examples/logs/orchard-868.csv"),
+        "--energy",
+        &example("examples/energy/orchard-868.toml"),
+        "--interval",
+        "300",
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+}

@@ -13,6 +13,7 @@
 //! | [`airtime`] | time on air of a generic packet modem and of chirp spread spectrum |
 //! | [`duty`] | duty cycle, airtime per hour, EN 300 220 sub-band limits |
 //! | [`tally`] | linear sums of charge and airtime that add up over records and devices |
+//! | [`replay`] | the two tallies of a replay: the controller's packets and the device's |
 //!
 //! ## The formulas (with the profile's units)
 //! - charge per packet (µC) = I_tx(P) (mA) · airtime (ms) + I_rx (mA) · rx
@@ -28,6 +29,7 @@
 pub mod airtime;
 pub mod duty;
 pub mod profile;
+pub mod replay;
 pub mod tally;
 
 pub use airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
@@ -36,6 +38,7 @@ pub use profile::{
     Battery, Delivery, EnergyProfile, PacketCost, Refinements, TableError, TxCurrentTable, TxPoint,
     TX_POINTS,
 };
+pub use replay::ReplayEnergy;
 pub use tally::EnergyTally;
 
 pub use crate::units::{

@@ -21,6 +21,7 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
 use headroom::control::{Fleet, Outcome, ReplayStep, Summary};
+use headroom::energy::ReplayEnergy;
 use headroom::record::codec::{Encoder, MAX_FRAME};
 use headroom::record::DecisionRecord;
 use serde_json::{Map, Value};
@@ -89,6 +90,15 @@ pub struct Args {
     /// limits, and margin against time; `.svg` or `.png` (one log only).
     #[arg(long, value_name = "FILE.svg|FILE.png")]
     plot: Option<PathBuf>,
+    /// Energy profile of the radio (TOML; see examples/energy/): report the
+    /// charge per packet, mean current and battery life of the replayed
+    /// controller and of the device as logged.
+    #[arg(long, value_name = "PROFILE.toml")]
+    energy: Option<PathBuf>,
+    /// With --energy: one packet every this long (`15min`), instead of the
+    /// interval the log's time stamps give.
+    #[arg(long, value_name = "DURATION", value_parser = crate::quantity::duration, requires = "energy")]
+    interval: Option<headroom::units::Seconds>,
     /// Replace the files of `--out` and `--plot` if they exist (never an input).
     #[arg(long)]
     force: bool,
@@ -139,18 +149,27 @@ pub fn run(args: Args) -> CliResult {
         })?;
     }
     let resolver = Resolver::new(&args.settings)?;
+    let energy = match &args.energy {
+        Some(p) => Some(crate::energy::load(p)?),
+        None => None,
+    };
     let mut fleet = Fleet::new();
+    let mut fleet_energy = ReplayEnergy::new(None);
     let mut names: Vec<String> = Vec::new();
     let mut blocks: Vec<Map<String, Value>> = Vec::new();
     let mut table = String::new();
     for path in &list.logs {
         let name = path.display().to_string();
-        let (settings, s) = replay_log(path, &resolver, &args)?;
+        let (settings, s, e) = replay_log(path, &resolver, energy.as_ref(), &args)?;
         for w in &settings.warnings {
             warn(&format!("{name}: {w}"));
         }
         let target = settings.resolved.config.target_outage;
-        let obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
+        let mut obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
+        if let (Some(e), Some(p)) = (&e, &energy) {
+            obj.insert("energy".into(), report::energy_json(e, p, true));
+            fleet_energy.merge(e);
+        }
         match args.format {
             ReplayFormat::Jsonl => {
                 let line = crate::output::json_line(&Value::Object(obj))?;
@@ -163,6 +182,9 @@ pub fn run(args: Args) -> CliResult {
                 report::settings_table(&mut table, &settings.resolved);
                 let _ = writeln!(table);
                 report::summary_table(&mut table, &s);
+                if let (Some(e), Some(p)) = (&e, &energy) {
+                    report::energy_table(&mut table, e, p, true);
+                }
                 let _ = writeln!(table);
             }
         }
@@ -177,10 +199,14 @@ pub fn run(args: Args) -> CliResult {
                 "logs".into(),
                 Value::Array(blocks.into_iter().map(Value::Object).collect()),
             );
-            m.insert(
-                "fleet".into(),
-                Value::Object(report::fleet_json(&fleet, list.skipped.len(), &names)),
-            );
+            let mut f = report::fleet_json(&fleet, list.skipped.len(), &names);
+            if let Some(p) = &energy {
+                f.insert(
+                    "energy".into(),
+                    report::energy_json(&fleet_energy, p, false),
+                );
+            }
+            m.insert("fleet".into(), Value::Object(f));
             let s = crate::output::json_text(&Value::Object(m))?;
             print_text(&format!("{s}\n"))
         }
@@ -189,6 +215,9 @@ pub fn run(args: Args) -> CliResult {
                 use std::fmt::Write as _;
                 let _ = writeln!(table, "== fleet ({} logs)", names.len());
                 report::fleet_table(&mut table, &fleet, list.skipped.len(), &names);
+                if let Some(p) = &energy {
+                    report::energy_table(&mut table, &fleet_energy, p, false);
+                }
             }
             print_text(&table)
         }
@@ -215,8 +244,9 @@ fn print_text(text: &str) -> CliResult {
 fn replay_log(
     path: &Path,
     resolver: &Resolver,
+    energy: Option<&crate::energy::LoadedProfile>,
     args: &Args,
-) -> CliResult<(fleet::settings::LogSettings, Summary)> {
+) -> CliResult<(fleet::settings::LogSettings, Summary, Option<ReplayEnergy>)> {
     let fleet::OpenLog {
         mut reader,
         settings,
@@ -229,9 +259,21 @@ fn replay_log(
         None => None,
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
+    let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
     for rec in &mut reader {
         let rec = rec?;
         let step = replay.step(&rec);
+        if let (Some(t), Some(p)) = (tally.as_mut(), energy) {
+            t.add(&p.profile, &rec, &step).map_err(|e| {
+                let why = crate::energy::refusal(&e, "--energy", "--interval", &[]);
+                CliError::Input(format!(
+                    "{}: record at t_ms {}: {}",
+                    path.display(),
+                    rec.t_ms,
+                    why
+                ))
+            })?;
+        }
         if let Some(w) = out.as_mut() {
             w.row(&step)?;
         }
@@ -279,7 +321,7 @@ fn replay_log(
         );
         plot::replay_plot(p, args.force, &format!("replay of {name}"), s)?;
     }
-    Ok((settings, *replay.summary()))
+    Ok((settings, *replay.summary(), tally))
 }
 
 /// The `--out` decisions, CSV or binary frames by the name's extension,

@@ -14,6 +14,9 @@ use std::fmt::Write as _;
 
 use headroom::control::settings::{Resolved, Setting, Source, Value as SettingValue};
 use headroom::control::{EirpCap, Fleet, PowerSteps, Reason, Summary};
+use headroom::energy::{EnergyTally, ReplayEnergy};
+
+use crate::energy::LoadedProfile;
 use serde_json::{Map, Value};
 
 use super::settings::show;
@@ -310,4 +313,96 @@ pub fn fleet_table(out: &mut String, f: &Fleet, skipped: usize, names: &[String]
         "devices_missing_target", f.missing_target, f.total.logs
     );
     summary_table(out, &f.total);
+}
+
+/// The energy of a replay beside the device's own, in JSON: for each of
+/// `replayed` and `logged`, `charge_per_packet_uc`,
+/// `charge_per_delivered_uc`, `mean_current_ua`, `battery_life_days`; then
+/// the saving in battery days and percent, and the linear sums. `one_log`:
+/// battery life and the saving are a device's (a fleet has no one battery).
+pub fn energy_json(e: &ReplayEnergy, p: &LoadedProfile, one_log: bool) -> Value {
+    let side = |t: &EnergyTally| {
+        let mut m = Map::new();
+        m.insert(
+            "charge_per_packet_uc".into(),
+            opt(t.charge_per_packet().map(|q| q.0)),
+        );
+        m.insert(
+            "charge_per_delivered_uc".into(),
+            opt(t.charge_per_delivered().map(|q| q.0)),
+        );
+        m.insert("mean_current_ua".into(), opt(t.mean_current().map(|i| i.0)));
+        let life = t
+            .mean_current()
+            .filter(|_| one_log)
+            .and_then(|i| p.profile.battery_life(i).ok());
+        m.insert("battery_life_days".into(), opt(life.map(|d| d.0)));
+        let mut sums = Map::new();
+        sums.insert("packets".into(), t.packets.into());
+        sums.insert("judged".into(), t.judged.into());
+        sums.insert("delivered".into(), t.delivered.into());
+        sums.insert("charge_uc".into(), Value::from(t.charge_uc));
+        sums.insert("judged_charge_uc".into(), Value::from(t.judged_charge_uc));
+        sums.insert("airtime_ms".into(), Value::from(t.airtime_ms));
+        sums.insert("span_ms".into(), t.span_ms.into());
+        sums.insert("span_charge_uc".into(), Value::from(t.span_charge_uc));
+        sums.insert("sleep_charge_uc".into(), Value::from(t.sleep_charge_uc));
+        m.insert("sums".into(), Value::Object(sums));
+        (Value::Object(m), life)
+    };
+    let (replayed, life_r) = side(&e.replayed);
+    let (logged, life_l) = side(&e.logged);
+    let mut m = Map::new();
+    m.insert("replayed".into(), replayed);
+    m.insert("logged".into(), logged);
+    let (days, pct) = match (life_r, life_l) {
+        (Some(r), Some(l)) if l.0 > 0.0 => (Some(r.0 - l.0), Some(100.0 * (r.0 - l.0) / l.0)),
+        _ => (None, None),
+    };
+    m.insert("battery_life_gain_days".into(), opt(days));
+    m.insert("battery_life_gain_percent".into(), opt(pct));
+    m.insert("logged_uncosted".into(), e.logged_uncosted.into());
+    Value::Object(m)
+}
+
+/// The energy lines of a table: the replay beside the device.
+pub fn energy_table(out: &mut String, e: &ReplayEnergy, p: &LoadedProfile, one_log: bool) {
+    let v = energy_json(e, p, one_log);
+    let num = |side: &str, k: &str, unit: &str, d: usize| {
+        v[side][k]
+            .as_f64()
+            .map_or_else(|| "n/a".to_string(), |x| format!("{x:.d$} {unit}"))
+    };
+    let _ = writeln!(
+        out,
+        "energy (airtime {} ms: {}):",
+        p.profile.airtime().0,
+        p.airtime_source.describe()
+    );
+    for (k, unit, d) in [
+        ("charge_per_packet_uc", "µC", 1),
+        ("charge_per_delivered_uc", "µC", 1),
+        ("mean_current_ua", "µA", 2),
+        ("battery_life_days", "days", 1),
+    ] {
+        if k == "battery_life_days" && !one_log {
+            continue;
+        }
+        let _ = writeln!(
+            out,
+            "  {k:<25}{:<16}{}",
+            num("replayed", k, unit, d),
+            num("logged", k, unit, d)
+        );
+    }
+    if one_log {
+        let gain = match (
+            v["battery_life_gain_days"].as_f64(),
+            v["battery_life_gain_percent"].as_f64(),
+        ) {
+            (Some(d), Some(p)) => format!("{d:+.1} days ({p:+.1} %) with the controller"),
+            _ => "n/a (no battery in the profile, or no time span in the log)".into(),
+        };
+        let _ = writeln!(out, "{:<24}{gain}", "battery_life_gain");
+    }
 }
