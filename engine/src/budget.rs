@@ -218,6 +218,9 @@ pub struct Level<'a> {
     pub name: &'a str,
     /// Power after this stage.
     pub level: Dbm,
+    /// The stage's own gain (a line item's gain, the path loss as a negative
+    /// gain); `None` for the transmitter output, EIRP and receiver input.
+    pub gain: Option<Db>,
 }
 
 /// A link of at most `N` line items.
@@ -522,7 +525,12 @@ impl<const N: usize> Link<N> {
         let after_path = after_loss + self.side_total(Side::Path);
         let rx_power =
             eirp - self.path_loss + self.side_total(Side::Path) + self.side_total(Side::Receiver);
-        let fixed = |stage, name, level| Level { stage, name, level };
+        let fixed = |stage, name, level| Level {
+            stage,
+            name,
+            level,
+            gain: None,
+        };
         let running = move |side: Side, start: Dbm| {
             self.items
                 .iter()
@@ -533,6 +541,7 @@ impl<const N: usize> Link<N> {
                         stage: Stage::Item(side),
                         name: i.name.as_str(),
                         level: *acc,
+                        gain: Some(i.gain),
                     })
                 })
         };
@@ -543,11 +552,12 @@ impl<const N: usize> Link<N> {
         ))
         .chain(running(Side::Transmitter, self.tx_power))
         .chain(core::iter::once(fixed(Stage::Eirp, "EIRP", eirp)))
-        .chain(core::iter::once(fixed(
-            Stage::PathLoss,
-            "path loss",
-            after_loss,
-        )))
+        .chain(core::iter::once(Level {
+            stage: Stage::PathLoss,
+            name: "path loss",
+            level: after_loss,
+            gain: Some(Db(-self.path_loss.0)),
+        }))
         .chain(running(Side::Path, after_loss))
         .chain(running(Side::Receiver, after_path))
         .chain(core::iter::once(fixed(

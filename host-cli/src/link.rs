@@ -292,6 +292,8 @@ pub struct LoadedLink {
     pub model: Option<PathLossModel>,
     /// The budget.
     pub link: Link<MAX_ITEMS>,
+    /// The budget evaluated, once (re-evaluated only when `link` changes).
+    pub evaluated: headroom::budget::BudgetResult,
     /// `[solve] target_margin`.
     pub target_margin: Db,
     /// The transmitter's limits.
@@ -602,6 +604,7 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
         distance,
         model,
         link,
+        evaluated: r,
         target_margin,
         limits,
         warnings,

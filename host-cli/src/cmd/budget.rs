@@ -107,7 +107,8 @@ pub fn load_at(
             .push("rx aperture held fixed", Side::Path, g)
             .map_err(at)?;
     }
-    l.link
+    l.evaluated = l
+        .link
         .evaluate()
         .map_err(|e| CliError::arg("--antennas", e))?;
     Ok(l)
@@ -164,7 +165,7 @@ fn limits(rep: &mut Report, l: &LoadedLink) {
 
 /// Put the budget of a loaded link into a report (shared with `solve`).
 pub fn report(l: &LoadedLink) -> CliResult<Report> {
-    let r = l.link.evaluate()?;
+    let r = l.evaluated;
     let mut warnings = l.warnings.clone();
     let mut rep = Report::new();
     rep.value("link", json!(l.name));
@@ -246,7 +247,7 @@ fn run_inner(args: Args) -> CliResult {
     let l = load_at(&args.link, args.frequency, args.antennas)?;
     let rep = report(&l)?;
     if let Some(p) = &args.plot {
-        plot::budget_plot(p, args.force, &l.name, &l.link)?;
+        plot::budget_plot(p, args.force, &l.name, &l.link, &l.evaluated)?;
     }
     rep.print(args.format)
 }

@@ -5,7 +5,7 @@
 
 use std::path::Path;
 
-use headroom::budget::{Link, Side, Stage};
+use headroom::budget::{BudgetResult, Link, Side, Stage};
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
@@ -61,13 +61,9 @@ pub fn budget_plot<const N: usize>(
     force: bool,
     title: &str,
     link: &Link<N>,
+    r: &BudgetResult,
 ) -> CliResult {
     super::check_destination(path, force)?;
-    let r = link.evaluate()?;
-    // levels() yields the items of each side in their order: walk the same
-    // items alongside to show each one's gain under its name.
-    let mut by_side = [Side::Transmitter, Side::Path, Side::Receiver]
-        .map(|s| link.items.iter().filter(move |i| i.side == s));
     let band_of = |side| match side {
         Side::Transmitter => Band::Tx,
         Side::Path => Band::Path,
@@ -75,23 +71,13 @@ pub fn budget_plot<const N: usize>(
     };
     let mut columns = Vec::new();
     for lv in link.levels()? {
-        let (gain_db, band) = match lv.stage {
-            Stage::TransmitterOutput | Stage::Eirp => (None, Band::Tx),
-            Stage::PathLoss => (Some(-f64::from(link.path_loss.0)), Band::Path),
-            Stage::Item(side) => {
-                let k = match side {
-                    Side::Transmitter => 0,
-                    Side::Path => 1,
-                    Side::Receiver => 2,
-                };
-                let gain = by_side
-                    .get_mut(k)
-                    .and_then(Iterator::next)
-                    .map(|i| f64::from(i.gain.0));
-                (gain, band_of(side))
-            }
-            Stage::ReceiverInput => (None, Band::Rx),
+        let band = match lv.stage {
+            Stage::TransmitterOutput | Stage::Eirp => Band::Tx,
+            Stage::PathLoss => Band::Path,
+            Stage::Item(side) => band_of(side),
+            Stage::ReceiverInput => Band::Rx,
         };
+        let gain_db = lv.gain.map(|g| f64::from(g.0));
         columns.push(Column {
             name: crate::error::printable(lv.name),
             gain_db,
@@ -498,11 +484,11 @@ mod tests {
             Requirement::CarrierToNoise(Db(-10.0)),
             FadeAllowance::Fixed(Db(5.0)),
         );
-        let margin = link.evaluate().map(|r| r.margin.0).unwrap_or(f32::NAN);
-        assert!(margin < 0.0, "{margin}");
+        let r = link.evaluate().expect("evaluates");
+        assert!(r.margin.0 < 0.0, "{}", r.margin.0);
         let dir = tempfile::tempdir().expect("temp dir");
         let p = dir.path().join("short.svg");
-        budget_plot(&p, false, "cellar <probe> & gateway", &link).expect("drawn");
+        budget_plot(&p, false, "cellar <probe> & gateway", &link, &r).expect("drawn");
         let text = std::fs::read_to_string(&p).expect("written");
         let doc = roxmltree::Document::parse(&text).expect("well-formed XML");
         let texts: Vec<&str> = doc
@@ -515,7 +501,7 @@ mod tests {
             "title escaped and kept: {texts:?}"
         );
         assert!(texts.contains(&"short by"));
-        assert!(texts.contains(&format!("{} dB", signed(f64::from(-margin), 1)).as_str()));
+        assert!(texts.contains(&format!("{} dB", signed(f64::from(-r.margin.0), 1)).as_str()));
         assert!(texts.contains(&"\u{2212}140.0 dBm"), "{texts:?}");
     }
 
