@@ -1,14 +1,9 @@
 //! The per-packet transmit-power controller.
 
-use super::config::{
-    ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MARGIN_BITS, MARGIN_STEPS_PER_DB,
-    MAX_LEVELS, MAX_WINDOW,
-};
+use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_LEVELS, MAX_WINDOW};
+use super::fixed::*;
 use super::reason::Reason;
 use crate::units::{Db, Dbm};
-
-/// Steps of the stored readings per dB (readings are kept as `i16` in 1/32 dB).
-const Q_PER_DB: f32 = 32.0;
 
 /// Tolerance on the transmit power a feedback says was used, beyond the
 /// radio's configured range, dB (a radio's actual output differs from its
@@ -27,19 +22,6 @@ const MAE_TO_SIGMA: f32 = 1.253_314_1;
 /// right shifts: 1/8 follows changes over about eight packets, 1/2 over
 /// about two.
 const FILTER_SHIFTS: [u32; 2] = [3, 1];
-
-/// Extra fractional bits of the filters and prediction errors beyond the
-/// readings' 1/32 dB: they run in 1/8192 dB.
-const FINE_BITS: u32 = 8;
-
-/// Fractional bits of the fine steps per dB (1/8192 dB = 2⁻¹³ dB).
-const FINE_PER_DB_BITS: u32 = FINE_BITS + 5;
-
-/// Fine steps per dB.
-const FINE_PER_DB: f32 = (1u32 << FINE_PER_DB_BITS) as f32;
-
-/// dB per step of the filters (1/8192 dB).
-const DB_PER_FINE: f32 = 1.0 / (Q_PER_DB * (1u32 << FINE_BITS) as f32);
 
 /// What the device learnt about the packet it just sent (or the beacon it
 /// just heard). One observation per update.
@@ -300,93 +282,12 @@ impl<const W: usize> Window<W> {
     }
 }
 
-/// Fractional bits of the factor `Q⁻¹(p)·√(π/2)` applied to the mean
-/// absolute error.
-const SIGMA_FACTOR_BITS: u32 = 16;
-
 /// Gain of the exponential filter of the far end's noise floor, as a right
 /// shift: 1/16, a memory of about sixteen readings.
 const NOISE_SHIFT: u32 = 4;
 
 /// Tolerance of the level comparisons, 1/8192 dB (about `GRID_EPS`).
 const EPS_FINE: i32 = 1;
-
-/// A dB value in 1/8192 dB, rounded half away from zero, or `None` if it is
-/// not finite; beyond ±2¹⁸ dB the value saturates at ±(2³¹ − 1).
-///
-/// Computed from the bits of the `f32` (sign, exponent, significand), so it
-/// is exact (no double rounding), identical on every target, and costs a few
-/// integer instructions on a core without an FPU, where a float multiply,
-/// add and conversion are library calls. It also is the finiteness check.
-#[allow(clippy::cast_possible_wrap)]
-#[inline(always)]
-fn fine_of(x: f32) -> Option<i32> {
-    let bits = x.to_bits();
-    let exp = (bits >> 23) & 0xff;
-    if exp == 0xff {
-        return None;
-    }
-    let frac = bits & 0x007f_ffff;
-    // |x| = sig · 2^(e − 150), so |x|·2¹³ = sig · 2^(e − 137); a subnormal
-    // has e = 1 and no implicit bit.
-    let (sig, e) = if exp == 0 {
-        (frac, 1)
-    } else {
-        (frac | 0x0080_0000, exp)
-    };
-    let mag = if e >= 137 {
-        // sig < 2²⁴: up to 7 left shifts stay below 2³¹.
-        let up = e - 137;
-        if up > 7 {
-            i32::MAX as u32
-        } else {
-            sig << up
-        }
-    } else {
-        let down = 137 - e;
-        if down > 24 {
-            // Below 2^-1 fine steps: rounds to 0.
-            0
-        } else {
-            (sig + (1 << (down - 1))) >> down
-        }
-    };
-    let mag = mag as i32;
-    Some(if bits >> 31 == 1 { -mag } else { mag })
-}
-
-/// A dB value in 1/8192 dB, rounded half away from zero (NaN gives 0).
-fn to_fine(x: f32) -> i32 {
-    fine_of(x).unwrap_or(0)
-}
-
-/// A dB value in 1/8192 dB as `f32` (exact below 2²⁴ steps, 2048 dB).
-#[allow(clippy::cast_precision_loss)]
-fn from_fine(x: i32) -> f32 {
-    x as f32 * DB_PER_FINE
-}
-
-/// A reading in 1/8192 dB stored in the window's 1/32 dB steps, rounded
-/// (half up); saturating, although the plausibility checks keep readings
-/// well inside ±1024 dB.
-#[allow(clippy::cast_possible_truncation)]
-fn fine_to_q(x: i32) -> i16 {
-    let q = x.saturating_add(1 << (FINE_BITS - 1)) >> FINE_BITS;
-    if q > i32::from(i16::MAX) {
-        i16::MAX
-    } else if q < i32::from(i16::MIN) {
-        i16::MIN
-    } else {
-        q as i16
-    }
-}
-
-/// A dB value in the margin's 2⁻⁴⁰ dB (validated settings are within
-/// ±300 dB: no saturation of the `i64`).
-#[allow(clippy::cast_possible_truncation)]
-fn to_margin(x: f32) -> i64 {
-    (x * MARGIN_STEPS_PER_DB) as i64
-}
 
 /// The levels the radio supports, from the lowest usable one (index 0) to
 /// the highest (`kmax`).
@@ -1345,72 +1246,11 @@ impl<const W: usize> Controller<W> {
     }
 }
 
-/// Fractional bits of the margin's rise per loss (`margin_step_db`).
-const MARGIN_UP_BITS: u32 = 24;
-
-/// `margin_step_db` in 2⁻²⁴ dB (validated: at most 20 dB).
-#[allow(clippy::cast_possible_truncation)]
-fn to_margin_up(x: f32) -> i32 {
-    libm::roundf(x * (1u32 << MARGIN_UP_BITS) as f32) as i32
-}
-
-/// A dB value in 1/8192 dB rounded up / down (settings within ±300 dB).
-#[allow(clippy::cast_possible_truncation)]
-fn fine_ceil(x: f32) -> i32 {
-    libm::ceilf(x * FINE_PER_DB) as i32
-}
-
-#[allow(clippy::cast_possible_truncation)]
-fn fine_floor(x: f32) -> i32 {
-    libm::floorf(x * FINE_PER_DB) as i32
-}
-
-/// A setting in 1/32 dB, rounded (settings within ±300 dB).
-#[allow(clippy::cast_possible_truncation)]
-fn to_q(x: f32) -> i16 {
-    libm::roundf(x * Q_PER_DB) as i16
-}
-
-/// A value in 1/32 dB in 1/8192 dB.
-fn q_fine(x: i16) -> i32 {
-    i32::from(x) << FINE_BITS
-}
-
-/// A margin bound in 1/8192 dB in the margin's 2⁻⁴⁰ dB steps.
-fn margin_steps(x: i32) -> i64 {
-    i64::from(x) << (MARGIN_BITS - FINE_PER_DB_BITS)
-}
-
-/// The margin in 1/8192 dB (rounded toward −∞).
-#[allow(clippy::cast_possible_truncation)] // ±300 dB is ±2²² steps
-fn margin_fine(m: i64) -> i32 {
-    (m >> (MARGIN_BITS - FINE_PER_DB_BITS)) as i32
-}
-
 /// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
 /// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
 fn spread_term(mae: u32, factor: u32) -> i32 {
     let x = (u64::from(mae) * u64::from(factor)) >> SIGMA_FACTOR_BITS;
     i32::try_from(x).unwrap_or(i32::MAX)
-}
-
-/// A non-negative value in 1/8192 dB as `f32`.
-#[allow(clippy::cast_precision_loss)]
-fn from_fine_u32(x: u32) -> f32 {
-    x as f32 * DB_PER_FINE
-}
-
-/// The factor `Q⁻¹(p)·√(π/2)` in 2⁻¹⁶ (at most 6 for `p ≥ 10⁻⁶`).
-#[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
-fn to_sigma_factor(x: f32) -> u32 {
-    libm::roundf(x * (1u32 << SIGMA_FACTOR_BITS) as f32) as u32
-}
-
-/// A table level in 1/`per_db` dB (validated: a multiple of it within
-/// ±300 dB).
-#[allow(clippy::cast_possible_truncation)]
-fn to_table_units(x: f32, per_db: u8) -> i16 {
-    libm::roundf(x * f32::from(per_db)) as i16
 }
 
 /// The index of the highest level of a uniform grid, `k` levels above the

@@ -22,6 +22,7 @@
 
 mod config;
 mod controller;
+mod fixed;
 mod reason;
 mod replay;
 pub mod settings;
