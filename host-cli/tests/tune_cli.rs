@@ -562,3 +562,54 @@ fn each_device_requires_every_device_to_meet_the_target() {
         );
     }
 }
+
+/// With an energy profile, the front can be drawn in charge per delivered
+/// packet (or mean current) against loss; without one, those objectives
+/// are refused.
+#[test]
+fn energy_objectives_need_a_profile_and_rank_by_charge() {
+    let log = example("examples/logs/workshop-mesh-2g4.csv");
+    let profile = example("examples/energy/workshop-mesh-2g4.toml");
+    let o = tune(&[&log, "--objective", "charge", "--sweep", "deadband_db=0,1"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("--energy"), "{}", stderr(&o));
+    let v = json(&tune(&[
+        &log,
+        "--energy",
+        &profile,
+        "--objective",
+        "charge",
+        "--sweep",
+        "deadband_db=0,1,2",
+        "--format",
+        "json",
+    ]));
+    assert_eq!(v["objective"], "charge");
+    let all = points(&v);
+    for p in &all {
+        assert!(
+            p["energy"]["charge_per_delivered_uc"]
+                .as_f64()
+                .is_some_and(|q| q > 0.0),
+            "{p}"
+        );
+    }
+    // The front is non-dominated in (charge per delivered, loss).
+    let key = |p: &Value| {
+        (
+            p["energy"]["charge_per_delivered_uc"]
+                .as_f64()
+                .expect("charge"),
+            f(p, "outage_fraction"),
+        )
+    };
+    for p in all.iter().filter(|p| p["on_front"] == true) {
+        for q in &all {
+            let (a, b) = (key(q), key(p));
+            assert!(
+                !(a.0 <= b.0 && a.1 <= b.1 && (a.0 < b.0 || a.1 < b.1)),
+                "{q} dominates {p}"
+            );
+        }
+    }
+}

@@ -74,8 +74,9 @@ Outputs never replace an input; an existing output is replaced only with \
 #[derive(clap::Args)]
 #[command(after_help = AFTER_HELP)]
 pub struct Args {
-    /// Field logs (`.csv` or `.hrlog`) or directories of them; each log is
-    /// replayed separately (one device per log).
+    /// Field logs (`.csv` or `.hrlog`), directories of them, or `-` for
+    /// standard input (with `--from`); each log is replayed separately (one
+    /// device per log).
     #[arg(value_name = "LOG", required = true)]
     logs: Vec<PathBuf>,
     #[command(flatten)]

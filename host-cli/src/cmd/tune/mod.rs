@@ -69,6 +69,20 @@ pub enum TuneFormat {
     Jsonl,
 }
 
+/// What a candidate's point on the front measures, against its loss.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, clap::ValueEnum)]
+pub enum Objective {
+    /// Mean transmit power (dBm, the mean of mW over every record).
+    #[default]
+    Power,
+    /// Charge per delivered packet (µC; needs --energy): a lost packet costs
+    /// its charge and delivers nothing.
+    Charge,
+    /// Mean current over the logs' time spans (µA; needs --energy): the
+    /// battery's drain, sleep included; the lower, the longer it lasts.
+    BatteryLife,
+}
+
 /// Arguments of `headroom tune`.
 #[derive(clap::Args)]
 pub struct Args {
@@ -89,6 +103,15 @@ pub struct Args {
     /// the radio's facts; the results are marked as not comparable.
     #[arg(long)]
     incomparable: bool,
+    /// Energy profile of the radio (TOML, as for `battery` and `replay`):
+    /// cost every candidate's packets in charge.
+    #[arg(long, value_name = "PROFILE.toml")]
+    energy: Option<PathBuf>,
+    /// What the front and the best minimise, against the loss: mean
+    /// transmit power, charge per delivered packet, or mean current
+    /// (battery life); the last two need --energy.
+    #[arg(long, value_enum, default_value_t = Objective::Power)]
+    objective: Objective,
     /// A candidate meets the target only if every device does (not only the
     /// pooled fleet).
     #[arg(long)]
@@ -136,6 +159,17 @@ pub fn run(args: Args) -> CliResult {
     let names: Vec<String> = logs.iter().map(|p| p.display().to_string()).collect();
     let resolver = Resolver::new(&args.settings)?;
     let grid = Grid::new(args.sweeps.clone(), args.incomparable)?;
+    let energy = match &args.energy {
+        Some(p) => Some(crate::energy::load(p)?),
+        None => None,
+    };
+    if args.objective != Objective::Power && energy.is_none() {
+        return Err(CliError::arg(
+            "--objective",
+            "charge and battery-life need an energy profile: add --energy PROFILE.toml",
+        ));
+    }
+    let profile = energy.as_ref().map(|e| &e.profile);
     let first = logs
         .first()
         .ok_or_else(|| CliError::arg("LOG", "name at least one log"))?;
@@ -171,6 +205,7 @@ pub fn run(args: Args) -> CliResult {
     };
 
     let mut fleets = vec![Fleet::new(); candidates];
+    let mut energies = vec![headroom::energy::ReplayEnergy::new(None); candidates];
     let mut warnings: Vec<String> = Vec::new();
     let stdout = io::stdout();
     let mut out = io::BufWriter::new(stdout.lock());
@@ -187,7 +222,9 @@ pub fn run(args: Args) -> CliResult {
                 .flat_map_iter(|(log, js)| {
                     let n = js.len();
                     let r = match logs.get(log) {
-                        Some(path) => schedule::replay_group(path, &opts, &resolver, &grid, &js),
+                        Some(path) => {
+                            schedule::replay_group(path, &opts, &resolver, &grid, profile, &js)
+                        }
                         None => js
                             .iter()
                             .map(|&(j, _)| {
@@ -216,6 +253,9 @@ pub fn run(args: Args) -> CliResult {
             if let Some(f) = fleets.get_mut(cand) {
                 f.add(&d.summary, d.target);
             }
+            if let (Some(e), Some(total)) = (&d.energy, energies.get_mut(cand)) {
+                total.merge(e);
+            }
             if args.format == TuneFormat::Jsonl {
                 let name = names.get(log).map_or("", String::as_str);
                 let line = report::jsonl_line(&grid, cand, name, &d.summary)?;
@@ -232,11 +272,14 @@ pub fn run(args: Args) -> CliResult {
     let target = base.config.target_outage;
     let points: Vec<Option<Point>> = fleets
         .iter()
-        .map(|f| {
-            Some((
-                f64::from(f.total.mean_tx_dbm()?.0),
-                f64::from(f.total.outage_fraction()?),
-            ))
+        .zip(&energies)
+        .map(|(f, e)| {
+            let cost = match args.objective {
+                Objective::Power => f.total.mean_tx_dbm()?.0,
+                Objective::Charge => e.replayed.charge_per_delivered()?.0,
+                Objective::BatteryLife => e.replayed.mean_current()?.0,
+            };
+            Some((f64::from(cost), f64::from(f.total.outage_fraction()?)))
         })
         .collect();
     let on_front = front::pareto_front(&points);
@@ -253,6 +296,8 @@ pub fn run(args: Args) -> CliResult {
         target,
         each_device: args.each_device,
         base: &base,
+        objective: args.objective,
+        energies: energy.as_ref().map(|_| energies.as_slice()),
     };
     let best = front::cheapest(&points, |k, _| result.meets(k));
     let beats = front::beats_default(&points, |k| result.meets(k));

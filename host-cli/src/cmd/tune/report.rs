@@ -6,6 +6,7 @@ use std::fmt::Write as _;
 
 use headroom::control::settings::Resolved;
 use headroom::control::Fleet;
+use headroom::energy::ReplayEnergy;
 use serde_json::{Map, Value};
 
 use super::front::Point;
@@ -37,6 +38,10 @@ pub struct TuneResult<'a> {
     pub each_device: bool,
     /// The default's settings on the first log (sources included).
     pub base: &'a Resolved,
+    /// What the points measure against the loss.
+    pub objective: super::Objective,
+    /// Each candidate's energy, with a profile.
+    pub energies: Option<&'a [ReplayEnergy]>,
 }
 
 impl TuneResult<'_> {
@@ -78,6 +83,24 @@ impl TuneResult<'_> {
             m.insert("worst_log".into(), log.map_or(Value::Null, Value::from));
             m.insert("devices_missing_target".into(), f.missing_target.into());
             m.extend(summary_json(&f.total));
+        }
+        if let Some(e) = self.energies.and_then(|es| es.get(cand)) {
+            let mut x = Map::new();
+            let t = &e.replayed;
+            x.insert(
+                "charge_per_packet_uc".into(),
+                t.charge_per_packet().map_or(Value::Null, |q| json_num(q.0)),
+            );
+            x.insert(
+                "charge_per_delivered_uc".into(),
+                t.charge_per_delivered()
+                    .map_or(Value::Null, |q| json_num(q.0)),
+            );
+            x.insert(
+                "mean_current_ua".into(),
+                t.mean_current().map_or(Value::Null, |i| json_num(i.0)),
+            );
+            m.insert("energy".into(), Value::Object(x));
         }
         Value::Object(m)
     }
@@ -138,6 +161,15 @@ impl TuneResult<'_> {
         m.insert("combinations".into(), self.grid.len.into());
         m.insert("target_outage".into(), json_num(self.target));
         m.insert("each_device".into(), self.each_device.into());
+        m.insert(
+            "objective".into(),
+            match self.objective {
+                super::Objective::Power => "power",
+                super::Objective::Charge => "charge",
+                super::Objective::BatteryLife => "battery-life",
+            }
+            .into(),
+        );
         m.insert("base_settings".into(), settings_json(self.base));
         m.insert("default".into(), self.point(0));
         m.insert(
@@ -208,16 +240,11 @@ impl TuneResult<'_> {
 
         let mut head: Vec<String> = vec!["candidate".into()];
         head.extend(self.grid.sweeps.iter().map(|x| x.setting.key().to_string()));
-        head.extend(
-            [
-                "lost %",
-                "worst device %",
-                "mean tx dBm",
-                "vs logged dB",
-                "",
-            ]
-            .map(String::from),
-        );
+        head.extend(["lost %", "worst device %", "mean tx dBm", "vs logged dB"].map(String::from));
+        if self.energies.is_some() {
+            head.extend(["µC per delivered", "mean µA"].map(String::from));
+        }
+        head.push(String::new());
         let row = |cand: usize| -> Vec<String> {
             let mut r = vec![if cand == 0 {
                 "default".to_string()
@@ -244,6 +271,18 @@ impl TuneResult<'_> {
                 1.0,
                 2,
             ));
+            if let Some(e) = self.energies.and_then(|es| es.get(cand)) {
+                r.push(show(
+                    e.replayed.charge_per_delivered().map(|q| f64::from(q.0)),
+                    1.0,
+                    1,
+                ));
+                r.push(show(
+                    e.replayed.mean_current().map(|i| f64::from(i.0)),
+                    1.0,
+                    2,
+                ));
+            }
             let mut marks = Vec::new();
             if Some(cand) == self.best {
                 marks.push("best");
@@ -287,7 +326,12 @@ impl TuneResult<'_> {
         } else {
             let _ = writeln!(
                 s,
-                "the default, then the Pareto front by rising power ({on_front} of {} candidates):",
+                "the default, then the Pareto front by rising {} ({on_front} of {} candidates):",
+                match self.objective {
+                    super::Objective::Power => "mean power",
+                    super::Objective::Charge => "charge per delivered packet",
+                    super::Objective::BatteryLife => "mean current",
+                },
                 self.fleets.len()
             );
         }

@@ -13,6 +13,7 @@ use crate::error::{CliError, CliResult};
 use crate::fleet::settings::Resolver;
 use crate::fleet::{self, HostReplay};
 use crate::logio::{HeaderStatus, ReadOptions};
+use headroom::energy::{EnergyProfile, ReplayEnergy};
 
 use super::sweep::Grid;
 
@@ -28,6 +29,8 @@ pub struct Done {
     pub target: f32,
     /// Warnings about the log (damage, settings), already naming the log.
     pub warnings: Vec<String>,
+    /// What its packets cost, with an energy profile.
+    pub energy: Option<ReplayEnergy>,
 }
 
 /// Replay the log `path` under the candidates `cands` (with their job
@@ -37,6 +40,7 @@ pub fn replay_group(
     opts: &ReadOptions,
     resolver: &Resolver,
     grid: &Grid,
+    profile: Option<&EnergyProfile>,
     cands: &[(usize, usize)],
 ) -> Vec<(usize, CliResult<Done>)> {
     let mut out = Vec::with_capacity(cands.len());
@@ -46,7 +50,8 @@ pub fn replay_group(
     };
     let header = reader.header().copied();
     let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
-    let mut live: Vec<(usize, HostReplay, f32, Vec<String>)> = Vec::with_capacity(cands.len());
+    type Live = (usize, HostReplay, f32, Vec<String>, Option<ReplayEnergy>);
+    let mut live: Vec<Live> = Vec::with_capacity(cands.len());
     for &(j, cand) in cands {
         let r = grid.layer(cand).and_then(|extra| {
             let s = resolver.resolve(path, header.as_ref(), damaged, Some(&extra))?;
@@ -56,7 +61,13 @@ pub fn replay_group(
             Ok((replay, s.resolved.config.target_outage, s.warnings))
         });
         match r {
-            Ok((replay, target, warnings)) => live.push((j, replay, target, warnings)),
+            Ok((replay, target, warnings)) => live.push((
+                j,
+                replay,
+                target,
+                warnings,
+                profile.map(|_| ReplayEnergy::new(None)),
+            )),
             Err(e) => out.push((j, Err(e))),
         }
     }
@@ -81,9 +92,20 @@ pub fn replay_group(
                 }
             }
         }
-        for (_, replay, _, _) in &mut live {
+        for (_, replay, _, _, energy) in &mut live {
             for rec in &batch {
-                replay.step(rec);
+                let step = replay.step(rec);
+                if let (Some(e), Some(p)) = (energy.as_mut(), profile) {
+                    if let Err(err) = e.add(p, rec, &step) {
+                        let why = crate::energy::refusal(&err, "--energy", "--interval", &[]);
+                        failed.get_or_insert(CliError::Input(format!(
+                            "{}: record at t_ms {}: {why}",
+                            path.display(),
+                            rec.t_ms
+                        )));
+                        break;
+                    }
+                }
             }
         }
         if let Some(e) = failed {
@@ -97,21 +119,25 @@ pub fn replay_group(
     // Bounded: the reader keeps the first damaged regions in detail and
     // counts the rest.
     let damage: Vec<String> = reader.warnings();
-    out.extend(live.into_iter().map(|(j, replay, target, warnings)| {
-        let mut w: Vec<String> = warnings
-            .into_iter()
-            .map(|w| format!("{}: {w}", path.display()))
-            .collect();
-        w.extend(damage.iter().cloned());
-        (
-            j,
-            Ok(Done {
-                summary: *replay.summary(),
-                target,
-                warnings: w,
+    out.extend(
+        live.into_iter()
+            .map(|(j, replay, target, warnings, energy)| {
+                let mut w: Vec<String> = warnings
+                    .into_iter()
+                    .map(|w| format!("{}: {w}", path.display()))
+                    .collect();
+                w.extend(damage.iter().cloned());
+                (
+                    j,
+                    Ok(Done {
+                        summary: *replay.summary(),
+                        target,
+                        warnings: w,
+                        energy,
+                    }),
+                )
             }),
-        )
-    }));
+    );
     out
 }
 
