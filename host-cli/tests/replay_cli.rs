@@ -621,3 +621,40 @@ fn energy_reports_the_battery_life_of_the_field_policy_and_of_the_controller() {
     ]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
 }
+
+#[test]
+fn a_damaged_header_names_the_settings_that_fell_back() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let csv = small_log(dir.path());
+    let bin = dir.path().join("bench.hrlog");
+    let o = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .args([
+            "convert",
+            csv.to_str().expect("utf-8"),
+            bin.to_str().expect("utf-8"),
+        ])
+        .output()
+        .expect("run");
+    assert!(o.status.success(), "{}", stderr(&o));
+    // Flip a bit inside the header frame (the first frame): its CRC fails.
+    let mut bytes = std::fs::read(&bin).expect("read");
+    bytes[5] ^= 0x10;
+    std::fs::write(&bin, &bytes).expect("write");
+    let b = bin.to_str().expect("utf-8");
+    // Without the header there is no required SNR: refused, saying why.
+    let o = headroom(&[b]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("damaged or lost"), "{}", stderr(&o));
+    // With the requirement given, it replays and says what fell back.
+    let o = headroom(&[b, "--required-snr-db", "8"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let e = stderr(&o);
+    assert!(
+        e.contains("fell back to") && e.contains("max_tx_dbm = 22 dBm (default)"),
+        "{e}"
+    );
+    // --strict makes it an error.
+    let o = headroom(&[b, "--required-snr-db", "8", "--strict"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("header"), "{}", stderr(&o));
+}
