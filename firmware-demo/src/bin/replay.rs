@@ -52,7 +52,9 @@ impl core::fmt::Display for Failure {
         match self {
             Failure::Usage => f.write_str("usage: replay LOG.hrlog DECISIONS.hrlog"),
             Failure::Host(e) => f.write_str(e.as_str()),
-            Failure::Config(e) => write!(f, "controller settings: {e}"),
+            // The setting only: its numbers would pull float formatting
+            // (about 20 KB of flash) into the image; the host says them.
+            Failure::Config(e) => write!(f, "controller settings refused: {}", e.setting()),
             Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
         }
     }
