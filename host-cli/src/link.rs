@@ -95,6 +95,21 @@ pub struct LinkFile {
     /// Defaults for `headroom solve`.
     #[serde(default)]
     pub solve: Option<SolveSpec>,
+    /// What a packet costs the battery: an energy profile and the packet
+    /// interval.
+    #[serde(default)]
+    pub energy: Option<EnergySpec>,
+}
+
+/// `[energy]`: `profile = "PATH.toml"` (relative to the link file) and
+/// `interval = "5min"`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct EnergySpec {
+    /// The energy profile file.
+    pub profile: String,
+    /// Time between packets, with its unit.
+    pub interval: String,
 }
 
 /// `[transmitter]`.
@@ -296,6 +311,9 @@ pub struct LoadedLink {
     pub evaluated: headroom::budget::BudgetResult,
     /// `[solve] target_margin`.
     pub target_margin: Db,
+    /// `[energy]`: the profile file (resolved against the link file's
+    /// folder) and the packet interval.
+    pub energy: Option<(std::path::PathBuf, headroom::units::Seconds)>,
     /// The transmitter's limits.
     pub limits: Limits,
     /// Things that do not stop the calculation but weaken its answer (also
@@ -445,6 +463,15 @@ fn one_line(s: &str) -> String {
 }
 
 fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<LoadedLink> {
+    let energy = match &file.energy {
+        Some(e) => {
+            let interval = crate::quantity::duration(&e.interval)
+                .map_err(|why| CliError::arg("energy.interval", why))?;
+            let dir = path.parent().unwrap_or_else(|| Path::new("."));
+            Some((dir.join(&e.profile), interval))
+        }
+        None => None,
+    };
     let mut warnings = Vec::new();
     let frequency = match frequency {
         Some(f) => f,
@@ -606,6 +633,7 @@ fn build(file: LinkFile, path: &Path, frequency: Option<Hertz>) -> CliResult<Loa
         link,
         evaluated: r,
         target_margin,
+        energy,
         limits,
         warnings,
     })

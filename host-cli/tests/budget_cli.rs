@@ -1,6 +1,6 @@
 //! `headroom budget` and `headroom solve` as a user runs them.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::Command;
 
 fn bin() -> Command {
@@ -111,4 +111,75 @@ fn bad_link_files_get_one_line_errors() {
         ),
     );
     fails_with(&["solve", &fixed, "--for", "range"], "path.model");
+}
+
+/// `[energy]` in a link file (or `--energy` and `--interval`): airtime,
+/// duty cycle, charge per packet, mean current and battery life at the
+/// design power and at the power that leaves the target margin.
+#[test]
+fn budget_reports_what_a_packet_costs_the_battery() {
+    // The orchard link with an [energy] table naming the example profile.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("..");
+    let profile = root.join("examples/energy/orchard-868.toml");
+    let text = std::fs::read_to_string(root.join("examples/links/orchard-sensor.toml")).unwrap()
+        + &format!(
+            "\n[energy]\nprofile = {:?}\ninterval = \"5min\"\n",
+            profile.to_str().unwrap()
+        );
+    let dir = tempfile::tempdir().unwrap();
+    let link = dir.path().join("orchard.toml");
+    std::fs::write(&link, text).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .args(["budget", link.to_str().unwrap(), "--format", "json"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let e = &v["energy"];
+    assert_eq!(e["interval_s"], 300.0);
+    let design = &e["at_design_power"];
+    let solved = &e["at_solved_power"];
+    assert_eq!(design["tx_dbm"], 14.0);
+    // Less power for the target margin: less charge, longer life.
+    assert!(solved["tx_dbm"].as_f64().unwrap() < 14.0);
+    assert!(
+        solved["charge_per_packet_uc"].as_f64().unwrap()
+            < design["charge_per_packet_uc"].as_f64().unwrap()
+    );
+    assert!(
+        solved["battery_life_days"].as_f64().unwrap()
+            > design["battery_life_days"].as_f64().unwrap()
+    );
+    // Duty cycle = airtime / interval.
+    let duty = e["duty_cycle_percent"].as_f64().unwrap();
+    let air = e["airtime_ms"].as_f64().unwrap();
+    assert!(
+        (duty - 100.0 * air / 300_000.0).abs() < 1e-6,
+        "{duty} {air}"
+    );
+    // The same from the command line.
+    let o = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .args([
+            "budget",
+            root.join("examples/links/orchard-sensor.toml")
+                .to_str()
+                .unwrap(),
+            "--energy",
+            profile.to_str().unwrap(),
+            "--interval",
+            "5min",
+            "--format",
+            "json",
+        ])
+        .output()
+        .unwrap();
+    let w: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(w["energy"]["at_solved_power"], e["at_solved_power"]);
+    // An interval flag without a profile anywhere is refused.
+    let plain = Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/links/workshop-mesh.toml");
+    let o = Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .args(["budget", plain.to_str().unwrap(), "--interval", "5min"])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
 }

@@ -22,6 +22,16 @@ use crate::quantity::show;
 pub struct Args {
     /// The link file (TOML; see the README and examples/links/).
     pub link: PathBuf,
+    /// Energy profile of the radio (instead of the link file's
+    /// `[energy] profile`): report airtime, duty cycle, charge per packet,
+    /// mean current and battery life at the design power and at the power
+    /// that leaves the `[solve]` target margin.
+    #[arg(long, value_name = "PROFILE.toml")]
+    pub energy: Option<PathBuf>,
+    /// Time between packets with --energy (`5min`; instead of the link
+    /// file's `[energy] interval`).
+    #[arg(long, value_name = "DURATION", value_parser = quantity::duration)]
+    pub interval: Option<headroom::units::Seconds>,
     /// Evaluate at this carrier frequency instead of the file's (e.g. 2.4GHz):
     /// the path loss is recomputed; the antennas follow --antennas.
     #[arg(long, value_parser = quantity::frequency)]
@@ -245,7 +255,25 @@ fn run_inner(args: Args) -> CliResult {
         return coverage(&args, sweep);
     }
     let l = load_at(&args.link, args.frequency, args.antennas)?;
-    let rep = report(&l)?;
+    let mut rep = report(&l)?;
+    let energy = match (&args.energy, &l.energy, args.interval) {
+        (Some(p), _, Some(i)) => Some((p.clone(), i)),
+        (Some(p), Some((_, i)), None) => Some((p.clone(), *i)),
+        (Some(_), None, None) => {
+            return Err(CliError::arg(
+                "--interval",
+                "--energy needs a packet interval: --interval 5min, or [energy] interval in the link file",
+            ))
+        }
+        (None, Some((p, i)), over) => Some((p.clone(), over.unwrap_or(*i))),
+        (None, None, Some(_)) => {
+            return Err(CliError::arg("--interval", "needs --energy (or [energy] in the link file)"))
+        }
+        (None, None, None) => None,
+    };
+    if let Some((profile, interval)) = energy {
+        rep.value("energy", energy_report(&l, &profile, interval)?);
+    }
     if let Some(p) = &args.plot {
         plot::budget_plot(p, args.force, &l.name, &l.link, &l.evaluated)?;
     }
@@ -455,4 +483,55 @@ fn coverage(args: &Args, sweep: Sweep) -> CliResult {
         plot::coverage_plot(p, args.force, &curve)?;
     }
     rep.print(args.format)
+}
+
+/// What a packet costs the battery at the design power and at the power that
+/// leaves the `[solve]` target margin: airtime, duty cycle, charge per packet,
+/// mean current, battery life (the engine's energy functions).
+fn energy_report(
+    l: &LoadedLink,
+    profile: &std::path::Path,
+    interval: headroom::units::Seconds,
+) -> CliResult<serde_json::Value> {
+    let loaded = crate::energy::load(profile)?;
+    let p = &loaded.profile;
+    let refuse = |e: headroom::Error| crate::energy::refusal(&e, "--energy", "--interval", &[]);
+    let duty = headroom::energy::duty::duty_cycle(p.airtime(), interval).map_err(refuse)?;
+    let at = |tx: Dbm| -> CliResult<serde_json::Value> {
+        let q = p.charge_per_packet(tx).map_err(refuse)?;
+        let i = p.mean_current(tx, interval).map_err(refuse)?;
+        let life = p.battery_life(i).ok().map(|d| d.0);
+        Ok(json!({
+            "tx_dbm": json_num(tx.0),
+            "charge_per_packet_uc": json_num(q.0),
+            "mean_current_ua": json_num(i.0),
+            "battery_life_days": life.map_or(serde_json::Value::Null, json_num),
+        }))
+    };
+    // The power that just leaves the target margin; below the profile's
+    // table (a radio's lowest setting) the radio sends at its lowest power.
+    let solved = l.link.tx_power_for_margin(l.target_margin)?;
+    let (solved, note) = match p.tx_current().range() {
+        Some((lo, _)) if solved.0 < lo.0 => (
+            lo,
+            format!(
+                "{:.2} dBm leaves the target margin; below the profile's lowest power, so at {:.2} dBm",
+                solved.0, lo.0
+            ),
+        ),
+        _ => (solved, String::new()),
+    };
+    let mut at_solved = at(solved)?;
+    if !note.is_empty() {
+        at_solved["note"] = json!(note);
+    }
+    Ok(json!({
+        "profile": profile.display().to_string(),
+        "interval_s": json_num(interval.0),
+        "airtime_ms": json_num(p.airtime().0),
+        "duty_cycle_percent": json_num(100.0 * duty),
+        "at_design_power": at(l.link.tx_power)?,
+        "target_margin_db": json_num(l.target_margin.0),
+        "at_solved_power": at_solved,
+    }))
 }
