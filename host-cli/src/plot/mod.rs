@@ -297,6 +297,7 @@ mod tests {
                 front: vec![0],
                 best: Some(0),
                 default: Some(1),
+                x_label: None,
             },
             0.01,
         )

@@ -26,6 +26,7 @@ struct Point {
 
 struct ParetoFigure {
     title: String,
+    x_label: String,
     points: Vec<Point>,
     /// Indices into `points` of the front, by rising transmit power.
     front: Vec<usize>,
@@ -46,6 +47,8 @@ pub struct FrontMarks {
     pub best: Option<usize>,
     /// The default setting.
     pub default: Option<usize>,
+    /// What the x axis measures (`None`: mean transmit power in dBm).
+    pub x_label: Option<String>,
 }
 
 /// Draw `points` = (mean transmit power in dBm, packet loss rate as a
@@ -95,6 +98,10 @@ pub fn pareto_plot<L: AsRef<str>>(
     }
     let fig = ParetoFigure {
         title: printable(title),
+        x_label: marks
+            .x_label
+            .clone()
+            .unwrap_or_else(|| "mean transmit power (dBm)".to_string()),
         front: marks.front.clone(),
         points: pts,
         best: marks.best,
@@ -143,7 +150,7 @@ impl Figure for ParetoFigure {
             .build_cartesian_2d(x.clone(), y.clone())?;
         chart
             .configure_mesh()
-            .x_desc("mean transmit power (dBm)")
+            .x_desc(self.x_label.as_str())
             .y_desc("packets lost (%)")
             .x_label_formatter(&|v| signed(*v, 1))
             .y_label_formatter(&|v| format!("{v:.*}", y_decimals))

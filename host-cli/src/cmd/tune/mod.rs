@@ -347,6 +347,14 @@ pub fn run(args: Args) -> CliResult {
             front: front_order.iter().filter_map(|&k| at(k)).collect(),
             best: best.and_then(at),
             default: at(0),
+            x_label: Some(
+                match args.objective {
+                    Objective::Power => "mean transmit power (dBm)",
+                    Objective::Charge => "charge per delivered packet (µC)",
+                    Objective::BatteryLife => "mean current, sleep included (µA)",
+                }
+                .to_string(),
+            ),
         };
         let title = format!(
             "headroom tune: {} settings over {} logs",

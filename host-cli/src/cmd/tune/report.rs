@@ -124,9 +124,16 @@ impl TuneResult<'_> {
     }
 
     /// Change of candidate `k` against the default: (mean power dB, loss rate).
+    /// (Always mean power and loss, whatever the objective of the points.)
     fn versus_default(&self, k: Option<usize>) -> Option<(f64, f64)> {
-        let b = self.points.get(k?).copied().flatten()?;
-        let d = self.points.first().copied().flatten()?;
+        let point = |c: usize| {
+            let t = &self.fleets.get(c)?.total;
+            Some((
+                f64::from(t.mean_tx_dbm()?.0),
+                f64::from(t.outage_fraction()?),
+            ))
+        };
+        let (b, d) = (point(k?)?, point(0)?);
         Some((b.0 - d.0, b.1 - d.1))
     }
 
