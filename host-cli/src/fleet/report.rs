@@ -19,7 +19,7 @@ use headroom::energy::{EnergyTally, ReplayEnergy};
 use crate::energy::LoadedProfile;
 use serde_json::{Map, Value};
 
-use super::settings::show;
+use super::settings::{show, OWN_FLAG};
 use crate::output::json_num;
 
 /// A setting's value in JSON: a number, a whole number, `{"uniform": dB}`
@@ -173,17 +173,7 @@ pub fn settings_table(out: &mut String, r: &Resolved) {
     let _ = writeln!(out, "settings in force (value, source):");
     let mut hidden = 0;
     for s in Setting::ALL {
-        let always = matches!(
-            s,
-            Setting::RequiredSnrDb
-                | Setting::TargetOutage
-                | Setting::MinTxDbm
-                | Setting::MaxTxDbm
-                | Setting::EirpCapDbm
-                | Setting::AntennaGainDbi
-                | Setting::StartTxDbm
-                | Setting::Steps
-        );
+        let always = OWN_FLAG.contains(&s);
         if !always && r.source(s) == Source::Default {
             hidden += 1;
             continue;

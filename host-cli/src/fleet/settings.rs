@@ -57,17 +57,24 @@ pub struct SettingArgs {
     pub set: Vec<String>,
 }
 
+/// The settings with a flag of their own (the ones users set most); the
+/// settings table always shows them.
+pub const OWN_FLAG: [Setting; 8] = [
+    Setting::RequiredSnrDb,
+    Setting::TargetOutage,
+    Setting::MinTxDbm,
+    Setting::MaxTxDbm,
+    Setting::EirpCapDbm,
+    Setting::AntennaGainDbi,
+    Setting::StartTxDbm,
+    Setting::Steps,
+];
+
 /// The flag that sets a setting, for messages.
 pub fn flag_for(s: Setting) -> String {
     match s {
-        Setting::RequiredSnrDb
-        | Setting::TargetOutage
-        | Setting::MinTxDbm
-        | Setting::MaxTxDbm
-        | Setting::EirpCapDbm
-        | Setting::AntennaGainDbi
-        | Setting::StartTxDbm => format!("--{}", s.key().replace('_', "-")),
         Setting::Steps => "--tx-step-db".into(),
+        s if OWN_FLAG.contains(&s) => format!("--{}", s.key().replace('_', "-")),
         _ => format!("--set {}=...", s.key()),
     }
 }
