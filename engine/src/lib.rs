@@ -15,6 +15,7 @@
 //! | [`fading`] | fade margin and availability (Rayleigh, Rician, log-normal, composite), cell coverage |
 //! | [`budget`] | line-item link budget and inverse solving |
 //! | [`control`] | the per-packet transmit-power controller and replay semantics |
+//! | [`rate`] | a radio's data rates: required SNR, airtime and noise bandwidth of each |
 //! | [`energy`] | charge per packet, airtime, duty cycle, mean current and battery life |
 //! | [`record`] | field-log records and their framed binary codec |
 //! | [`sim`] | seeded channel simulation: drift, correlated shadowing, Rayleigh/Rician fading, bursts |
@@ -57,6 +58,7 @@ pub mod fading;
 pub mod modulation;
 pub mod noise;
 pub mod propagation;
+pub mod rate;
 pub mod record;
 pub mod sim;
 pub mod special;

@@ -300,6 +300,7 @@ fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<Placed>) {
                     antenna_gain: opt(b, 2.15).map(Dbi),
                     required_snr: opt(b, 8.0).map(Db),
                     eirp_cap: opt(b, 16.15).map(Dbm),
+                    rates: headroom::rate::RateTable::empty(),
                 },
                 version: headroom::record::codec::VERSION,
             }
@@ -316,6 +317,7 @@ fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<Placed>) {
                 tx_dbm: opt(b, 10.0),
                 rssi_dbm: opt(b, -90.0),
                 noise_dbm: opt(b, -115.0),
+                rate: None,
             })
         };
         let bytes = match enc.frame(&frame, &mut buf) {
@@ -791,6 +793,7 @@ fn replay<const W: usize>(cfg: ControllerConfig, b: &mut Bytes<'_>) {
             tx_dbm: opt(b, 10.0),
             rssi_dbm: opt(b, -95.0),
             noise_dbm: opt(b, -115.0),
+            rate: None,
         };
         let s = r.step(&rec);
         n += 1;

@@ -54,6 +54,7 @@ fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
         antenna_gain: Some(Dbi(0.5)),
         required_snr: Some(Db(-7.5)),
         eirp_cap: Some(Dbm(16.15)),
+        rates: headroom::rate::RateTable::empty(),
     };
     let f = enc.header(&h, &mut buf).unwrap();
     spans.push((0, f.len()));
@@ -76,6 +77,7 @@ fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
                 k => Some(-120.0 + 0.1 * (i as f32) + 1.0 / (k as f32)),
             },
             noise_dbm: if i % 4 == 0 { Some(-117.3) } else { None },
+            rate: None,
         };
         let f = enc.record(&r, &mut buf).unwrap();
         spans.push((bytes.len(), bytes.len() + f.len()));

@@ -212,6 +212,7 @@ fn records(n: usize) -> Vec<LogRecord> {
                 tx_dbm: Some(tx.0),
                 rssi_dbm: Some(rssi.0),
                 noise_dbm: Some(noise.0),
+                rate: None,
             },
             other => LogRecord {
                 t_ms: other.t_ms(),

@@ -273,7 +273,7 @@ proptest! {
         let (mut lost, mut unjudged) = (0u64, 0u64);
         for (dt, tx, rssi, noise, wild_rssi) in &recs {
             t = t.saturating_add_signed(*dt);
-            let rec = LogRecord { t_ms: t, tx_dbm: *tx, rssi_dbm: wild_rssi.or(*rssi), noise_dbm: *noise };
+            let rec = LogRecord { t_ms: t, tx_dbm: *tx, rssi_dbm: wild_rssi.or(*rssi), noise_dbm: *noise, rate: None };
             let s = r.step(&rec);
             prop_assert_eq!(s.chosen.0, prev);
             check(&cfg, prev, s.next_tx.0)?;

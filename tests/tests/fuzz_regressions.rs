@@ -201,6 +201,7 @@ fn stream_decoding_reports_frames_and_damage() {
             tx_dbm: Some(10.0),
             rssi_dbm: Some(-90.0),
             noise_dbm: None,
+            rate: None,
         };
         log.extend_from_slice(enc.record(&r, &mut buf).unwrap());
     }

@@ -575,6 +575,7 @@ mod tests {
             tx_dbm: Some(tx),
             rssi_dbm: Some(rssi),
             noise_dbm: Some(noise),
+            rate: None,
         }
     }
 
@@ -620,6 +621,7 @@ mod tests {
             tx_dbm: Some(10.0),
             rssi_dbm: None,
             noise_dbm: Some(-110.0),
+            rate: None,
         });
         assert_eq!(s.outcome, Outcome::Unjudged);
         assert_eq!(s.reason, Reason::NoInformation);
@@ -707,6 +709,7 @@ mod tests {
             tx_dbm: Some(10.0),
             rssi_dbm: None,
             noise_dbm: Some(-110.0),
+            rate: None,
         };
         let s = r.step(&gap);
         assert_eq!(s.replayed_rx(&gap), None);

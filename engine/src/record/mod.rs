@@ -13,6 +13,7 @@
 //! described in `docs/log-format.md`. [`crc`] holds the checksum, which is
 //! always available.
 
+use crate::rate::RateTable;
 use crate::units::{Db, Dbi, Dbm};
 
 pub mod crc;
@@ -46,6 +47,9 @@ pub struct LogRecord {
     pub rssi_dbm: Option<f32>,
     /// Noise floor at the far end when this packet was received, dBm.
     pub noise_dbm: Option<f32>,
+    /// Index, in the log header's rate table, of the rate this packet was
+    /// sent at; `None` when the log does not say (since format 1.2).
+    pub rate: Option<u8>,
 }
 
 /// What a log says about the device that wrote it. Every radio field is
@@ -70,6 +74,9 @@ pub struct LogHeader {
     pub required_snr: Option<Db>,
     /// Regulatory EIRP cap the device was installed under; since format 1.1.
     pub eirp_cap: Option<Dbm>,
+    /// The radio's data rates (empty when the log does not say); a record's
+    /// `rate` indexes it. Since format 1.2.
+    pub rates: RateTable,
 }
 
 /// One decision of a controller replaying a log on target.

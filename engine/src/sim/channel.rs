@@ -275,6 +275,7 @@ impl ChannelSample {
             tx_dbm: Some(self.tx.0),
             rssi_dbm: self.reported_rssi.map(|p| p.0),
             noise_dbm: self.reported_noise.map(|p| p.0),
+            rate: None,
         }
     }
 }

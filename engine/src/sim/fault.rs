@@ -292,6 +292,7 @@ mod tests {
             tx_dbm: Some(10.0),
             rssi_dbm: Some(-80.0 - i as f32),
             noise_dbm: Some(-110.0),
+            rate: None,
         }
     }
 

@@ -68,6 +68,7 @@ fn run() -> bool {
             tx_dbm: Some(a),
             rssi_dbm: Some(b),
             noise_dbm: Some(c),
+            rate: None,
         };
         black_box(replay.step(black_box(&rec)));
     }

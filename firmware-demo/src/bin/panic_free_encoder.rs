@@ -33,6 +33,7 @@ fn run() -> bool {
                 Some(probe_f32(k, 2))
             },
             noise_dbm: Some(probe_f32(k, 3)),
+            rate: if k % 5 == 0 { None } else { Some(k as u8) },
         };
         let seq = black_box(k as u16);
         ok &= black_box(encode_record(seq, black_box(&rec), &mut buf)).is_ok();

@@ -189,6 +189,7 @@ impl Radio {
             antenna_gain: fin("radio.antenna_gain_dbi", self.antenna_gain_dbi)?.map(Dbi),
             required_snr: fin("radio.required_snr_db", self.required_snr_db)?.map(Db),
             eirp_cap: fin("radio.eirp_cap_dbm", self.eirp_cap_dbm)?.map(Dbm),
+            rates: headroom::rate::RateTable::empty(),
         })
     }
 }

@@ -503,6 +503,7 @@ impl CsvReader {
             tx_dbm,
             rssi_dbm,
             noise_dbm,
+            rate: None,
         })
     }
 }

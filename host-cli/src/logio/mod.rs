@@ -695,6 +695,7 @@ mod tests {
             tx_dbm: Some(10.0),
             rssi_dbm: Some(-97.5),
             noise_dbm: None,
+            rate: None,
         }
     }
 
@@ -747,6 +748,7 @@ mod tests {
             tx_dbm: Some(13.5),
             rssi_dbm: Some(-101.25),
             noise_dbm: Some(-117.75),
+            rate: None,
         };
         for name in ["all.csv", "all.hrlog"] {
             let dir = tempfile::tempdir().expect("temp dir");
@@ -845,6 +847,7 @@ mod tests {
                 tx_dbm: Some(10.0),
                 rssi_dbm: Some(-90.0),
                 noise_dbm: Some(-80.0),
+                rate: None,
             }]
         );
         // A mapped column that is not there is named as mapped.

@@ -30,8 +30,8 @@
 //!
 //! | kind | frame | body (postcard, in this order) |
 //! |---|---|---|
-//! | 0 | header | magic `b"hrlg"`, major `u8`, minor `u8`, device id `u64`, epoch ms `u64`, min tx, max tx, tx step, antenna gain (each `Option<f32>`) |
-//! | 1 | record | `t_ms: u64`, `tx_dbm`, `rssi_dbm`, `noise_dbm` (each `Option<f32>`) |
+//! | 0 | header | magic `b"hrlg"`, major `u8`, minor `u8`, device id `u64`, epoch ms `u64`, min tx, max tx, tx step, antenna gain (each `Option<f32>`); since 1.1 required SNR, EIRP cap (each `Option<f32>`); since 1.2 the rate table (a length, then per rate its name, required SNR `f32`, airtime µs `u32`, noise bandwidth `Option<f32>`) |
+//! | 1 | record | `t_ms: u64`, `tx_dbm`, `rssi_dbm`, `noise_dbm` (each `Option<f32>`), since 1.2 `rate: Option<u8>` |
 //! | 2 | decision | `t_ms: u64`, `tx_dbm: f32`, `outcome: u8`, `reason: u8` |
 //!
 //! postcard writes integers as LEB128 varints, `Option` as a 0/1 byte
@@ -87,7 +87,7 @@ pub use stream::{Event, FrameDecoder};
 pub const MAGIC: [u8; 4] = *b"hrlg";
 
 /// Format version written by this encoder.
-pub const VERSION: Version = Version { major: 1, minor: 1 };
+pub const VERSION: Version = Version { major: 1, minor: 2 };
 
 /// Largest payload (kind, seq, body, CRC) a frame may carry. Kept below 254
 /// so that COBS adds exactly one byte.
@@ -180,6 +180,9 @@ impl core::error::Error for CodecError {}
 /// The content of one frame.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+// A header (with its rate table) is about 260 bytes, a record 40: without
+// a heap there is nothing to box it in, and a header comes once per log.
+#[allow(clippy::large_enum_variant)]
 pub enum Frame {
     /// The log's header and the format version it was written in.
     Header {
@@ -350,6 +353,7 @@ pub(crate) mod tests {
             tx_dbm: Some(10.0),
             rssi_dbm: Some(-90.25),
             noise_dbm: None,
+            rate: None,
         }
     }
 
@@ -365,6 +369,7 @@ pub(crate) mod tests {
             antenna_gain: Some(Dbi(2.15)),
             required_snr: Some(Db(-15.0)),
             eirp_cap: Some(Dbm(16.15)),
+            rates: crate::rate::RateTable::empty(),
         };
         for (seq, f) in [
             (

@@ -10,6 +10,7 @@ use serde::{Deserialize, Serialize};
 
 use super::{CodecError, Decoded, Frame, Version, KIND_DECISION, KIND_HEADER, KIND_RECORD};
 use super::{MAGIC, MAX_PAYLOAD, MIN_PAYLOAD, VERSION};
+use crate::rate::{Rate, RateTable, MAX_RATES, RATE_NAME_LEN};
 use crate::record::crc::{crc32c, Crc32c};
 use crate::record::{DecisionRecord, LogHeader, LogRecord};
 use crate::units::{Db, Dbi, Dbm};
@@ -35,6 +36,22 @@ struct WireHeader {
 struct WireHeaderV11 {
     required_snr_db: Option<f32>,
     eirp_cap_dbm: Option<f32>,
+}
+
+/// One rate of the header's rate table (format 1.2).
+#[derive(Serialize, Deserialize)]
+struct WireRate {
+    name: heapless::String<RATE_NAME_LEN>,
+    required_snr_db: f32,
+    airtime_us: u32,
+    noise_bandwidth_hz: Option<f32>,
+}
+
+/// Header fields appended by format 1.2 after those of 1.1: the radio's
+/// rate table (empty when the log does not say).
+#[derive(Serialize, Deserialize)]
+struct WireHeaderV12 {
+    rates: heapless::Vec<WireRate, MAX_RATES>,
 }
 
 /// The one list of a record's fields, in wire order: each field, its wire
@@ -85,6 +102,8 @@ record_fields! {
     tx_dbm: Option<f32> => take_option_f32,
     rssi_dbm: Option<f32> => take_option_f32,
     noise_dbm: Option<f32> => take_option_f32,
+    // Since format 1.2; a 1.0/1.1 record ends before it (read as `None`).
+    rate: Option<u8> => take_trailing_option_u8,
 }
 
 #[derive(Serialize, Deserialize)]
@@ -170,14 +189,50 @@ fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError
             )
             .map_err(too_small)?
             .len();
-            (KIND_HEADER, base + ext)
-        }
-        Frame::Record(r) => (
-            KIND_RECORD,
-            postcard::to_slice(&WireRecord::from(r), body)
+            // 1.2 appends the rate table, and only when there is one: a
+            // header without rates has the bytes of a 1.1 body (but its minor).
+            let ext2 = if h.rates.is_empty() {
+                0
+            } else {
+                let mut rates = heapless::Vec::new();
+                for r in h.rates.as_slice() {
+                    let mut name = heapless::String::new();
+                    name.push_str(r.name.as_str())
+                        .map_err(|_| CodecError::Payload)?;
+                    rates
+                        .push(WireRate {
+                            name,
+                            required_snr_db: r.required_snr.0,
+                            airtime_us: r.airtime_us,
+                            noise_bandwidth_hz: r.noise_bandwidth_hz,
+                        })
+                        .map_err(|_| CodecError::Payload)?;
+                }
+                let ext2 = postcard::to_slice(
+                    &WireHeaderV12 { rates },
+                    body.get_mut(base + ext..)
+                        .ok_or(CodecError::BufferTooSmall)?,
+                )
                 .map_err(too_small)?
-                .len(),
-        ),
+                .len();
+                ext2
+            };
+            (KIND_HEADER, base + ext + ext2)
+        }
+        Frame::Record(r) => {
+            let n = postcard::to_slice(&WireRecord::from(r), body)
+                .map_err(too_small)?
+                .len();
+            // The 1.2 `rate` is the last field and is left out when absent
+            // (its `None` tag is the last byte): a record without a rate is
+            // byte for byte a 1.1 record, one byte shorter.
+            let n = if r.rate.is_none() {
+                n.saturating_sub(1)
+            } else {
+                n
+            };
+            (KIND_RECORD, n)
+        }
         Frame::Decision(d) => (
             KIND_DECISION,
             postcard::to_slice(
@@ -265,6 +320,16 @@ fn take_varint_u64(bytes: &[u8]) -> Option<(u64, &[u8])> {
 /// An `Option<f32>` as postcard reads it: tag 0 (none) or 1 followed by
 /// four little-endian bytes; any other tag is refused.
 #[inline]
+/// An `Option<u8>` that older formats do not write: no bytes left is `None`.
+fn take_trailing_option_u8(bytes: &[u8]) -> Option<(Option<u8>, &[u8])> {
+    match bytes {
+        [] => Some((None, bytes)),
+        [0, rest @ ..] => Some((None, rest)),
+        [1, v, rest @ ..] => Some((Some(*v), rest)),
+        _ => None,
+    }
+}
+
 fn take_option_f32(bytes: &[u8]) -> Option<(Option<f32>, &[u8])> {
     match bytes {
         [0, rest @ ..] => Some((None, rest)),
@@ -302,15 +367,33 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
             let (h, rest) =
                 postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
             // 1.0 headers end here; 1.1 appends its fields.
-            let ext = if rest.is_empty() || h.minor == 0 {
-                WireHeaderV11 {
+            let (ext, rest) = if rest.is_empty() || h.minor == 0 {
+                let none = WireHeaderV11 {
                     required_snr_db: None,
                     eirp_cap_dbm: None,
-                }
+                };
+                (none, &[][..])
             } else {
-                postcard::take_from_bytes::<WireHeaderV11>(rest)
-                    .map_err(|_| CodecError::Payload)?
-                    .0
+                postcard::take_from_bytes::<WireHeaderV11>(rest).map_err(|_| CodecError::Payload)?
+            };
+            // 1.2 appends the rate table.
+            let rates = if rest.is_empty() || h.minor < 2 {
+                RateTable::empty()
+            } else {
+                let (wire, _) = postcard::take_from_bytes::<WireHeaderV12>(rest)
+                    .map_err(|_| CodecError::Payload)?;
+                let mut list = [Rate::default(); MAX_RATES];
+                for (slot, w) in list.iter_mut().zip(wire.rates.iter()) {
+                    *slot = Rate::new(
+                        w.name.as_str(),
+                        Db(w.required_snr_db),
+                        w.airtime_us,
+                        w.noise_bandwidth_hz,
+                    )
+                    .map_err(|_| CodecError::Payload)?;
+                }
+                let list = list.get(..wire.rates.len()).unwrap_or(&[]);
+                RateTable::new(list).map_err(|_| CodecError::Payload)?
             };
             if h.magic != MAGIC {
                 return Err(CodecError::BadMagic);
@@ -331,6 +414,7 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
                     antenna_gain: h.antenna_gain_dbi.map(Dbi),
                     required_snr: ext.required_snr_db.map(Db),
                     eirp_cap: ext.eirp_cap_dbm.map(Dbm),
+                    rates,
                 },
                 version: Version {
                     major: h.major,
@@ -366,17 +450,31 @@ mod tests {
 
     #[test]
     fn record_body_reads_what_postcard_reads() {
-        fn bits(r: &LogRecord) -> (u64, [Option<u32>; 3]) {
+        fn bits(r: &LogRecord) -> (u64, [Option<u32>; 3], Option<u8>) {
             (
                 r.t_ms,
                 [r.tx_dbm, r.rssi_dbm, r.noise_dbm].map(|v| v.map(f32::to_bits)),
+                r.rate,
             )
         }
         fn check(body: &[u8]) {
             let ours = record_body(body);
+            // A body that ends right before the 1.2 `rate` is a 1.0/1.1
+            // record: its rate reads as `None`.
+            type V11 = (u64, Option<f32>, Option<f32>, Option<f32>);
             let theirs = postcard::take_from_bytes::<WireRecord>(body)
                 .ok()
-                .map(|(r, _)| LogRecord::from(r));
+                .map(|(r, _)| LogRecord::from(r))
+                .or_else(|| match postcard::take_from_bytes::<V11>(body) {
+                    Ok(((t_ms, tx_dbm, rssi_dbm, noise_dbm), [])) => Some(LogRecord {
+                        t_ms,
+                        tx_dbm,
+                        rssi_dbm,
+                        noise_dbm,
+                        rate: None,
+                    }),
+                    _ => None,
+                });
             assert_eq!(
                 ours.as_ref().map(bits),
                 theirs.as_ref().map(bits),
@@ -452,6 +550,7 @@ mod tests {
                     tx_dbm: v,
                     rssi_dbm: Some(-97.25),
                     noise_dbm: v,
+                    rate: None,
                 };
                 let n = encode_record(9, &r, &mut buf).unwrap().len();
                 let d = decode_frame(&buf[..n - 1]).unwrap();
@@ -539,6 +638,7 @@ mod tests {
             antenna_gain: Some(Dbi(1.5)),
             required_snr: Some(Db(-15.0)),
             eirp_cap: Some(Dbm(16.15)),
+            rates: crate::rate::RateTable::empty(),
         };
         // 1.0: the fields it has, the 1.1 fields absent.
         let mut p = [0u8; MAX_PAYLOAD];
@@ -585,10 +685,50 @@ mod tests {
                 decode_payload(&q[..n]).unwrap().frame,
                 Frame::Header {
                     header: h,
-                    version: Version { major: 1, minor: 1 }
+                    version: VERSION
                 }
             );
         }
+        // 1.2: the rate table reads back whole.
+        let rates = crate::rate::RateTable::new(&[
+            Rate::new("sf7", Db(-7.5), 41_216, Some(125e3)).unwrap(),
+            Rate::new("sf12", Db(-20.0), 991_232, Some(125e3)).unwrap(),
+        ])
+        .unwrap();
+        let h = LogHeader { rates, ..h };
+        let mut q = [0u8; MAX_PAYLOAD];
+        let frame = Frame::Header {
+            header: h,
+            version: VERSION,
+        };
+        let n = encode_payload(0, &frame, &mut q).unwrap();
+        assert_eq!(decode_payload(&q[..n]).unwrap().frame, frame);
+        // A full table of eight long names still fits one frame.
+        let names = [
+            "aaaaaaa1", "aaaaaaa2", "aaaaaaa3", "aaaaaaa4", "aaaaaaa5", "aaaaaaa6", "aaaaaaa7",
+            "aaaaaaa8",
+        ];
+        let mut list = [Rate::default(); MAX_RATES];
+        for (slot, name) in list.iter_mut().zip(names) {
+            *slot = Rate::new(name, Db(-1.5), 60_000_000, Some(1e12)).unwrap();
+        }
+        let full = LogHeader {
+            rates: RateTable::new(&list).unwrap(),
+            required_snr: Some(Db(1.0)),
+            eirp_cap: Some(Dbm(14.0)),
+            min_tx: Some(Dbm(1.0)),
+            max_tx: Some(Dbm(1.0)),
+            tx_step: Some(Db(1.0)),
+            antenna_gain: Some(Dbi(1.0)),
+            device_id: u64::MAX,
+            epoch_ms: u64::MAX,
+        };
+        let frame = Frame::Header {
+            header: full,
+            version: VERSION,
+        };
+        let n = encode_payload(0, &frame, &mut q).unwrap();
+        assert_eq!(decode_payload(&q[..n]).unwrap().frame, frame);
     }
 
     #[test]
@@ -601,6 +741,7 @@ mod tests {
             tx_dbm: Some(13.5),
             rssi_dbm: Some(-101.25),
             noise_dbm: Some(-117.0),
+            rate: None,
         };
         let mut q = [0u8; MAX_PAYLOAD];
         for r in [
@@ -621,10 +762,20 @@ mod tests {
                 noise_dbm: full.noise_dbm,
                 ..LogRecord::default()
             },
+            LogRecord {
+                rate: Some(7),
+                ..LogRecord::default()
+            },
         ] {
             let n = encode_payload(5, &Frame::Record(r), &mut q).unwrap();
             assert_eq!(decode_payload(&q[..n]).unwrap().frame, Frame::Record(r));
-            let (w, _) = postcard::take_from_bytes::<WireRecord>(&q[3..n - 4]).unwrap();
+            // postcard reads it too, once the `None` rate the encoder
+            // leaves out is put back.
+            let mut body = q[3..n - 4].to_vec();
+            if r.rate.is_none() {
+                body.push(0);
+            }
+            let (w, _) = postcard::take_from_bytes::<WireRecord>(&body).unwrap();
             assert_eq!(LogRecord::from(w), r);
         }
     }

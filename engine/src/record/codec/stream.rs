@@ -22,6 +22,9 @@ fn decode_piece(src: &[u8], scratch: &mut [u8]) -> Result<Decoded, CodecError> {
 /// What the streaming decoder found.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+// A header (with its rate table) is about 260 bytes, a record 40: without
+// a heap there is nothing to box it in, and a header comes once per log.
+#[allow(clippy::large_enum_variant)]
 pub enum Event {
     /// An intact frame.
     Frame {
