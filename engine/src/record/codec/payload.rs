@@ -157,6 +157,44 @@ mod leb128 {
     }
 }
 
+/// Write the 1.2 rate table into `out` as postcard writes a
+/// [`WireHeaderV12`] (`header_rates_write_what_postcard_writes` checks it),
+/// byte by byte: postcard's own varint writers for the lengths and the
+/// airtime leave a panic path in the device's encoder. Returns the length.
+fn write_rates(rates: &RateTable, out: &mut [u8]) -> Result<usize, CodecError> {
+    let mut at = 0usize;
+    let mut put = |bytes: &[u8]| -> Result<(), CodecError> {
+        let end = at
+            .checked_add(bytes.len())
+            .ok_or(CodecError::BufferTooSmall)?;
+        out.get_mut(at..end)
+            .ok_or(CodecError::BufferTooSmall)?
+            .copy_from_slice(bytes);
+        at = end;
+        Ok(())
+    };
+    let varint = |v: u64| leb128::encode(v);
+    let (n, used) = varint(rates.len() as u64);
+    put(n.get(..used).unwrap_or(&[]))?;
+    for r in rates.as_slice() {
+        let name = r.name.as_str().as_bytes();
+        let (n, used) = varint(name.len() as u64);
+        put(n.get(..used).unwrap_or(&[]))?;
+        put(name)?;
+        put(&r.required_snr.0.to_le_bytes())?;
+        let (n, used) = varint(u64::from(r.airtime_us));
+        put(n.get(..used).unwrap_or(&[]))?;
+        match r.noise_bandwidth_hz {
+            None => put(&[0])?,
+            Some(b) => {
+                put(&[1])?;
+                put(&b.to_le_bytes())?;
+            }
+        }
+    }
+    Ok(at)
+}
+
 /// Write the body of `frame` into `body`; returns its kind and length.
 fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError> {
     let too_small = |_| CodecError::BufferTooSmall;
@@ -194,28 +232,11 @@ fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError
             let ext2 = if h.rates.is_empty() {
                 0
             } else {
-                let mut rates = heapless::Vec::new();
-                for r in h.rates.as_slice() {
-                    let mut name = heapless::String::new();
-                    name.push_str(r.name.as_str())
-                        .map_err(|_| CodecError::Payload)?;
-                    rates
-                        .push(WireRate {
-                            name,
-                            required_snr_db: r.required_snr.0,
-                            airtime_us: r.airtime_us,
-                            noise_bandwidth_hz: r.noise_bandwidth_hz,
-                        })
-                        .map_err(|_| CodecError::Payload)?;
-                }
-                let ext2 = postcard::to_slice(
-                    &WireHeaderV12 { rates },
+                write_rates(
+                    &h.rates,
                     body.get_mut(base + ext..)
                         .ok_or(CodecError::BufferTooSmall)?,
-                )
-                .map_err(too_small)?
-                .len();
-                ext2
+                )?
             };
             (KIND_HEADER, base + ext + ext2)
         }
@@ -729,6 +750,45 @@ mod tests {
         };
         let n = encode_payload(0, &frame, &mut q).unwrap();
         assert_eq!(decode_payload(&q[..n]).unwrap().frame, frame);
+    }
+
+    #[test]
+    fn header_rates_write_what_postcard_writes() {
+        let table = RateTable::new(&[
+            Rate::new("sf7", Db(-7.5), 41_216, Some(125e3)).unwrap(),
+            Rate::new("sf12", Db(-20.0), 991_232, Some(125e3)).unwrap(),
+            Rate::new("x", Db(3.0), 60_000_000, Some(1.0)).unwrap(),
+        ])
+        .unwrap();
+        let no_bw = RateTable::new(&[Rate::new("fsk", Db(8.0), 127, None).unwrap()]).unwrap();
+        for t in [table, no_bw, RateTable::empty()] {
+            let mut ours = [0u8; MAX_PAYLOAD];
+            let n = write_rates(&t, &mut ours).unwrap();
+            let mut rates = heapless::Vec::new();
+            for r in t.as_slice() {
+                let mut name = heapless::String::new();
+                name.push_str(r.name.as_str()).unwrap();
+                let w = WireRate {
+                    name,
+                    required_snr_db: r.required_snr.0,
+                    airtime_us: r.airtime_us,
+                    noise_bandwidth_hz: r.noise_bandwidth_hz,
+                };
+                assert!(rates.push(w).is_ok());
+            }
+            let mut theirs = [0u8; MAX_PAYLOAD];
+            let m = postcard::to_slice(&WireHeaderV12 { rates }, &mut theirs)
+                .unwrap()
+                .len();
+            assert_eq!(&ours[..n], &theirs[..m]);
+            // Too small a buffer is an error at every size, never a panic.
+            for size in 0..n {
+                assert_eq!(
+                    write_rates(&t, &mut ours[..size]),
+                    Err(CodecError::BufferTooSmall)
+                );
+            }
+        }
     }
 
     #[test]
