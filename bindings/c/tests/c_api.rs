@@ -446,3 +446,38 @@ fn c_program_agrees_with_the_rust_api() {
     check_codec(&out);
     check_energy(&out);
 }
+
+/// The C block of the README's "From C" section compiles against the header.
+#[test]
+fn readme_snippet_compiles() {
+    let readme = crate_dir().join("../../README.md");
+    let text = std::fs::read_to_string(&readme).unwrap_or_else(|e| panic!("{e}"));
+    let section = text
+        .split("\n## From C\n")
+        .nth(1)
+        .unwrap_or_else(|| panic!("README.md has no section \"From C\""));
+    let code = section
+        .split("```c\n")
+        .nth(1)
+        .and_then(|rest| rest.split("\n```").next())
+        .unwrap_or_else(|| panic!("the \"From C\" section has no ```c block"));
+    let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("c_api");
+    std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+    let src = dir.join("readme_snippet.c");
+    std::fs::write(&src, code).unwrap_or_else(|e| panic!("{e}"));
+    let cc = std::env::var_os("CC").unwrap_or_else(|| "cc".into());
+    let out = Command::new(&cc)
+        .args(["-std=c11", "-Wall", "-Wextra", "-Werror", "-pedantic", "-c"])
+        .arg("-I")
+        .arg(crate_dir().join("include"))
+        .arg(&src)
+        .arg("-o")
+        .arg(dir.join("readme_snippet.o"))
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run the C compiler {cc:?}: {e}"));
+    assert!(
+        out.status.success(),
+        "the README's C block does not compile:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
