@@ -6,7 +6,11 @@
 //! [`headroom_status`] codes. Nothing here allocates: every state a C caller
 //! keeps (settings, controller, replay, encoder, decoder) lives in memory the
 //! caller provides, of a size and alignment the header states
-//! (`HEADROOM_CONTROLLER_SIZE`, `HEADROOM_STATE_ALIGN`, ...).
+//! (`HEADROOM_CONTROLLER_SIZE`, `HEADROOM_STATE_ALIGN`, ...). The sizes of
+//! the settings, the controller and the replay leave room beyond today's
+//! engine types (a compile-time assertion beside each checks that the type
+//! fits), so that settings the engine adds later change neither the ABI nor
+//! this crate.
 //!
 //! What it covers, module by module:
 //! - [`settings`]: settings by their keys (`"required_snr_db"`, ...), resolved

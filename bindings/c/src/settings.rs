@@ -22,7 +22,9 @@ use crate::state::{call, fits, optional, slot, slot_ref, Block};
 use crate::text::copy_out;
 
 /// Bytes of a `headroom_settings`.
-pub const HEADROOM_SETTINGS_SIZE: usize = 176;
+/// (176 in use on a 64-bit host today; the rest is room for what the
+/// engine adds.)
+pub const HEADROOM_SETTINGS_SIZE: usize = 512;
 
 /// Most levels in a table of power steps (`headroom_settings_set_steps_table`).
 pub const HEADROOM_MAX_LEVELS: usize = 16;
@@ -183,22 +185,16 @@ pub unsafe extern "C" fn headroom_settings_set_steps_table(
         if levels.is_null() {
             return Err(headroom_status::HEADROOM_ERR_NULL);
         }
-        let mut dbm = [Dbm(0.0); MAX_LEVELS];
+        // At most one level more than a table holds is read: enough for
+        // the engine to refuse a table that is too long.
         let n = count.min(MAX_LEVELS + 1);
-        // SAFETY: `levels` holds `count` floats; at most `MAX_LEVELS + 1`
-        // are read (one more than fits tells the engine the table is too long).
+        // SAFETY: `levels` is valid for reads of `count ≥ n` floats (caller).
         let given = unsafe { core::slice::from_raw_parts(levels, n) };
-        let mut filled = 0;
+        let mut dbm = [Dbm(0.0); MAX_LEVELS + 1];
         for (d, l) in dbm.iter_mut().zip(given) {
             *d = Dbm(*l);
-            filled += 1;
         }
-        let table = if count > MAX_LEVELS {
-            // The engine's refusal of a table that is too long.
-            LevelTable::new(&[Dbm(0.0); MAX_LEVELS + 1])?
-        } else {
-            LevelTable::new(dbm.get(..filled).unwrap_or(&[]))?
-        };
+        let table = LevelTable::new(dbm.get(..n).unwrap_or(&[]))?;
         Ok(layer.set(Setting::Steps, Value::Steps(PowerSteps::Table(table)))?)
     })
 }

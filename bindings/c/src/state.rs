@@ -3,8 +3,10 @@
 //! Each C state type (`headroom_controller`, ...) is a block of bytes of the
 //! size and alignment the header states. Inside it lies a [`Slot`]: a tag
 //! that says the value was initialised, then the value. A state whose
-//! initialisation failed, or was never run on zeroed memory, is refused with
-//! `HEADROOM_ERR_NOT_INITIALISED` instead of being read.
+//! initialisation failed, and zeroed memory, are refused with
+//! `HEADROOM_ERR_NOT_INITIALISED` instead of being read. Memory holding
+//! anything else must go through its `_init` first: its bytes could
+//! happen to hold the tag.
 
 use core::mem::{align_of, size_of, MaybeUninit};
 

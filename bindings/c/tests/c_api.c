@@ -92,6 +92,13 @@ static void settings_checks(void) {
         expect_status(headroom_settings_set_steps_table(&s, levels, 3), HEADROOM_ERR_INCONSISTENT,
                       "descending table");
     }
+    {
+        float many[HEADROOM_MAX_LEVELS + 4] = {0};
+        expect_status(headroom_settings_set_steps_table(&s, many, HEADROOM_MAX_LEVELS + 4),
+                      HEADROOM_ERR_OUT_OF_RANGE, "table too long");
+        expect_status(headroom_settings_set_steps_table(&s, NULL, 3), HEADROOM_ERR_NULL,
+                      "no table");
+    }
 }
 
 /* Settings of the controller run below (an invented device). */
