@@ -6,12 +6,18 @@
 //!   check, prove the controller and codec panic-free at link time, and
 //!   print the footprint and instruction-count table. Exits non-zero on any
 //!   failure or mismatch. See `cargo xtask firmware --help`.
+//! - `c-demo`: build the C library (`bindings/c`) for both boards, link
+//!   the C demo firmware with `arm-none-eabi-gcc`, prove it panic-free at
+//!   link time, and replay every field log on both boards under QEMU,
+//!   each decision compared with `headroom replay`. See
+//!   `cargo xtask c-demo --help`.
 //! - `panic-sites ELF...`: the calls into `core::panicking` left in
 //!   firmware images, with the source location each one reports.
 
 use std::process::ExitCode;
 
 mod bench;
+mod c_demo;
 mod elf;
 mod firmware;
 mod proc;
@@ -23,9 +29,10 @@ fn main() -> ExitCode {
     let result = match step.as_str() {
         "firmware" => firmware::run(&rest),
         "bench" => bench::run(&rest),
+        "c-demo" => c_demo::run(&rest),
         "panic-sites" => firmware::panic::print_sites(&rest),
         _ => {
-            eprintln!("usage: cargo xtask <firmware|bench> [--help]");
+            eprintln!("usage: cargo xtask <firmware|c-demo|bench|panic-sites> [--help]");
             return ExitCode::from(2);
         }
     };

@@ -25,7 +25,7 @@ use crate::proc::{self, run_capture, run_inherit};
 mod cost;
 mod live;
 pub mod panic;
-mod replay;
+pub mod replay;
 mod toolchain;
 
 pub use toolchain::Toolchain;
@@ -181,15 +181,7 @@ pub fn run(args: &[String]) -> Result<(), String> {
             other => return Err(format!("firmware: unknown option `{other}` (see --help)")),
         }
     }
-    let timeout =
-        match env::var("QEMU_TIMEOUT") {
-            Ok(s) => {
-                Duration::from_secs(s.trim().parse::<u64>().ok().filter(|&n| n > 0).ok_or_else(
-                    || format!("QEMU_TIMEOUT={s}: want a whole number of seconds > 0"),
-                )?)
-            }
-            Err(_) => Duration::from_secs(120),
-        };
+    let timeout = qemu_timeout()?;
     let root = PathBuf::from(env!("CARGO_MANIFEST_DIR"))
         .parent()
         .map(Path::to_path_buf)
@@ -317,7 +309,22 @@ fn step(name: &str) {
     println!("\n--- firmware: {name} ---");
 }
 
-fn check_qemu() -> Result<(), String> {
+/// The limit on each QEMU run: `QEMU_TIMEOUT` seconds, 120 by default.
+pub fn qemu_timeout() -> Result<Duration, String> {
+    match env::var("QEMU_TIMEOUT") {
+        Ok(s) => Ok(Duration::from_secs(
+            s.trim()
+                .parse::<u64>()
+                .ok()
+                .filter(|&n| n > 0)
+                .ok_or_else(|| format!("QEMU_TIMEOUT={s}: want a whole number of seconds > 0"))?,
+        )),
+        Err(_) => Ok(Duration::from_secs(120)),
+    }
+}
+
+/// An error unless `qemu-system-arm` runs.
+pub fn check_qemu() -> Result<(), String> {
     run_inherit(
         Command::new("qemu-system-arm")
             .arg("--version")

@@ -17,7 +17,7 @@ use headroom::control::{settings, Outcome, Reason, Replay, REPLAY_WINDOW};
 use headroom::record::codec::{Event, Frame, FrameDecoder};
 use headroom::record::DecisionRecord;
 
-use super::{Ctx, BOARDS};
+use super::{Board, Ctx, BOARDS};
 use crate::proc::{run_capture, run_inherit, show};
 
 /// Seed and length of the logs made from the scenarios (the fault
@@ -25,8 +25,36 @@ use crate::proc::{run_capture, run_inherit, show};
 const SYNTH_SEED: &str = "20261202";
 const SYNTH_RECORDS: &str = "3000";
 
-/// Run the equivalence check on every log and board.
+/// A firmware image that replays a log on a board: `-append "LOG OUT"`,
+/// one decision frame per record written to `OUT`.
+pub struct Image {
+    /// The board it runs on.
+    pub board: Board,
+    /// The ELF.
+    pub elf: PathBuf,
+    /// What it is, for messages ("firmware", "C demo").
+    pub what: &'static str,
+    /// Tag of its output files (so that images do not share them).
+    pub tag: &'static str,
+}
+
+/// Run the equivalence check of the Rust firmware's `replay` on every log
+/// and board.
 pub fn run(ctx: &Ctx) -> Result<(), String> {
+    let images: Vec<Image> = BOARDS
+        .iter()
+        .map(|b| Image {
+            board: *b,
+            elf: ctx.elf(b, "replay"),
+            what: "firmware",
+            tag: "rust",
+        })
+        .collect();
+    run_images(ctx, &images)
+}
+
+/// Run the equivalence check of `images` on every log.
+pub fn run_images(ctx: &Ctx, images: &[Image]) -> Result<(), String> {
     let headroom = build_host_cli(ctx)?;
     let dir = ctx.work.join("replay");
     fs::create_dir_all(&dir).map_err(|e| format!("{}: {e}", dir.display()))?;
@@ -36,6 +64,7 @@ pub fn run(ctx: &Ctx) -> Result<(), String> {
             "no field logs to replay (examples/logs/*.csv, examples/scenarios/*.toml)".into(),
         );
     }
+    let boards: Vec<&str> = images.iter().map(|i| i.board.machine).collect();
     let mut failures = Vec::new();
     for log in &logs {
         let name = log
@@ -43,8 +72,11 @@ pub fn run(ctx: &Ctx) -> Result<(), String> {
             .and_then(|s| s.to_str())
             .unwrap_or("log")
             .to_string();
-        match check_log(ctx, &headroom, &dir, log, &name) {
-            Ok(n) => println!("{name}: {n} decisions identical on host, mps2-an386 and microbit"),
+        match check_log(ctx, &headroom, &dir, log, &name, images) {
+            Ok(n) => println!(
+                "{name}: {n} decisions identical on the host and {}",
+                boards.join(" and ")
+            ),
             Err(e) => {
                 println!("{name}: MISMATCH");
                 failures.push(format!("{name}: {e}"));
@@ -64,6 +96,7 @@ fn check_log(
     dir: &Path,
     log: &Path,
     name: &str,
+    images: &[Image],
 ) -> Result<usize, String> {
     let bytes = fs::read(log).map_err(|e| format!("{}: {e}", log.display()))?;
     let engine = engine_replay(&bytes)?;
@@ -88,8 +121,9 @@ fn check_log(
         &engine,
     )?;
 
-    for b in &BOARDS {
-        let out_name = format!("{name}.{}.decisions.hrlog", b.machine);
+    for image in images {
+        let b = &image.board;
+        let out_name = format!("{name}.{}.{}.decisions.hrlog", image.tag, b.machine);
         let out_path = dir.join(&out_name);
         let _ = fs::remove_file(&out_path);
         let log_name = log
@@ -98,17 +132,20 @@ fn check_log(
             .ok_or("log name is not UTF-8")?;
         let mut q = ctx.qemu(
             b,
-            &ctx.elf(b, "replay"),
+            &image.elf,
             false,
             Some(&format!("{log_name} {out_name}")),
         );
         q.current_dir(log.parent().unwrap_or(dir));
-        let said = ctx.run_qemu(q, &format!("replay of {name} on {}", b.machine))?;
+        let said = ctx.run_qemu(
+            q,
+            &format!("{} replay of {name} on {}", image.what, b.machine),
+        )?;
         let frames = fs::read(log.parent().unwrap_or(dir).join(&out_name))
             .map_err(|e| format!("{out_name}: {e}"))?;
         let target = decode_decisions(&frames).map_err(|e| format!("{out_name}: {e}"))?;
         compare(
-            &format!("firmware on {}", b.machine),
+            &format!("{} on {}", image.what, b.machine),
             &target,
             "headroom replay (host CLI)",
             &cli,

@@ -1,0 +1,61 @@
+/*
+ * Replay of a framed binary field log through libheadroom_c, from any byte
+ * source to any byte sink: the one replay loop of the C demo firmware
+ * (bytes through semihosting) and of the host C test (bytes through stdio).
+ *
+ * The settings are those `headroom replay LOG` uses without flags: the log
+ * header's over the engine's defaults (the replay starts at the first
+ * header frame, or without a header at a record that comes first). One
+ * decision frame is written per record, after a header frame, so the
+ * output reads with the engine's decoder as the Rust firmware's does.
+ */
+#ifndef REPLAY_LOG_H
+#define REPLAY_LOG_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "headroom.h"
+
+/* Read up to `cap` bytes into `buf`: the count, 0 at the end, or
+ * (size_t)-1 on a read error. */
+typedef size_t (*replay_read_fn)(void *ctx, uint8_t *buf, size_t cap);
+/* Write `len` bytes: 0 when all were written. */
+typedef int (*replay_write_fn)(void *ctx, const uint8_t *data, size_t len);
+
+/* Bytes gathered before one write to the sink. */
+#define REPLAY_OUT_BUFFER 512
+/* Bytes read from the source at a time. */
+#define REPLAY_IN_CHUNK 256
+
+/* Everything the loop keeps: caller-allocated (static on a device). */
+typedef struct {
+    headroom_settings settings;
+    headroom_replay replay;
+    headroom_decoder decoder;
+    headroom_encoder encoder;
+    uint8_t frame[HEADROOM_MAX_FRAME];
+    uint8_t in[REPLAY_IN_CHUNK];
+    uint8_t out[REPLAY_OUT_BUFFER];
+    size_t out_len;
+    int started;
+} replay_job;
+
+/* What happened. */
+typedef struct {
+    uint64_t bytes_in;
+    uint64_t bytes_out;
+    uint64_t damaged;      /* damaged regions skipped */
+    uint64_t other_frames; /* later headers, decision frames, unknown kinds */
+    int started;           /* a replay was set up (the log had a header or a record) */
+    headroom_status status;  /* HEADROOM_OK, or the library's refusal */
+    int io_error;          /* non-zero: the source or the sink failed */
+} replay_report;
+
+/* Replay the log read from `read` into decision frames written to `write`.
+ * Returns 0 on success; on failure `report` says why. The totals are then
+ * in `job->replay` (headroom_replay_summary). */
+int replay_log(replay_job *job, replay_read_fn read, void *read_ctx, replay_write_fn write,
+               void *write_ctx, replay_report *report);
+
+#endif
