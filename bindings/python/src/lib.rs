@@ -25,12 +25,13 @@ use pyo3::prelude::*;
 use pyo3::types::{PyByteArray, PyBytes};
 
 /// `headroom.HeadroomError(message, exit_code)` (defined in Python, so that
-/// it pickles between a Dask worker and its client).
+/// it pickles between a Dask worker and its client); the message is the
+/// line the binary prints after `error: ` (escaped, capped as it is).
 fn py_err(py: Python<'_>, e: &CliError) -> PyErr {
     let made = py
         .import("headroom._errors")
         .and_then(|m| m.getattr("HeadroomError"))
-        .and_then(|c| c.call1((e.to_string(), e.exit_code())));
+        .and_then(|c| c.call1((diag::shown(&e.to_string()), e.exit_code())));
     match made {
         Ok(inst) => PyErr::from_value(inst),
         Err(err) => err,

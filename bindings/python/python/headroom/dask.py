@@ -117,7 +117,12 @@ def replay_fleet(source, client=None, *, device_column="device", columns=None, s
         results = [f(*a) for f, a in jobs]
     else:
         futures = [client.submit(f, *a, pure=False) for f, a in jobs]
-        results = client.gather(futures)
+        # In the order of the logs: the first log that fails is the error,
+        # as in the CLI, whichever worker failed first.
+        try:
+            results = [f.result() for f in futures]
+        finally:
+            client.cancel(futures)
     objs = []
     parts = []
     for obj, summary, target, lines in results:
