@@ -103,7 +103,7 @@ fn lenient(c: clap::Command) -> clap::Command {
 /// What parsing a command line gave: a command to run, or text to show
 /// (help, version) with the exit code.
 enum Parsed {
-    Run(Command),
+    Run(Box<Command>),
     Show(clap::Error, u8),
 }
 
@@ -116,7 +116,7 @@ where
         .try_get_matches_from(argv)
         .and_then(|m| Cli::from_arg_matches(&m))
     {
-        Ok(cli) => return Ok(Parsed::Run(cli.command)),
+        Ok(cli) => return Ok(Parsed::Run(Box::new(cli.command))),
         Err(e) => e,
     };
     use clap::error::ErrorKind;
@@ -151,7 +151,7 @@ where
     T: Into<std::ffi::OsString> + Clone,
 {
     match parse_from(argv)? {
-        Parsed::Run(c) => Ok(c),
+        Parsed::Run(c) => Ok(*c),
         Parsed::Show(e, _) => Err(error::CliError::Input(
             e.render()
                 .to_string()
@@ -188,7 +188,7 @@ pub fn run() -> ExitCode {
     atomic::install_cleanup();
     atomic::track_inputs();
     let command = match parse_from(std::env::args_os()) {
-        Ok(Parsed::Run(c)) => c,
+        Ok(Parsed::Run(c)) => *c,
         Ok(Parsed::Show(e, code)) => {
             let _ = e.print();
             return ExitCode::from(code);

@@ -38,8 +38,12 @@ fn py_err(py: Python<'_>, e: &CliError) -> PyErr {
     }
 }
 
-/// Run a parsed command with stdout and diagnostics captured.
+/// Run a command with stdout and diagnostics captured; the inputs of
+/// earlier commands are forgotten (one command's input may be a later one's
+/// output), this one's are registered (none of its outputs may replace
+/// one).
 fn captured<R>(f: impl FnOnce() -> CliResult<R>) -> (CliResult<R>, String, Vec<String>) {
+    headroom_cli::atomic::forget_inputs();
     let ((r, text), lines) = diag::capture(|| output::capture(f));
     (r, text, lines)
 }
@@ -170,7 +174,7 @@ fn column(name: &str, kind: char, bytes: &[u8]) -> CliResult<Column> {
             bytes.len()
         ))
     };
-    if bytes.len() % 8 != 0 {
+    if !bytes.len().is_multiple_of(8) {
         return Err(bad());
     }
     let words = bytes.chunks_exact(8).map(|c| {
@@ -301,15 +305,14 @@ fn toml_from_json(py: Python<'_>, text: &str) -> PyResult<String> {
     toml::to_string(&v).map_err(|e| bad(e.to_string()))
 }
 
+/// The logs named, and the entries skipped with why.
+type Expanded = (Vec<String>, Vec<(String, String)>);
+
 /// `expand(paths, strict) -> (logs, skipped)`: the logs the LOG arguments
 /// `paths` name, as `replay` and `tune` expand them (a directory: its
 /// `.csv` and `.hrlog` files, sorted), and the entries skipped with why.
 #[pyfunction]
-fn expand(
-    py: Python<'_>,
-    paths: Vec<std::path::PathBuf>,
-    strict: bool,
-) -> PyResult<(Vec<String>, Vec<(String, String)>)> {
+fn expand(py: Python<'_>, paths: Vec<std::path::PathBuf>, strict: bool) -> PyResult<Expanded> {
     let list = headroom_cli::fleet::logs::expand(&paths, strict).map_err(|e| py_err(py, &e))?;
     Ok((
         list.logs.iter().map(|p| p.display().to_string()).collect(),

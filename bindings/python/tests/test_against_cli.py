@@ -209,3 +209,17 @@ def test_tune_is_the_cli_json(cli_json):
     got = headroom.tune(logs, sweep=["margin_step_db=0.25..1:0.25"], target_outage="2%")
     want = cli_json("tune", *logs, "--sweep", "margin_step_db=0.25..1:0.25", "--set", "target_outage=2%")
     assert_same_keys_and_values(got, want)
+
+
+def test_an_output_never_replaces_an_input_of_its_command(cli, tmp_path):
+    log = tmp_path / "orchard.csv"
+    log.write_bytes((ROOT / "examples/logs/orchard-868.csv").read_bytes())
+    code, _, err = cli("convert", log, log, "--force")
+    with pytest.raises(headroom.HeadroomError) as e:
+        headroom.run("convert", log, log, "--force")
+    assert str(e.value) == err.removeprefix("headroom: error: ")
+    assert log.read_bytes() == (ROOT / "examples/logs/orchard-868.csv").read_bytes()
+    # A later command may write what an earlier one read.
+    headroom.replay(log)
+    headroom.run("synth", "--scenario", "examples/scenarios/cattle-collar-915.toml", "--seed", 1, "--records", 10, "--out", log, "--force")
+    assert headroom.replay(log)["logs"][0]["records"] == 10

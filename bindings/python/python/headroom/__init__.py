@@ -115,7 +115,8 @@ def _flags(options):
 
 
 def _json(command, positional, options):
-    text = run(command, *positional, *_flags(options), "--format", "json")
+    # The positional arguments after `--`: a path may begin with `-`.
+    text = run(command, *_flags(options), "--format", "json", "--", *positional)
     return json.loads(text)
 
 
@@ -267,7 +268,7 @@ def replay(source, *, decisions=True, name="arrays", header=None, columns=None, 
         paths = [os.fspath(source)]
     if header is not None and arrays is None:
         raise TypeError("header: only for a log given as columns (a file carries its own)")
-    argv = ["headroom", "replay", *paths, *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--format", "json"]
+    argv = ["headroom", "replay", *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--format", "json", "--", *paths]
     text, lines, steps, _ = _native.replay(argv, arrays, decisions)
     _warn(lines)
     result = json.loads(text)
@@ -304,5 +305,5 @@ def tune(logs, *, sweep=(), columns=None, **options):
     paths = [os.fspath(p) for p in logs] if isinstance(logs, (list, tuple)) else [os.fspath(logs)]
     if isinstance(sweep, str):
         sweep = [sweep]
-    argv = [*paths, *[a for s in sweep for a in ("--sweep", s)], *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--quiet", "--format", "json"]
+    argv = [*[a for s in sweep for a in ("--sweep", s)], *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--quiet", "--format", "json", "--", *paths]
     return json.loads(run("tune", *argv))

@@ -37,7 +37,7 @@ __all__ = ["replay_fleet"]
 
 def _replay_path(path, tail):
     """One log file on a worker: its JSON object, its totals, its warnings."""
-    text, lines, _, done = _native.replay(["headroom", "replay", path, *tail], None, False)
+    text, lines, _, done = _native.replay(["headroom", "replay", *tail, "--", path], None, False)
     (obj,) = json.loads(text)["logs"]
     ((summary, target),) = done
     return obj, summary, target, lines
@@ -52,7 +52,7 @@ def _replay_device(dataset, device_column, device, name, columns, tail):
     table = table.drop([device_column])
     frame = {c: table.column(c).to_numpy(zero_copy_only=False) for c in table.column_names}
     arrays = (name, [], _as_columns(frame, columns))
-    text, lines, _, done = _native.replay(["headroom", "replay", name, *tail], arrays, False)
+    text, lines, _, done = _native.replay(["headroom", "replay", *tail, "--", name], arrays, False)
     (obj,) = json.loads(text)["logs"]
     ((summary, target),) = done
     return obj, summary, target, lines
