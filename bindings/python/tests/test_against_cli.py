@@ -223,3 +223,11 @@ def test_an_output_never_replaces_an_input_of_its_command(cli, tmp_path):
     headroom.replay(log)
     headroom.run("synth", "--scenario", "examples/scenarios/cattle-collar-915.toml", "--seed", 1, "--records", 10, "--out", log, "--force")
     assert headroom.replay(log)["logs"][0]["records"] == 10
+
+
+def test_energy_and_interval_are_the_flags_of_that_name(cli_json):
+    log, profile = "examples/logs/orchard-868.csv", "examples/energy/orchard-868.toml"
+    got = headroom.replay(log, energy=profile, interval="10min", decisions=False)
+    want = cli_json("replay", log, "--energy", profile, "--interval", "10min")
+    assert_same_keys_and_values(got, want)
+    assert "energy" in got["fleet"] and got["logs"][0]["energy"]["replayed"]["battery_life_days"] > 0
