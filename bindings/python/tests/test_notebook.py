@@ -26,3 +26,13 @@ def test_every_public_name_has_a_stub():
         elif isinstance(node, ast.ImportFrom):
             named.update(a.asname or a.name for a in node.names)
     assert set(headroom.__all__) <= named, set(headroom.__all__) - named
+
+
+def test_the_readme_example_runs_and_its_fleet_is_the_cli(cli_json, capsys):
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = readme.split("## From Python and on a Dask cluster", 1)[1]
+    code = section.split("```python\n", 1)[1].split("```", 1)[0]
+    exec(compile(code, "README.md", "exec"), {"__name__": "__main__"})
+    printed = capsys.readouterr().out.split()
+    fleet = cli_json("replay", "examples/logs", "--set", "target_outage=2%")["fleet"]
+    assert [float(x) for x in printed[-2:]] == [fleet["outage_fraction"], fleet["mean_tx_dbm"]]
