@@ -110,6 +110,22 @@ mod tests {
     use super::*;
 
     #[test]
+    fn capture_keeps_the_lines_as_printed() {
+        let ((), lines) = capture(|| {
+            warn("a.csv: skipped: not a regular file");
+            note(format!("x{}", "\u{1b}"));
+        });
+        assert_eq!(
+            lines,
+            vec![
+                "warning: a.csv: skipped: not a regular file".to_string(),
+                format!("note: {}", shown("x\u{1b}")),
+            ]
+        );
+        assert!(!lines[1].contains('\u{1b}'));
+    }
+
+    #[test]
     fn long_messages_keep_their_ends() {
         let msg = format!("file.toml: {} invalid escape", "x".repeat(10_000_000));
         let s = shown(&msg);

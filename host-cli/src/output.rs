@@ -224,6 +224,30 @@ mod tests {
     use super::*;
 
     #[test]
+    fn capture_keeps_what_a_command_prints_on_its_thread_only() {
+        use std::io::Write as _;
+        let (r, text) = capture(|| {
+            write_stdout("{\"a\": 1}\n")?;
+            let mut w = std::io::BufWriter::new(Stdout);
+            // A multi-byte character split across two writes stays whole.
+            w.write_all("µ".as_bytes().get(..1).unwrap_or_default())
+                .and_then(|()| w.flush())
+                .and_then(|()| w.write_all("µ".as_bytes().get(1..).unwrap_or_default()))
+                .and_then(|()| w.flush())
+                .map_err(|e| CliError::Io(e.to_string()))?;
+            let (_, inner) = capture(|| write_stdout("nested"));
+            assert_eq!(inner, "nested");
+            CliResult::Ok(())
+        });
+        assert!(r.is_ok());
+        assert_eq!(text, "{\"a\": 1}\nµ");
+        let other = std::thread::spawn(|| capture(|| ()).1)
+            .join()
+            .unwrap_or_default();
+        assert_eq!(other, "");
+    }
+
+    #[test]
     fn table_cells_carry_no_control_character() {
         let forged = "antenna\r\n\u{1b}[2Kcable loss  0  dB\u{9b}";
         let mut r = Report::new();
