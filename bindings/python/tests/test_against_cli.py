@@ -231,3 +231,14 @@ def test_energy_and_interval_are_the_flags_of_that_name(cli_json):
     want = cli_json("replay", log, "--energy", profile, "--interval", "10min")
     assert_same_keys_and_values(got, want)
     assert "energy" in got["fleet"] and got["logs"][0]["energy"]["replayed"]["battery_life_days"] > 0
+
+
+def test_a_dict_names_its_energy_profile_relative_to_the_current_directory(cli_json, tmp_path):
+    with open("examples/links/orchard-sensor.toml", "rb") as f:
+        spec = tomllib.load(f)
+    spec["energy"] = {"profile": "examples/energy/orchard-868.toml", "interval": "15min"}
+    got = headroom.budget(spec)
+    want = cli_json("budget", "examples/links/orchard-sensor.toml", "--energy", "examples/energy/orchard-868.toml", "--interval", "15min")
+    assert got["energy"].pop("profile") == str(ROOT / "examples/energy/orchard-868.toml")
+    want["energy"].pop("profile")
+    assert got["energy"] == want["energy"]

@@ -130,6 +130,11 @@ def budget(link, **options):
     (``[energy] profile``) are taken relative to the current directory.
     """
     if isinstance(link, dict):
+        energy = link.get("energy")
+        if isinstance(energy, dict) and isinstance(energy.get("profile"), (str, os.PathLike)):
+            # A link file names its profile relative to itself; a dict has no
+            # place, so relative to the current directory.
+            link = {**link, "energy": {**energy, "profile": os.path.abspath(os.fspath(energy["profile"]))}}
         toml_text = _native.toml_from_json(json.dumps(link))
         with tempfile.TemporaryDirectory(prefix="headroom-link-") as tmp:
             path = os.path.join(tmp, "link.toml")
