@@ -172,9 +172,6 @@ def battery(profile, **options):
     return _json("battery", [profile], options)
 
 
-_READ_FLAGS = ("config", "energy", "interval", "strict")
-
-
 def _setting_flags(settings):
     argv = []
     for key, value in settings.items():
@@ -236,7 +233,7 @@ def _decisions(columns):
     return {name: np.frombuffer(data, dtype=dtype) for name, dtype, data in columns}
 
 
-def replay(source, *, decisions=True, name="arrays", header=None, columns=None, **options):
+def replay(source, *, decisions=True, name="arrays", header=None, columns=None, config=None, energy=None, interval=None, strict=False, **settings):
     """``headroom replay ... --format json`` as a dict, plus every record's
     decision as NumPy arrays.
 
@@ -259,7 +256,7 @@ def replay(source, *, decisions=True, name="arrays", header=None, columns=None, 
     ``reason`` are codes into ``OUTCOMES`` and ``REASONS``; NaN where a
     value does not exist). ``decisions=False`` leaves them out.
     """
-    flags = {k: options.pop(k) for k in _READ_FLAGS if k in options}
+    flags = {"config": config, "energy": energy, "interval": interval, "strict": strict}
     arrays = None
     if _is_arrays(source):
         if header is not None and not isinstance(header, dict):
@@ -273,7 +270,7 @@ def replay(source, *, decisions=True, name="arrays", header=None, columns=None, 
         paths = [os.fspath(source)]
     if header is not None and arrays is None:
         raise TypeError("header: only for a log given as columns (a file carries its own)")
-    argv = ["headroom", "replay", *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--format", "json", "--", *paths]
+    argv = ["headroom", "replay", *_flags(flags), *_column_flags(columns), *_setting_flags(settings), "--format", "json", "--", *paths]
     text, lines, steps, _ = _native.replay(argv, arrays, decisions)
     _warn(lines)
     result = json.loads(text)
@@ -295,7 +292,7 @@ def decisions_frame(result, log=0):
     return frame
 
 
-def tune(logs, *, sweep=(), columns=None, **options):
+def tune(logs, *, sweep=(), columns=None, config=None, energy=None, objective=None, each_device=False, incomparable=False, strict=False, threads=None, **settings):
     """``headroom tune LOGS... --format json`` as a dict.
 
     ``logs``: a log file, a directory, or a list of them. ``sweep``: the
@@ -305,10 +302,9 @@ def tune(logs, *, sweep=(), columns=None, **options):
     ``strict``, ``threads``, ``columns``, and the controller's settings by
     key, as for :func:`replay`.
     """
-    flag_keys = _READ_FLAGS + ("objective", "each_device", "incomparable", "threads")
-    flags = {k: options.pop(k) for k in flag_keys if k in options}
+    flags = {"config": config, "energy": energy, "objective": objective, "each_device": each_device, "incomparable": incomparable, "strict": strict, "threads": threads}
     paths = [os.fspath(p) for p in logs] if isinstance(logs, (list, tuple)) else [os.fspath(logs)]
     if isinstance(sweep, str):
         sweep = [sweep]
-    argv = [*[a for s in sweep for a in ("--sweep", s)], *_flags(flags), *_column_flags(columns), *_setting_flags(options), "--quiet", "--format", "json", "--", *paths]
+    argv = [*[a for s in sweep for a in ("--sweep", s)], *_flags(flags), *_column_flags(columns), *_setting_flags(settings), "--quiet", "--format", "json", "--", *paths]
     return json.loads(run("tune", *argv))
