@@ -106,6 +106,14 @@ pub fn track_inputs() {
     TRACKING.store(true, Ordering::Relaxed);
 }
 
+/// Forget the inputs registered so far: a process that runs one command
+/// after another (the Python binding) calls it before each, so that a file
+/// read by one command may be the output of a later one. Registration
+/// stays on.
+pub fn forget_inputs() {
+    *lock(&INPUTS) = None;
+}
+
 fn note_id(path: &Path, meta: &fs::Metadata) {
     if !TRACKING.load(Ordering::Relaxed) {
         return;

@@ -68,8 +68,30 @@ pub fn capped(s: &str, max: usize) -> String {
     out
 }
 
+thread_local! {
+    /// This thread's lines, while [`capture`] runs a command.
+    static CAPTURED: std::cell::RefCell<Option<Vec<String>>> = const { std::cell::RefCell::new(None) };
+}
+
+/// Run `f` with the lines it would print on this thread kept instead,
+/// each as printed without the `headroom: ` prefix (`warning: ...`): the
+/// Python binding turns them into Python warnings.
+pub fn capture<R>(f: impl FnOnce() -> R) -> (R, Vec<String>) {
+    let outer = CAPTURED.with(|c| c.borrow_mut().replace(Vec::new()));
+    let r = f();
+    let lines = CAPTURED.with(|c| std::mem::replace(&mut *c.borrow_mut(), outer));
+    (r, lines.unwrap_or_default())
+}
+
 fn line(kind: &str, msg: &str) {
-    if GONE.load(Ordering::Relaxed) {
+    let kept = CAPTURED.with(|c| match c.borrow_mut().as_mut() {
+        Some(v) => {
+            v.push(format!("{kind}{}", shown(msg)));
+            true
+        }
+        None => false,
+    });
+    if kept || GONE.load(Ordering::Relaxed) {
         return;
     }
     let text = format!("headroom: {kind}{}\n", shown(msg));
@@ -86,6 +108,22 @@ fn line(kind: &str, msg: &str) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn capture_keeps_the_lines_as_printed() {
+        let ((), lines) = capture(|| {
+            warn("a.csv: skipped: not a regular file");
+            note(format!("x{}", "\u{1b}"));
+        });
+        assert_eq!(
+            lines,
+            vec![
+                "warning: a.csv: skipped: not a regular file".to_string(),
+                format!("note: {}", shown("x\u{1b}")),
+            ]
+        );
+        assert!(!lines[1].contains('\u{1b}'));
+    }
 
     #[test]
     fn long_messages_keep_their_ends() {

@@ -9,6 +9,8 @@ use std::process::ExitCode;
 
 use clap::{CommandFactory, FromArgMatches, Parser, Subcommand};
 
+use error::CliResult;
+
 pub mod atomic;
 pub mod diag;
 pub mod energy;
@@ -46,8 +48,9 @@ struct Cli {
     command: Command,
 }
 
+/// A command of `headroom`, with its arguments.
 #[derive(Subcommand)]
-enum Command {
+pub enum Command {
     /// Evaluate a link budget described in a TOML file.
     #[command(after_help = CAUTION)]
     Budget(cmd::budget::Args),
@@ -97,33 +100,30 @@ fn lenient(c: clap::Command) -> clap::Command {
     .mut_subcommands(lenient)
 }
 
-fn parse() -> Result<Cli, clap::Error> {
-    let matches = lenient(Cli::command()).try_get_matches()?;
-    Cli::from_arg_matches(&matches)
+/// What parsing a command line gave: a command to run, or text to show
+/// (help, version) with the exit code.
+enum Parsed {
+    Run(Box<Command>),
+    Show(clap::Error, u8),
 }
 
-/// Parse the command line, run the command, and give the process's exit
-/// code (0 success, 2 a usage error, otherwise the error's own code).
-pub fn run() -> ExitCode {
-    atomic::install_cleanup();
-    atomic::track_inputs();
-    let cli = match parse() {
-        Ok(cli) => cli,
-        Err(e) => {
-            use clap::error::ErrorKind;
-            if matches!(e.kind(), ErrorKind::DisplayHelp | ErrorKind::DisplayVersion)
-                || matches!(
-                    e.kind(),
-                    ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand
-                )
-            {
-                let _ = e.print();
-                return if e.kind() == ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand {
-                    ExitCode::from(2)
-                } else {
-                    ExitCode::SUCCESS
-                };
-            }
+fn parse_from<I, T>(argv: I) -> CliResult<Parsed>
+where
+    I: IntoIterator<Item = T>,
+    T: Into<std::ffi::OsString> + Clone,
+{
+    let e = match lenient(Cli::command())
+        .try_get_matches_from(argv)
+        .and_then(|m| Cli::from_arg_matches(&m))
+    {
+        Ok(cli) => return Ok(Parsed::Run(Box::new(cli.command))),
+        Err(e) => e,
+    };
+    use clap::error::ErrorKind;
+    match e.kind() {
+        ErrorKind::DisplayHelp | ErrorKind::DisplayVersion => Ok(Parsed::Show(e, 0)),
+        ErrorKind::DisplayHelpOnMissingArgumentOrSubcommand => Ok(Parsed::Show(e, 2)),
+        _ => {
             // One line: what clap says before its usage hint, joined.
             let text = e.render().to_string();
             let msg: Vec<&str> = text
@@ -133,14 +133,40 @@ pub fn run() -> ExitCode {
                 .filter(|l| !l.is_empty() && !l.starts_with("For more information"))
                 .collect();
             let msg = msg.join(" ");
-            diag::info(format!(
+            Err(error::CliError::Input(format!(
                 "{} (see 'headroom --help')",
                 msg.trim_start_matches("error: ")
-            ));
-            return ExitCode::from(2);
+            )))
         }
-    };
-    let result = match cli.command {
+    }
+}
+
+/// Parse a command line as the `headroom` binary does (`argv[0]` is the
+/// program's name): the command, or the binary's one-line usage error
+/// (`CliError::Input`, exit code 2). Help and version text are an error
+/// here too; the bindings name their commands' arguments themselves.
+pub fn parse_command_line<I, T>(argv: I) -> CliResult<Command>
+where
+    I: IntoIterator<Item = T>,
+    T: Into<std::ffi::OsString> + Clone,
+{
+    match parse_from(argv)? {
+        Parsed::Run(c) => Ok(*c),
+        Parsed::Show(e, _) => Err(error::CliError::Input(
+            e.render()
+                .to_string()
+                .lines()
+                .next()
+                .unwrap_or_default()
+                .to_string(),
+        )),
+    }
+}
+
+/// Run a parsed command: what the binary does after parsing, without its
+/// process set-up (signal handlers, input tracking: see [`run`]).
+pub fn run_command(command: Command) -> CliResult {
+    match command {
         Command::Budget(a) => cmd::budget::run(a),
         Command::Solve(a) => cmd::solve::run(a),
         Command::Pathloss(a) => cmd::pathloss::run(a),
@@ -153,8 +179,26 @@ pub fn run() -> ExitCode {
         Command::Convert(a) => cmd::convert::run(a),
         Command::Tune(a) => cmd::tune::run(a),
         Command::Battery(a) => cmd::battery::run(a),
+    }
+}
+
+/// Parse the command line, run the command, and give the process's exit
+/// code (0 success, 2 a usage error, otherwise the error's own code).
+pub fn run() -> ExitCode {
+    atomic::install_cleanup();
+    atomic::track_inputs();
+    let command = match parse_from(std::env::args_os()) {
+        Ok(Parsed::Run(c)) => *c,
+        Ok(Parsed::Show(e, code)) => {
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+        Err(e) => {
+            diag::info(e.to_string());
+            return ExitCode::from(2);
+        }
     };
-    match result {
+    match run_command(command) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
             diag::error(&e);

@@ -332,7 +332,7 @@ pub fn pointing_at_help(cmd: &str, r: CliResult) -> CliResult {
 
 /// Print a warning on stderr and keep it for the JSON `warnings` list.
 pub fn warn(warnings: &mut Vec<String>, msg: String) {
-    eprintln!("headroom: warning: {msg}");
+    crate::diag::warn(&msg);
     warnings.push(msg);
 }
 

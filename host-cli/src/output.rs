@@ -161,9 +161,57 @@ fn print_nested(out: &mut String, v: &Value, depth: usize) {
     }
 }
 
+thread_local! {
+    /// What this thread's command printed, while [`capture`] runs it.
+    static CAPTURED: std::cell::RefCell<Option<Vec<u8>>> = const { std::cell::RefCell::new(None) };
+}
+
+/// Run `f` with what it prints on stdout (through [`write_stdout`] or
+/// [`Stdout`]) kept, on this thread, instead of printed: the Python
+/// binding returns a command's JSON this way, the very text the command
+/// prints.
+pub fn capture<R>(f: impl FnOnce() -> R) -> (R, String) {
+    let outer = CAPTURED.with(|c| c.borrow_mut().replace(Vec::new()));
+    let r = f();
+    let bytes = CAPTURED.with(|c| std::mem::replace(&mut *c.borrow_mut(), outer));
+    let text = String::from_utf8_lossy(&bytes.unwrap_or_default()).into_owned();
+    (r, text)
+}
+
+/// Keep `bytes` if [`capture`] is running on this thread (then `true`).
+fn captured(bytes: &[u8]) -> bool {
+    CAPTURED.with(|c| match c.borrow_mut().as_mut() {
+        Some(s) => {
+            s.extend_from_slice(bytes);
+            true
+        }
+        None => false,
+    })
+}
+
+/// Stdout as a writer, for commands that stream their output (`tune
+/// --format jsonl`); it goes where [`write_stdout`] writes.
+pub struct Stdout;
+
+impl std::io::Write for Stdout {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        if captured(buf) {
+            return Ok(buf.len());
+        }
+        std::io::stdout().lock().write(buf)
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        std::io::stdout().lock().flush()
+    }
+}
+
 /// Write `text` to stdout; a closed pipe (`| head`) or a full disk is an
 /// error with exit code 1, never a panic.
 pub fn write_stdout(text: &str) -> CliResult {
+    if captured(text.as_bytes()) {
+        return Ok(());
+    }
     let mut stdout = std::io::stdout().lock();
     stdout
         .write_all(text.as_bytes())
@@ -174,6 +222,30 @@ pub fn write_stdout(text: &str) -> CliResult {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn capture_keeps_what_a_command_prints_on_its_thread_only() {
+        use std::io::Write as _;
+        let (r, text) = capture(|| {
+            write_stdout("{\"a\": 1}\n")?;
+            let mut w = std::io::BufWriter::new(Stdout);
+            // A multi-byte character split across two writes stays whole.
+            w.write_all("µ".as_bytes().get(..1).unwrap_or_default())
+                .and_then(|()| w.flush())
+                .and_then(|()| w.write_all("µ".as_bytes().get(1..).unwrap_or_default()))
+                .and_then(|()| w.flush())
+                .map_err(|e| CliError::Io(e.to_string()))?;
+            let (_, inner) = capture(|| write_stdout("nested"));
+            assert_eq!(inner, "nested");
+            CliResult::Ok(())
+        });
+        assert!(r.is_ok());
+        assert_eq!(text, "{\"a\": 1}\nµ");
+        let other = std::thread::spawn(|| capture(|| ()).1)
+            .join()
+            .unwrap_or_default();
+        assert_eq!(other, "");
+    }
 
     #[test]
     fn table_cells_carry_no_control_character() {

@@ -98,6 +98,7 @@ pub const REPLAY_WINDOW: usize = 32;
 /// What the device itself did, judged by the same rule as the replay.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct LoggedTotals {
     /// Records whose logged readings could be judged.
     pub judged: u64,
@@ -173,8 +174,11 @@ fn mw(p: f32) -> f64 {
 /// Running totals of a replay: of one log, or of a fleet of logs added up
 /// with [`Summary::merge`]. Every total is a count or a linear sum, public,
 /// so that totals computed anywhere (threads, machines) add up exactly.
+/// With `serde` it serialises whole (postcard keeps every bit), so totals
+/// computed on other machines merge as if computed here.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct Summary {
     /// Logs added up in these totals (1 for one log).
     pub logs: u64,

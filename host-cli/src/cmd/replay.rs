@@ -17,13 +17,13 @@
 //! file of `--config` (keys = the field names of `ControllerConfig`, see
 //! `examples/controllers/default.toml`); the flags.
 
-use std::io::{self, Write};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use headroom::control::{Fleet, Outcome, ReplayStep, Summary};
 use headroom::energy::ReplayEnergy;
 use headroom::record::codec::{Encoder, MAX_FRAME};
-use headroom::record::DecisionRecord;
+use headroom::record::{DecisionRecord, LogRecord};
 use serde_json::{Map, Value};
 
 use crate::atomic::AtomicFile;
@@ -110,8 +110,41 @@ pub struct Args {
     format: ReplayFormat,
 }
 
+/// What a caller of [`run_observed`] sees besides the printed report (the
+/// Python binding: per-record decisions, the totals a cluster reduces, logs
+/// given as arrays). Every method does nothing by default.
+pub trait Observer {
+    /// The records of the log named `path`, if the caller holds them (a log
+    /// handed over as columns, `crate::logio::columns`); `None`: the file
+    /// is read.
+    fn records(&mut self, _path: &Path) -> Option<crate::logio::LogReader> {
+        None
+    }
+    /// A record replayed, of the log at `index` in the order of the logs.
+    fn step(&mut self, _index: usize, _rec: &LogRecord, _step: &ReplayStep) {}
+    /// The log at `index` is replayed: its totals and its target outage,
+    /// what the fleet total (`Fleet::add`) takes.
+    fn done(&mut self, _index: usize, _summary: &Summary, _target_outage: f32) {}
+}
+
+/// No observer: the command as the binary runs it.
+impl Observer for () {}
+
+impl Args {
+    /// The `--column FIELD=NAME` maps (a log given as columns reads its
+    /// columns by the same names).
+    pub fn input_columns(&self) -> Vec<crate::logio::ColumnMap> {
+        self.input.columns.clone()
+    }
+}
+
 /// Run the command.
 pub fn run(args: Args) -> CliResult {
+    run_observed(args, &mut ())
+}
+
+/// Run the command, telling `observer` about every record and log.
+pub fn run_observed(args: Args, observer: &mut dyn Observer) -> CliResult {
     let list = logs::expand(&args.logs, args.input.strict)?;
     crate::atomic::note_inputs(list.logs.iter().chain(&args.settings.config));
     for (p, why) in &list.skipped {
@@ -159,9 +192,17 @@ pub fn run(args: Args) -> CliResult {
     let mut names: Vec<String> = Vec::new();
     let mut blocks: Vec<Map<String, Value>> = Vec::new();
     let mut table = String::new();
-    for path in &list.logs {
+    for (index, path) in list.logs.iter().enumerate() {
         let name = path.display().to_string();
-        let (settings, s, e) = replay_log(path, &resolver, energy.as_ref(), &args)?;
+        let given = observer.records(path);
+        let (settings, s, e) = replay_log(
+            path,
+            &resolver,
+            energy.as_ref(),
+            &args,
+            &mut |rec, step| observer.step(index, rec, step),
+            given,
+        )?;
         for w in &settings.warnings {
             warn(&format!("{name}: {w}"));
         }
@@ -189,6 +230,7 @@ pub fn run(args: Args) -> CliResult {
                 let _ = writeln!(table);
             }
         }
+        observer.done(index, &s, target);
         fleet.add(&s, target);
         names.push(name);
     }
@@ -232,26 +274,28 @@ fn warn(msg: &str) {
 
 /// Text on stdout, flushed; a closed pipe is an error, not a panic.
 fn print_text(text: &str) -> CliResult {
-    let mut stdout = io::stdout().lock();
-    stdout
-        .write_all(text.as_bytes())
-        .and_then(|()| stdout.flush())
-        .map_err(|e| CliError::Io(format!("stdout: cannot write: {e}")))
+    crate::output::write_stdout(text)
 }
 
 /// Replay one log (one device) with a fresh controller set up from the
 /// flags, the log's header and the settings file; writes `--out` and
-/// `--plot` if asked.
+/// `--plot` if asked; `each` sees every record. `given`: the log's records
+/// if the caller holds them, else the file is read.
 fn replay_log(
     path: &Path,
     resolver: &Resolver,
     energy: Option<&crate::energy::LoadedProfile>,
     args: &Args,
+    each: &mut dyn FnMut(&LogRecord, &ReplayStep),
+    given: Option<crate::logio::LogReader>,
 ) -> CliResult<(fleet::settings::LogSettings, Summary, Option<ReplayEnergy>)> {
     let fleet::OpenLog {
         mut reader,
         settings,
-    } = fleet::open(path, &args.input.options(), resolver, None)?;
+    } = match given {
+        Some(reader) => fleet::open_reader(path, reader, resolver, None)?,
+        None => fleet::open(path, &args.input.options(), resolver, None)?,
+    };
     let cfg = settings.resolved.config;
     let mut replay = HostReplay::new(cfg)
         .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
@@ -264,6 +308,7 @@ fn replay_log(
     for rec in &mut reader {
         let rec = rec?;
         let step = replay.step(&rec);
+        each(&rec, &step);
         if let (Some(t), Some(p)) = (tally.as_mut(), energy) {
             t.add(&p.profile, &rec, &step).map_err(|e| {
                 let why = crate::energy::refusal(&e, "--energy", "--interval", &[]);
@@ -325,6 +370,20 @@ fn replay_log(
     Ok((settings, *replay.summary(), tally))
 }
 
+/// The columns of one decision per record, in order: the `--out` CSV's
+/// header row and the Python binding's arrays.
+pub const DECISION_COLUMNS: [&str; 9] = [
+    "t_ms",
+    "chosen_tx_dbm",
+    "replayed_snr_db",
+    "outcome",
+    "logged_outcome",
+    "at_max",
+    "path_loss_db",
+    "margin_db",
+    "reason",
+];
+
 /// The `--out` decisions, CSV or binary frames by the name's extension,
 /// written through [`AtomicFile`]: nothing under the final name until the
 /// replay is complete.
@@ -341,9 +400,7 @@ impl DecisionWriter {
             binary: None,
         };
         match format {
-            LogFormat::Csv => w.write_line(
-                "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,logged_outcome,at_max,path_loss_db,margin_db,reason",
-            )?,
+            LogFormat::Csv => w.write_line(&DECISION_COLUMNS.join(","))?,
             LogFormat::Binary => w.binary = Some((Encoder::new(), Box::new([0u8; MAX_FRAME]))),
         }
         Ok(w)

@@ -38,7 +38,17 @@ pub fn open(
     resolver: &Resolver,
     extra: Option<&Layer>,
 ) -> CliResult<OpenLog> {
-    let reader = logio::open_with(path, opts)?;
+    open_reader(path, logio::open_with(path, opts)?, resolver, extra)
+}
+
+/// As [`open`], with the log already opened as `reader` (a log given as
+/// columns, [`logio::columns`]); `path` names it.
+pub fn open_reader(
+    path: &Path,
+    reader: LogReader,
+    resolver: &Resolver,
+    extra: Option<&Layer>,
+) -> CliResult<OpenLog> {
     let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
     let settings = resolver.resolve(path, reader.header(), damaged, extra)?;
     Ok(OpenLog { reader, settings })

@@ -13,7 +13,7 @@ use super::{
 use crate::error::{printable, CliError, CliResult};
 
 /// First word of the comment block that carries a [`LogHeader`].
-const MAGIC: &str = "headroom-log";
+pub(super) const MAGIC: &str = "headroom-log";
 /// Version written after [`MAGIC`]; the CSV layout follows the binary
 /// format's version numbers.
 const VERSION: &str = "1.1";

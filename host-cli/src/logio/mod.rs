@@ -67,6 +67,7 @@
 //! kind of damage.
 
 mod binary;
+pub mod columns;
 mod csv;
 
 use std::fmt;

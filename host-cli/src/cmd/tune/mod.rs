@@ -207,8 +207,7 @@ pub fn run(args: Args) -> CliResult {
     let mut fleets = vec![Fleet::new(); candidates];
     let mut energies = vec![headroom::energy::ReplayEnergy::new(None); candidates];
     let mut warnings: Vec<String> = Vec::new();
-    let stdout = io::stdout();
-    let mut out = io::BufWriter::new(stdout.lock());
+    let mut out = io::BufWriter::new(crate::output::Stdout);
     let mut start = 0;
     while start < jobs {
         let end = (start + CHUNK).min(jobs);
