@@ -128,9 +128,12 @@ impl<const N: usize> FrameDecoder<N> {
     /// and return it; `None` once `input` is used up (a partial frame is
     /// kept for the next chunk).
     pub fn feed(&mut self, input: &mut &[u8]) -> Option<Event> {
+        // The `Option` is returned as it is, not unwrapped and wrapped
+        // again, which copied the whole event.
         if self.block.is_some() {
-            if let Some(ev) = self.block_record() {
-                return Some(ev);
+            let ev = self.block_record();
+            if ev.is_some() {
+                return ev;
             }
         }
         // Tested before taken: `take` copies the whole `Option<Event>` out
@@ -185,8 +188,9 @@ impl<const N: usize> FrameDecoder<N> {
     /// damage ([`CodecError::Truncated`]).
     pub fn finish(&mut self) -> Option<Event> {
         if self.block.is_some() {
-            if let Some(ev) = self.block_record() {
-                return Some(ev);
+            let ev = self.block_record();
+            if ev.is_some() {
+                return ev;
             }
         }
         if let Some(ev) = self.pending.take() {
