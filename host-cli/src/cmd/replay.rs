@@ -248,10 +248,8 @@ fn replay_log(
     energy: Option<&crate::energy::LoadedProfile>,
     args: &Args,
 ) -> CliResult<(fleet::settings::LogSettings, Summary, Option<ReplayEnergy>)> {
-    let fleet::OpenLog {
-        mut reader,
-        settings,
-    } = fleet::open(path, &args.input.options(), resolver, None)?;
+    let fleet::OpenLog { reader, settings } =
+        fleet::open(path, &args.input.options(), resolver, None)?;
     let cfg = settings.resolved.config;
     let mut replay = HostReplay::new(cfg)
         .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
@@ -261,7 +259,10 @@ fn replay_log(
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
     let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
-    for rec in &mut reader {
+    // The log is read and decoded on a thread of its own while the records
+    // before are replayed.
+    let mut records = crate::logio::ReadAhead::new(reader);
+    for rec in &mut records {
         let rec = rec?;
         let step = replay.step(&rec);
         if let (Some(t), Some(p)) = (tally.as_mut(), energy) {
@@ -291,6 +292,7 @@ fn replay_log(
             });
         }
     }
+    let reader = records.finish()?;
     for w in reader.warnings() {
         warn(&w);
     }

@@ -66,8 +66,11 @@
 //! [`HEADER_EVENT_DETAIL`] header events in detail, and one counter per
 //! kind of damage.
 
+mod ahead;
 mod binary;
 mod csv;
+
+pub use ahead::ReadAhead;
 
 use std::fmt;
 use std::fs::File;
