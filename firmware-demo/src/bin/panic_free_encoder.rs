@@ -45,9 +45,16 @@ fn run() -> bool {
         let seq = black_box(k as u16);
         ok &= black_box(encode_record(seq, black_box(&rec), &mut buf)).is_ok();
         // Format 2: blocks, with a buffer of any size (too small: an error).
-        let size = black_box(if k % 7 == 0 { (k as usize) % 40 } else { MAX_FRAME });
+        let size = black_box(if k % 7 == 0 {
+            (k as usize) % 40
+        } else {
+            MAX_FRAME
+        });
         let mut block_buf = [0u8; MAX_FRAME];
-        let out = blocks.record(black_box(&rec), block_buf.get_mut(..size).unwrap_or(&mut []));
+        let out = blocks.record(
+            black_box(&rec),
+            block_buf.get_mut(..size).unwrap_or(&mut []),
+        );
         ok &= black_box(out.is_ok() || size < MAX_FRAME);
         if k % 64 == 63 {
             ok &= black_box(blocks.flush(&mut buf)).is_ok();
