@@ -8,7 +8,7 @@
 //! 2. [`crate::record::crc`]: the CRC-32C;
 //! 3. `payload`: kind, sequence number, body and CRC of one frame, and the
 //!    body of each kind (one field list per kind, shared by the encoder and
-//!    the decoder);
+//!    the decoder); `compact`: the body of a format 2 record block;
 //! 4. `stream`: [`FrameDecoder`], which cuts a byte stream into frames.
 //!
 //! This module holds the types all layers share and the one-frame API.
@@ -33,6 +33,7 @@
 //! | 0 | header | magic `b"hrlg"`, major `u8`, minor `u8`, device id `u64`, epoch ms `u64`, min tx, max tx, tx step, antenna gain (each `Option<f32>`); since 1.1 required SNR, EIRP cap (each `Option<f32>`); since 1.2 the rate table (a length, then per rate its name, required SNR `f32`, airtime µs `u32`, noise bandwidth `Option<f32>`) |
 //! | 1 | record | `t_ms: u64`, `tx_dbm`, `rssi_dbm`, `noise_dbm` (each `Option<f32>`), since 1.2 `rate: Option<u8>` |
 //! | 2 | decision | `t_ms: u64`, `tx_dbm: f32`, `outcome: u8`, `reason: u8` |
+//! | 3 | record block (format 2) | the first record's `t_ms` (varint), then each record as its difference from the one before (see `compact`) |
 //!
 //! postcard writes integers as LEB128 varints, `Option` as a 0/1 byte
 //! followed by the value, `f32` as 4 little-endian bytes (so NaN payloads
