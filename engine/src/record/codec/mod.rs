@@ -428,13 +428,21 @@ impl BlockEncoder {
         let mut state = self.state;
         match compact::write_record(&mut state, record, free) {
             Some(n) => {
+                let before = (self.len, self.state, self.count);
                 self.len += n;
                 self.state = state;
                 self.count += 1;
-                if self.count >= self.per_frame {
-                    self.flush(buf)
-                } else {
-                    Ok(buf.get(..0).unwrap_or(&[]))
+                if self.count < self.per_frame {
+                    return Ok(buf.get(..0).unwrap_or(&[]));
+                }
+                match self.seal(buf) {
+                    Ok(m) => buf.get(..m).ok_or(CodecError::BufferTooSmall),
+                    Err(e) => {
+                        // Not written: take the record back out of the
+                        // block, so that the caller may give it again.
+                        (self.len, self.state, self.count) = before;
+                        Err(e)
+                    }
                 }
             }
             None => {
@@ -708,6 +716,44 @@ pub(crate) mod tests {
         for (j, t) in times[..48].iter().enumerate() {
             let i = if j < 16 { j } else { j + 16 } as u64;
             assert_eq!(*t, varied(i).t_ms);
+        }
+    }
+
+    #[test]
+    fn a_buffer_too_small_loses_no_record() {
+        // The same records written with a large buffer, and with a buffer
+        // of every size below a frame at each record, retried with a large
+        // one after an error: the same bytes either way.
+        let mut want = [0u8; 4096];
+        let mut n = 0;
+        let mut enc = BlockEncoder::with_records_per_frame(4);
+        let mut buf = [0u8; MAX_FRAME];
+        for i in 0..40 {
+            let f = enc.record(&varied(i), &mut buf).unwrap();
+            want[n..n + f.len()].copy_from_slice(f);
+            n += f.len();
+        }
+        for small in [0usize, 1, 8, 30] {
+            let mut got = [0u8; 4096];
+            let mut m = 0;
+            let mut enc = BlockEncoder::with_records_per_frame(4);
+            let mut errors = 0;
+            for i in 0..40 {
+                let mut tiny = [0u8; 64];
+                let r = varied(i);
+                let f = match enc.record(&r, &mut tiny[..small]) {
+                    Ok(f) => f.to_vec(),
+                    Err(e) => {
+                        assert_eq!(e, CodecError::BufferTooSmall);
+                        errors += 1;
+                        enc.record(&r, &mut buf).unwrap().to_vec()
+                    }
+                };
+                got[m..m + f.len()].copy_from_slice(&f);
+                m += f.len();
+            }
+            assert!(errors >= 8, "{small}: {errors}");
+            assert_eq!(&got[..m], &want[..n], "buffer of {small}");
         }
     }
 
