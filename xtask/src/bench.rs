@@ -188,7 +188,7 @@ pub fn run(args: &[String]) -> Result<(), String> {
         format!("{ratio:.2}×"),
         Some(ratio <= 1.5),
         format!(
-            "decode only (engine FrameDecoder, 64 KiB reads, optimised, no CLI): {:.1} M records/s; decode + Replay::step, same harness: {:.1} M records/s ({:.2}× decode)",
+            "decode only (engine FrameDecoder, 64 KiB reads, optimised, no CLI, one thread): {:.1} M records/s; decode + Replay::step, same harness, one thread: {:.1} M records/s ({:.2}× decode); the CLI reads ahead on a second thread",
             records as f64 / decode.as_secs_f64() / 1e6,
             records as f64 / decode_replay.as_secs_f64() / 1e6,
             decode_replay.as_secs_f64() / decode.as_secs_f64()
