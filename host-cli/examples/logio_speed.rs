@@ -9,7 +9,7 @@ mod atomic;
 #[allow(dead_code)]
 #[path = "../src/error.rs"]
 mod error;
-#[allow(dead_code)]
+#[allow(dead_code, unused_imports)]
 #[path = "../src/logio/mod.rs"]
 mod logio;
 

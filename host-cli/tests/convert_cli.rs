@@ -88,6 +88,50 @@ fn engine_log(path: &Path, n: u64) -> (Vec<u8>, Vec<(usize, usize)>) {
 }
 
 #[test]
+fn format_2_is_the_default_and_survives_csv_and_format_1_byte_for_byte() {
+    use headroom::record::codec::BlockEncoder;
+    let dir = tempfile::tempdir().unwrap();
+    let v1 = dir.path().join("node.hrlog");
+    engine_log(&v1, 500);
+    // The same records as format 2, written by the engine's encoder.
+    let mut want = Vec::new();
+    let mut enc = BlockEncoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let log = headroom_cli::logio::open(&v1).unwrap();
+    let header = log.header().copied().unwrap();
+    want.extend_from_slice(enc.header(&header, &mut buf).unwrap());
+    for r in log {
+        want.extend_from_slice(enc.record(&r.unwrap(), &mut buf).unwrap());
+    }
+    want.extend_from_slice(enc.flush(&mut buf).unwrap());
+    // format 1 -> format 2 (the default) -> CSV -> format 2 -> format 1.
+    let v2 = dir.path().join("v2.hrlog");
+    let c = dir.path().join("v2.csv");
+    let v2b = dir.path().join("again.hrlog");
+    let v1b = dir.path().join("again-v1.hrlog");
+    let o = headroom(&[&v1, &v2]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stderr(&o).contains("to binary format 2"), "{}", stderr(&o));
+    assert_eq!(std::fs::read(&v2).unwrap(), want);
+    for (from, to, flags) in [
+        (&v2, &c, &[][..]),
+        (&c, &v2b, &[][..]),
+        (&v2b, &v1b, &["--binary-version", "1"][..]),
+    ] {
+        let o = headroom_flags(&[from, to], flags);
+        assert!(o.status.success(), "{}", stderr(&o));
+    }
+    assert_eq!(std::fs::read(&v2b).unwrap(), want);
+    assert_eq!(std::fs::read(&v1b).unwrap(), std::fs::read(&v1).unwrap());
+    // Far smaller than format 1.
+    let (a, b) = (
+        std::fs::metadata(&v1).unwrap().len(),
+        std::fs::metadata(&v2).unwrap().len(),
+    );
+    assert!(b * 2 < a, "format 2 {b} bytes, format 1 {a}");
+}
+
+#[test]
 fn binary_to_csv_to_binary_is_byte_identical() {
     let dir = tempfile::tempdir().unwrap();
     let a = dir.path().join("node.hrlog");
@@ -102,7 +146,7 @@ fn binary_to_csv_to_binary_is_byte_identical() {
         "{}",
         stderr(&o)
     );
-    let o = headroom(&[&c, &b]);
+    let o = headroom_flags(&[&c, &b], &["--binary-version", "1"]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert_eq!(
         std::fs::read(&b).unwrap(),

@@ -3,7 +3,7 @@
 
 use headroom::record::codec::{
     decode_frame, encode_frame, CodecError, Decoded, Encoder, Event, Frame, FrameDecoder,
-    MAX_FRAME, VERSION,
+    MAX_FRAME, VERSION, VERSION_1,
 };
 use headroom::record::crc::{crc32c, Crc32c, CHECK};
 use headroom::record::{DecisionRecord, LogHeader, LogRecord};
@@ -228,7 +228,7 @@ fn a_newer_major_version_is_refused() {
     .to_vec();
     let mut payload = cobs_decode_for_test(&wire[..wire.len() - 1]);
     assert_eq!(&payload[3..7], b"hrlg");
-    payload[7] = 2;
+    payload[7] = 3;
     let n = payload.len();
     let crc = crc32c(&payload[..n - 4]);
     payload[n - 4..].copy_from_slice(&crc.to_le_bytes());
@@ -236,7 +236,7 @@ fn a_newer_major_version_is_refused() {
     assert_eq!(
         decode_frame(&again),
         Err(CodecError::UnknownVersion {
-            major: 2,
+            major: 3,
             minor: VERSION.minor
         })
     );
@@ -336,7 +336,7 @@ fn a_1_0_header_has_no_required_snr_nor_cap_and_a_1_1_header_has_both() {
         0,
         &Frame::Header {
             header: want,
-            version: VERSION,
+            version: VERSION_1,
         },
         &mut buf,
     )
@@ -440,7 +440,7 @@ fn clean_log_decodes_in_any_chunking() {
                         Frame::Header { header: h, version } => {
                             assert_eq!(i, 0);
                             assert_eq!(*h, header());
-                            assert_eq!(*version, VERSION);
+                            assert_eq!(*version, VERSION_1);
                         }
                         Frame::Record(r) => assert_eq!(*r, record(i as u64 - 1)),
                         other => panic!("{other:?}"),
@@ -652,4 +652,141 @@ proptest! {
             }
         }
     }
+}
+
+/// The format 2 worked example of `docs/log-format.md`: four records in one
+/// block frame (seq 1, after the header). The bytes below were computed
+/// outside the project by this Python 3 script, from the format's
+/// description (bitwise CRC-32C, COBS by splitting at zeros):
+///
+/// ```text
+/// import struct
+/// def crc32c(d):
+///     c = 0xFFFFFFFF
+///     for b in d:
+///         c ^= b
+///         for _ in range(8): c = (c >> 1) ^ (0x82F63B78 if c & 1 else 0)
+///     return c ^ 0xFFFFFFFF
+/// def leb(v):
+///     out = []
+///     while True:
+///         b = v & 0x7F; v >>= 7
+///         if v: out.append(b | 0x80)
+///         else: out.append(b); return out
+/// def zz(v): return (v << 1) if v >= 0 else ((-v) << 1) - 1
+/// recs = [(60000, 14.0, -101.5, -117.0), (120000, 14.0, -99.25, -117.0),
+///         (180000, 14.0, None, -117.0), (240000, 14.0, -100.1, -117.0)]
+/// body = leb(recs[0][0]); t, dt, last = recs[0][0], 0, [0, 0, 0]
+/// for (tm, *vals) in recs:
+///     flags, rest = 0, []
+///     if tm - t != dt: flags |= 0x40; dt = tm - t; rest += leb(zz(dt))
+///     t = tm
+///     for i, v in enumerate(vals):
+///         if v is None: code = 0
+///         elif v * 4 == int(v * 4):
+///             k = int(v * 4)
+///             if k == last[i]: code = 1
+///             else: code = 2; rest += leb(zz(k - last[i])); last[i] = k
+///         else: code = 3; rest += list(struct.pack('<f', v))
+///         flags |= code << (2 * i)
+///     body += [flags] + rest
+/// p = [3, 1, 0] + body
+/// p += list(struct.pack('<I', crc32c(bytes(p))))
+/// wire = []
+/// for blk in bytes(p).split(b"\0"): wire += [len(blk) + 1] + list(blk)
+/// print(' '.join('%02x' % b for b in wire + [0]))
+/// ```
+#[test]
+fn the_documented_format_2_block_is_what_the_encoder_writes() {
+    use headroom::record::codec::{BlockEncoder, KIND_BLOCK};
+    let wire: [u8; 29] = [
+        0x03, 0x03, 0x01, 0x19, 0xe0, 0xd4, 0x03, 0x2a, 0x70, 0xab, 0x06, 0xa7, 0x07, 0x59, 0xc0,
+        0xa9, 0x07, 0x12, 0x11, 0x1d, 0x33, 0x33, 0xc8, 0xc2, 0x95, 0xfc, 0xd7, 0xe4, 0x00,
+    ];
+    let recs = [
+        (60_000u64, Some(-101.5f32)),
+        (120_000, Some(-99.25)),
+        (180_000, None),
+        (240_000, Some(-100.1)),
+    ]
+    .map(|(t_ms, rssi_dbm)| LogRecord {
+        t_ms,
+        tx_dbm: Some(14.0),
+        rssi_dbm,
+        noise_dbm: Some(-117.0),
+        rate: None,
+    });
+    let mut enc = BlockEncoder::with_records_per_frame(4);
+    let mut buf = [0u8; MAX_FRAME];
+    enc.header(&LogHeader::default(), &mut buf).unwrap();
+    for (i, r) in recs.iter().enumerate() {
+        let out = enc.record(r, &mut buf).unwrap();
+        if i < 3 {
+            assert!(out.is_empty());
+        } else {
+            assert_eq!(out, &wire[..]);
+        }
+    }
+    // The decoders read it back: the block alone, and record by record.
+    let d = decode_frame(&wire[..wire.len() - 1]).unwrap();
+    assert_eq!(d.seq, 1);
+    match d.frame {
+        Frame::Block(b) => {
+            assert_eq!(b.body()[0], 0xe0);
+            assert_eq!(b.records().collect::<Vec<_>>(), recs.to_vec());
+        }
+        other => panic!("{other:?}"),
+    }
+    let got: Vec<LogRecord> = events(&wire, 5)
+        .into_iter()
+        .map(|ev| match ev {
+            Event::Frame {
+                frame: Frame::Record(r),
+                seq: 1,
+                offset: 0,
+            } => r,
+            other => panic!("{other:?}"),
+        })
+        .collect();
+    assert_eq!(got, recs.to_vec());
+    assert_eq!(KIND_BLOCK, 3);
+}
+
+/// Format 2 keeps every value bit for bit, as format 1 does.
+#[test]
+fn format_2_round_trips_what_format_1_does() {
+    use headroom::record::codec::BlockEncoder;
+    let mut enc = BlockEncoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let mut bytes = enc.header(&header(), &mut buf).unwrap().to_vec();
+    let mut want = Vec::new();
+    for i in 0..1000u64 {
+        let mut r = record(i);
+        if i % 97 == 5 {
+            r.rssi_dbm = Some(f32::from_bits(0x7FC0_1234));
+            r.tx_dbm = Some(-0.0);
+            r.rate = Some((i % 4) as u8);
+        }
+        want.push(r);
+        bytes.extend_from_slice(enc.record(&r, &mut buf).unwrap());
+    }
+    bytes.extend_from_slice(enc.flush(&mut buf).unwrap());
+    let bits = |r: &LogRecord| {
+        (
+            r.t_ms,
+            [r.tx_dbm, r.rssi_dbm, r.noise_dbm].map(|v| v.map(f32::to_bits)),
+            r.rate,
+        )
+    };
+    let got: Vec<_> = events(&bytes, 4096)
+        .into_iter()
+        .filter_map(|ev| match ev {
+            Event::Frame {
+                frame: Frame::Record(r),
+                ..
+            } => Some(bits(&r)),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(got, want.iter().map(bits).collect::<Vec<_>>());
 }

@@ -251,3 +251,30 @@ fn f1_tiny_uniform_step_is_refused_or_harmless() {
         }
     }
 }
+
+#[test]
+fn block_decoder_corpus_and_crashes() {
+    let n = run_all("block_decoder", checks::block_decoder);
+    assert!(n >= 5);
+}
+
+#[test]
+fn block_decoder_check_catches_a_lost_record() {
+    // The check itself must fail on a decoder that drops a record: a log
+    // of blocks decodes to fewer records than written.
+    let recs: Vec<headroom::record::LogRecord> = (0..40u64)
+        .map(|i| headroom::record::LogRecord {
+            t_ms: i * 1000,
+            rssi_dbm: Some(-90.0 - i as f32),
+            ..Default::default()
+        })
+        .collect();
+    let (log, blocks) = checks::encode_blocks_for_test(&recs, 16);
+    assert_eq!(blocks, 3);
+    let got = checks::stream_records(&log, &[5]);
+    assert_eq!(got.len(), 40);
+    assert!(fails(|| assert_eq!(
+        checks::stream_records(&log[..log.len() - 1], &[]),
+        recs.iter().map(checks::record_bits).collect::<Vec<_>>()
+    )));
+}

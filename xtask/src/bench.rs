@@ -188,7 +188,7 @@ pub fn run(args: &[String]) -> Result<(), String> {
         format!("{ratio:.2}×"),
         Some(ratio <= 1.5),
         format!(
-            "decode only (engine FrameDecoder, 64 KiB reads, optimised, no CLI): {:.1} M records/s; decode + Replay::step, same harness: {:.1} M records/s ({:.2}× decode)",
+            "decode only (engine FrameDecoder, 64 KiB reads, optimised, no CLI, one thread): {:.1} M records/s; decode + Replay::step, same harness, one thread: {:.1} M records/s ({:.2}× decode); the CLI reads ahead on a second thread",
             records as f64 / decode.as_secs_f64() / 1e6,
             records as f64 / decode_replay.as_secs_f64() / 1e6,
             decode_replay.as_secs_f64() / decode.as_secs_f64()
@@ -239,6 +239,9 @@ pub fn run(args: &[String]) -> Result<(), String> {
             ));
         }
     }
+
+    println!("== bench: bytes per record of each format");
+    format_rows(&ctx, &mut rows)?;
 
     println!("== bench: tune");
     tune_row(&ctx, &mut rows, &small_bin, small)?;
@@ -607,6 +610,109 @@ fn warm(p: &Path) -> Result<(), String> {
         .map_err(|e| format!("cannot read {}: {e}", p.display()))?
         > 0
     {}
+    Ok(())
+}
+
+/// The demo logs whose bytes per record the table reports.
+const DEMO_LOGS: [&str; 3] = [
+    "examples/logs/orchard-868.csv",
+    "examples/logs/cattle-collar-915.csv",
+    "examples/logs/workshop-mesh-2g4.csv",
+];
+
+/// Bytes per record of CSV, binary format 1 and binary format 2 on each
+/// demo log (whole files, headers included), by converting it with the
+/// release CLI; and the fault logs of `examples/logs/faults/` together.
+fn format_rows(ctx: &Ctx, rows: &mut Vec<Row>) -> Result<(), String> {
+    let mut logs: Vec<PathBuf> = DEMO_LOGS.iter().map(|p| ctx.root.join(p)).collect();
+    let faults = ctx.root.join("examples").join("logs").join("faults");
+    let mut fault_logs: Vec<PathBuf> = fs::read_dir(&faults)
+        .map_err(|e| format!("cannot list {}: {e}", faults.display()))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x == "csv"))
+        .collect();
+    fault_logs.sort();
+    let n_demo = logs.len();
+    logs.extend(fault_logs);
+    // (name, records, [csv, v1, v2] bytes)
+    let mut sizes: Vec<(String, u64, [u64; 3])> = Vec::new();
+    for (i, log) in logs.iter().enumerate() {
+        let stem = log
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        let mut bytes = [file_len(log)?, 0, 0];
+        let mut records = 0;
+        for (slot, version) in [(1usize, "1"), (2, "2")] {
+            let out = ctx.work.join(format!("{stem}.v{version}.hrlog"));
+            let o = Command::new(&ctx.cli)
+                .arg("convert")
+                .arg(log)
+                .arg(&out)
+                .args(["--binary-version", version, "--force"])
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .output()
+                .map_err(|e| format!("cannot run headroom convert: {e}"))?;
+            let err = String::from_utf8_lossy(&o.stderr);
+            if !o.status.success() {
+                return Err(format!("headroom convert {} failed:\n{err}", log.display()));
+            }
+            records = err
+                .split("converted ")
+                .nth(1)
+                .and_then(|r| r.split_whitespace().next())
+                .and_then(|n| n.parse::<u64>().ok())
+                .ok_or_else(|| format!("no record count in convert's output:\n{err}"))?;
+            if let Some(b) = bytes.get_mut(slot) {
+                *b = file_len(&out)?;
+            }
+        }
+        if records == 0 {
+            return Err(format!("{}: no records", log.display()));
+        }
+        let name = if i < n_demo {
+            format!("`{stem}`")
+        } else {
+            format!("faults/{stem}")
+        };
+        sizes.push((name, records, bytes));
+    }
+    let per = |b: u64, n: u64| b as f64 / n as f64;
+    let (demo, fault) = sizes.split_at(n_demo.min(sizes.len()));
+    let mut worst_v2: f64 = 0.0;
+    for (name, n, b) in demo {
+        let [csv, v1, v2] = b.map(|x| per(x, *n));
+        worst_v2 = worst_v2.max(v2);
+        rows.push(Row::new(
+            &format!("bytes per record, demo log {name}"),
+            "format 2 ≤ 8 B",
+            format!("CSV {csv:.1} / format 1 {v1:.1} / format 2 {v2:.2} B"),
+            Some(v2 <= 8.0),
+            format!(
+                "{n} records, whole files (headers included), written by `headroom convert` (format 2: {} records a frame)",
+                headroom::record::codec::RECORDS_PER_FRAME
+            ),
+        ));
+    }
+    if !fault.is_empty() {
+        let n: u64 = fault.iter().map(|(_, n, _)| n).sum();
+        let mut tot = [0u64; 3];
+        for (_, _, b) in fault {
+            for (t, x) in tot.iter_mut().zip(b) {
+                *t += x;
+            }
+        }
+        let [csv, v1, v2] = tot.map(|x| per(x, n));
+        rows.push(Row::new(
+            &format!("bytes per record, the {} fault logs together", fault.len()),
+            "format 2 ≤ 8 B",
+            format!("CSV {csv:.1} / format 1 {v1:.1} / format 2 {v2:.2} B"),
+            Some(v2 <= 8.0),
+            format!("{n} records in `examples/logs/faults/` (NaN, inf, mW readings among them)"),
+        ));
+    }
+    println!("format 2: at most {worst_v2:.2} B/record on the demo logs");
     Ok(())
 }
 

@@ -258,9 +258,11 @@ pub unsafe extern "C" fn headroom_encode_header(
         Ok(h) => log_header(h),
         Err(e) => return e,
     };
+    // This encoder writes format 1 frames (one record a frame), so its
+    // header says 1.x.
     let frame = Frame::Header {
         header: h,
-        version: headroom::record::codec::VERSION,
+        version: headroom::record::codec::VERSION_1,
     };
     // SAFETY: guaranteed by the caller.
     unsafe { encode(enc, &frame, buf, cap, len) }
@@ -400,6 +402,13 @@ fn c_event(ev: &Event) -> headroom_event {
                 Frame::Other { kind } => {
                     e.kind = HEADROOM_EVENT_OTHER;
                     e.frame_kind = *kind;
+                }
+                // The streaming decoder hands out a format 2 block's records
+                // one event each; a whole block is only what the one-shot
+                // decoder returns, so this arm is not reached from a stream.
+                Frame::Block(_) => {
+                    e.kind = HEADROOM_EVENT_OTHER;
+                    e.frame_kind = headroom::record::codec::KIND_BLOCK;
                 }
             }
         }

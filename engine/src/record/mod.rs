@@ -9,7 +9,8 @@
 //! [`DecisionRecord`] per packet.
 //!
 //! With the `serde` feature, [`codec`] writes and reads these as framed binary
-//! (postcard payload, CRC-32C, COBS, 0x00 delimiter); the byte layout is
+//! (CRC-32C, COBS, 0x00 delimiter; format 1 a postcard body per record,
+//! format 2 blocks of records stored as differences); the byte layout is
 //! described in `docs/log-format.md`. [`crc`] holds the checksum, which is
 //! always available.
 

@@ -19,6 +19,9 @@ pub struct Args {
     /// Replace the output if it exists.
     #[arg(long)]
     pub force: bool,
+    /// How to write the output.
+    #[command(flatten)]
+    pub write: logio::OutputArgs,
     /// How to read the input.
     #[command(flatten)]
     pub read: logio::InputArgs,
@@ -43,16 +46,17 @@ pub fn run(args: Args) -> CliResult {
     };
     let mut input = logio::open_with(&args.input, &opts)?;
     let header = input.header().copied();
-    let (to, mut output) = match args.to {
-        None => (
-            LogFormat::from_path(&args.output)?,
-            logio::create(&args.output, args.force, header)?,
-        ),
-        Some(to) => (
-            to,
-            logio::create_as(&args.output, Some(to), args.force, header)?,
-        ),
+    let to = match args.to {
+        None => LogFormat::from_path(&args.output)?,
+        Some(to) => to,
     };
+    let mut output = logio::create_versioned(
+        &args.output,
+        Some(to),
+        args.write.binary_version,
+        args.force,
+        header,
+    )?;
     for rec in &mut input {
         output.write(&rec?)?;
     }
@@ -69,6 +73,10 @@ pub fn run(args: Args) -> CliResult {
         ));
     }
     let damage = input.damage_summary();
+    let to = match to {
+        LogFormat::Binary => format!("binary format {}", args.write.binary_version.number()),
+        LogFormat::Csv => to.to_string(),
+    };
     crate::diag::info(format!(
         "converted {written} record(s) from {} to {} ({} damaged region(s), {} frame(s) lost)",
         input.format(),

@@ -289,10 +289,7 @@ fn replay_log(
     each: &mut dyn FnMut(&LogRecord, &ReplayStep),
     given: Option<crate::logio::LogReader>,
 ) -> CliResult<(fleet::settings::LogSettings, Summary, Option<ReplayEnergy>)> {
-    let fleet::OpenLog {
-        mut reader,
-        settings,
-    } = match given {
+    let fleet::OpenLog { reader, settings } = match given {
         Some(reader) => fleet::open_reader(path, reader, resolver, None)?,
         None => fleet::open(path, &args.input.options(), resolver, None)?,
     };
@@ -305,7 +302,10 @@ fn replay_log(
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
     let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
-    for rec in &mut reader {
+    // The log is read and decoded on a thread of its own while the records
+    // before are replayed.
+    let mut records = crate::logio::ReadAhead::new(reader);
+    for rec in &mut records {
         let rec = rec?;
         let step = replay.step(&rec);
         each(&rec, &step);
@@ -336,6 +336,7 @@ fn replay_log(
             });
         }
     }
+    let reader = records.finish()?;
     for w in reader.warnings() {
         warn(&w);
     }

@@ -40,6 +40,8 @@ pub struct Args {
     /// Replace the output file if it exists.
     #[arg(long)]
     force: bool,
+    #[command(flatten)]
+    write: logio::OutputArgs,
     /// Format of the summary printed after writing.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
@@ -316,7 +318,13 @@ pub fn run(args: Args) -> CliResult {
     let mut warnings = Vec::new();
     let sc = load_scenario_warn(&args.scenario, &mut warnings)?;
     let header = sc.radio.as_ref().map(Radio::header).transpose()?;
-    let mut out = logio::create(&args.out, args.force, header)?;
+    let mut out = logio::create_versioned(
+        &args.out,
+        None,
+        args.write.binary_version,
+        args.force,
+        header,
+    )?;
     let tally = simulate(&sc, args.seed, args.records, |r| out.write(r))?;
     out.finish()?;
 

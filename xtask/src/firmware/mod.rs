@@ -71,7 +71,7 @@ pub const PANIC_PROBES: [(&str, &str); 3] = [
     ),
     (
         "panic_free_encoder",
-        "encode_header/encode_record/encode_decision",
+        "encode_header/encode_record/encode_decision, BlockEncoder::header/record/flush",
     ),
     (
         "panic_free_decoder",

@@ -8,8 +8,9 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::{CodecError, Decoded, Frame, Version, KIND_DECISION, KIND_HEADER, KIND_RECORD};
-use super::{MAGIC, MAX_PAYLOAD, MIN_PAYLOAD, VERSION};
+use super::compact;
+use super::{CodecError, Decoded, Frame, Version, KIND_BLOCK, KIND_DECISION, KIND_HEADER};
+use super::{KIND_RECORD, MAGIC, MAX_PAYLOAD, MIN_PAYLOAD, VERSION, VERSION_1};
 use crate::rate::{Rate, RateTable, MAX_RATES, RATE_NAME_LEN};
 use crate::record::crc::{crc32c, Crc32c};
 use crate::record::{DecisionRecord, LogHeader, LogRecord};
@@ -121,14 +122,14 @@ struct WireDecision {
 /// scratch array in a way the optimiser cannot prove in bounds, which left
 /// a panic path in the encoder. Headers and decisions are read by postcard,
 /// record bodies by [`record_body`], which reads the same grammar.
-mod leb128 {
+pub(super) mod leb128 {
     use serde::ser::{SerializeTuple, Serializer};
 
     /// Most bytes of a `u64` varint: ceil(64 / 7).
-    pub(super) const MAX_LEN: usize = 10;
+    pub(in crate::record::codec) const MAX_LEN: usize = 10;
 
     /// The varint bytes of `v` and how many of them are used.
-    pub(super) fn encode(v: u64) -> ([u8; MAX_LEN], usize) {
+    pub(in crate::record::codec) fn encode(v: u64) -> ([u8; MAX_LEN], usize) {
         let mut out = [0u8; MAX_LEN];
         let mut rest = v;
         let mut used = 0usize;
@@ -199,12 +200,24 @@ fn write_rates(rates: &RateTable, out: &mut [u8]) -> Result<usize, CodecError> {
 fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError> {
     let too_small = |_| CodecError::BufferTooSmall;
     Ok(match frame {
-        Frame::Header { header: h, .. } => {
+        Frame::Header { header: h, version } => {
+            // The header of either format this encoder writes: 1.2 (one
+            // record a frame) or 2.0 (record blocks); the bodies are alike.
+            let written = match version.major {
+                1 => VERSION_1,
+                2 => VERSION,
+                _ => {
+                    return Err(CodecError::UnknownVersion {
+                        major: version.major,
+                        minor: version.minor,
+                    })
+                }
+            };
             let base = postcard::to_slice(
                 &WireHeader {
                     magic: MAGIC,
-                    major: VERSION.major,
-                    minor: VERSION.minor,
+                    major: written.major,
+                    minor: written.minor,
                     device_id: h.device_id,
                     epoch_ms: h.epoch_ms,
                     min_tx_dbm: h.min_tx.map(|v| v.0),
@@ -268,30 +281,28 @@ fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError
             .map_err(too_small)?
             .len(),
         ),
+        Frame::Block(b) => {
+            let src = b.body();
+            body.get_mut(..src.len())
+                .ok_or(CodecError::BufferTooSmall)?
+                .copy_from_slice(src);
+            (KIND_BLOCK, src.len())
+        }
         Frame::Other { kind } => return Err(CodecError::UnknownKind(*kind)),
     })
 }
 
-/// Write the payload of `frame` (kind, `seq`, body, CRC) into `payload`;
-/// returns its length.
-pub(super) fn encode_payload(
+/// Put kind and `seq` in front of the `body_len` bytes of body at
+/// `payload[3..]` and the CRC after them; returns the payload's length.
+pub(super) fn seal_payload(
+    kind: u8,
     seq: u16,
-    frame: &Frame,
+    body_len: usize,
     payload: &mut [u8; MAX_PAYLOAD],
 ) -> Result<usize, CodecError> {
-    let body_len = {
-        let (head, rest) = payload.split_at_mut(3);
-        let body = rest
-            .get_mut(..MAX_PAYLOAD - MIN_PAYLOAD)
-            .ok_or(CodecError::BufferTooSmall)?;
-        let (kind, used) = encode_body(frame, body)?;
-        let [k, s0, s1] = head else {
-            return Err(CodecError::BufferTooSmall);
-        };
-        *k = kind;
-        [*s0, *s1] = seq.to_le_bytes();
-        used
-    };
+    let [k, s0, s1, ..] = payload;
+    *k = kind;
+    [*s0, *s1] = seq.to_le_bytes();
     let crc_at = 3 + body_len;
     let crc = crc32c(payload.get(..crc_at).ok_or(CodecError::BufferTooSmall)?);
     payload
@@ -301,11 +312,27 @@ pub(super) fn encode_payload(
     Ok(crc_at + 4)
 }
 
+/// Write the payload of `frame` (kind, `seq`, body, CRC) into `payload`;
+/// returns its length.
+pub(super) fn encode_payload(
+    seq: u16,
+    frame: &Frame,
+    payload: &mut [u8; MAX_PAYLOAD],
+) -> Result<usize, CodecError> {
+    let (kind, body_len) = {
+        let body = payload
+            .get_mut(3..MAX_PAYLOAD - 4)
+            .ok_or(CodecError::BufferTooSmall)?;
+        encode_body(frame, body)?
+    };
+    seal_payload(kind, seq, body_len, payload)
+}
+
 /// A `u64` LEB128 varint as postcard reads it: at most
 /// [`leb128::MAX_LEN`] bytes, the last of ten at most 1 (no bits past 64);
 /// non-minimal encodings are accepted, as postcard accepts them.
 #[inline]
-fn take_varint_u64(bytes: &[u8]) -> Option<(u64, &[u8])> {
+pub(super) fn take_varint_u64(bytes: &[u8]) -> Option<(u64, &[u8])> {
     // A varint of up to 8 bytes (values below 2^56: every time stamp of a
     // real log) in one word: the first byte without the continuation bit
     // ends it, and three shift-and-mask steps pack the 7-bit groups. The
@@ -359,8 +386,39 @@ fn take_option_f32(bytes: &[u8]) -> Option<(Option<f32>, &[u8])> {
     }
 }
 
-/// Decode a payload: kind, seq, body, CRC.
+/// A payload that passed its CRC: a frame, or a record block whose body is
+/// `p[3..3 + body_len]` of the payload given, already checked whole.
+// Built once per frame and matched at once, never stored.
+#[allow(clippy::large_enum_variant)]
+pub(super) enum Payload {
+    /// Any frame but a record block.
+    Frame(Decoded),
+    /// A record block (format 2).
+    Block {
+        /// Sequence number of the frame.
+        seq: u16,
+        /// Length of the body, which starts at byte 3 of the payload.
+        body_len: usize,
+    },
+}
+
+/// Decode a payload into a [`Decoded`] frame, a record block as a
+/// [`Frame::Block`].
 pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
+    match parse_payload(p)? {
+        Payload::Frame(d) => Ok(d),
+        Payload::Block { seq, body_len } => {
+            let body = p.get(3..3 + body_len).ok_or(CodecError::TooShort)?;
+            Ok(Decoded {
+                seq,
+                frame: Frame::Block(compact::RecordBlock::new(body)?),
+            })
+        }
+    }
+}
+
+/// Check a payload's CRC and decode it: kind, seq, body, CRC.
+pub(super) fn parse_payload(p: &[u8]) -> Result<Payload, CodecError> {
     if p.len() < MIN_PAYLOAD {
         return Err(CodecError::TooShort);
     }
@@ -388,7 +446,7 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
             let (h, rest) =
                 postcard::take_from_bytes::<WireHeader>(body).map_err(|_| CodecError::Payload)?;
             // 1.0 headers end here; 1.1 appends its fields.
-            let (ext, rest) = if rest.is_empty() || h.minor == 0 {
+            let (ext, rest) = if rest.is_empty() || (h.major, h.minor) < (1, 1) {
                 let none = WireHeaderV11 {
                     required_snr_db: None,
                     eirp_cap_dbm: None,
@@ -398,7 +456,7 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
                 postcard::take_from_bytes::<WireHeaderV11>(rest).map_err(|_| CodecError::Payload)?
             };
             // 1.2 appends the rate table.
-            let rates = if rest.is_empty() || h.minor < 2 {
+            let rates = if rest.is_empty() || (h.major, h.minor) < (1, 2) {
                 RateTable::empty()
             } else {
                 let (wire, _) = postcard::take_from_bytes::<WireHeaderV12>(rest)
@@ -419,7 +477,7 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
             if h.magic != MAGIC {
                 return Err(CodecError::BadMagic);
             }
-            if h.major != VERSION.major {
+            if h.major != VERSION.major && h.major != VERSION_1.major {
                 return Err(CodecError::UnknownVersion {
                     major: h.major,
                     minor: h.minor,
@@ -444,6 +502,13 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
             }
         }
         KIND_RECORD => Frame::Record(record_body(body).ok_or(CodecError::Payload)?),
+        KIND_BLOCK => {
+            compact::validate(body)?;
+            return Ok(Payload::Block {
+                seq,
+                body_len: body.len(),
+            });
+        }
         KIND_DECISION => {
             let (d, _) =
                 postcard::take_from_bytes::<WireDecision>(body).map_err(|_| CodecError::Payload)?;
@@ -456,7 +521,7 @@ pub(super) fn decode_payload(p: &[u8]) -> Result<Decoded, CodecError> {
         }
         kind => Frame::Other { kind },
     };
-    Ok(Decoded { seq, frame })
+    Ok(Payload::Frame(Decoded { seq, frame }))
 }
 
 #[cfg(test)]

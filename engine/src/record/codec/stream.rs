@@ -3,12 +3,13 @@
 //! layers and resynchronises after damage.
 
 use super::cobs;
-use super::payload::decode_payload;
-use super::{CodecError, Decoded, Frame, MAX_FRAME, MIN_PAYLOAD};
+use super::compact::{self, BlockState};
+use super::payload::{parse_payload, Payload};
+use super::{CodecError, Frame, MAX_FRAME, MIN_PAYLOAD};
 
 /// Decode one piece between delimiters (so without `0x00`), through
-/// `scratch`.
-fn decode_piece(src: &[u8], scratch: &mut [u8]) -> Result<Decoded, CodecError> {
+/// `scratch` (where a record block's body is left).
+fn decode_piece(src: &[u8], scratch: &mut [u8]) -> Result<Payload, CodecError> {
     if src.len() < MIN_PAYLOAD + 1 {
         return Err(CodecError::TooShort);
     }
@@ -16,7 +17,20 @@ fn decode_piece(src: &[u8], scratch: &mut [u8]) -> Result<Decoded, CodecError> {
         return Err(CodecError::FrameTooLong);
     }
     let n = cobs::decode(src, scratch)?;
-    decode_payload(scratch.get(..n).ok_or(CodecError::Cobs)?)
+    parse_payload(scratch.get(..n).ok_or(CodecError::Cobs)?)
+}
+
+/// The record block being handed out, record by record, from the
+/// decoder's scratch buffer.
+#[derive(Debug, Clone, Copy)]
+struct Block {
+    /// Next record's first byte and the body's end, in `scratch`.
+    at: usize,
+    end: usize,
+    state: BlockState,
+    /// Stream offset and sequence number of the block's frame.
+    offset: u64,
+    seq: u16,
 }
 
 /// What the streaming decoder found.
@@ -75,6 +89,8 @@ pub struct FrameDecoder<const N: usize = MAX_FRAME> {
     scratch: [u8; N],
     /// A frame found behind damage, reported after it.
     pending: Option<Event>,
+    /// The record block whose records are being handed out.
+    block: Option<Block>,
     /// Whether the last piece was damaged (a `0x00` right after damage is
     /// part of it; elsewhere runs of `0x00` are padding).
     after_damage: bool,
@@ -98,6 +114,7 @@ impl<const N: usize> FrameDecoder<N> {
             pos: 0,
             scratch: [0; N],
             pending: None,
+            block: None,
             after_damage: false,
         }
     }
@@ -111,6 +128,14 @@ impl<const N: usize> FrameDecoder<N> {
     /// and return it; `None` once `input` is used up (a partial frame is
     /// kept for the next chunk).
     pub fn feed(&mut self, input: &mut &[u8]) -> Option<Event> {
+        // The `Option` is returned as it is, not unwrapped and wrapped
+        // again, which copied the whole event.
+        if self.block.is_some() {
+            let ev = self.block_record();
+            if ev.is_some() {
+                return ev;
+            }
+        }
         // Tested before taken: `take` copies the whole `Option<Event>` out
         // and back on every call, pending or not.
         if self.pending.is_some() {
@@ -143,11 +168,10 @@ impl<const N: usize> FrameDecoder<N> {
                             self.pos += piece.len() as u64 + 1;
                             self.start = self.pos;
                             self.after_damage = false;
-                            return Some(Event::Frame {
-                                offset,
-                                seq: d.seq,
-                                frame: d.frame,
-                            });
+                            match self.intact(offset, d) {
+                                Some(ev) => return Some(ev),
+                                None => continue,
+                            }
                         }
                     }
                     self.push(piece);
@@ -163,6 +187,12 @@ impl<const N: usize> FrameDecoder<N> {
     /// End of the stream: the bytes of an unfinished frame, if any, as
     /// damage ([`CodecError::Truncated`]).
     pub fn finish(&mut self) -> Option<Event> {
+        if self.block.is_some() {
+            let ev = self.block_record();
+            if ev.is_some() {
+                return ev;
+            }
+        }
         if let Some(ev) = self.pending.take() {
             return Some(ev);
         }
@@ -176,6 +206,57 @@ impl<const N: usize> FrameDecoder<N> {
         };
         self.reset_piece();
         Some(ev)
+    }
+
+    /// The event of an intact frame at `offset`: the frame, or for a record
+    /// block its first record (the others follow from [`Self::block_record`];
+    /// `None` for a block without records).
+    fn intact(&mut self, offset: u64, p: Payload) -> Option<Event> {
+        match p {
+            Payload::Frame(d) => Some(Event::Frame {
+                offset,
+                seq: d.seq,
+                frame: d.frame,
+            }),
+            Payload::Block { seq, body_len } => {
+                let body = self.scratch.get(3..3 + body_len).unwrap_or(&[]);
+                let (state, rest) = compact::take_t0(body)?;
+                self.block = Some(Block {
+                    at: 3 + body_len - rest.len(),
+                    end: 3 + body_len,
+                    state,
+                    offset,
+                    seq,
+                });
+                self.block_record()
+            }
+        }
+    }
+
+    /// The next record of the open block, if any left.
+    #[inline]
+    fn block_record(&mut self) -> Option<Event> {
+        let b = self.block.as_mut()?;
+        let bytes = self.scratch.get(b.at..b.end).unwrap_or(&[]);
+        // The block was read whole before: every record reads.
+        match compact::read_record(&mut b.state, bytes) {
+            Some((r, rest)) => {
+                b.at = b.end - rest.len();
+                let ev = Event::Frame {
+                    offset: b.offset,
+                    seq: b.seq,
+                    frame: Frame::Record(r),
+                };
+                if rest.is_empty() {
+                    self.block = None;
+                }
+                Some(ev)
+            }
+            None => {
+                self.block = None;
+                None
+            }
+        }
     }
 
     fn push(&mut self, bytes: &[u8]) {
@@ -241,11 +322,7 @@ impl<const N: usize> FrameDecoder<N> {
             self.try_decode(0, len)
         };
         let ev = match whole {
-            Ok(d) => Some(Event::Frame {
-                offset,
-                seq: d.seq,
-                frame: d.frame,
-            }),
+            Ok(d) => self.intact(offset, d),
             Err(error) => {
                 // An intact frame may sit at the end of the piece.
                 let mut found = None;
@@ -262,11 +339,29 @@ impl<const N: usize> FrameDecoder<N> {
                 match found {
                     Some((s, d)) => {
                         let skipped = self.dropped + s as u64;
-                        self.pending = Some(Event::Frame {
-                            offset: offset + skipped,
-                            seq: d.seq,
-                            frame: d.frame,
-                        });
+                        // Reported after the damage: a frame as pending, a
+                        // record block as the open block.
+                        match d {
+                            Payload::Frame(d) => {
+                                self.pending = Some(Event::Frame {
+                                    offset: offset + skipped,
+                                    seq: d.seq,
+                                    frame: d.frame,
+                                });
+                            }
+                            Payload::Block { seq, body_len } => {
+                                let body = self.scratch.get(3..3 + body_len).unwrap_or(&[]);
+                                if let Some((state, rest)) = compact::take_t0(body) {
+                                    self.block = Some(Block {
+                                        at: 3 + body_len - rest.len(),
+                                        end: 3 + body_len,
+                                        state,
+                                        offset: offset + skipped,
+                                        seq,
+                                    });
+                                }
+                            }
+                        }
                         Some(Event::Damaged {
                             offset,
                             len: skipped,
@@ -281,12 +376,14 @@ impl<const N: usize> FrameDecoder<N> {
                 }
             }
         };
-        self.after_damage = matches!(ev, Some(Event::Damaged { .. })) && self.pending.is_none();
+        self.after_damage = matches!(ev, Some(Event::Damaged { .. }))
+            && self.pending.is_none()
+            && self.block.is_none();
         self.reset_piece();
         ev
     }
 
-    fn try_decode(&mut self, from: usize, to: usize) -> Result<Decoded, CodecError> {
+    fn try_decode(&mut self, from: usize, to: usize) -> Result<Payload, CodecError> {
         let src = self.buf.get(from..to).ok_or(CodecError::Cobs)?;
         decode_piece(src, &mut self.scratch)
     }
