@@ -3,7 +3,8 @@
 //! gateway, at 868 MHz. All numbers are made up for the demo; they are
 //! plausible for a sub-GHz node, not any product's data.
 
-use headroom::control::{ControllerConfig, PowerSteps};
+use headroom::control::{ControllerConfig, DutyLimit, PowerSteps};
+use headroom::rate::{Rate, RateError, RateTable};
 use headroom::energy::airtime::{ChirpModem, LowDataRate};
 use headroom::energy::{Battery, EnergyProfile, TableError, TxCurrentTable};
 use headroom::propagation::PathLossModel;
@@ -42,6 +43,69 @@ pub fn controller_config(radio: &PowerCapabilities) -> ControllerConfig {
     cfg.max_tx_dbm = radio.max;
     cfg.steps = radio.steps;
     cfg.far_antenna_gain_dbi = GATEWAY_ANTENNA;
+    cfg
+}
+
+/// The live demo's link with rates in play: the same trees and trailer,
+/// farther out (2 km, driving away at 1.5 m/s, 1.2 to 4 km), where the
+/// rate matters; reception is the radio's, by the rate's required SNR.
+pub fn rate_channel() -> ChannelConfig {
+    let mut c = channel();
+    c.trajectory = Trajectory {
+        start: Metres(2000.0),
+        speed_m_per_s: 1.5,
+        min: Some(Metres(1200.0)),
+        max: Some(Metres(4000.0)),
+    };
+    c.min_snr = None;
+    c
+}
+
+/// The rates of the live demo's radio: chirp spread spectrum at 125 kHz,
+/// spreading factors 7, 8, 9, 10 and 12, a 20-byte payload (airtime by the
+/// engine's `ChirpModem::airtime`), demodulator SNR limits −7.5, −10,
+/// −12.5, −15 and −20 dB (common practice, from memory).
+pub fn rates() -> Result<RateTable, EnergySetupError> {
+    let mut v: heapless::Vec<Rate, 8> = heapless::Vec::new();
+    for (name, sf, snr) in [
+        ("sf7", 7u8, -7.5f32),
+        ("sf8", 8, -10.0),
+        ("sf9", 9, -12.5),
+        ("sf10", 10, -15.0),
+        ("sf12", 12, -20.0),
+    ] {
+        let modem = ChirpModem {
+            spreading_factor: sf,
+            bandwidth: Hertz(125e3),
+            coding_rate: 1,
+            preamble_symbols: 8,
+            explicit_header: true,
+            crc: true,
+            low_data_rate: LowDataRate::Auto,
+        };
+        let air = modem.airtime(20).map_err(EnergySetupError::Engine)?;
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        let us = libm::roundf(air.0 * 1000.0) as u32;
+        let r = Rate::new(name, Db(snr), us, Some(125e3)).map_err(EnergySetupError::Rate)?;
+        let _ = v.push(r);
+    }
+    RateTable::new(&v).map_err(EnergySetupError::Rate)
+}
+
+/// The live demo's controller with its rates: the required SNR is each
+/// rate's, and the airtime budget is 10 % of any hour (the EN 300 220
+/// sub-band at 869.40–869.65 MHz, from memory: check the rules that
+/// apply).
+pub fn controller_config_with_rates(
+    radio: &PowerCapabilities,
+    rates: RateTable,
+) -> ControllerConfig {
+    let mut cfg = controller_config(radio);
+    if let Some(first) = rates.get(0) {
+        cfg.required_snr_db = first.required_snr;
+    }
+    cfg.rates = rates;
+    cfg.duty_limit = DutyLimit::AtMost(0.1);
     cfg
 }
 
@@ -153,4 +217,6 @@ pub enum EnergySetupError {
     Table(TableError),
     /// A value of the profile or the modem.
     Engine(headroom::Error),
+    /// A rate of the demo's table.
+    Rate(RateError),
 }
