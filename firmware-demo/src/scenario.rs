@@ -4,17 +4,13 @@
 //! plausible for a sub-GHz node, not any product's data.
 
 use headroom::control::{ControllerConfig, DutyLimit, PowerSteps};
-use headroom::rate::{Rate, RateError, RateTable};
-use headroom::energy::airtime::{ChirpModem, LowDataRate};
-use headroom::energy::{Battery, EnergyProfile, TableError, TxCurrentTable};
+use headroom::energy::{Battery, EnergyProfile, TableError};
+use headroom::rate::{RateError, RateTable};
 use headroom::propagation::PathLossModel;
 use headroom::sim::{
     ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory,
 };
-use headroom::units::{
-    Db, Dbi, Dbm, Hertz, Metres, Microamps, Microcoulombs, MilliampHours, Milliamps, Milliseconds,
-    Volts,
-};
+use headroom::units::{Db, Dbi, Dbm, Hertz, Metres, MilliampHours};
 
 use crate::radio::PowerCapabilities;
 
@@ -61,35 +57,11 @@ pub fn rate_channel() -> ChannelConfig {
     c
 }
 
-/// The rates of the live demo's radio: chirp spread spectrum at 125 kHz,
-/// spreading factors 7, 8, 9, 10 and 12, a 20-byte payload (airtime by the
-/// engine's `ChirpModem::airtime`), demodulator SNR limits −7.5, −10,
-/// −12.5, −15 and −20 dB (common practice, from memory).
+/// The rates of the live demo's radio: the engine's invented demo node
+/// ([`headroom::energy::demo::demo_rates`]: chirp spread spectrum at
+/// 125 kHz, spreading factors 7, 8, 9, 10 and 12).
 pub fn rates() -> Result<RateTable, EnergySetupError> {
-    let mut v: heapless::Vec<Rate, 8> = heapless::Vec::new();
-    for (name, sf, snr) in [
-        ("sf7", 7u8, -7.5f32),
-        ("sf8", 8, -10.0),
-        ("sf9", 9, -12.5),
-        ("sf10", 10, -15.0),
-        ("sf12", 12, -20.0),
-    ] {
-        let modem = ChirpModem {
-            spreading_factor: sf,
-            bandwidth: Hertz(125e3),
-            coding_rate: 1,
-            preamble_symbols: 8,
-            explicit_header: true,
-            crc: true,
-            low_data_rate: LowDataRate::Auto,
-        };
-        let air = modem.airtime(20).map_err(EnergySetupError::Engine)?;
-        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
-        let us = libm::roundf(air.0 * 1000.0) as u32;
-        let r = Rate::new(name, Db(snr), us, Some(125e3)).map_err(EnergySetupError::Rate)?;
-        let _ = v.push(r);
-    }
-    RateTable::new(&v).map_err(EnergySetupError::Rate)
+    headroom::energy::demo::demo_rates().map_err(EnergySetupError::Rate)
 }
 
 /// The live demo's controller with its rates: the required SNR is each
@@ -166,7 +138,7 @@ pub fn channel() -> ChannelConfig {
 }
 
 /// Points of the demo radio's transmit current table.
-pub const TX_POINTS: usize = 8;
+pub const TX_POINTS: usize = headroom::energy::demo::DEMO_TX_POINTS;
 
 /// The demo radio's energy profile, invented for the demo (plausible for a
 /// sub-GHz node with a +22 dBm amplifier, not any product's data): supply
@@ -175,37 +147,7 @@ pub const TX_POINTS: usize = 8;
 /// window, 900 µC of wake-up and sensor work per packet, 1.8 µA asleep, and
 /// a 3000 mAh battery.
 pub fn energy_profile() -> Result<EnergyProfile<TX_POINTS>, EnergySetupError> {
-    let table = TxCurrentTable::from_points(&[
-        (-9.0, 17.0),
-        (0.0, 19.5),
-        (5.0, 24.5),
-        (10.0, 30.0),
-        (14.0, 44.0),
-        (17.0, 75.0),
-        (20.0, 100.0),
-        (22.0, 120.0),
-    ])
-    .map_err(EnergySetupError::Table)?;
-    let modem = ChirpModem {
-        spreading_factor: 9,
-        bandwidth: Hertz(125e3),
-        coding_rate: 1,
-        preamble_symbols: 8,
-        explicit_header: true,
-        crc: true,
-        low_data_rate: LowDataRate::Auto,
-    };
-    let airtime = modem.airtime(20).map_err(EnergySetupError::Engine)?;
-    let profile = EnergyProfile::new(
-        Volts(3.3),
-        table,
-        airtime,
-        Milliseconds(160.0),
-        Milliamps(11.5),
-        Microcoulombs(900.0),
-        Microamps(1.8),
-    )
-    .map_err(EnergySetupError::Engine)?;
+    let profile = headroom::energy::demo::demo_profile().map_err(EnergySetupError::Engine)?;
     let battery = Battery::new(MilliampHours(3000.0)).map_err(EnergySetupError::Engine)?;
     Ok(profile.with_battery(battery))
 }
