@@ -67,7 +67,7 @@ pub const BOARDS: [Board; 2] = [
 pub const PANIC_PROBES: [(&str, &str); 3] = [
     (
         "panic_free_control",
-        "Controller::update, Replay::step, Summary, energy (profile, airtime, duty, tally)",
+        "Controller::update and held with rates, Replay::step with rates, Summary, energy (profile, charge table, airtime, duty window, tally)",
     ),
     (
         "panic_free_encoder",
