@@ -17,9 +17,9 @@ use cortex_m_rt::entry;
 use headroom::control::{
     settings, Controller, ControllerConfig, DutyLimit, Fleet, Observation, Replay,
 };
-use headroom::energy::{demo, AirtimeWindow, ChargeTable};
 use headroom::energy::airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
 use headroom::energy::duty::{duty_cycle, en_300_220_sub_bands, min_interval};
+use headroom::energy::{demo, AirtimeWindow, ChargeTable};
 use headroom::energy::{
     Battery, Delivery, EnergyProfile, EnergyTally, Refinements, TxCurrentTable,
 };
