@@ -438,9 +438,23 @@ pub(crate) struct LoggedReading {
 /// new level. A gap of more than `stale_after_ms` between readings drops the
 /// history.
 ///
+/// ## Rates
+/// With a rate table ([`ControllerConfig::rates`]) and an energy profile
+/// ([`Controller::with_charge`]) the controller also chooses the rate of the
+/// next packet ([`Decision::rate`]): the rate whose power for the target
+/// (the requirement above at that rate's required SNR and noise bandwidth)
+/// costs the least charge, within the power limits, with a hysteresis and
+/// a dwell, and within the duty-cycle budget (`duty_limit`: the next packet
+/// is held, [`Decision::held`], when no rate fits). One estimate serves all
+/// rates: readings are kept at rate 0's noise bandwidth. With no table, or
+/// one rate, the decisions are the power-only ones, bit for bit.
+///
 /// ## Cost
-/// All state is in this fixed-size struct (no allocation, 256 bytes or less
-/// for `W = 32`): the settings are kept only in the form the update uses.
+/// All state is in this fixed-size struct (no allocation, 744 bytes for
+/// `W = 32`, of which the power controller is 256 and the rest the rate
+/// table, the energy profile and the duty budget's slots): the settings are
+/// kept only in the form the update uses. The rate choice is one pass over
+/// the table per update, integers only.
 /// One [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
 /// exponential, square root or division by a variable once the window is
 /// full (when `W` and `spread_memory` are powers of two). Everything between
