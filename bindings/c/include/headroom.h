@@ -78,7 +78,7 @@
  * (272 in use on a 64-bit host today; the rest is room for what the
  * engine adds.)
  */
-#define HEADROOM_CONTROLLER_SIZE 512
+#define HEADROOM_CONTROLLER_SIZE 1024
 
 /**
  * `headroom_observation.kind`: the packet was delivered and the far end
@@ -133,12 +133,12 @@
  * (568 in use on a 64-bit host today; the rest is room for what the
  * engine adds.)
  */
-#define HEADROOM_REPLAY_SIZE 1024
+#define HEADROOM_REPLAY_SIZE 2048
 
 /**
  * Number of reason codes (length of `headroom_summary.ignored_readings`).
  */
-#define HEADROOM_REASON_COUNT 15
+#define HEADROOM_REASON_COUNT 20
 
 /**
  * Bytes of a `headroom_settings`.

@@ -12,7 +12,7 @@ use crate::{headroom_status, WindowController};
 /// Bytes of a `headroom_controller`.
 /// (272 in use on a 64-bit host today; the rest is room for what the
 /// engine adds.)
-pub const HEADROOM_CONTROLLER_SIZE: usize = 512;
+pub const HEADROOM_CONTROLLER_SIZE: usize = 1024;
 
 /// A controller's state, caller-allocated (`HEADROOM_CONTROLLER_SIZE`
 /// bytes, aligned to `HEADROOM_STATE_ALIGN`; a plain copy of the bytes is

@@ -12,10 +12,10 @@ use crate::{headroom_status, WindowReplay};
 /// Bytes of a `headroom_replay`.
 /// (568 in use on a 64-bit host today; the rest is room for what the
 /// engine adds.)
-pub const HEADROOM_REPLAY_SIZE: usize = 1024;
+pub const HEADROOM_REPLAY_SIZE: usize = 2048;
 
 /// Number of reason codes (length of `headroom_summary.ignored_readings`).
-pub const HEADROOM_REASON_COUNT: usize = 15;
+pub const HEADROOM_REASON_COUNT: usize = 20;
 
 const _: () = assert!(HEADROOM_REASON_COUNT == Reason::COUNT);
 

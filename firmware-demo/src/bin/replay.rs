@@ -6,6 +6,10 @@
 //! and writes one decision frame per record to a host file. `cargo xtask firmware` compares those frames with the
 //! host's `headroom replay` output, record by record.
 //!
+//! A log whose header has several rates is replayed with the rate choice
+//! costed by the engine's invented demo node
+//! ([`headroom::energy::demo::demo_profile`]).
+//!
 //! Usage (under QEMU): `-append "LOG.hrlog DECISIONS.hrlog"`; prints a
 //! one-line summary and exits 0, or prints why it failed and exits 1.
 #![no_std]
@@ -15,6 +19,7 @@ use cortex_m_rt::entry;
 use cortex_m_semihosting::hprintln;
 
 use headroom::control::{settings, Replay, REPLAY_WINDOW};
+use headroom::energy::demo;
 use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogHeader};
 use headroom_firmware_demo::host::{self, File, HostError, Mode};
@@ -45,6 +50,7 @@ enum Failure {
     Host(HostError),
     Config(settings::ResolveError),
     Encode(CodecError),
+    Profile,
 }
 
 impl core::fmt::Display for Failure {
@@ -56,6 +62,7 @@ impl core::fmt::Display for Failure {
             // (about 20 KB of flash) into the image; the host says them.
             Failure::Config(e) => write!(f, "controller settings refused: {}", e.setting()),
             Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
+            Failure::Profile => f.write_str("the demo node's energy profile was refused"),
         }
     }
 }
@@ -106,6 +113,25 @@ impl Output {
     }
 }
 
+/// Set the replay up from the log's header (or none): the settings the
+/// engine resolves from it. Not inlined: its temporaries (the settings
+/// layers, the controller being built) then share no frame with the loop,
+/// which keeps the peak stack within the microbit's 16 KiB.
+#[inline(never)]
+fn start(h: Option<&LogHeader>, slot: &mut Option<Replay<REPLAY_WINDOW>>) -> Result<(), Failure> {
+    let r = settings::for_log(h).map_err(Failure::Config)?;
+    let refused = |e| Failure::Config(settings::ResolveError::Invalid(e));
+    // A log with several rates: the rate is chosen by the charge of the
+    // engine's invented demo node, as `cargo xtask firmware` replays it.
+    *slot = Some(if r.config.rates.len() > 1 {
+        let profile = demo::demo_profile().map_err(|_| Failure::Profile)?;
+        Replay::with_energy(r.config, &profile).map_err(refused)?
+    } else {
+        Replay::new(r.config).map_err(refused)?
+    });
+    Ok(())
+}
+
 fn run() -> Result<(), Failure> {
     // The program name comes first: QEMU passes the full path of the ELF.
     let mut line = [0u8; 512];
@@ -126,10 +152,6 @@ fn run() -> Result<(), Failure> {
     // Set up by the log's header frame, or without a header when a record
     // comes first (the header was lost): as the host does.
     let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
-    let start = |h: Option<&LogHeader>| -> Result<Replay<REPLAY_WINDOW>, Failure> {
-        let r = settings::for_log(h).map_err(Failure::Config)?;
-        Replay::new(r.config).map_err(|e| Failure::Config(settings::ResolveError::Invalid(e)))
-    };
     let mut enc = Encoder::new();
     let mut frame = [0u8; MAX_FRAME];
     out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
@@ -144,9 +166,11 @@ fn run() -> Result<(), Failure> {
                 frame: Frame::Record(rec),
                 ..
             } => {
-                let replay = match replay.as_mut() {
-                    Some(r) => r,
-                    None => replay.insert(start(None)?),
+                if replay.is_none() {
+                    start(None, &mut replay)?;
+                }
+                let Some(replay) = replay.as_mut() else {
+                    return Ok(());
                 };
                 let s = replay.step(&rec);
                 let d = DecisionRecord {
@@ -164,7 +188,7 @@ fn run() -> Result<(), Failure> {
                 // The first header sets the replay up; a later one is only
                 // counted (the host reports it).
                 if replay.is_none() {
-                    replay = Some(start(Some(&header))?);
+                    start(Some(&header), &mut replay)?;
                 } else {
                     other += 1;
                 }
