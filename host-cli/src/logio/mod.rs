@@ -140,17 +140,21 @@ pub enum Field {
     /// SNR at the far end, dB: read where a log has no noise floor
     /// (noise = RSSI − SNR, [`headroom::record::noise_from_snr`]).
     SnrDb,
+    /// The rate the packet was sent at, by name (a rate of the header's
+    /// table, `# rate:` lines).
+    Rate,
 }
 
 impl Field {
     /// Every field, in the order a CSV writer puts its columns (`snr_db`,
     /// read only, last).
-    pub const ALL: [Field; 5] = [
+    pub const ALL: [Field; 6] = [
         Field::TMs,
         Field::TxDbm,
         Field::RssiDbm,
         Field::NoiseDbm,
         Field::SnrDb,
+        Field::Rate,
     ];
 
     /// The column name.
@@ -161,6 +165,7 @@ impl Field {
             Field::RssiDbm => "rssi_dbm",
             Field::NoiseDbm => "noise_dbm",
             Field::SnrDb => "snr_db",
+            Field::Rate => "rate",
         }
     }
 
@@ -242,7 +247,7 @@ pub struct InputArgs {
     pub from: Option<LogFormat>,
     /// A CSV column named otherwise: `--column rssi_dbm=RSSI` reads the
     /// column `RSSI` as `rssi_dbm` (repeatable; fields: t_ms, tx_dbm,
-    /// rssi_dbm, noise_dbm, snr_db).
+    /// rssi_dbm, noise_dbm, snr_db, rate).
     #[arg(long = "column", value_name = "FIELD=NAME")]
     pub columns: Vec<ColumnMap>,
     /// Any damage is an error: a damaged or lost header, a damaged binary
@@ -425,6 +430,7 @@ fn header_differences(a: &LogHeader, b: &LogHeader) -> Vec<&'static str> {
             "eirp_cap_dbm",
             bits(a.eirp_cap.map(|v| v.0)) == bits(b.eirp_cap.map(|v| v.0)),
         ),
+        ("rate", a.rates == b.rates),
     ];
     pairs
         .into_iter()
