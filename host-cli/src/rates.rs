@@ -63,7 +63,7 @@ pub fn parse_line(value: &str) -> Result<Rate, String> {
         [name, snr, airtime, bw] => rate_from_text(name, snr, airtime, Some(bw)),
         _ => Err(format!(
             "'{}' is not NAME, REQUIRED_SNR dB, AIRTIME[, NOISE_BANDWIDTH] (e.g. sf7, -7.5 dB, 41.216 ms, 125 kHz)",
-            crate::error::printable(value)
+            crate::error::printable(value.trim())
         )),
     }
 }

@@ -642,7 +642,7 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
     let mut status = HeaderStatus::Absent;
     let mut late_blocks = Vec::new();
     let mut in_block = false;
-    let mut rates: Vec<(String, headroom::rate::Rate)> = Vec::new();
+    let mut rates: Vec<headroom::rate::Rate> = Vec::new();
     let mut lines = 0u64;
     let mut total = 0usize;
     let mut line = Vec::with_capacity(128);
@@ -705,8 +705,9 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
                 // line is an error, not a damaged header read without it.
                 let rate = crate::rates::parse_line(value)
                     .map_err(|why| CliError::Input(format!("{name}:{lines}: rate line: {why}")))?;
-                rates.push((format!("line {lines}"), rate));
-                h.rates = crate::rates::table(&rates)
+                rates.push(rate);
+                // Checked at each line, so the line that breaks it is named.
+                h.rates = headroom::rate::RateTable::new(&rates)
                     .map_err(|why| CliError::Input(format!("{name}:{lines}: rate line: {why}")))?;
                 continue;
             }

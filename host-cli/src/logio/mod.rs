@@ -5,7 +5,10 @@
 //!
 //! - **CSV** (`.csv`): a header row naming the columns, in any order:
 //!   `t_ms` (whole milliseconds), `tx_dbm`, `rssi_dbm`, and `noise_dbm` or
-//!   `snr_db` (an empty cell is a reading that was not logged). A log with
+//!   `snr_db` (an empty cell is a reading that was not logged), and
+//!   optionally `rate`, the name of a rate of the header's table (format
+//!   1.2: `# rate: sf7, -7.5 dB, 41.216 ms, 125000 Hz` lines, read by
+//!   [`crate::rates::parse_line`]). A log with
 //!   an SNR and no noise floor is a full log: noise = RSSI − SNR, per row,
 //!   by [`headroom::record::noise_from_snr`]. Columns named otherwise are
 //!   mapped with `--column FIELD=NAME` ([`ColumnMap`]). Other columns are
@@ -827,7 +830,7 @@ mod tests {
         for (bad, want) in [
             (
                 "rssi=RSSI",
-                "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db)",
+                "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db, rate)",
             ),
             ("rssi_dbm", "is not FIELD=NAME"),
             ("rssi_dbm=", "names no column"),
