@@ -142,6 +142,53 @@ pub fn names(t: &RateTable) -> String {
         .join(", ")
 }
 
+/// A record's rate index in the log's table (`from`) as an index into the
+/// table in force (`to`), by name: a profile's table may list the rates in
+/// another order, or more of them. Identity when the tables are the same or
+/// the log has none. `Err` names the rate when the table in force lacks it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Remap {
+    map: [Option<u8>; headroom::rate::MAX_RATES],
+    from: RateTable,
+    identity: bool,
+}
+
+impl Remap {
+    /// The map from the log's table to the one in force.
+    pub fn new(from: &RateTable, to: &RateTable) -> Remap {
+        let mut map = [None; headroom::rate::MAX_RATES];
+        for (slot, r) in map.iter_mut().zip(from.as_slice()) {
+            *slot = to.index_of(r.name.as_str());
+        }
+        Remap {
+            map,
+            from: *from,
+            identity: from.is_empty() || from == to,
+        }
+    }
+
+    /// The index in force of a record's rate.
+    pub fn apply(&self, rate: Option<u8>) -> Result<Option<u8>, String> {
+        match rate {
+            None => Ok(None),
+            Some(i) if self.identity => Ok(Some(i)),
+            Some(i) => self
+                .map
+                .get(usize::from(i))
+                .copied()
+                .flatten()
+                .map(Some)
+                .ok_or_else(|| match self.from.get(i) {
+                    Some(r) => format!(
+                        "the packet's rate '{}' is not in the rate table in force",
+                        r.name
+                    ),
+                    None => format!("the packet's rate index {i} is not in the log's rate table"),
+                }),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -178,6 +225,21 @@ mod tests {
         assert!(e.contains("above 0 up to 60 s"), "{e}");
         let e = parse_line("sf 7, -7.5 dB, 2 ms").unwrap_err();
         assert!(e.contains("rate name"), "{e}");
+    }
+
+    #[test]
+    fn records_follow_their_rate_by_name() {
+        let r = |n: &str| Rate::new(n, Db(-7.5), 1000, None).unwrap_or_default();
+        let log = RateTable::new(&[r("a"), r("b")]).unwrap_or_default();
+        let force = RateTable::new(&[r("b"), r("c"), r("a")]).unwrap_or_default();
+        let m = Remap::new(&log, &force);
+        assert_eq!(m.apply(Some(0)), Ok(Some(2)));
+        assert_eq!(m.apply(Some(1)), Ok(Some(0)));
+        assert_eq!(m.apply(None), Ok(None));
+        let back = Remap::new(&force, &log);
+        let e = back.apply(Some(1)).unwrap_err();
+        assert!(e.contains("'c' is not in the rate table in force"), "{e}");
+        assert_eq!(Remap::new(&log, &log).apply(Some(1)), Ok(Some(1)));
     }
 
     #[test]
