@@ -3,6 +3,7 @@
 //! (CSV and binary), the plot, fleets, refusals of bad settings and of
 //! overwriting, and readings that are ignored.
 
+use headroom::control::settings::Setting;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -132,7 +133,7 @@ fn the_demo_replays_from_its_header_alone_with_sources() {
     // No start power anywhere: the highest allowed, min(14, 16.15 − 2).
     assert_eq!(s["start_tx_dbm"]["value"], 14.0);
     assert_eq!(s["steps"]["value"]["uniform"], 1.0);
-    assert_eq!(s.as_object().expect("settings").len(), 25);
+    assert_eq!(s.as_object().expect("settings").len(), Setting::COUNT);
     // The field beside the counterfactual.
     assert_eq!(l["logged"]["mean_tx_dbm"], 14.0);
     let mean = l["mean_tx_dbm"].as_f64().expect("mean");

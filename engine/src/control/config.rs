@@ -2,6 +2,7 @@
 
 use core::fmt;
 
+use crate::rate::{RateName, RateTable};
 use crate::units::{Db, Dbi, Dbm};
 
 /// Largest number of levels a [`LevelTable`] holds.
@@ -209,6 +210,83 @@ impl EirpCap {
     }
 }
 
+/// The regional duty-cycle limit the controller keeps to: the largest
+/// fraction of any one hour the radio may spend on air. No built-in default:
+/// the regional limit must be stated (EN 300 220 sub-bands give 0.1 % to
+/// 10 %; check the rules that apply), or explicitly none.
+///
+/// With `serde` it reads and writes as a number (a fraction) or `"none"`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum DutyLimit {
+    /// Airtime in any one-hour window at most this fraction of the hour.
+    AtMost(f32),
+    /// No duty-cycle budget.
+    NoLimit,
+}
+
+impl DutyLimit {
+    /// The limit as a fraction, if there is one.
+    pub const fn fraction(self) -> Option<f32> {
+        match self {
+            DutyLimit::AtMost(f) => Some(f),
+            DutyLimit::NoLimit => None,
+        }
+    }
+}
+
+#[cfg(feature = "serde")]
+mod duty_serde {
+    use super::DutyLimit;
+    use core::fmt;
+    use serde::de::{Error as _, Visitor};
+
+    impl serde::Serialize for DutyLimit {
+        fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+            match self {
+                DutyLimit::AtMost(f) => s.serialize_f32(*f),
+                DutyLimit::NoLimit => s.serialize_str("none"),
+            }
+        }
+    }
+
+    struct DutyVisitor;
+
+    impl Visitor<'_> for DutyVisitor {
+        type Value = DutyLimit;
+        fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+            f.write_str("a duty-cycle limit as a fraction, or \"none\"")
+        }
+        fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<DutyLimit, E> {
+            #[allow(clippy::cast_possible_truncation)] // checked by validate
+            Ok(DutyLimit::AtMost(v as f32))
+        }
+        fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<DutyLimit, E> {
+            #[allow(clippy::cast_precision_loss)] // checked by validate
+            Ok(DutyLimit::AtMost(v as f32))
+        }
+        fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<DutyLimit, E> {
+            #[allow(clippy::cast_precision_loss)] // checked by validate
+            Ok(DutyLimit::AtMost(v as f32))
+        }
+        fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<DutyLimit, E> {
+            if v.eq_ignore_ascii_case("none") {
+                Ok(DutyLimit::NoLimit)
+            } else {
+                Err(E::custom(format_args!(
+                    "duty_limit: '{v}' is neither a fraction nor \"none\""
+                )))
+            }
+        }
+    }
+
+    impl<'de> serde::Deserialize<'de> for DutyLimit {
+        fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<DutyLimit, D::Error> {
+            d.deserialize_any(DutyVisitor).map_err(D::Error::custom)
+        }
+    }
+}
+
 #[cfg(feature = "serde")]
 mod cap_serde {
     use super::{Dbm, EirpCap};
@@ -336,6 +414,26 @@ pub struct ControllerConfig {
     /// Noise floor assumed at the far end before any has been reported
     /// (open-loop beacons carry none).
     pub default_noise_dbm: Dbm,
+    /// The rates the radio may send at (empty: the rate is not in play and
+    /// the controller chooses the power only). Read from a radio profile or
+    /// a log header, not from a settings file.
+    #[cfg_attr(feature = "serde", serde(skip))]
+    pub rates: RateTable,
+    /// The rate a log's packets were sent at when its records do not say
+    /// (no `rate` field): needed to replay a log across rates whose table
+    /// gives noise bandwidths. Not read from a settings file.
+    #[cfg_attr(feature = "serde", serde(skip))]
+    pub logged_rate: Option<RateName>,
+    /// Regional duty-cycle limit: the most airtime in any one-hour window,
+    /// as a fraction of the hour (no built-in default).
+    pub duty_limit: DutyLimit,
+    /// A cheaper rate replaces the one in use only when its expected charge
+    /// per delivered packet is lower by more than this fraction.
+    pub rate_hysteresis: f32,
+    /// Packets that must pass after a rate change before the cost alone may
+    /// change the rate again (a rate the link can no longer carry, or the
+    /// duty budget, changes it at once).
+    pub rate_dwell: u16,
 }
 
 impl Default for ControllerConfig {
@@ -377,6 +475,11 @@ impl ControllerConfig {
             noise_min_dbm: Dbm(-160.0),
             noise_max_dbm: Dbm(-40.0),
             default_noise_dbm: Dbm(-117.0),
+            rates: RateTable::empty(),
+            logged_rate: None,
+            duty_limit: DutyLimit::NoLimit,
+            rate_hysteresis: 0.1,
+            rate_dwell: 8,
         }
     }
 
@@ -396,6 +499,49 @@ impl ControllerConfig {
         }
     }
 
+    /// Check the rate settings: a duty limit in (0, 1], a hysteresis in
+    /// [0, 1), a logged rate that is in the table.
+    fn validate_rates(&self) -> Result<(), ConfigError> {
+        if let DutyLimit::AtMost(f) = self.duty_limit {
+            if !f.is_finite() {
+                return Err(ConfigError::NotFinite {
+                    setting: "duty_limit",
+                });
+            }
+            if !(f > 0.0 && f <= 1.0) {
+                return Err(ConfigError::OutOfRange {
+                    setting: "duty_limit",
+                    value: f,
+                    min: 0.0,
+                    max: 1.0,
+                });
+            }
+        }
+        let h = self.rate_hysteresis;
+        if !h.is_finite() {
+            return Err(ConfigError::NotFinite {
+                setting: "rate_hysteresis",
+            });
+        }
+        if !(0.0..1.0).contains(&h) {
+            return Err(ConfigError::OutOfRange {
+                setting: "rate_hysteresis",
+                value: h,
+                min: 0.0,
+                max: 1.0,
+            });
+        }
+        if let Some(name) = self.logged_rate {
+            if self.rates.index_of(name.as_str()).is_none() {
+                return Err(ConfigError::Inconsistent {
+                    setting: "logged_rate",
+                    why: "names no rate of the rate table",
+                });
+            }
+        }
+        Ok(())
+    }
+
     /// Check every setting; the error names the first one that is wrong.
     pub fn validate(&self) -> Result<(), ConfigError> {
         self.validate_inner().map(|_| ())
@@ -405,6 +551,7 @@ impl ControllerConfig {
     pub(crate) fn validate_inner(&self) -> Result<(f32, f32), ConfigError> {
         let c = self;
         check_level("required_snr_db", c.required_snr_db.0)?;
+        c.validate_rates()?;
         if !c.target_outage.is_finite() {
             return Err(ConfigError::NotFinite {
                 setting: "target_outage",

@@ -2,7 +2,9 @@
 
 use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_LEVELS, MAX_WINDOW};
 use super::fixed::*;
+use super::rates::RatePlan;
 use super::reason::Reason;
+use crate::energy::{AirtimeWindow, ChargeTable};
 use crate::units::{Db, Dbm};
 
 /// Tolerance on the transmit power a feedback says was used, beyond the
@@ -96,6 +98,12 @@ pub struct Decision {
     pub tx: Dbm,
     /// Why this power, or why the reading was ignored.
     pub reason: Reason,
+    /// Rate for the next packet: an index into the configuration's rate
+    /// table (`None` when the table is empty: the rate is not in play).
+    pub rate: Option<u8>,
+    /// No rate fits the duty-cycle budget: the next packet must not be
+    /// sent (tell the controller with [`Controller::held`]).
+    pub held: bool,
     /// Readings in the window.
     pub readings: u16,
     wanted: Option<i32>,
@@ -143,6 +151,8 @@ impl core::fmt::Debug for Decision {
         f.debug_struct("Decision")
             .field("tx", &self.tx)
             .field("reason", &self.reason)
+            .field("rate", &self.rate)
+            .field("held", &self.held)
             .field("wanted", &self.wanted())
             .field("path_loss", &self.path_loss())
             .field("spread", &self.spread())
@@ -158,9 +168,11 @@ impl defmt::Format for Decision {
     fn format(&self, f: defmt::Formatter<'_>) {
         defmt::write!(
             f,
-            "Decision {{ tx: {}, reason: {}, wanted: {}, path_loss: {}, spread: {}, noise: {}, margin: {}, readings: {} }}",
+            "Decision {{ tx: {}, reason: {}, rate: {}, held: {}, wanted: {}, path_loss: {}, spread: {}, noise: {}, margin: {}, readings: {} }}",
             self.tx,
             self.reason,
+            self.rate,
+            self.held,
             self.wanted(),
             self.path_loss(),
             self.spread(),
@@ -472,11 +484,35 @@ pub struct Controller<const W: usize> {
     have_reading: bool,
     have_noise: bool,
     window: Window<W>,
+    /// The rate table in the update's units.
+    plan: RatePlan,
+    /// Rate in use (0 when the table is empty) and its offset (required
+    /// SNR plus noise change, 1/8192 dB; the required SNR without a table).
+    rate: u8,
+    required_now: i32,
+    /// Packets since the last rate change (saturating).
+    since_change: u16,
+    /// The duty-cycle budget, with a limit.
+    duty: Option<AirtimeWindow>,
+    /// The last decision held the next packet.
+    held: bool,
 }
 
 impl<const W: usize> Controller<W> {
-    /// A controller with validated settings, at its start power.
+    /// A controller with validated settings, at its start power. A rate
+    /// table of more than one rate needs an energy profile: see
+    /// [`Controller::with_charge`].
     pub fn new(cfg: ControllerConfig) -> Result<Self, ConfigError> {
+        Self::with_charge(cfg, None)
+    }
+
+    /// A controller that chooses the rate with the power, costing each rate
+    /// by `charge` (the energy profile, [`ChargeTable::from_profile`]),
+    /// which must cover every power the controller may use.
+    pub fn with_charge(
+        cfg: ControllerConfig,
+        charge: Option<ChargeTable>,
+    ) -> Result<Self, ConfigError> {
         if W == 0 || W > MAX_WINDOW {
             return Err(ConfigError::OutOfRange {
                 setting: "window",
@@ -595,9 +631,24 @@ impl<const W: usize> Controller<W> {
             have_reading: false,
             have_noise: false,
             window: Window::new(),
+            plan: RatePlan::new(&cfg, None, 0, 0)?,
+            rate: 0,
+            required_now: 0,
+            since_change: 0,
+            duty: None,
+            held: false,
         };
         c.s.bottom = c.fine_at(0);
         c.s.top = c.fine_at(kmax);
+        c.plan = RatePlan::new(&cfg, charge, c.s.bottom, c.s.top)?;
+        if let Some(f) = cfg.duty_limit.fraction() {
+            c.duty = Some(AirtimeWindow::new(f).map_err(|_| ConfigError::OutOfRange {
+                setting: "duty_limit",
+                value: f,
+                min: 0.0,
+                max: 1.0,
+            })?);
+        }
         let start = to_fine(cfg.start_tx_dbm.0).saturating_sub(EPS_FINE);
         c.s.start = c.walk_above(c.first_guess(start, 0), start);
         c.reset();
@@ -607,6 +658,42 @@ impl<const W: usize> Controller<W> {
     /// Power chosen for the next packet.
     pub fn tx(&self) -> Dbm {
         Dbm(self.tx)
+    }
+
+    /// Rate chosen for the next packet (an index into the rate table),
+    /// `None` when the table is empty.
+    pub fn rate(&self) -> Option<u8> {
+        if self.plan.n == 0 {
+            None
+        } else {
+            Some(self.rate)
+        }
+    }
+
+    /// Whether the next packet is held by the duty-cycle budget.
+    pub fn is_held(&self) -> bool {
+        self.held
+    }
+
+    /// The duty-cycle budget, when a limit is set.
+    pub fn duty_window(&self) -> Option<&AirtimeWindow> {
+        self.duty.as_ref()
+    }
+
+    /// The packet at `t_ms` was held (not sent, as the last decision
+    /// said): nothing to learn; the budget moves on and the rate and power
+    /// are chosen again.
+    pub fn held(&mut self, t_ms: u64) -> Decision {
+        self.apply(t_ms, None, None, None, false)
+    }
+
+    fn set_rate(&mut self, m: u8) {
+        self.rate = m;
+        self.required_now = if self.plan.n == 0 {
+            self.s.required
+        } else {
+            self.plan.offset(m)
+        };
     }
 
     /// The adaptive margin now, to 1/8192 dB (rounded toward −∞; the bounds
@@ -625,8 +712,20 @@ impl<const W: usize> Controller<W> {
         (Dbm(self.power_at(0)), Dbm(self.power_at(self.s.kmax)))
     }
 
-    /// Forget everything learnt and return to the start power.
+    /// Forget everything learnt and return to the start power and the
+    /// start rate: the most robust rate of the table (the lowest required
+    /// SNR plus noise change; the first of equals). The duty budget is not
+    /// forgotten: the airtime already spent stays spent.
     pub fn reset(&mut self) {
+        self.held = false;
+        self.since_change = 0;
+        let mut start = 0u8;
+        for m in 1..self.plan.n {
+            if self.plan.offset(m) < self.plan.offset(start) {
+                start = m;
+            }
+        }
+        self.set_rate(start);
         self.margin = self.clamp_margin(0);
         self.loss_run = 0;
         self.mode = Mode::WarmUp;
@@ -866,6 +965,7 @@ impl<const W: usize> Controller<W> {
         // 1. What the observation says: the outcome of the packet (for the
         //    outer loop and the loss runs) and the reading, if any.
         let mut ignored: Option<Reason> = None;
+        let sent = !matches!(obs, Observation::Beacon { .. });
         let (t, outcome, reading) = match *obs {
             Observation::Feedback {
                 t_ms,
@@ -890,13 +990,14 @@ impl<const W: usize> Controller<W> {
                 (t_ms, None, None)
             }
         };
-        self.apply(t, outcome, reading, ignored)
+        self.apply(t, outcome, reading, ignored, sent)
     }
 
     /// The update proper, from an observation already checked: `outcome`
     /// is `Some(delivered)` when the packet's fate is known, `reading` the
     /// loss to noise and noise floor (1/8192 dB) or why the reading is
-    /// unusable, `ignored` a reason that overrides the decision's own.
+    /// unusable, `ignored` a reason that overrides the decision's own,
+    /// `sent` whether the device sent a packet (at the rate in use) at `t`.
     #[inline(always)]
     fn apply(
         &mut self,
@@ -904,8 +1005,26 @@ impl<const W: usize> Controller<W> {
         outcome: Option<bool>,
         reading: Option<Result<(i32, i32), Reason>>,
         mut ignored: Option<Reason>,
+        sent: bool,
     ) -> Decision {
         let climb_after = self.s.climb_after;
+        // 0. The duty budget: the packet just sent, at the rate in use.
+        if let Some(w) = &mut self.duty {
+            w.advance(t);
+            if sent {
+                w.add(self.plan.airtime(self.rate));
+            }
+        }
+        self.since_change = self.since_change.saturating_add(1);
+        // A reading arrives at the bandwidth of the rate in use: the shared
+        // estimate keeps the loss to noise at rate 0's bandwidth.
+        let norm = self.plan.norm(self.rate);
+        let reading = match reading {
+            Some(Ok((z, noise))) if norm != 0 => {
+                Some(Ok((z.saturating_sub(norm), noise.saturating_sub(norm))))
+            }
+            r => r,
+        };
         let mut flushed: Option<Reason> = None;
         match outcome {
             Some(false) => {
@@ -962,8 +1081,58 @@ impl<const W: usize> Controller<W> {
         let cur = self.k;
         let prediction = self.predict();
         let n = self.window.n;
-        let s = &self.s;
         let margin = margin_fine(self.margin);
+
+        // 3a. The rate (when a rate table is in play): which rate, at the
+        //     power the shared estimate says it needs, costs the least.
+        let mut rate_reason: Option<Reason> = None;
+        let mut jump = false;
+        if self.plan.n > 0 {
+            let climbing = self.loss_run >= climb_after;
+            let base = if !climbing && n >= self.s.min_readings {
+                let (level, mae) = prediction.unwrap_or((0, None));
+                Some(
+                    level
+                        .saturating_add(mae.map_or(0, |m| spread_term(m, self.s.sigma_factor)))
+                        .saturating_add(margin),
+                )
+            } else {
+                None
+            };
+            let may_switch = flushed.is_none() && ignored.is_none();
+            let mut choice = self.plan.choose(
+                self.rate,
+                base,
+                self.s.bottom,
+                self.s.top,
+                self.since_change,
+                self.duty.as_ref(),
+                may_switch,
+            );
+            // Losses at the highest power: one rate more robust (the loss
+            // at this rate says the same of the shared estimate at all).
+            if climbing
+                && may_switch
+                && !choice.held
+                && choice.reason.is_none()
+                && cur >= self.s.kmax
+            {
+                if let Some(m) = self.plan.more_robust(self.rate, self.duty.as_ref()) {
+                    choice.rate = m;
+                    choice.reason = Some(Reason::RateSlower);
+                }
+            }
+            self.held = choice.held;
+            if choice.rate != self.rate {
+                self.set_rate(choice.rate);
+                self.since_change = 0;
+                jump = base.is_some();
+            }
+            rate_reason = choice.reason;
+        }
+
+        let s = &self.s;
+        let required = self.required_now;
         let mut wanted: Option<i32> = None;
         let (target, mut reason) = if self.loss_run >= climb_after {
             self.mode = Mode::Climb;
@@ -981,8 +1150,7 @@ impl<const W: usize> Controller<W> {
         } else {
             self.mode = Mode::Track;
             let (level, mae) = prediction.unwrap_or((0, None));
-            let w = s
-                .required
+            let w = required
                 .saturating_add(level)
                 .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
                 .saturating_add(margin);
@@ -990,7 +1158,13 @@ impl<const W: usize> Controller<W> {
             // A level is "at or above" x when it is above x less EPS_FINE.
             let need = w.saturating_sub(EPS_FINE);
             let need_down = need.saturating_add(s.deadband);
-            if self.level < need && cur < s.kmax {
+            if jump {
+                // A new rate: straight to the power it needs.
+                (
+                    self.walk_above(self.first_guess(need, cur), need),
+                    Reason::Hold,
+                )
+            } else if self.level < need && cur < s.kmax {
                 let up = self.walk_above(self.first_guess(need, cur), need);
                 if up > cur {
                     (up, Reason::Raise)
@@ -1023,13 +1197,20 @@ impl<const W: usize> Controller<W> {
             reason = Reason::ClampedMin;
         }
         if target != cur {
-            let (next, limited) = self.limit_step(cur, target);
+            let (next, limited) = if jump {
+                (target, false)
+            } else {
+                self.limit_step(cur, target)
+            };
             if limited {
                 reason = Reason::RateLimited;
             }
             if next != cur {
                 self.set_level(next);
             }
+        }
+        if let Some(r) = rate_reason {
+            reason = r;
         }
         if let Some(f) = flushed {
             reason = f;
@@ -1056,6 +1237,8 @@ impl<const W: usize> Controller<W> {
         Decision {
             tx: Dbm(self.tx),
             reason,
+            rate: self.rate(),
+            held: self.held,
             readings: n,
             wanted,
             path_loss,
@@ -1098,9 +1281,33 @@ impl<const W: usize> Controller<W> {
         self.level.saturating_sub(r.z)
     }
 
-    /// Required SNR, 1/8192 dB.
-    pub(crate) fn required_fine(&self) -> i32 {
-        self.s.required
+    /// Required SNR, 1/8192 dB: of rate `m` with a rate table, else the
+    /// `required_snr_db` setting.
+    pub(crate) fn required_fine(&self, m: u8) -> i32 {
+        if self.plan.n == 0 {
+            self.s.required
+        } else {
+            self.plan.required(m)
+        }
+    }
+
+    /// Noise change of rate `m` against rate 0, 1/8192 dB.
+    pub(crate) fn norm_fine(&self, m: u8) -> i32 {
+        self.plan.norm(m)
+    }
+
+    /// Rates in the table.
+    pub(crate) fn rate_count(&self) -> u8 {
+        self.plan.n
+    }
+
+    /// Airtime of rate `m`, µs (`None` outside the table).
+    pub(crate) fn airtime_us(&self, m: u8) -> Option<u32> {
+        if m < self.plan.n {
+            Some(self.plan.airtime(m))
+        } else {
+            None
+        }
     }
 
     /// Whether the received power of `r` at the level in use reaches the far
@@ -1127,12 +1334,12 @@ impl<const W: usize> Controller<W> {
         delivered: bool,
         reading: Option<Result<(i32, i32), Reason>>,
     ) -> Decision {
-        self.apply(t, Some(delivered), reading, None)
+        self.apply(t, Some(delivered), reading, None, true)
     }
 
     /// Take a record that says nothing usable, for `why`.
     pub(crate) fn apply_nothing(&mut self, t: u64, why: Reason) -> Decision {
-        self.apply(t, None, None, Some(why))
+        self.apply(t, None, None, Some(why), true)
     }
 
     /// Loss to noise and noise floor of a feedback (1/8192 dB), or why it is
@@ -1297,10 +1504,11 @@ mod tests {
 
     #[test]
     fn state_is_small() {
-        // Cost target: the whole state of a W = 32 controller, settings
-        // included, fits in 256 bytes.
+        // Cost target: the whole state of a W = 32 controller, settings,
+        // rate table, energy profile and the hour of duty-cycle slots
+        // included, fits in 1 KiB (256 bytes of it the power controller).
         let total = core::mem::size_of::<Controller<32>>();
-        assert!(total <= 256, "state {total} bytes");
+        assert!(total <= 1024, "state {total} bytes");
         println!("Controller<32>: {total} bytes");
     }
 

@@ -23,14 +23,17 @@
 mod config;
 mod controller;
 mod fixed;
+mod rates;
 mod reason;
 mod replay;
 pub mod settings;
 
 pub use config::{
-    ConfigError, ControllerConfig, EirpCap, LevelTable, PowerSteps, MAX_LEVELS, MAX_WINDOW,
-    MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB,
+    ConfigError, ControllerConfig, DutyLimit, EirpCap, LevelTable, PowerSteps, MAX_LEVELS,
+    MAX_WINDOW, MIN_UNIFORM_STEP_DB, SETTING_LIMIT_DB,
 };
 pub use controller::{Controller, Decision, Mode, Observation};
 pub use reason::Reason;
-pub use replay::{Fleet, LoggedTotals, Outcome, Replay, ReplayStep, Summary, REPLAY_WINDOW};
+pub use replay::{
+    Fleet, LoggedTotals, Outcome, RateTotals, Replay, ReplayStep, Summary, REPLAY_WINDOW,
+};

@@ -41,11 +41,28 @@ pub enum Reason {
     IgnoredSaturated = 13,
     /// The reading is older than one already used.
     IgnoredStale = 14,
+    /// The rate changed to a faster one (less airtime): it now needs less
+    /// charge per delivered packet, or the link can no longer carry the
+    /// slower one's cost advantage.
+    RateFaster = 15,
+    /// The rate changed to a slower, more robust one: cheaper now, or the
+    /// faster one can no longer hold the target within the power limits.
+    RateSlower = 16,
+    /// The duty-cycle budget ruled out the rate the cost would choose: a
+    /// faster one that fits the budget was chosen instead.
+    DutyLimited = 17,
+    /// No rate fits the duty-cycle budget: the next packet is held (not
+    /// sent).
+    DutyHeld = 18,
+    /// The record's rate is not known (no `rate` field and no `logged_rate`
+    /// setting while the table gives noise bandwidths, or an index outside
+    /// the table): its readings cannot be judged.
+    IgnoredRateUnknown = 19,
 }
 
 impl Reason {
     /// Number of reasons (length of arrays indexed by [`Reason::index`]).
-    pub const COUNT: usize = 15;
+    pub const COUNT: usize = 20;
 
     /// Every reason, in code order.
     pub const ALL: [Reason; Reason::COUNT] = [
@@ -64,6 +81,11 @@ impl Reason {
         Reason::IgnoredImplausible,
         Reason::IgnoredSaturated,
         Reason::IgnoredStale,
+        Reason::RateFaster,
+        Reason::RateSlower,
+        Reason::DutyLimited,
+        Reason::DutyHeld,
+        Reason::IgnoredRateUnknown,
     ];
 
     /// Stable lower-case name for logs, CSV and JSON.
@@ -84,6 +106,11 @@ impl Reason {
             Reason::IgnoredImplausible => "ignored_implausible",
             Reason::IgnoredSaturated => "ignored_saturated",
             Reason::IgnoredStale => "ignored_stale",
+            Reason::RateFaster => "rate_faster",
+            Reason::RateSlower => "rate_slower",
+            Reason::DutyLimited => "duty_limited",
+            Reason::DutyHeld => "duty_held",
+            Reason::IgnoredRateUnknown => "ignored_rate_unknown",
         }
     }
 
@@ -107,6 +134,14 @@ impl Reason {
         Reason::ALL.iter().copied().find(|r| r.as_str() == name)
     }
 
+    /// `true` for the reasons that say the rate changed.
+    pub const fn is_rate_change(self) -> bool {
+        matches!(
+            self,
+            Reason::RateFaster | Reason::RateSlower | Reason::DutyLimited
+        )
+    }
+
     /// `true` for the reasons that say a reading was not used.
     pub const fn is_ignored_reading(self) -> bool {
         matches!(
@@ -115,6 +150,7 @@ impl Reason {
                 | Reason::IgnoredImplausible
                 | Reason::IgnoredSaturated
                 | Reason::IgnoredStale
+                | Reason::IgnoredRateUnknown
         )
     }
 }

@@ -8,6 +8,8 @@
 use super::config::{ConfigError, ControllerConfig};
 use super::controller::Controller;
 use super::reason::Reason;
+use crate::energy::{ChargeTable, EnergyProfile, Microcoulombs, Milliseconds};
+use crate::rate::MAX_RATES;
 use crate::record::LogRecord;
 use crate::units::{Db, Dbm};
 
@@ -22,6 +24,8 @@ pub enum Outcome {
     Lost = 1,
     /// The record lacks a reading: it cannot be judged.
     Unjudged = 2,
+    /// The duty-cycle budget held the packet: not sent, not delivered.
+    Held = 3,
 }
 
 impl Outcome {
@@ -31,6 +35,7 @@ impl Outcome {
             Outcome::Delivered => "delivered",
             Outcome::Lost => "lost",
             Outcome::Unjudged => "unjudged",
+            Outcome::Held => "held",
         }
     }
 
@@ -45,6 +50,7 @@ impl Outcome {
             0 => Some(Outcome::Delivered),
             1 => Some(Outcome::Lost),
             2 => Some(Outcome::Unjudged),
+            3 => Some(Outcome::Held),
             _ => None,
         }
     }
@@ -75,6 +81,20 @@ pub struct ReplayStep {
     pub reason: Reason,
     /// Power chosen for the next record.
     pub next_tx: Dbm,
+    /// Rate the controller chose for this record (an index into the rate
+    /// table; `None` when the table is empty).
+    pub rate: Option<u8>,
+    /// Rate chosen for the next record.
+    pub next_rate: Option<u8>,
+    /// Whether the duty-cycle budget holds the next record.
+    pub next_held: bool,
+    /// Airtime of this record's packet at its rate, µs (`None` without a
+    /// rate table; 0 when held).
+    pub airtime_us: Option<u32>,
+    /// Charge of this record's packet at its power and rate (`None`
+    /// without an energy profile; a held packet costs the profile's fixed
+    /// per-packet charge only: the device woke up, and did not transmit).
+    pub charge: Option<Microcoulombs>,
 }
 
 impl ReplayStep {
@@ -170,6 +190,32 @@ fn mw(p: f32) -> f64 {
     f64::from(libm::exp10f(p / 10.0))
 }
 
+/// A replay's totals at one rate of the table.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct RateTotals {
+    /// Records sent at this rate (held ones are not sent).
+    pub packets: u64,
+    /// Of those, the delivered ones.
+    pub delivered: u64,
+    /// Of those, the lost ones.
+    pub lost: u64,
+    /// Σ airtime, µs.
+    pub airtime_us: u64,
+    /// Σ charge, µC (with an energy profile).
+    pub charge_uc: f64,
+}
+
+impl RateTotals {
+    fn merge(&mut self, o: &RateTotals) {
+        self.packets += o.packets;
+        self.delivered += o.delivered;
+        self.lost += o.lost;
+        self.airtime_us += o.airtime_us;
+        self.charge_uc += o.charge_uc;
+    }
+}
+
 /// Running totals of a replay: of one log, or of a fleet of logs added up
 /// with [`Summary::merge`]. Every total is a count or a linear sum, public,
 /// so that totals computed anywhere (threads, machines) add up exactly.
@@ -209,7 +255,25 @@ pub struct Summary {
     /// Highest level the controller was allowed (of one log; the largest
     /// over merged logs).
     pub max_allowed: Dbm,
+    /// Records held by the duty-cycle budget (not sent; counted apart from
+    /// `judged`, and as not delivered: see [`Summary::delivered_fraction`]).
+    pub held: u64,
+    /// Decisions the duty-cycle budget shaped (reasons `duty_limited` and
+    /// `duty_held`).
+    pub duty_limited: u64,
+    /// Records whose rate differs from the previous record's.
+    pub rate_changes: u64,
+    /// Totals per rate of the table, in table order (all zero without one).
+    pub per_rate: [RateTotals; MAX_RATES],
+    /// Σ airtime of the packets sent, µs (with a rate table).
+    pub airtime_us: u64,
+    /// Σ charge of the records, µC (with an energy profile): the packets
+    /// sent, and the fixed per-packet charge of the held ones.
+    pub charge_uc: f64,
+    /// Records costed in `charge_uc`.
+    pub charged: u64,
     last_chosen: Option<f32>,
+    last_rate: Option<u8>,
     last_mw: f64,
     last_logged: Option<f32>,
     last_logged_mw: f64,
@@ -235,7 +299,15 @@ impl Summary {
             max_mw_sum: 0.0,
             logged: LoggedTotals::default(),
             max_allowed,
+            held: 0,
+            duty_limited: 0,
+            rate_changes: 0,
+            per_rate: [RateTotals::default(); MAX_RATES],
+            airtime_us: 0,
+            charge_uc: 0.0,
+            charged: 0,
             last_chosen: None,
+            last_rate: None,
             last_mw: 0.0,
             last_logged: None,
             last_logged_mw: 0.0,
@@ -260,6 +332,34 @@ impl Summary {
                 self.lost += 1;
             }
             Outcome::Unjudged => self.unjudged += 1,
+            Outcome::Held => self.held += 1,
+        }
+        if matches!(s.reason, Reason::DutyLimited | Reason::DutyHeld) {
+            self.duty_limited += 1;
+        }
+        if let Some(m) = s.rate {
+            if self.last_rate.is_some_and(|l| l != m) {
+                self.rate_changes += 1;
+            }
+            self.last_rate = Some(m);
+            if s.outcome != Outcome::Held {
+                let air = u64::from(s.airtime_us.unwrap_or(0));
+                self.airtime_us += air;
+                if let Some(t) = self.per_rate.get_mut(usize::from(m)) {
+                    t.packets += 1;
+                    t.airtime_us += air;
+                    t.charge_uc += s.charge.map_or(0.0, |c| f64::from(c.0));
+                    match s.outcome {
+                        Outcome::Delivered => t.delivered += 1,
+                        Outcome::Lost => t.lost += 1,
+                        _ => {}
+                    }
+                }
+            }
+        }
+        if let Some(c) = s.charge {
+            self.charge_uc += f64::from(c.0);
+            self.charged += 1;
         }
         if s.at_max && s.outcome != Outcome::Unjudged {
             self.judged_at_max += 1;
@@ -343,6 +443,42 @@ impl Summary {
         self.tx_mw_sum += other.tx_mw_sum;
         self.max_mw_sum += other.max_mw_sum;
         self.logged.merge(&other.logged);
+        self.held += other.held;
+        self.duty_limited += other.duty_limited;
+        self.rate_changes += other.rate_changes;
+        for (a, b) in self.per_rate.iter_mut().zip(other.per_rate.iter()) {
+            a.merge(b);
+        }
+        self.airtime_us += other.airtime_us;
+        self.charge_uc += other.charge_uc;
+        self.charged += other.charged;
+    }
+
+    /// Delivered / (judged + held): held packets count as not delivered
+    /// (`None` before a judged or held record).
+    pub fn delivered_fraction(&self) -> Option<f32> {
+        ratio(self.judged - self.lost, self.judged + self.held)
+    }
+
+    /// Σ charge / delivered packets, µC (`None` without an energy profile
+    /// or before a delivered packet). Every record's charge counts,
+    /// unjudged and held ones included.
+    pub fn charge_per_delivered_uc(&self) -> Option<f64> {
+        let delivered = self.judged - self.lost;
+        if self.charged == 0 || delivered == 0 {
+            None
+        } else {
+            #[allow(clippy::cast_precision_loss)] // a count far below 2⁵³
+            Some(self.charge_uc / delivered as f64)
+        }
+    }
+
+    /// Share of the records sent at rate `m` among all records sent at a
+    /// rate (`None` before one).
+    pub fn rate_share(&self, m: u8) -> Option<f32> {
+        let total: u64 = self.per_rate.iter().map(|t| t.packets).sum();
+        let at = self.per_rate.get(usize::from(m))?.packets;
+        ratio(at, total)
     }
 
     /// Lost / judged (`None` before a judged record).
@@ -444,23 +580,33 @@ impl Fleet {
 ///
 /// ## Semantics
 /// Records are taken one at a time, in order. For record `k`:
-/// 1. the controller's power `chosen` for record `k` is the one it decided
-///    from the observations of records before `k`;
+/// 1. the controller's power `chosen` (and rate `m`, with a rate table)
+///    for record `k` is the one it decided from the observations of records
+///    before `k`;
 /// 2. the channel of record `k` is the logged one. The controller's loss to
 ///    noise `z = tx − (rssi − noise)` does not depend on the power sent, so
 ///    the replayed SNR is `chosen − z` (= `rssi − tx + chosen − noise`), and
 ///    the replayed received power `rssi − tx + chosen`; both are computed
-///    in the controller's own fixed point (1/8192 dB), once;
-/// 3. the packet is lost when the replayed SNR is below the required SNR;
-///    the same rule judges the logged packet (`rssi − noise` at the logged
-///    power), for [`Summary::logged`];
+///    in the controller's own fixed point (1/8192 dB), once. Across rates
+///    the noise floor scales with the rate's noise bandwidth: the replayed
+///    SNR at rate `m` is `rssi − tx + chosen − noise − 10·log10(B_m /
+///    B_logged)`, where `B_logged` is the bandwidth of the rate the record
+///    was sent at: its `rate` field, else the `logged_rate` setting; when
+///    the table gives bandwidths and neither says, the record is not judged
+///    (reason `ignored_rate_unknown`: the rate is never guessed). A table
+///    without bandwidths has no noise change;
+/// 3. the packet is lost when the replayed SNR is below the required SNR
+///    (of rate `m`, with a rate table); the same rule judges the logged
+///    packet (`rssi − noise` at the logged power, against the logged rate's
+///    required SNR), for [`Summary::logged`] (not judged when the logged
+///    rate is unknown);
 /// 4. a lost packet gives the controller a loss and no readings. A
 ///    delivered one gives it the far end's report of the replayed packet:
-///    its loss to noise and noise floor, unless the replayed received power
-///    is at or above `rssi_saturation_dbm`: the far end's reading would then
-///    be clipped, so the controller ignores it, as it would live (reason
-///    `ignored_saturated`). Saturation clips the report, not the packet: the
-///    packet is delivered;
+///    its loss to noise and noise floor (at rate `m`'s bandwidth), unless
+///    the replayed received power is at or above `rssi_saturation_dbm`: the
+///    far end's reading would then be clipped, so the controller ignores
+///    it, as it would live (reason `ignored_saturated`). Saturation clips
+///    the report, not the packet: the packet is delivered;
 /// 5. a record with a missing reading, or whose *logged* readings would be
 ///    refused as a live feedback (NaN or infinite; a transmit power outside
 ///    the radio's `min_tx_dbm..max_tx_dbm` by more than 1 dB; an RSSI or
@@ -468,7 +614,18 @@ impl Fleet {
 ///    `noise_min_dbm..noise_max_dbm`; an RSSI at or above
 ///    `rssi_saturation_dbm`), cannot be judged: it is counted apart
 ///    (the reason in [`Summary::ignored_readings`] for the bad ones) and
-///    the controller learns nothing from it.
+///    the controller learns nothing from it. Its packet was sent: its
+///    airtime and charge count;
+/// 6. when the controller's decision held record `k` (no rate fits the
+///    duty-cycle budget), the packet is not sent: outcome
+///    [`Outcome::Held`], counted in [`Summary::held`] apart from the judged
+///    ones and as not delivered ([`Summary::delivered_fraction`]); it takes
+///    no airtime, costs only the profile's fixed per-packet charge (the
+///    device woke up), and the controller learns nothing but the time.
+///
+/// With an empty rate table, or a table of one rate whose required SNR is
+/// `required_snr_db`, and no duty limit, every decision and every total is
+/// the power-only controller's, bit for bit.
 ///
 /// Each logged reading is checked once, by the controller's own feedback
 /// check. A logged reading clipped by a receiver just below its saturation
@@ -479,53 +636,157 @@ impl Fleet {
 pub struct Replay<const W: usize> {
     controller: Controller<W>,
     summary: Summary,
+    profile: Option<EnergyProfile>,
+    /// Index of the `logged_rate` setting in the table.
+    logged_rate: Option<u8>,
+    /// Whether the rate table gives noise bandwidths.
+    bandwidths: bool,
 }
 
 impl<const W: usize> Replay<W> {
-    /// A replay with a fresh controller.
+    /// A replay with a fresh controller (a table of more than one rate
+    /// needs an energy profile: [`Replay::with_energy`]).
     pub fn new(cfg: ControllerConfig) -> Result<Self, ConfigError> {
-        let controller = Controller::<W>::new(cfg)?;
+        Self::build(cfg, None)
+    }
+
+    /// A replay that costs every packet with `profile` (charge per packet
+    /// at the chosen power and the chosen rate's airtime) and lets the
+    /// controller choose among the rates by that cost.
+    pub fn with_energy(
+        cfg: ControllerConfig,
+        profile: &EnergyProfile,
+    ) -> Result<Self, ConfigError> {
+        Self::build(cfg, Some(*profile))
+    }
+
+    fn build(cfg: ControllerConfig, profile: Option<EnergyProfile>) -> Result<Self, ConfigError> {
+        let charge = match &profile {
+            Some(p) => {
+                Some(
+                    ChargeTable::from_profile(p).map_err(|_| ConfigError::Inconsistent {
+                        setting: "rates",
+                        why: "the energy profile's transmit current table has too many points",
+                    })?,
+                )
+            }
+            None => None,
+        };
+        let controller = Controller::<W>::with_charge(cfg, charge)?;
         let summary = Summary::new(controller.limits().1);
         Ok(Replay {
             controller,
             summary,
+            profile,
+            logged_rate: cfg.logged_rate.and_then(|n| cfg.rates.index_of(n.as_str())),
+            bandwidths: cfg
+                .rates
+                .get(0)
+                .is_some_and(|r| r.noise_bandwidth_hz.is_some()),
         })
+    }
+
+    /// The rate record `rec` was sent at: `Ok(Some(index))`, `Ok(None)`
+    /// when it does not matter (no table, or no bandwidths and no rate
+    /// said), `Err` when it is needed and unknown.
+    fn logged_rate_of(&self, rec: &LogRecord) -> Result<Option<u8>, Reason> {
+        let n = self.controller.rate_count();
+        if n == 0 {
+            return Ok(None);
+        }
+        match rec.rate.or(self.logged_rate) {
+            Some(i) if i < n => Ok(Some(i)),
+            Some(_) => Err(Reason::IgnoredRateUnknown),
+            None if self.bandwidths => Err(Reason::IgnoredRateUnknown),
+            None => Ok(None),
+        }
+    }
+
+    /// Airtime of rate `m` as the profile costs it, and the packet's cost.
+    fn cost(
+        &self,
+        chosen: Dbm,
+        rate: Option<u8>,
+        held: bool,
+    ) -> (Option<u32>, Option<Microcoulombs>) {
+        let air = rate.and_then(|m| self.controller.airtime_us(m));
+        let charge = self.profile.as_ref().and_then(|p| {
+            if held {
+                return Some(p.per_packet());
+            }
+            let airtime = match air {
+                Some(us) => Milliseconds(us as f32 / 1000.0),
+                None => p.airtime(),
+            };
+            p.packet_cost_for(chosen, airtime).ok().map(|c| c.charge)
+        });
+        (if held { air.map(|_| 0) } else { air }, charge)
     }
 
     /// Replay one record (see [`Replay`] for the semantics).
     pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
+        let logged_rate = self.logged_rate_of(rec);
         let c = &mut self.controller;
         let chosen = c.tx();
+        let rate = c.rate();
+        let held = c.is_held();
         let at_max = c.at_top();
         let t_ms = rec.t_ms;
+        let m = rate.unwrap_or(0);
         let (outcome, snr, logged_lost, d) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
-            (Some(tx), Some(rssi), Some(noise)) => match c.check_logged(tx, rssi, noise) {
-                Err(why) => (Outcome::Unjudged, None, None, c.apply_nothing(t_ms, why)),
-                Ok(r) => {
-                    let required = c.required_fine();
-                    let snr = c.snr_at_level(&r);
-                    let logged_lost = Some(r.logged_snr < required);
-                    if snr < required {
-                        let d = c.apply_replayed(t_ms, false, None);
-                        (Outcome::Lost, Some(snr), logged_lost, d)
-                    } else {
-                        let reading = if c.saturates_at_level(&r) {
-                            Err(Reason::IgnoredSaturated)
+            (Some(tx), Some(rssi), Some(noise)) => {
+                match (c.check_logged(tx, rssi, noise), logged_rate) {
+                    (Err(why), _) | (Ok(_), Err(why)) => {
+                        if held {
+                            (Outcome::Held, None, None, c.held(t_ms))
                         } else {
-                            Ok((r.z, r.noise))
+                            (Outcome::Unjudged, None, None, c.apply_nothing(t_ms, why))
+                        }
+                    }
+                    (Ok(r), Ok(logged)) => {
+                        let norm_log = logged.map_or(0, |l| c.norm_fine(l));
+                        let logged_lost = match logged {
+                            Some(l) => Some(r.logged_snr < c.required_fine(l)),
+                            None if c.rate_count() == 0 => Some(r.logged_snr < c.required_fine(0)),
+                            None => None,
                         };
-                        let d = c.apply_replayed(t_ms, true, Some(reading));
-                        (Outcome::Delivered, Some(snr), logged_lost, d)
+                        if held {
+                            (Outcome::Held, None, logged_lost, c.held(t_ms))
+                        } else {
+                            // The noise change from the logged rate to rate m.
+                            let shift = c.norm_fine(m).saturating_sub(norm_log);
+                            let required = c.required_fine(m);
+                            let snr = c.snr_at_level(&r).saturating_sub(shift);
+                            if snr < required {
+                                let d = c.apply_replayed(t_ms, false, None);
+                                (Outcome::Lost, Some(snr), logged_lost, d)
+                            } else {
+                                let reading = if c.saturates_at_level(&r) {
+                                    Err(Reason::IgnoredSaturated)
+                                } else {
+                                    Ok((r.z.saturating_add(shift), r.noise.saturating_add(shift)))
+                                };
+                                let d = c.apply_replayed(t_ms, true, Some(reading));
+                                (Outcome::Delivered, Some(snr), logged_lost, d)
+                            }
+                        }
                     }
                 }
-            },
-            _ => (
-                Outcome::Unjudged,
-                None,
-                None,
-                c.apply_nothing(t_ms, Reason::NoInformation),
-            ),
+            }
+            _ => {
+                if held {
+                    (Outcome::Held, None, None, c.held(t_ms))
+                } else {
+                    (
+                        Outcome::Unjudged,
+                        None,
+                        None,
+                        c.apply_nothing(t_ms, Reason::NoInformation),
+                    )
+                }
+            }
         };
+        let (airtime_us, charge) = self.cost(chosen, rate, held);
         let step = ReplayStep {
             t_ms,
             chosen,
@@ -537,19 +798,25 @@ impl<const W: usize> Replay<W> {
             margin: d.margin(),
             reason: d.reason,
             next_tx: d.tx,
+            rate,
+            next_rate: d.rate,
+            next_held: d.held,
+            airtime_us,
+            charge,
         };
         self.summary.add(rec, &step);
         step
     }
 
-    /// The received power below which the packet of `rec` is lost: its
-    /// logged noise floor plus the required SNR (`None` without a noise
-    /// floor).
+    /// The received power below which the packet of `rec` is lost at the
+    /// rate the controller chose for it: its logged noise floor plus the
+    /// required SNR (`None` without a noise floor).
     pub fn loss_threshold(&self, rec: &LogRecord) -> Option<Dbm> {
         let noise = rec.noise_dbm.filter(|n| n.is_finite())?;
+        let m = self.controller.rate().unwrap_or(0);
         Some(Dbm(noise
             + Controller::<W>::db_of_fine(
-                self.controller.required_fine(),
+                self.controller.required_fine(m),
             )))
     }
 
@@ -598,6 +865,11 @@ mod tests {
             margin: Db(0.0),
             reason: Reason::Hold,
             next_tx: Dbm(p),
+            rate: None,
+            next_rate: None,
+            next_held: false,
+            airtime_us: None,
+            charge: None,
         }
     }
 

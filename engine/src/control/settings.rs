@@ -42,7 +42,8 @@
 
 use core::fmt;
 
-use super::config::{ConfigError, ControllerConfig, EirpCap, PowerSteps};
+use super::config::{ConfigError, ControllerConfig, DutyLimit, EirpCap, PowerSteps};
+use crate::rate::{RateName, RateTable};
 use crate::record::LogHeader;
 use crate::units::{Db, Dbi, Dbm};
 
@@ -108,6 +109,14 @@ pub enum Kind {
     Steps,
     /// The EIRP cap ([`EirpCap`]).
     Cap,
+    /// A fraction in [0, 1).
+    Fraction,
+    /// A duty-cycle limit ([`DutyLimit`]).
+    Duty,
+    /// The name of a rate of the rate table.
+    RateName,
+    /// A rate table ([`RateTable`]).
+    Rates,
 }
 
 macro_rules! settings_table {
@@ -195,11 +204,24 @@ settings_table! {
     NoiseMaxDbm => "noise_max_dbm", Dbm, Plausibility;
     /// `default_noise_dbm`.
     DefaultNoiseDbm => "default_noise_dbm", Dbm, Plausibility;
+    /// `rates`: the radio's rate table (from a radio profile or the log
+    /// header); default: none (power only).
+    Rates => "rates", Rates, RadioFact;
+    /// `logged_rate`: the rate a log's records were sent at when they do
+    /// not say; no default.
+    LoggedRate => "logged_rate", RateName, RadioFact;
+    /// `duty_limit`: fraction of any hour on air; no default (none).
+    DutyLimit => "duty_limit", Duty, RadioFact;
+    /// `rate_hysteresis`: fraction of charge a rate must save to replace
+    /// the one in use.
+    RateHysteresis => "rate_hysteresis", Fraction, Tuning;
+    /// `rate_dwell`: packets between two rate changes made for cost.
+    RateDwell => "rate_dwell", Count, Tuning;
 }
 
 impl Setting {
     /// Number of settings.
-    pub const COUNT: usize = 25;
+    pub const COUNT: usize = 30;
 
     /// The setting named `key`, if any.
     pub fn from_key(key: &str) -> Option<Setting> {
@@ -230,6 +252,12 @@ pub enum Value {
     Steps(PowerSteps),
     /// An EIRP cap.
     Cap(EirpCap),
+    /// A duty-cycle limit.
+    Duty(DutyLimit),
+    /// A rate's name (`None`: not given).
+    Rate(Option<RateName>),
+    /// A rate table.
+    Rates(RateTable),
 }
 
 /// Why settings could not be resolved.
@@ -307,14 +335,19 @@ impl Layer {
     /// The built-in defaults: how the controller moves the power and which
     /// readings are believable (the values of
     /// [`ControllerConfig::sub_ghz_node`]), a radio settable from −9 to
-    /// +22 dBm in 1 dB steps, antennas of 0 dBi (unknown: isotropic). No
-    /// required SNR, no EIRP cap, no start power (see the module's doc).
+    /// +22 dBm in 1 dB steps, antennas of 0 dBi (unknown: isotropic), no
+    /// rate table (the power only), a rate hysteresis of 0.1 and a dwell of
+    /// 8 packets. No required SNR, no EIRP cap, no start power, no duty
+    /// limit, no logged rate (see the module's doc).
     pub const fn defaults() -> Self {
         let mut values = ControllerConfig::sub_ghz_node();
         values.antenna_gain_dbi = Dbi(0.0);
         values.far_antenna_gain_dbi = Dbi(0.0);
         values.eirp_cap_dbm = EirpCap::NoCap;
-        let unset = (1 << Setting::RequiredSnrDb.index()) | (1 << Setting::StartTxDbm.index());
+        let unset = (1 << Setting::RequiredSnrDb.index())
+            | (1 << Setting::StartTxDbm.index())
+            | (1 << Setting::LoggedRate.index())
+            | (1 << Setting::DutyLimit.index());
         Layer {
             values,
             set: ((1u32 << Setting::COUNT) - 1) & !unset,
@@ -331,7 +364,8 @@ impl Layer {
 
     /// The settings a log header carries: `min_tx_dbm`, `max_tx_dbm`,
     /// `steps` (a uniform step of `tx_step_db`), `antenna_gain_dbi`,
-    /// `required_snr_db` and `eirp_cap_dbm`, each when the header has it.
+    /// `required_snr_db`, `eirp_cap_dbm` and `rates`, each when the header
+    /// has it (a header with an empty rate table sets no `rates`).
     pub fn from_header(h: &LogHeader) -> Self {
         let mut l = Layer::empty();
         // Each value has its setting's kind: no error is possible.
@@ -357,6 +391,10 @@ impl Layer {
         put(
             Setting::EirpCapDbm,
             h.eirp_cap.map(|v| Value::Cap(EirpCap::AtMost(v))),
+        );
+        put(
+            Setting::Rates,
+            (!h.rates.is_empty()).then_some(Value::Rates(h.rates)),
         );
         l
     }
@@ -429,6 +467,11 @@ fn read(c: &ControllerConfig, s: Setting) -> Value {
         S::NoiseMinDbm => n(c.noise_min_dbm.0),
         S::NoiseMaxDbm => n(c.noise_max_dbm.0),
         S::DefaultNoiseDbm => n(c.default_noise_dbm.0),
+        S::Rates => Value::Rates(c.rates),
+        S::LoggedRate => Value::Rate(c.logged_rate),
+        S::DutyLimit => Value::Duty(c.duty_limit),
+        S::RateHysteresis => n(c.rate_hysteresis),
+        S::RateDwell => Value::Whole(u32::from(c.rate_dwell)),
     }
 }
 
@@ -442,7 +485,10 @@ fn write(c: &mut ControllerConfig, s: Setting, v: Value) -> Result<(), ResolveEr
         })
     };
     match (s.kind(), v) {
-        (Kind::Db | Kind::Dbm | Kind::Dbi | Kind::Probability, Value::Number(x)) => match s {
+        (
+            Kind::Db | Kind::Dbm | Kind::Dbi | Kind::Probability | Kind::Fraction,
+            Value::Number(x),
+        ) => match s {
             S::RequiredSnrDb => c.required_snr_db = Db(x),
             S::TargetOutage => c.target_outage = x,
             S::MinTxDbm => c.min_tx_dbm = Dbm(x),
@@ -462,17 +508,22 @@ fn write(c: &mut ControllerConfig, s: Setting, v: Value) -> Result<(), ResolveEr
             S::NoiseMinDbm => c.noise_min_dbm = Dbm(x),
             S::NoiseMaxDbm => c.noise_max_dbm = Dbm(x),
             S::DefaultNoiseDbm => c.default_noise_dbm = Dbm(x),
+            S::RateHysteresis => c.rate_hysteresis = x,
             _ => return Err(wrong),
         },
         (Kind::Count, Value::Whole(x)) => match s {
             S::MinReadings => c.min_readings = count(x)?,
             S::SpreadMemory => c.spread_memory = count(x)?,
             S::ClimbAfterLosses => c.climb_after_losses = count(x)?,
+            S::RateDwell => c.rate_dwell = count(x)?,
             _ => return Err(wrong),
         },
         (Kind::Milliseconds, Value::Whole(x)) => c.stale_after_ms = x,
         (Kind::Steps, Value::Steps(x)) => c.steps = x,
         (Kind::Cap, Value::Cap(x)) => c.eirp_cap_dbm = x,
+        (Kind::Duty, Value::Duty(x)) => c.duty_limit = x,
+        (Kind::RateName, Value::Rate(x)) => c.logged_rate = x,
+        (Kind::Rates, Value::Rates(x)) => c.rates = x,
         _ => return Err(wrong),
     }
     Ok(())
@@ -521,6 +572,13 @@ pub fn resolve(
         (Source::Config, config),
         (Source::Default, defaults),
     ];
+    let rates_given = layers
+        .iter()
+        .find_map(|(src, l)| match l.get(Setting::Rates) {
+            Some(Value::Rates(t)) => Some((*src, t)),
+            _ => None,
+        })
+        .filter(|(_, t)| !t.is_empty());
     for s in Setting::ALL {
         let found = layers
             .iter()
@@ -535,10 +593,31 @@ pub fn resolve(
             None => match s {
                 // Nothing caps the EIRP unless someone says so.
                 Setting::EirpCapDbm => cfg.eirp_cap_dbm = EirpCap::NoCap,
+                // No duty budget unless someone states the regional limit.
+                Setting::DutyLimit => cfg.duty_limit = DutyLimit::NoLimit,
+                // The records say, or the replay refuses where it matters.
+                Setting::LoggedRate => cfg.logged_rate = None,
+                Setting::Rates => cfg.rates = RateTable::empty(),
+                // With a rate table each rate has its own: checked below.
+                Setting::RequiredSnrDb if rates_given.is_some() => {}
                 // Filled in below, from the limits in force.
                 Setting::StartTxDbm => {}
                 _ => return Err(ResolveError::Missing(s)),
             },
+        }
+    }
+    // With a rate table and no required SNR anywhere, `required_snr_db` is
+    // the first rate's (the one the controller starts at), from the table's
+    // source: each rate's own required SNR decides its packets.
+    if let Some((src, t)) = rates_given {
+        let unset = !layers.iter().any(|(_, l)| l.is_set(Setting::RequiredSnrDb));
+        if unset {
+            if let Some(first) = t.get(0) {
+                cfg.required_snr_db = first.required_snr;
+            }
+            if let Some(slot) = sources.get_mut(Setting::RequiredSnrDb.index()) {
+                *slot = src;
+            }
         }
     }
     let start_set = layers.iter().any(|(_, l)| l.is_set(Setting::StartTxDbm));

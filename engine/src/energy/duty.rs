@@ -100,6 +100,131 @@ pub fn en_300_220_sub_bands(
         .filter(move |b| b.contains(centre, bandwidth))
 }
 
+/// Length of one slot of an [`AirtimeWindow`], ms (one minute).
+pub const SLOT_MS: u64 = 60_000;
+
+/// Slots of an [`AirtimeWindow`]: the 60 slots of one hour, one more for a
+/// window that does not start on a slot boundary, and one more for the
+/// packets that started before the window (at most one minute, the longest
+/// airtime of a rate) and still overlap it.
+pub const WINDOW_SLOTS: usize = 62;
+
+/// One hour, ms.
+const HOUR_MS: f32 = 3_600_000.0;
+
+/// A duty-cycle budget that is a guarantee: the airtime of the last hour
+/// in a fixed ring of one-minute slots, O(1) per packet, no allocation.
+///
+/// ## The rule and why it holds
+/// Each packet's airtime goes into the slot of its start time. A packet may
+/// be sent only when the sum over the whole ring (its own slot and the 61
+/// before it) plus its airtime stays within the limit
+/// ([`AirtimeWindow::fits`]).
+///
+/// Take any window of one hour `[a, a + 1 h)`. A packet that overlaps it
+/// started in `[a − 1 min, a + 1 h)` (no airtime exceeds one minute), an
+/// interval of 61 minutes, which touches at most 62 consecutive slots. Let
+/// `p` be the last packet that started there: when it was sent the ring
+/// held exactly the 62 slots ending at `p`'s slot, which include every
+/// packet that overlaps the window, and their sum with `p` was within the
+/// limit. So the airtime inside any one-hour window, however it is placed,
+/// is at most the limit. The price is pessimism of at most two minutes of
+/// history in 62.
+///
+/// Time stamps are taken as non-decreasing: a packet stamped before the
+/// current slot counts in the current slot. A gap of more than 62 slots
+/// clears the ring at once.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct AirtimeWindow {
+    /// Airtime started in each slot, µs.
+    slots: [u32; WINDOW_SLOTS],
+    /// Sum over the ring, µs (at most the limit plus one airtime).
+    sum: u32,
+    /// Most airtime in any hour, µs.
+    limit_us: u32,
+    /// Start of the current slot, ms (meaningful once `started`).
+    slot_start_ms: u64,
+    /// Index of the current slot.
+    head: u8,
+    started: bool,
+}
+
+impl AirtimeWindow {
+    /// An empty window for a limit of `fraction` of each hour, in (0, 1].
+    pub fn new(fraction: f32) -> Result<Self> {
+        let f = within("duty_limit", positive("duty_limit", fraction)?, 0.0, 1.0)?;
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        // At most 3.6·10⁹ µs: fits a u32. Rounded down: never above the limit.
+        let limit_us = libm::floor(f64::from(f) * f64::from(HOUR_MS) * 1000.0) as u32;
+        Ok(AirtimeWindow {
+            slots: [0; WINDOW_SLOTS],
+            sum: 0,
+            limit_us,
+            slot_start_ms: 0,
+            head: 0,
+            started: false,
+        })
+    }
+
+    /// The limit, µs of airtime in any hour.
+    pub fn limit_us(&self) -> u32 {
+        self.limit_us
+    }
+
+    /// Airtime in the ring now, µs.
+    pub fn used_us(&self) -> u32 {
+        self.sum
+    }
+
+    /// Airtime a packet may still take now, µs.
+    pub fn remaining_us(&self) -> u32 {
+        self.limit_us.saturating_sub(self.sum)
+    }
+
+    /// Move the ring to time `t_ms`: the slots that left it are dropped.
+    /// O(1): at most [`WINDOW_SLOTS`] slots are cleared.
+    pub fn advance(&mut self, t_ms: u64) {
+        if !self.started {
+            self.started = true;
+            self.slot_start_ms = t_ms;
+            return;
+        }
+        let mut moved = 0usize;
+        while t_ms.saturating_sub(self.slot_start_ms) >= SLOT_MS {
+            if moved >= WINDOW_SLOTS {
+                // Everything has left the ring: start afresh at t.
+                self.slots = [0; WINDOW_SLOTS];
+                self.sum = 0;
+                self.slot_start_ms = t_ms;
+                return;
+            }
+            let next = usize::from(self.head) + 1;
+            let next = if next >= WINDOW_SLOTS { 0 } else { next };
+            self.head = u8::try_from(next).unwrap_or(0);
+            if let Some(s) = self.slots.get_mut(next) {
+                self.sum = self.sum.saturating_sub(*s);
+                *s = 0;
+            }
+            self.slot_start_ms = self.slot_start_ms.saturating_add(SLOT_MS);
+            moved += 1;
+        }
+    }
+
+    /// Whether a packet of `airtime_us` fits the budget now.
+    pub fn fits(&self, airtime_us: u32) -> bool {
+        u64::from(self.sum) + u64::from(airtime_us) <= u64::from(self.limit_us)
+    }
+
+    /// Count a packet of `airtime_us` sent now (after [`AirtimeWindow::advance`]).
+    pub fn add(&mut self, airtime_us: u32) {
+        if let Some(s) = self.slots.get_mut(usize::from(self.head)) {
+            *s = s.saturating_add(airtime_us);
+        }
+        self.sum = self.sum.saturating_add(airtime_us);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -116,6 +241,29 @@ mod tests {
         assert!((t.0 - 4.1216).abs() < 1e-5);
         assert!(min_interval(Milliseconds(41.216), 1.5).is_err());
         assert!(duty_cycle(Milliseconds(1.0), Seconds(0.0)).is_err());
+    }
+
+    #[test]
+    fn the_window_forgets_after_62_slots_and_refuses_beyond_the_limit() {
+        // 1 % of an hour: 36 s of airtime, less the f32's representation
+        // of 0.01 (0.0099999998), rounded down: 35 999 999 µs.
+        let mut w = AirtimeWindow::new(0.01).unwrap_or_else(|_| unreachable!());
+        assert_eq!(w.limit_us(), 35_999_999);
+        w.advance(0);
+        assert!(w.fits(35_999_999));
+        assert!(!w.fits(36_000_000));
+        w.add(30_000_000);
+        w.advance(61 * SLOT_MS);
+        assert!(!w.fits(6_000_001));
+        // The slot of t = 0 leaves the ring at 62 slots.
+        w.advance(62 * SLOT_MS);
+        assert_eq!(w.used_us(), 0);
+        assert!(w.fits(35_999_999));
+        w.add(1);
+        w.advance(10_000 * SLOT_MS);
+        assert_eq!(w.used_us(), 0);
+        assert!(AirtimeWindow::new(0.0).is_err());
+        assert!(AirtimeWindow::new(1.5).is_err());
     }
 
     #[test]

@@ -10,8 +10,9 @@
 //! | file | what lives there |
 //! |---|---|
 //! | [`profile`] | the radio energy profile, charge per packet, mean current, battery life, resends |
+//! | [`charge`] | the profile's charge per packet in the controller's integers (rate choice) |
 //! | [`airtime`] | time on air of a generic packet modem and of chirp spread spectrum |
-//! | [`duty`] | duty cycle, airtime per hour, EN 300 220 sub-band limits |
+//! | [`duty`] | duty cycle, airtime per hour, EN 300 220 sub-band limits, the sliding airtime budget of one hour |
 //! | [`tally`] | linear sums of charge and airtime that add up over records and devices |
 //! | [`replay`] | the two tallies of a replay: the controller's packets and the device's |
 //!
@@ -27,13 +28,15 @@
 //! nothing here allocates or panics.
 
 pub mod airtime;
+pub mod charge;
 pub mod duty;
 pub mod profile;
 pub mod replay;
 pub mod tally;
 
 pub use airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
-pub use duty::{SubBand, EN_300_220_SUB_BANDS};
+pub use charge::ChargeTable;
+pub use duty::{AirtimeWindow, SubBand, EN_300_220_SUB_BANDS};
 pub use profile::{
     Battery, Delivery, EnergyProfile, PacketCost, Refinements, TableError, TxCurrentTable, TxPoint,
     TX_POINTS,

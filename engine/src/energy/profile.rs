@@ -413,12 +413,19 @@ impl<const N: usize> EnergyProfile<N> {
     /// What one packet sent at `p` costs:
     /// `I_tx(p) · airtime + I_rx · rx_window + per_packet`.
     pub fn packet_cost(&self, p: Dbm) -> Result<PacketCost> {
+        self.packet_cost_for(p, self.airtime)
+    }
+
+    /// What one packet sent at `p` for `airtime` costs (a packet at a rate
+    /// of a rate table: the profile's costing with that rate's airtime):
+    /// `I_tx(p) · airtime + I_rx · rx_window + per_packet`.
+    pub fn packet_cost_for(&self, p: Dbm, airtime: Milliseconds) -> Result<PacketCost> {
         let tx = self.tx_current.current_at(p)?;
-        let radio = tx.0 * self.airtime.0 + self.rx_current.0 * self.rx_window.0;
+        let radio = tx.0 * airtime.0 + self.rx_current.0 * self.rx_window.0;
         Ok(PacketCost {
             charge: Microcoulombs(radio + self.per_packet.0),
             radio_charge: Microcoulombs(radio),
-            airtime: self.airtime,
+            airtime,
         })
     }
 

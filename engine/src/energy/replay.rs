@@ -2,7 +2,9 @@
 //! device's own, each as an [`EnergyTally`], judged by the replay's rule.
 //!
 //! For each record, the replayed packet is costed at the power the
-//! controller chose, delivered or lost as the replay judged it; the logged
+//! controller chose (and the chosen rate's airtime, with a rate table),
+//! delivered or lost as the replay judged it (a packet held by the duty
+//! budget costs the fixed per-packet charge only and is not delivered); the logged
 //! packet at the power the device logged, delivered or lost as the same rule
 //! judged it (a record whose readings cannot be judged counts its charge but
 //! is neither). A record without a finite logged power is not costed on the
@@ -10,7 +12,7 @@
 //! or from a fixed interval when one is given (`k · interval` for the k-th
 //! record).
 
-use super::{EnergyProfile, EnergyTally};
+use super::{EnergyProfile, EnergyTally, Microcoulombs, Milliseconds, PacketCost};
 use crate::control::{Outcome, ReplayStep};
 use crate::error::Result;
 use crate::record::LogRecord;
@@ -58,11 +60,24 @@ impl ReplayEnergy {
         let sleep = profile.sleep_current();
         let judged = match step.outcome {
             Outcome::Delivered => Some(true),
-            Outcome::Lost => Some(false),
+            // A held packet is not delivered.
+            Outcome::Lost | Outcome::Held => Some(false),
             Outcome::Unjudged => None,
         };
-        self.replayed
-            .add(t, &profile.packet_cost(step.chosen)?, sleep, judged);
+        let cost = match (step.outcome, step.airtime_us) {
+            // Not sent: the wake-up only.
+            (Outcome::Held, _) => PacketCost {
+                charge: profile.per_packet(),
+                radio_charge: Microcoulombs(0.0),
+                airtime: Milliseconds(0.0),
+            },
+            // At the rate's airtime.
+            (_, Some(us)) => {
+                profile.packet_cost_for(step.chosen, Milliseconds(us as f32 / 1000.0))?
+            }
+            _ => profile.packet_cost(step.chosen)?,
+        };
+        self.replayed.add(t, &cost, sleep, judged);
         match rec.tx_dbm.filter(|p| p.is_finite()) {
             Some(p) => {
                 let cost = profile.packet_cost(Dbm(p))?;
@@ -88,7 +103,7 @@ impl ReplayEnergy {
 mod tests {
     use super::*;
     use crate::control::Reason;
-    use crate::energy::{Microamps, Microcoulombs, Milliamps, Milliseconds, TxCurrentTable, Volts};
+    use crate::energy::{Microamps, Milliamps, TxCurrentTable, Volts};
     use crate::units::Db;
 
     fn step(chosen: f32, outcome: Outcome, logged_lost: Option<bool>) -> ReplayStep {
@@ -103,6 +118,11 @@ mod tests {
             margin: Db(0.0),
             reason: Reason::Hold,
             next_tx: Dbm(chosen),
+            rate: None,
+            next_rate: None,
+            next_held: false,
+            airtime_us: None,
+            charge: None,
         }
     }
 

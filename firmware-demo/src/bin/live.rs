@@ -118,7 +118,7 @@ fn run() -> bool {
                 match outcome {
                     Outcome::Delivered => Some(true),
                     Outcome::Lost => Some(false),
-                    Outcome::Unjudged => None,
+                    Outcome::Unjudged | Outcome::Held => None,
                 },
             ),
             Err(e) => {
@@ -145,6 +145,11 @@ fn run() -> bool {
                 margin: d.margin(),
                 reason: d.reason,
                 next_tx: d.tx,
+                rate: None,
+                next_rate: d.rate,
+                next_held: d.held,
+                airtime_us: None,
+                charge: None,
             },
         );
         defmt::info!(

@@ -13,7 +13,7 @@
 use std::fmt::Write as _;
 
 use headroom::control::settings::{Resolved, Setting, Source, Value as SettingValue};
-use headroom::control::{EirpCap, Fleet, PowerSteps, Reason, Summary};
+use headroom::control::{DutyLimit, EirpCap, Fleet, PowerSteps, Reason, Summary};
 use headroom::energy::{EnergyTally, ReplayEnergy};
 
 use crate::energy::LoadedProfile;
@@ -43,6 +43,16 @@ pub fn value_json(v: SettingValue) -> Value {
         }
         SettingValue::Cap(EirpCap::AtMost(l)) => json_num(l.0),
         SettingValue::Cap(EirpCap::NoCap) => "none".into(),
+        SettingValue::Duty(DutyLimit::AtMost(f)) => json_num(f),
+        SettingValue::Duty(DutyLimit::NoLimit) => "none".into(),
+        SettingValue::Rate(Some(n)) => n.as_str().into(),
+        SettingValue::Rate(None) => Value::Null,
+        SettingValue::Rates(t) => Value::Array(
+            t.as_slice()
+                .iter()
+                .map(|r| Value::from(r.name.as_str()))
+                .collect(),
+        ),
     }
 }
 

@@ -10,7 +10,7 @@
 use std::path::{Path, PathBuf};
 
 use headroom::control::settings::{self, Kind, Layer, ResolveError, Resolved, Setting, Value};
-use headroom::control::{EirpCap, PowerSteps};
+use headroom::control::{DutyLimit, EirpCap, PowerSteps};
 use headroom::record::LogHeader;
 use headroom::units::Db;
 
@@ -101,6 +101,20 @@ pub fn parse_value(s: Setting, text: &str) -> Result<Value, String> {
                     .map_err(|e| format!("{e} (or 'none')"))
             }
         }
+        Kind::Fraction => probability(t).map(Value::Number),
+        Kind::Duty => {
+            if t.eq_ignore_ascii_case("none") {
+                Ok(Value::Duty(DutyLimit::NoLimit))
+            } else {
+                probability(t)
+                    .map(|f| Value::Duty(DutyLimit::AtMost(f)))
+                    .map_err(|e| format!("{e} (or 'none')"))
+            }
+        }
+        Kind::RateName => headroom::rate::RateName::new(t)
+            .map(|n| Value::Rate(Some(n)))
+            .map_err(|e| e.to_string()),
+        Kind::Rates => Err("a rate table comes from a radio profile or the log header".into()),
     }
 }
 
@@ -147,6 +161,7 @@ fn toml_value(s: Setting, v: &toml::Value) -> Result<Value, String> {
 fn number_value(s: Setting, x: f32) -> Result<Value, String> {
     Ok(match s.kind() {
         Kind::Cap => Value::Cap(EirpCap::AtMost(headroom::units::Dbm(x))),
+        Kind::Duty => Value::Duty(DutyLimit::AtMost(x)),
         _ => Value::Number(x),
     })
 }
@@ -380,7 +395,8 @@ pub fn show(s: Setting, v: Value) -> String {
         Kind::Dbm | Kind::Cap => " dBm",
         Kind::Dbi => " dBi",
         Kind::Milliseconds => " ms",
-        Kind::Probability | Kind::Count => "",
+        Kind::Probability | Kind::Count | Kind::Fraction | Kind::Duty => "",
+        Kind::RateName | Kind::Rates => "",
     };
     match v {
         Value::Number(x) if s.kind() == Kind::Probability => format!("{x} ({}%)", x * 100.0),
@@ -397,6 +413,17 @@ pub fn show(s: Setting, v: Value) -> String {
         ),
         Value::Cap(EirpCap::AtMost(l)) => format!("{}{unit}", l.0),
         Value::Cap(EirpCap::NoCap) => "none (no cap configured)".into(),
+        Value::Duty(DutyLimit::AtMost(f)) => format!("{f} ({}% of any hour)", f * 100.0),
+        Value::Duty(DutyLimit::NoLimit) => "none (no duty-cycle limit configured)".into(),
+        Value::Rate(Some(n)) => n.as_str().to_string(),
+        Value::Rate(None) => "none".into(),
+        Value::Rates(t) if t.is_empty() => "none (power only)".into(),
+        Value::Rates(t) => t
+            .as_slice()
+            .iter()
+            .map(|r| r.name.as_str())
+            .collect::<Vec<_>>()
+            .join(", "),
     }
 }
 
