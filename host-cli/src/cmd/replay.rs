@@ -149,11 +149,12 @@ pub fn run(args: Args) -> CliResult {
             )
         })?;
     }
-    let resolver = Resolver::new(&args.settings)?;
     let energy = match &args.energy {
         Some(p) => Some(crate::energy::load(p)?),
         None => None,
     };
+    let resolver = Resolver::new(&args.settings)?
+        .with_profile_rates(energy.as_ref().map(|e| e.rates).unwrap_or_default());
     let mut fleet = Fleet::new();
     let mut fleet_energy = ReplayEnergy::new(None);
     let mut names: Vec<String> = Vec::new();
@@ -167,6 +168,7 @@ pub fn run(args: Args) -> CliResult {
         }
         let target = settings.resolved.config.target_outage;
         let mut obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
+        obj.insert("rates".into(), report::rates_json(&settings.resolved, &s));
         if let (Some(e), Some(p)) = (&e, &energy) {
             obj.insert("energy".into(), report::energy_json(e, p, true));
             fleet_energy.merge(e);
@@ -183,6 +185,7 @@ pub fn run(args: Args) -> CliResult {
                 report::settings_table(&mut table, &settings.resolved);
                 let _ = writeln!(table);
                 report::summary_table(&mut table, &s);
+                report::rates_table(&mut table, &settings.resolved, &s);
                 if let (Some(e), Some(p)) = (&e, &energy) {
                     report::energy_table(&mut table, e, p, true);
                 }
@@ -253,16 +256,33 @@ fn replay_log(
         settings,
     } = fleet::open(path, &args.input.options(), resolver, None)?;
     let cfg = settings.resolved.config;
-    let mut replay = HostReplay::new(cfg)
-        .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
+    let mut replay = match energy {
+        // The engine costs each packet (and chooses among rates) with the
+        // profile.
+        Some(p) => HostReplay::with_energy(cfg, &p.profile),
+        None => HostReplay::new(cfg),
+    }
+    .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
+    // The log's rate indices, as indices of the table in force.
+    let remap = crate::rates::Remap::new(
+        &reader.header().map(|h| h.rates).unwrap_or_default(),
+        &cfg.rates,
+    );
     let mut out = match &args.out {
-        Some(p) => Some(DecisionWriter::create(p, args.force)?),
+        Some(p) => Some(DecisionWriter::create(p, args.force, cfg.rates)?),
         None => None,
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
     let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
     for rec in &mut reader {
-        let rec = rec?;
+        let mut rec = rec?;
+        rec.rate = remap.apply(rec.rate).map_err(|why| {
+            CliError::Input(format!(
+                "{}: record at t_ms {}: {why}",
+                path.display(),
+                rec.t_ms
+            ))
+        })?;
         let step = replay.step(&rec);
         if let (Some(t), Some(p)) = (tally.as_mut(), energy) {
             t.add(&p.profile, &rec, &step).map_err(|e| {
@@ -331,19 +351,29 @@ fn replay_log(
 struct DecisionWriter {
     file: AtomicFile,
     binary: Option<(Encoder, Box<[u8; MAX_FRAME]>)>,
+    /// The rate table in force: CSV rows name the chosen rate when it is
+    /// not empty.
+    rates: headroom::rate::RateTable,
 }
 
 impl DecisionWriter {
-    fn create(dest: &Path, force: bool) -> CliResult<Self> {
+    fn create(dest: &Path, force: bool, rates: headroom::rate::RateTable) -> CliResult<Self> {
         let format = LogFormat::from_path(dest)?;
         let mut w = DecisionWriter {
             file: AtomicFile::create(dest, force)?,
             binary: None,
+            rates,
         };
         match format {
-            LogFormat::Csv => w.write_line(
-                "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,logged_outcome,at_max,path_loss_db,margin_db,reason",
-            )?,
+            LogFormat::Csv => {
+                let mut head = String::from(
+                    "t_ms,chosen_tx_dbm,replayed_snr_db,outcome,logged_outcome,at_max,path_loss_db,margin_db,reason",
+                );
+                if !rates.is_empty() {
+                    head.push_str(",rate,airtime_us,charge_uc");
+                }
+                w.write_line(&head)?;
+            }
             LogFormat::Binary => w.binary = Some((Encoder::new(), Box::new([0u8; MAX_FRAME]))),
         }
         Ok(w)
@@ -386,6 +416,18 @@ impl DecisionWriter {
             num(s.path_loss_estimate.map(|d| d.0)),
             s.margin.0,
             s.reason.as_str()
+        );
+        if self.rates.is_empty() {
+            return self.write_line(&line);
+        }
+        let rate = s
+            .rate
+            .and_then(|m| self.rates.get(m))
+            .map_or("", |r| r.name.as_str());
+        let line = format!(
+            "{line},{rate},{},{}",
+            s.airtime_us.map_or(String::new(), |a| a.to_string()),
+            num(s.charge.map(|c| c.0))
         );
         self.write_line(&line)
     }

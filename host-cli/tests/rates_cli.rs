@@ -1,0 +1,260 @@
+//! Rates through the `headroom` binary: the rate table from an energy
+//! profile or a log's header, with its source; the new settings' flags; the
+//! per-rate report in the table and JSON, which must be the engine's own
+//! numbers; `--out` with the chosen rate; and the refusals.
+
+#![allow(clippy::unwrap_used, clippy::expect_used, clippy::panic)]
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use headroom::control::settings::{self, Layer, Setting, Value};
+use headroom::control::{DutyLimit, Replay, REPLAY_WINDOW};
+use headroom::rate::RateName;
+
+fn headroom(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_headroom"))
+        .args(args)
+        .output()
+        .expect("run headroom")
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn example(rel: &str) -> String {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("..");
+    root.join(rel).to_string_lossy().into_owned()
+}
+
+fn json(o: &Output) -> serde_json::Value {
+    assert!(o.status.success(), "failed: {}", stderr(o));
+    serde_json::from_slice(&o.stdout).expect("one JSON object")
+}
+
+const ORCHARD_LOG: &str = "examples/logs/orchard-868.csv";
+const ORCHARD_RATES: &str = "examples/energy/orchard-868-rates.toml";
+
+fn orchard_json(extra: &[&str]) -> serde_json::Value {
+    let (log, prof) = (example(ORCHARD_LOG), example(ORCHARD_RATES));
+    let mut args = vec![
+        "replay",
+        log.as_str(),
+        "--energy",
+        prof.as_str(),
+        "--format",
+        "json",
+    ];
+    args.extend_from_slice(extra);
+    let v = json(&headroom(&args));
+    v["logs"][0].clone()
+}
+
+/// The host's numbers are the engine's: the same replay run here through
+/// the engine alone (settings resolved by the engine, the profile loaded by
+/// the host's one reader) gives the same per-rate counts and charge.
+#[test]
+fn the_per_rate_report_is_the_engines_replay() {
+    let l = orchard_json(&["--logged-rate", "sf9", "--duty-limit", "1%"]);
+    let rates = &l["rates"];
+    assert_eq!(rates["source"], "energy-profile");
+    assert_eq!(l["settings"]["rates"]["source"], "energy-profile");
+    assert_eq!(l["settings"]["duty_limit"]["value"], 0.01);
+    assert_eq!(l["settings"]["duty_limit"]["source"], "flag");
+    assert_eq!(l["settings"]["logged_rate"]["value"], "sf9");
+    let table = rates["table"].as_array().expect("table");
+    assert_eq!(table.len(), 6);
+
+    // The engine alone.
+    let prof = headroom_cli::energy::load(Path::new(&example(ORCHARD_RATES))).unwrap();
+    let log = headroom_cli::logio::open(Path::new(&example(ORCHARD_LOG))).unwrap();
+    let header = log.header().copied();
+    let mut flags = Layer::empty();
+    flags.set(Setting::Rates, Value::Rates(prof.rates)).unwrap();
+    flags
+        .set(Setting::DutyLimit, Value::Duty(DutyLimit::AtMost(0.01)))
+        .unwrap();
+    flags
+        .set(
+            Setting::LoggedRate,
+            Value::Rate(Some(RateName::new("sf9").unwrap())),
+        )
+        .unwrap();
+    let h = header
+        .as_ref()
+        .map_or_else(Layer::empty, Layer::from_header);
+    let resolved = settings::resolve(&flags, &h, &Layer::empty(), &Layer::defaults()).unwrap();
+    let mut replay = Replay::<REPLAY_WINDOW>::with_energy(resolved.config, &prof.profile).unwrap();
+    for rec in log {
+        replay.step(&rec.unwrap());
+    }
+    let s = replay.summary();
+    assert_eq!(l["records"], s.records);
+    assert_eq!(l["lost"], s.lost);
+    assert_eq!(l["held"], s.held);
+    assert_eq!(l["duty_limited"], s.duty_limited);
+    assert_eq!(l["rate_changes"], s.rate_changes);
+    assert_eq!(
+        l["charge_per_delivered_uc"].as_f64(),
+        s.charge_per_delivered_uc()
+    );
+    assert!(s.charge_per_delivered_uc().is_some());
+    let mut shares = 0.0;
+    for (i, row) in table.iter().enumerate() {
+        let t = s.per_rate[i];
+        assert_eq!(row["packets"], t.packets, "{row}");
+        assert_eq!(row["lost"], t.lost, "{row}");
+        assert_eq!(row["charge_uc"].as_f64(), Some(t.charge_uc), "{row}");
+        shares += row["share"].as_f64().unwrap();
+    }
+    assert!((shares - 1.0).abs() < 1e-6, "{shares}");
+}
+
+#[test]
+fn the_table_shows_the_rates_in_force_and_their_source() {
+    let (log, prof) = (example(ORCHARD_LOG), example(ORCHARD_RATES));
+    let o = headroom(&["replay", &log, "--energy", &prof, "--logged-rate", "sf9"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        out.contains("rate table in force (source: energy-profile):"),
+        "{out}"
+    );
+    assert!(
+        out.contains("  sf12        -20.0 dB  1318.912 ms   125.0 kHz"),
+        "{out}"
+    );
+    assert!(out.contains("charge_per_delivered"), "{out}");
+    assert!(
+        out.contains("duty_limit            none (no duty-cycle limit configured)"),
+        "{out}"
+    );
+    // Without a rate table: no rate block, and the duty limit is still shown.
+    let plain = example("examples/energy/orchard-868.toml");
+    let o = headroom(&["replay", &log, "--energy", &plain]);
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(!out.contains("rate table in force"), "{out}");
+    assert!(out.contains("duty_limit"), "{out}");
+}
+
+#[test]
+fn a_log_without_its_rate_is_not_judged_across_bandwidths() {
+    // The table gives noise bandwidths and the log does not say its rate:
+    // never guessed, every record with readings is counted apart.
+    let l = orchard_json(&[]);
+    assert_eq!(l["judged"], 0);
+    assert_eq!(l["ignored_readings"]["ignored_rate_unknown"], 29270);
+}
+
+fn rated_log(dir: &Path, rate_line: &str, rate_cell: &str) -> PathBuf {
+    let p = dir.join("rated.csv");
+    let mut text = format!(
+        "# headroom-log 1.2\n# min_tx_dbm: 2\n# max_tx_dbm: 14\n# tx_step_db: 1\n{rate_line}\
+         t_ms,tx_dbm,rssi_dbm,noise_dbm,rate\n"
+    );
+    for k in 0..200u64 {
+        let rssi = -110.0 - (k % 7) as f32;
+        text.push_str(&format!("{},14,{rssi},-117,{rate_cell}\n", k * 300_000));
+    }
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+#[test]
+fn out_names_the_chosen_rate_and_a_foreign_rate_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = rated_log(
+        dir.path(),
+        "# rate: sf9, -12.5 dB, 185.344 ms, 125 kHz\n",
+        "sf9",
+    );
+    let out = dir.path().join("d.csv");
+    let prof = example(ORCHARD_RATES);
+    let o = headroom(&[
+        "replay",
+        log.to_str().unwrap(),
+        "--energy",
+        &prof,
+        "--out",
+        out.to_str().unwrap(),
+        "--format",
+        "json",
+    ]);
+    let v = json(&o);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(
+        lines.next(),
+        Some("t_ms,chosen_tx_dbm,replayed_snr_db,outcome,logged_outcome,at_max,path_loss_db,margin_db,reason,rate,airtime_us,charge_uc")
+    );
+    // Rows per rate name = the report's packets per rate.
+    let table = v["logs"][0]["rates"]["table"].as_array().unwrap().clone();
+    for row in &table {
+        let name = row["name"].as_str().unwrap();
+        let n = text
+            .lines()
+            .skip(1)
+            .filter(|l| l.split(',').nth(9) == Some(name))
+            .count();
+        assert_eq!(row["packets"], n as u64, "{name}");
+    }
+    // The log's header table (sf9 only) differs from the profile's: its
+    // records are read by name; the rate in force comes from the profile.
+    assert_eq!(v["logs"][0]["rates"]["source"], "energy-profile");
+
+    // A log whose packets used a rate the table in force does not have.
+    let log = rated_log(dir.path(), "# rate: fsk, 8 dB, 4 ms, 125 kHz\n", "fsk");
+    let o = headroom(&["replay", log.to_str().unwrap(), "--energy", &prof]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(
+        e.contains("rated.csv: record at t_ms 0: the packet's rate 'fsk' is not in the rate table in force"),
+        "{e}"
+    );
+    assert_eq!(e.lines().count(), 1, "{e}");
+}
+
+#[test]
+fn the_header_table_is_used_without_a_profile_table() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = rated_log(
+        dir.path(),
+        "# rate: sf9, -12.5 dB, 185.344 ms, 125 kHz\n",
+        "sf9",
+    );
+    let plain = example("examples/energy/orchard-868.toml");
+    let o = headroom(&[
+        "replay",
+        log.to_str().unwrap(),
+        "--energy",
+        &plain,
+        "--format",
+        "json",
+    ]);
+    let l = json(&o)["logs"][0].clone();
+    assert_eq!(l["rates"]["source"], "log-header");
+    assert_eq!(l["settings"]["rates"]["value"][0], "sf9");
+    assert_eq!(l["rates"]["table"][0]["packets"], 200);
+}
+
+#[test]
+fn new_settings_refuse_bad_values_in_one_line() {
+    let log = example(ORCHARD_LOG);
+    let prof = example(ORCHARD_RATES);
+    for (args, want) in [
+        (vec!["--duty-limit", "150%"], "duty_limit"),
+        (vec!["--logged-rate", "sf 9"], "--logged-rate"),
+        (vec!["--logged-rate", "sf13"], "logged_rate"),
+        (vec!["--set", "rate_hysteresis=2"], "rate_hysteresis"),
+        (vec!["--set", "rates=sf7"], "rates"),
+    ] {
+        let mut all = vec!["replay", log.as_str(), "--energy", prof.as_str()];
+        all.extend(args.iter().copied());
+        let o = headroom(&all);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {}", stderr(&o));
+        let e = stderr(&o);
+        assert!(e.contains(want), "{args:?}: {e}");
+        assert_eq!(e.lines().count(), 1, "{args:?}: {e}");
+    }
+}
