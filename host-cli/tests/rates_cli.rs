@@ -258,3 +258,76 @@ fn new_settings_refuse_bad_values_in_one_line() {
         assert_eq!(e.lines().count(), 1, "{args:?}: {e}");
     }
 }
+
+#[test]
+fn tune_sweeps_the_rate_settings_and_the_choice_of_table() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = example(ORCHARD_LOG);
+    let prof = example(ORCHARD_RATES);
+    // A second table: the slow rates only (sf9 and slower), same profile.
+    let text = std::fs::read_to_string(&prof).unwrap();
+    let cut = text.find("[[rate]]\nname = \"sf7\"").unwrap();
+    let slow_text = text[..cut].to_string()
+        + &text[cut..]
+            .split("[[rate]]")
+            .filter(|e| !e.contains("\"sf7\"") && !e.contains("\"sf8\"") && !e.trim().is_empty())
+            .map(|e| format!("[[rate]]{e}"))
+            .collect::<String>();
+    let slow = dir.path().join("slow.toml");
+    std::fs::write(&slow, slow_text).unwrap();
+    let sweep = format!("rates={prof},{}", slow.display());
+    let o = headroom(&[
+        "tune",
+        &log,
+        "--energy",
+        &prof,
+        "--logged-rate",
+        "sf9",
+        "--objective",
+        "charge",
+        "--sweep",
+        &sweep,
+        "--sweep",
+        "rate_dwell=4,16",
+        "--format",
+        "json",
+        "--quiet",
+    ]);
+    let v = json(&o);
+    let cands = v["points"].as_array().expect("points");
+    assert_eq!(cands.len(), 4, "{v}");
+    // Each candidate names its table by its file; the slow table costs more
+    // per delivered packet on this close, static link (sf7 is available to
+    // the full table only).
+    let cost = |file: &str| -> f64 {
+        cands
+            .iter()
+            .filter(|c| c["settings"]["rates"] == file)
+            .map(|c| c["charge_per_delivered_uc"].as_f64().unwrap())
+            .fold(f64::INFINITY, f64::min)
+    };
+    let (full, slow_cost) = (cost(&prof), cost(&slow.display().to_string()));
+    assert!(full.is_finite() && slow_cost.is_finite(), "{v}");
+    assert!(full < slow_cost, "{full} vs {slow_cost}");
+    // A rate table sweep needs the costs.
+    let o = headroom(&["tune", &log, "--sweep", &sweep, "--quiet"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--sweep: rates:"), "{}", stderr(&o));
+    // A profile without [[rate]] entries is not a table.
+    let plain = example("examples/energy/orchard-868.toml");
+    let o = headroom(&[
+        "tune",
+        &log,
+        "--energy",
+        &prof,
+        "--sweep",
+        &format!("rates={plain}"),
+        "--quiet",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("has no [[rate]] entries"),
+        "{}",
+        stderr(&o)
+    );
+}
