@@ -273,6 +273,7 @@ fn replay_log(
         None => None,
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
+    let mut last_rate = None;
     let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
     for rec in &mut reader {
         let mut rec = rec?;
@@ -298,6 +299,10 @@ fn replay_log(
         if let Some(w) = out.as_mut() {
             w.row(&step)?;
         }
+        let rate_before = last_rate;
+        if step.rate.is_some() {
+            last_rate = step.rate;
+        }
         if let Some(s) = series.as_mut() {
             s.push(ReplayPoint {
                 t_ms: step.t_ms,
@@ -308,6 +313,9 @@ fn replay_log(
                 margin_db: Some(step.margin.0),
                 lost: step.outcome == Outcome::Lost,
                 threshold_dbm: replay.loss_threshold(&rec).map(|d| d.0),
+                rate_changed: rate_before.is_some()
+                    && step.rate.is_some()
+                    && step.rate != rate_before,
             });
         }
     }
