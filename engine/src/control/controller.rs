@@ -631,7 +631,7 @@ impl<const W: usize> Controller<W> {
             have_reading: false,
             have_noise: false,
             window: Window::new(),
-            plan: RatePlan::new(&cfg, None, 0, 0)?,
+            plan: RatePlan::empty(),
             rate: 0,
             required_now: 0,
             since_change: 0,
@@ -1299,6 +1299,16 @@ impl<const W: usize> Controller<W> {
     /// Rates in the table.
     pub(crate) fn rate_count(&self) -> u8 {
         self.plan.n
+    }
+
+    /// The energy profile in integers, when the controller has one.
+    pub(crate) fn charge_table(&self) -> Option<&ChargeTable> {
+        self.plan.charge.as_ref()
+    }
+
+    /// Level in use, 1/8192 dBm.
+    pub(crate) fn level_fine(&self) -> i32 {
+        self.level
     }
 
     /// Airtime of rate `m`, µs (`None` outside the table).

@@ -20,6 +20,7 @@
 //! # Ok::<(), headroom::control::ConfigError>(())
 //! ```
 
+pub mod baseline;
 mod config;
 mod controller;
 mod fixed;

@@ -24,8 +24,6 @@ const EPS: i32 = 1;
 pub(crate) struct RatePlan {
     /// Rates in the table (0: the rate is not in play).
     pub(crate) n: u8,
-    /// Required SNR of each rate, 1/8192 dB.
-    pub(crate) required: [i32; MAX_RATES],
     /// How much higher the noise floor is at each rate than at rate 0,
     /// `10·log10(B_m / B_0)`, 1/8192 dB (0 without bandwidths).
     pub(crate) norm: [i32; MAX_RATES],
@@ -54,6 +52,19 @@ pub(crate) struct Choice {
 }
 
 impl RatePlan {
+    /// No rates (the power only).
+    pub(crate) const fn empty() -> Self {
+        RatePlan {
+            n: 0,
+            norm: [0; MAX_RATES],
+            offset: [0; MAX_RATES],
+            airtime_us: [0; MAX_RATES],
+            charge: None,
+            keep: 0,
+            dwell: 0,
+        }
+    }
+
     /// The plan of `cfg`'s rate table, with the profile `charge` (needed
     /// when the table has more than one rate) covering `[bottom, top]`
     /// (1/8192 dBm, the controller's lowest and highest levels).
@@ -87,7 +98,6 @@ impl RatePlan {
         }
         let mut p = RatePlan {
             n: u8::try_from(t.len()).unwrap_or(0),
-            required: [0; MAX_RATES],
             norm: [0; MAX_RATES],
             offset: [0; MAX_RATES],
             airtime_us: [0; MAX_RATES],
@@ -95,17 +105,16 @@ impl RatePlan {
             keep: 0,
             dwell: cfg.rate_dwell,
         };
+
         for (i, r) in t.as_slice().iter().enumerate() {
             let idx = u8::try_from(i).unwrap_or(0);
             let norm = t.noise_change_db(idx, 0).map_or(0, |d| to_fine(d.0));
             let req = to_fine(r.required_snr.0);
-            if let (Some(a), Some(b), Some(c), Some(d)) = (
-                p.required.get_mut(i),
+            if let (Some(b), Some(c), Some(d)) = (
                 p.norm.get_mut(i),
                 p.offset.get_mut(i),
                 p.airtime_us.get_mut(i),
             ) {
-                *a = req;
                 *b = norm;
                 *c = req.saturating_add(norm);
                 *d = r.airtime_us;
@@ -133,9 +142,9 @@ impl RatePlan {
         Self::at(&self.norm, m)
     }
 
-    /// Required SNR of rate `m`.
+    /// Required SNR of rate `m` (its offset less its noise change).
     pub(crate) fn required(&self, m: u8) -> i32 {
-        Self::at(&self.required, m)
+        self.offset(m).wrapping_sub(self.norm(m))
     }
 
     /// Airtime of rate `m`, µs.

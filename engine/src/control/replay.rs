@@ -8,7 +8,7 @@
 use super::config::{ConfigError, ControllerConfig};
 use super::controller::Controller;
 use super::reason::Reason;
-use crate::energy::{ChargeTable, EnergyProfile, Microcoulombs, Milliseconds};
+use crate::energy::{ChargeTable, EnergyProfile, Microcoulombs};
 use crate::rate::MAX_RATES;
 use crate::record::LogRecord;
 use crate::units::{Db, Dbm};
@@ -636,7 +636,6 @@ impl Fleet {
 pub struct Replay<const W: usize> {
     controller: Controller<W>,
     summary: Summary,
-    profile: Option<EnergyProfile>,
     /// Index of the `logged_rate` setting in the table.
     logged_rate: Option<u8>,
     /// Whether the rate table gives noise bandwidths.
@@ -657,11 +656,11 @@ impl<const W: usize> Replay<W> {
         cfg: ControllerConfig,
         profile: &EnergyProfile,
     ) -> Result<Self, ConfigError> {
-        Self::build(cfg, Some(*profile))
+        Self::build(cfg, Some(profile))
     }
 
-    fn build(cfg: ControllerConfig, profile: Option<EnergyProfile>) -> Result<Self, ConfigError> {
-        let charge = match &profile {
+    fn build(cfg: ControllerConfig, profile: Option<&EnergyProfile>) -> Result<Self, ConfigError> {
+        let charge = match profile {
             Some(p) => {
                 Some(
                     ChargeTable::from_profile(p).map_err(|_| ConfigError::Inconsistent {
@@ -677,7 +676,6 @@ impl<const W: usize> Replay<W> {
         Ok(Replay {
             controller,
             summary,
-            profile,
             logged_rate: cfg.logged_rate.and_then(|n| cfg.rates.index_of(n.as_str())),
             bandwidths: cfg
                 .rates
@@ -702,23 +700,25 @@ impl<const W: usize> Replay<W> {
         }
     }
 
-    /// Airtime of rate `m` as the profile costs it, and the packet's cost.
+    /// Airtime of the packet sent at `level` (1/8192 dBm) and rate `rate`,
+    /// and its charge by the profile (in its integer form,
+    /// [`ChargeTable`]: within 10⁻⁴ of the float costing).
     fn cost(
         &self,
-        chosen: Dbm,
+        level: i32,
         rate: Option<u8>,
         held: bool,
     ) -> (Option<u32>, Option<Microcoulombs>) {
         let air = rate.and_then(|m| self.controller.airtime_us(m));
-        let charge = self.profile.as_ref().and_then(|p| {
-            if held {
-                return Some(p.per_packet());
-            }
-            let airtime = match air {
-                Some(us) => Milliseconds(us as f32 / 1000.0),
-                None => p.airtime(),
+        let charge = self.controller.charge_table().map(|t| {
+            let pc = if held {
+                t.per_packet_pc()
+            } else {
+                t.charge_pc(level, air.unwrap_or_else(|| t.profile_airtime_us()))
             };
-            p.packet_cost_for(chosen, airtime).ok().map(|c| c.charge)
+            #[allow(clippy::cast_precision_loss, clippy::cast_possible_truncation)]
+            // µC of one packet: far inside f32's range.
+            Microcoulombs((pc as f64 * 1e-6) as f32)
         });
         (if held { air.map(|_| 0) } else { air }, charge)
     }
@@ -728,6 +728,7 @@ impl<const W: usize> Replay<W> {
         let logged_rate = self.logged_rate_of(rec);
         let c = &mut self.controller;
         let chosen = c.tx();
+        let level = c.level_fine();
         let rate = c.rate();
         let held = c.is_held();
         let at_max = c.at_top();
@@ -786,7 +787,7 @@ impl<const W: usize> Replay<W> {
                 }
             }
         };
-        let (airtime_us, charge) = self.cost(chosen, rate, held);
+        let (airtime_us, charge) = self.cost(level, rate, held);
         let step = ReplayStep {
             t_ms,
             chosen,

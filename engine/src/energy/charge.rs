@@ -14,7 +14,9 @@
 use super::profile::{EnergyProfile, TX_POINTS};
 use crate::error::{Error, Result};
 
-/// Fractional bits of a segment's slope.
+/// Fractional bits of a segment's slope (2⁻¹⁶ µA per 1/8192 dB: at most
+/// 0.13 µA off per dB of a segment; an `i32` holds slopes up to 268 A per
+/// dB, saturating beyond).
 const SLOPE_BITS: u32 = 16;
 
 /// Steps per dB of a power level (1/8192 dB, the controller's scale).
@@ -29,10 +31,14 @@ pub struct ChargeTable {
     /// Currents of the points, µA.
     current: [u32; TX_POINTS],
     /// Slope from point `i` to point `i + 1`, 2⁻¹⁶ µA per 1/8192 dB.
-    slope: [i64; TX_POINTS],
+    slope: [i32; TX_POINTS],
     len: u8,
     /// Receive window and per-packet charge, pC.
     fixed_pc: u64,
+    /// The per-packet charge alone (wake-up, sensor), pC.
+    per_packet_pc: u64,
+    /// The profile's own airtime, µs.
+    airtime_us: u32,
 }
 
 #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
@@ -68,6 +74,13 @@ impl ChargeTable {
                     + f64::from(p.per_packet().0))
                     * 1e6,
             ),
+            per_packet_pc: round_u64(f64::from(p.per_packet().0) * 1e6),
+            airtime_us: {
+                #[allow(clippy::cast_possible_truncation)] // validated positive, below an hour
+                {
+                    round_u64(f64::from(p.airtime().0) * 1e3).min(u64::from(u32::MAX)) as u32
+                }
+            },
         };
         for (i, pt) in pts.iter().enumerate() {
             if let (Some(l), Some(c)) = (t.level.get_mut(i), t.current.get_mut(i)) {
@@ -90,7 +103,8 @@ impl ChargeTable {
             let dl = i64::from(l1) - i64::from(l0);
             let dc = i64::from(c1) - i64::from(c0);
             if let Some(s) = t.slope.get_mut(i - 1) {
-                *s = (dc << SLOPE_BITS).checked_div(dl).unwrap_or(0);
+                let x = (dc << SLOPE_BITS).checked_div(dl).unwrap_or(0);
+                *s = i32::try_from(x).unwrap_or(if x < 0 { i32::MIN } else { i32::MAX });
             }
         }
         t.len = u8::try_from(pts.len()).unwrap_or(0);
@@ -133,13 +147,24 @@ impl ChargeTable {
             };
         }
         let d = i64::from(x) - i64::from(l0);
-        let c = i64::from(c0) + ((d * s) >> SLOPE_BITS);
+        let c = i64::from(c0) + ((d * i64::from(s)) >> SLOPE_BITS);
         #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
         if c <= 0 {
             0
         } else {
             c.min(i64::from(u32::MAX)) as u32
         }
+    }
+
+    /// The profile's own airtime (a packet without a rate table), µs.
+    pub fn profile_airtime_us(&self) -> u32 {
+        self.airtime_us
+    }
+
+    /// The fixed per-packet charge alone (wake-up, sensor), pC: what a
+    /// packet held by the duty budget costs.
+    pub fn per_packet_pc(&self) -> u64 {
+        self.per_packet_pc
     }
 
     /// Charge of one packet at level `x` (1/8192 dBm) and `airtime_us`, pC.

@@ -100,39 +100,40 @@ pub fn en_300_220_sub_bands(
         .filter(move |b| b.contains(centre, bandwidth))
 }
 
-/// Length of one slot of an [`AirtimeWindow`], ms (one minute).
-pub const SLOT_MS: u64 = 60_000;
+/// Length of one slot of an [`AirtimeWindow`], ms (two minutes).
+pub const SLOT_MS: u64 = 120_000;
 
-/// Slots of an [`AirtimeWindow`]: the 60 slots of one hour, one more for a
-/// window that does not start on a slot boundary, and one more for the
-/// packets that started before the window (at most one minute, the longest
-/// airtime of a rate) and still overlap it.
-pub const WINDOW_SLOTS: usize = 62;
+/// Slots of an [`AirtimeWindow`]: one hour and one minute (the hour, and
+/// the packets that started up to one minute, the longest airtime of a
+/// rate, before it and still overlap it) touch at most 32 slots of two
+/// minutes.
+pub const WINDOW_SLOTS: usize = 32;
 
 /// One hour, ms.
 const HOUR_MS: f32 = 3_600_000.0;
 
 /// A duty-cycle budget that is a guarantee: the airtime of the last hour
-/// in a fixed ring of one-minute slots, O(1) per packet, no allocation.
+/// in a fixed ring of two-minute slots, O(1) per packet, no allocation.
 ///
 /// ## The rule and why it holds
 /// Each packet's airtime goes into the slot of its start time. A packet may
-/// be sent only when the sum over the whole ring (its own slot and the 61
+/// be sent only when the sum over the whole ring (its own slot and the 31
 /// before it) plus its airtime stays within the limit
 /// ([`AirtimeWindow::fits`]).
 ///
 /// Take any window of one hour `[a, a + 1 h)`. A packet that overlaps it
 /// started in `[a − 1 min, a + 1 h)` (no airtime exceeds one minute), an
-/// interval of 61 minutes, which touches at most 62 consecutive slots. Let
-/// `p` be the last packet that started there: when it was sent the ring
-/// held exactly the 62 slots ending at `p`'s slot, which include every
-/// packet that overlaps the window, and their sum with `p` was within the
-/// limit. So the airtime inside any one-hour window, however it is placed,
-/// is at most the limit. The price is pessimism of at most two minutes of
-/// history in 62.
+/// interval of 61 minutes, which touches at most 32 consecutive slots of
+/// two minutes. Let `p` be the last packet that started there: when it was
+/// sent the ring held exactly the 32 slots ending at `p`'s slot, which
+/// include every packet that overlaps the window, and their sum with `p`
+/// was within the limit. So the airtime inside any one-hour window,
+/// however it is placed, is at most the limit. The price: the ring
+/// remembers up to 64 minutes, so up to four minutes of history count that
+/// an exact window would already have forgotten.
 ///
 /// Time stamps are taken as non-decreasing: a packet stamped before the
-/// current slot counts in the current slot. A gap of more than 62 slots
+/// current slot counts in the current slot. A gap of more than 32 slots
 /// clears the ring at once.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -244,7 +245,7 @@ mod tests {
     }
 
     #[test]
-    fn the_window_forgets_after_62_slots_and_refuses_beyond_the_limit() {
+    fn the_window_forgets_after_32_slots_and_refuses_beyond_the_limit() {
         // 1 % of an hour: 36 s of airtime, less the f32's representation
         // of 0.01 (0.0099999998), rounded down: 35 999 999 µs.
         let mut w = AirtimeWindow::new(0.01).unwrap_or_else(|_| unreachable!());
@@ -253,10 +254,10 @@ mod tests {
         assert!(w.fits(35_999_999));
         assert!(!w.fits(36_000_000));
         w.add(30_000_000);
-        w.advance(61 * SLOT_MS);
-        assert!(!w.fits(6_000_001));
-        // The slot of t = 0 leaves the ring at 62 slots.
-        w.advance(62 * SLOT_MS);
+        w.advance(31 * SLOT_MS);
+        assert!(!w.fits(6_000_000));
+        // The slot of t = 0 leaves the ring at 32 slots.
+        w.advance(32 * SLOT_MS);
         assert_eq!(w.used_us(), 0);
         assert!(w.fits(35_999_999));
         w.add(1);

@@ -3,6 +3,7 @@
 use heapless::Vec;
 
 use crate::error::{finite, non_negative, positive, within, Error, Result};
+use crate::rate::RateTable;
 use crate::record::LogRecord;
 use crate::units::{Db, Dbi, Dbm, Hertz, Metres};
 
@@ -277,6 +278,19 @@ impl ChannelSample {
             noise_dbm: self.reported_noise.map(|p| p.0),
             rate: None,
         }
+    }
+
+    /// The packet as a device would log it when sent at rate `rate` of
+    /// `table`: the record of [`ChannelSample::record`] with its `rate`, and
+    /// the reported noise floor measured in that rate's noise bandwidth
+    /// (the channel's noise floor is rate 0's: `+ 10·log10(B_rate / B_0)`,
+    /// nothing without bandwidths). `None` when `rate` is not in the table.
+    pub fn record_at_rate(&self, table: &RateTable, rate: u8) -> Option<LogRecord> {
+        let shift = table.noise_change_db(rate, 0)?;
+        let mut r = self.record();
+        r.rate = Some(rate);
+        r.noise_dbm = r.noise_dbm.map(|n| n + shift.0);
+        Some(r)
     }
 }
 

@@ -57,4 +57,4 @@ pub use channel::{
 };
 pub use fault::{Fault, FaultInjector, FaultKind, Field, MAX_FAULTS};
 pub use rng::{Normal, Pcg32};
-pub use synth::{Levels, PowerPattern, Synth, MAX_LEVELS};
+pub use synth::{Levels, PowerPattern, RateSchedule, Synth, MAX_LEVELS};

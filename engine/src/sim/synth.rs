@@ -4,6 +4,7 @@
 use heapless::Vec;
 
 use crate::error::{finite, Error, Result};
+use crate::rate::RateTable;
 use crate::record::LogRecord;
 use crate::units::Dbm;
 
@@ -108,6 +109,67 @@ impl PowerPattern {
     }
 }
 
+/// The rates a synthetic log is written at: rate indices of a table,
+/// cycled every `hold_packets` packets (at most [`MAX_LEVELS`] entries).
+#[derive(Debug, Clone, PartialEq)]
+pub struct RateSchedule {
+    /// The rates of the table, in schedule order.
+    pub table: RateTable,
+    /// Indices into `table`, cycled.
+    pub indices: Vec<u8, MAX_LEVELS>,
+    /// Packets at each entry before the next.
+    pub hold_packets: u64,
+}
+
+impl RateSchedule {
+    /// A schedule cycling `indices` of `table`, `hold_packets` packets each;
+    /// refused when empty, too long, with an index outside the table, or a
+    /// hold of zero.
+    pub fn new(table: RateTable, indices: &[u8], hold_packets: u64) -> Result<Self> {
+        let mut v = Vec::new();
+        for &i in indices {
+            if usize::from(i) >= table.len() {
+                return Err(Error::OutOfValidity {
+                    param: "rate schedule (index)",
+                    value: f32::from(i),
+                    min: 0.0,
+                    max: table.len() as f32 - 1.0,
+                });
+            }
+            if v.push(i).is_err() {
+                return Err(Error::OutOfValidity {
+                    param: "rate schedule (count)",
+                    value: indices.len() as f32,
+                    min: 1.0,
+                    max: MAX_LEVELS as f32,
+                });
+            }
+        }
+        if v.is_empty() {
+            return Err(Error::NotPositive("rate schedule (count)"));
+        }
+        if hold_packets == 0 {
+            return Err(Error::NotPositive("rate schedule hold_packets"));
+        }
+        Ok(RateSchedule {
+            table,
+            indices: v,
+            hold_packets,
+        })
+    }
+
+    /// The rate of packet `k`.
+    pub fn rate(&self, k: u64) -> u8 {
+        let n = self.indices.len() as u64;
+        let i = (k / self.hold_packets.max(1)).checked_rem(n).unwrap_or(0);
+        usize::try_from(i)
+            .ok()
+            .and_then(|i| self.indices.get(i))
+            .copied()
+            .unwrap_or(0)
+    }
+}
+
 /// A synthetic field log, record by record: the [`Channel`] simulates each
 /// packet at the pattern's power and the [`FaultInjector`] damages the
 /// logged record. Deterministic for a given seed.
@@ -116,6 +178,7 @@ pub struct Synth<const F: usize = MAX_FAULTS> {
     channel: Channel,
     power: PowerPattern,
     faults: FaultInjector<F>,
+    rates: Option<RateSchedule>,
 }
 
 impl<const F: usize> Synth<F> {
@@ -131,7 +194,16 @@ impl<const F: usize> Synth<F> {
             channel: Channel::new(channel, seed)?,
             power,
             faults: FaultInjector::new(faults)?,
+            rates: None,
         })
+    }
+
+    /// The same log written at a rate schedule: each record carries its
+    /// rate, and its noise floor in that rate's bandwidth
+    /// ([`ChannelSample::record_at_rate`]).
+    pub fn with_rates(mut self, rates: RateSchedule) -> Self {
+        self.rates = Some(rates);
+        self
     }
 
     /// The next packet: the channel's truth and the record as logged (with
@@ -139,7 +211,13 @@ impl<const F: usize> Synth<F> {
     pub fn next_record(&mut self) -> Result<(ChannelSample, LogRecord)> {
         let k = self.channel.next_index();
         let s = self.channel.packet(self.power.level(k)?)?;
-        Ok((s, self.faults.apply(s.record())))
+        let rec = match &self.rates {
+            Some(r) => s
+                .record_at_rate(&r.table, r.rate(k))
+                .unwrap_or_else(|| s.record()),
+            None => s.record(),
+        };
+        Ok((s, self.faults.apply(rec)))
     }
 
     /// The channel being simulated.

@@ -25,8 +25,9 @@ use headroom_firmware_demo::{board, host, scenario, stack};
 /// The replay window, the engine's one value.
 use headroom::control::REPLAY_WINDOW as WINDOW;
 
-/// Observations timed per pass (small enough for the microbit's 16 KiB RAM).
-const N: usize = 128;
+/// Observations timed per pass (small enough for the microbit's 16 KiB RAM
+/// beside the controllers, each with its rate table and duty window).
+const N: usize = 32;
 
 /// Packets of the closed loop between the fresh-start pass and the
 /// steady-state pass: more than the default spread memory (512 readings),

@@ -106,6 +106,22 @@ impl Output {
     }
 }
 
+/// Set the replay up from the log's header (or none): the settings the
+/// engine resolves from it. Not inlined: its temporaries (the settings
+/// layers, the controller being built) then share no frame with the loop,
+/// which keeps the peak stack within the microbit's 16 KiB.
+#[inline(never)]
+fn start(
+    h: Option<&LogHeader>,
+    slot: &mut Option<Replay<REPLAY_WINDOW>>,
+) -> Result<(), Failure> {
+    let r = settings::for_log(h).map_err(Failure::Config)?;
+    *slot = Some(
+        Replay::new(r.config).map_err(|e| Failure::Config(settings::ResolveError::Invalid(e)))?,
+    );
+    Ok(())
+}
+
 fn run() -> Result<(), Failure> {
     // The program name comes first: QEMU passes the full path of the ELF.
     let mut line = [0u8; 512];
@@ -126,10 +142,6 @@ fn run() -> Result<(), Failure> {
     // Set up by the log's header frame, or without a header when a record
     // comes first (the header was lost): as the host does.
     let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
-    let start = |h: Option<&LogHeader>| -> Result<Replay<REPLAY_WINDOW>, Failure> {
-        let r = settings::for_log(h).map_err(Failure::Config)?;
-        Replay::new(r.config).map_err(|e| Failure::Config(settings::ResolveError::Invalid(e)))
-    };
     let mut enc = Encoder::new();
     let mut frame = [0u8; MAX_FRAME];
     out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
@@ -144,9 +156,11 @@ fn run() -> Result<(), Failure> {
                 frame: Frame::Record(rec),
                 ..
             } => {
-                let replay = match replay.as_mut() {
-                    Some(r) => r,
-                    None => replay.insert(start(None)?),
+                if replay.is_none() {
+                    start(None, &mut replay)?;
+                }
+                let Some(replay) = replay.as_mut() else {
+                    return Ok(());
                 };
                 let s = replay.step(&rec);
                 let d = DecisionRecord {
@@ -164,7 +178,7 @@ fn run() -> Result<(), Failure> {
                 // The first header sets the replay up; a later one is only
                 // counted (the host reports it).
                 if replay.is_none() {
-                    replay = Some(start(Some(&header))?);
+                    start(Some(&header), &mut replay)?;
                 } else {
                     other += 1;
                 }
