@@ -528,7 +528,7 @@ fn rate_table(specs: &[RateSpec], profile_modem: Option<&ModemSpec>) -> CliResul
             rates::rate_with_airtime(&spec.name, snr, airtime_us, bw.as_deref()).map_err(at)?;
         rates.push((entry, rate));
     }
-    rates::table(&rates).map_err(|e| CliError::Input(e))
+    rates::table(&rates).map_err(CliError::Input)
 }
 
 fn build(f: ProfileFile) -> CliResult<LoadedProfile> {

@@ -100,6 +100,14 @@ pub struct Args {
     /// interval the log's time stamps give.
     #[arg(long, value_name = "DURATION", value_parser = crate::quantity::duration, requires = "energy")]
     interval: Option<headroom::units::Seconds>,
+    /// Compare, on each log, the joint (rate, power) controller with the
+    /// engine's baselines: power-only control at each fixed rate, the rate
+    /// rule of common practice, and the best single rate with a fixed margin
+    /// chosen in hindsight. Needs --energy with a rate table (the profile's
+    /// or the log's); prints loss, charge per delivered packet, mean current,
+    /// battery life and the most airtime in any hour per rule.
+    #[arg(long, requires = "energy", conflicts_with_all = ["out", "plot"])]
+    baselines: bool,
     /// Replace the files of `--out` and `--plot` if they exist (never an input).
     #[arg(long)]
     force: bool,
@@ -155,6 +163,11 @@ pub fn run(args: Args) -> CliResult {
     };
     let resolver = Resolver::new(&args.settings)?
         .with_profile_rates(energy.as_ref().map(|e| e.rates).unwrap_or_default());
+    if args.baselines {
+        if let Some(p) = &energy {
+            return baselines(&list.logs, &resolver, p, &args);
+        }
+    }
     let mut fleet = Fleet::new();
     let mut fleet_energy = ReplayEnergy::new(None);
     let mut names: Vec<String> = Vec::new();
@@ -225,6 +238,101 @@ pub fn run(args: Args) -> CliResult {
             }
             print_text(&table)
         }
+    }
+}
+
+/// Most records of one log `--baselines` holds (the hindsight search replays
+/// them many times): about 40 MB.
+const MAX_BASELINE_RECORDS: usize = 1_000_000;
+
+/// `--baselines`: every rule over each log, as a table or JSON.
+fn baselines(
+    logs: &[std::path::PathBuf],
+    resolver: &Resolver,
+    energy: &crate::energy::LoadedProfile,
+    args: &Args,
+) -> CliResult {
+    use std::fmt::Write as _;
+    let mut table = String::new();
+    let mut blocks = Vec::new();
+    for path in logs {
+        let name = path.display().to_string();
+        let fleet::OpenLog {
+            mut reader,
+            settings,
+        } = fleet::open(path, &args.input.options(), resolver, None)?;
+        for w in &settings.warnings {
+            warn(&format!("{name}: {w}"));
+        }
+        let cfg = settings.resolved.config;
+        if cfg.rates.is_empty() {
+            return Err(CliError::arg(
+                "--baselines",
+                format!(
+                    "{name}: no rate table: give --energy a profile with [[rate]] entries, or a log with '# rate:' lines"
+                ),
+            ));
+        }
+        let remap = crate::rates::Remap::new(
+            &reader.header().map(|h| h.rates).unwrap_or_default(),
+            &cfg.rates,
+        );
+        let mut records = Vec::new();
+        for rec in &mut reader {
+            let mut rec = rec?;
+            rec.rate = remap.apply(rec.rate).map_err(|why| {
+                CliError::Input(format!("{name}: record at t_ms {}: {why}", rec.t_ms))
+            })?;
+            if records.len() == MAX_BASELINE_RECORDS {
+                return Err(CliError::arg(
+                    "--baselines",
+                    format!("{name}: more than {MAX_BASELINE_RECORDS} records: compare a part of the log"),
+                ));
+            }
+            records.push(rec);
+        }
+        for w in reader.warnings() {
+            warn(&w);
+        }
+        let rows =
+            fleet::baselines::compare(&cfg, &energy.profile, &records).map_err(|e| match e {
+                CliError::Input(m) => CliError::Input(format!("{name}: {m}")),
+                other => other,
+            })?;
+        match args.format {
+            ReplayFormat::Table => {
+                let _ = writeln!(table, "== {}", crate::error::printable(&name));
+                report::settings_table(&mut table, &settings.resolved);
+                let _ = writeln!(table);
+                fleet::baselines::table(&mut table, &rows, &energy.profile, cfg.target_outage);
+                let _ = writeln!(table);
+            }
+            ReplayFormat::Json | ReplayFormat::Jsonl => {
+                let mut obj = Map::new();
+                obj.insert("log".into(), name.clone().into());
+                obj.insert("settings".into(), report::settings_json(&settings.resolved));
+                obj.insert(
+                    "baselines".into(),
+                    Value::Array(rows.iter().map(|r| r.json(&energy.profile)).collect()),
+                );
+                if args.format == ReplayFormat::Jsonl {
+                    let line = crate::output::json_line(&Value::Object(obj))?;
+                    print_text(&format!("{line}\n"))?;
+                } else {
+                    blocks.push(Value::Object(obj));
+                }
+            }
+        }
+    }
+    match args.format {
+        ReplayFormat::Table => print_text(&table),
+        ReplayFormat::Json => {
+            let mut m = Map::new();
+            m.insert("logs".into(), Value::Array(blocks));
+            let s = crate::output::json_text(&Value::Object(m))?;
+            print_text(&format!("{s}\n"))
+        }
+        ReplayFormat::Jsonl => Ok(()),
     }
 }
 

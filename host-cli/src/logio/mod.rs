@@ -632,7 +632,7 @@ pub struct LogWriter {
 }
 
 enum Encoder {
-    Csv(csv::CsvEncoder),
+    Csv(Box<csv::CsvEncoder>),
     Binary(Box<binary::BinaryEncoder>),
 }
 
@@ -656,7 +656,7 @@ pub fn create_as(
     };
     let mut out = AtomicFile::create(path, force)?;
     let mut enc = match format {
-        LogFormat::Csv => Encoder::Csv(csv::CsvEncoder::new()),
+        LogFormat::Csv => Encoder::Csv(Box::new(csv::CsvEncoder::new())),
         LogFormat::Binary => Encoder::Binary(Box::new(binary::BinaryEncoder::new())),
     };
     let res = match &mut enc {
