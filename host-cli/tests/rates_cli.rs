@@ -130,7 +130,7 @@ fn the_table_shows_the_rates_in_force_and_their_source() {
     );
     assert!(out.contains("charge_per_delivered"), "{out}");
     assert!(
-        out.contains("duty_limit            none (no duty-cycle limit configured)"),
+        out.contains("duty_limit            none (no limit given)"),
         "{out}"
     );
     // Without a rate table: no rate block, and the duty limit is still shown.

@@ -459,7 +459,7 @@ pub fn show(s: Setting, v: Value) -> String {
         Value::Cap(EirpCap::AtMost(l)) => format!("{}{unit}", l.0),
         Value::Cap(EirpCap::NoCap) => "none (no cap configured)".into(),
         Value::Duty(DutyLimit::AtMost(f)) => format!("{f} ({}% of any hour)", f * 100.0),
-        Value::Duty(DutyLimit::NoLimit) => "none (no duty-cycle limit configured)".into(),
+        Value::Duty(DutyLimit::NoLimit) => "none (no limit given)".into(),
         Value::Rate(Some(n)) => n.as_str().to_string(),
         Value::Rate(None) => "none".into(),
         Value::Rates(t) if t.is_empty() => "none (power only)".into(),
