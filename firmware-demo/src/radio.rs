@@ -7,6 +7,7 @@
 //! the demo runs unchanged under QEMU.
 
 use headroom::control::{Observation, PowerSteps};
+use headroom::rate::RateTable;
 use headroom::sim::{Channel, ChannelConfig, ChannelSample};
 use headroom::units::Dbm;
 
@@ -35,6 +36,14 @@ pub trait Radio {
     /// Send one packet at the current power.
     fn send(&mut self, payload: &[u8]) -> Result<(), Self::Error>;
 
+    /// Choose the data rate of the next packets (an index into the radio's
+    /// rate table); returns the rate's airtime, µs.
+    fn set_rate(&mut self, rate: u8) -> Result<u32, Self::Error>;
+
+    /// Let one packet slot pass without sending (a packet held by the duty
+    /// budget); returns the slot's time, ms.
+    fn skip(&mut self) -> Result<u64, Self::Error>;
+
     /// What came back about the last packet sent: the far end's readings, a
     /// bare acknowledgement, or nothing (lost).
     fn feedback(&mut self) -> Result<Observation, Self::Error>;
@@ -45,6 +54,8 @@ pub trait Radio {
 pub enum SimRadioError {
     /// The power is outside the radio's range or not one of its levels.
     PowerNotSupported(Dbm),
+    /// A rate index outside the radio's rate table.
+    RateNotSupported(u8),
     /// Feedback was asked for before any packet was sent.
     NothingSent,
     /// The channel simulator refused (see the engine error).
@@ -57,6 +68,10 @@ pub struct SimRadio {
     caps: PowerCapabilities,
     tx: Dbm,
     last: Option<ChannelSample>,
+    /// The rates the radio can send at (empty: the channel's own reception
+    /// threshold decides), and the one in use.
+    rates: RateTable,
+    rate: u8,
 }
 
 /// Tolerance when matching a requested power to a level, dB.
@@ -75,7 +90,18 @@ impl SimRadio {
             caps,
             tx: caps.max,
             last: None,
+            rates: RateTable::empty(),
+            rate: 0,
         })
+    }
+
+    /// The same radio with a rate table: a packet at rate `m` is received
+    /// when its SNR, measured in that rate's noise bandwidth (the channel's
+    /// noise floor is rate 0's), reaches the rate's required SNR, and the far
+    /// end reports the noise floor in that bandwidth.
+    pub fn with_rates(mut self, rates: RateTable) -> Self {
+        self.rates = rates;
+        self
     }
 
     /// The truth behind the last packet (what the simulator knows and the
@@ -118,12 +144,41 @@ impl Radio for SimRadio {
     }
 
     fn send(&mut self, _payload: &[u8]) -> Result<(), SimRadioError> {
+        let mut s = self
+            .channel
+            .packet(self.tx)
+            .map_err(SimRadioError::Channel)?;
+        if let Some(r) = self.rates.get(self.rate) {
+            let shift = self.rates.noise_change_db(self.rate, 0).map_or(0.0, |d| d.0);
+            let received = s.snr.0 - shift >= r.required_snr.0;
+            s.received = received;
+            if !received || s.feedback_lost {
+                s.reported_rssi = None;
+                s.reported_noise = None;
+            } else {
+                s.reported_noise = s.reported_noise.map(|n| Dbm(n.0 + shift));
+            }
+        }
+        self.last = Some(s);
+        Ok(())
+    }
+
+    fn set_rate(&mut self, rate: u8) -> Result<u32, SimRadioError> {
+        let r = self
+            .rates
+            .get(rate)
+            .ok_or(SimRadioError::RateNotSupported(rate))?;
+        self.rate = rate;
+        Ok(r.airtime_us)
+    }
+
+    fn skip(&mut self) -> Result<u64, SimRadioError> {
         let s = self
             .channel
             .packet(self.tx)
             .map_err(SimRadioError::Channel)?;
-        self.last = Some(s);
-        Ok(())
+        self.last = None;
+        Ok(s.t_ms)
     }
 
     fn feedback(&mut self) -> Result<Observation, SimRadioError> {

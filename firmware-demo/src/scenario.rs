@@ -3,17 +3,14 @@
 //! gateway, at 868 MHz. All numbers are made up for the demo; they are
 //! plausible for a sub-GHz node, not any product's data.
 
-use headroom::control::{ControllerConfig, PowerSteps};
-use headroom::energy::airtime::{ChirpModem, LowDataRate};
-use headroom::energy::{Battery, EnergyProfile, TableError, TxCurrentTable};
+use headroom::control::{ControllerConfig, DutyLimit, PowerSteps};
+use headroom::energy::{Battery, EnergyProfile, TableError};
+use headroom::rate::{RateError, RateTable};
 use headroom::propagation::PathLossModel;
 use headroom::sim::{
     ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory,
 };
-use headroom::units::{
-    Db, Dbi, Dbm, Hertz, Metres, Microamps, Microcoulombs, MilliampHours, Milliamps, Milliseconds,
-    Volts,
-};
+use headroom::units::{Db, Dbi, Dbm, Hertz, Metres, MilliampHours};
 
 use crate::radio::PowerCapabilities;
 
@@ -42,6 +39,45 @@ pub fn controller_config(radio: &PowerCapabilities) -> ControllerConfig {
     cfg.max_tx_dbm = radio.max;
     cfg.steps = radio.steps;
     cfg.far_antenna_gain_dbi = GATEWAY_ANTENNA;
+    cfg
+}
+
+/// The live demo's link with rates in play: the same trees and trailer,
+/// farther out (2 km, driving away at 1.5 m/s, 1.2 to 4 km), where the
+/// rate matters; reception is the radio's, by the rate's required SNR.
+pub fn rate_channel() -> ChannelConfig {
+    let mut c = channel();
+    c.trajectory = Trajectory {
+        start: Metres(2000.0),
+        speed_m_per_s: 1.5,
+        min: Some(Metres(1200.0)),
+        max: Some(Metres(4000.0)),
+    };
+    c.min_snr = None;
+    c
+}
+
+/// The rates of the live demo's radio: the engine's invented demo node
+/// ([`headroom::energy::demo::demo_rates`]: chirp spread spectrum at
+/// 125 kHz, spreading factors 7, 8, 9, 10 and 12).
+pub fn rates() -> Result<RateTable, EnergySetupError> {
+    headroom::energy::demo::demo_rates().map_err(EnergySetupError::Rate)
+}
+
+/// The live demo's controller with its rates: the required SNR is each
+/// rate's, and the airtime budget is 10 % of any hour (the EN 300 220
+/// sub-band at 869.40–869.65 MHz, from memory: check the rules that
+/// apply).
+pub fn controller_config_with_rates(
+    radio: &PowerCapabilities,
+    rates: RateTable,
+) -> ControllerConfig {
+    let mut cfg = controller_config(radio);
+    if let Some(first) = rates.get(0) {
+        cfg.required_snr_db = first.required_snr;
+    }
+    cfg.rates = rates;
+    cfg.duty_limit = DutyLimit::AtMost(0.1);
     cfg
 }
 
@@ -102,7 +138,7 @@ pub fn channel() -> ChannelConfig {
 }
 
 /// Points of the demo radio's transmit current table.
-pub const TX_POINTS: usize = 8;
+pub const TX_POINTS: usize = headroom::energy::demo::DEMO_TX_POINTS;
 
 /// The demo radio's energy profile, invented for the demo (plausible for a
 /// sub-GHz node with a +22 dBm amplifier, not any product's data): supply
@@ -111,37 +147,7 @@ pub const TX_POINTS: usize = 8;
 /// window, 900 µC of wake-up and sensor work per packet, 1.8 µA asleep, and
 /// a 3000 mAh battery.
 pub fn energy_profile() -> Result<EnergyProfile<TX_POINTS>, EnergySetupError> {
-    let table = TxCurrentTable::from_points(&[
-        (-9.0, 17.0),
-        (0.0, 19.5),
-        (5.0, 24.5),
-        (10.0, 30.0),
-        (14.0, 44.0),
-        (17.0, 75.0),
-        (20.0, 100.0),
-        (22.0, 120.0),
-    ])
-    .map_err(EnergySetupError::Table)?;
-    let modem = ChirpModem {
-        spreading_factor: 9,
-        bandwidth: Hertz(125e3),
-        coding_rate: 1,
-        preamble_symbols: 8,
-        explicit_header: true,
-        crc: true,
-        low_data_rate: LowDataRate::Auto,
-    };
-    let airtime = modem.airtime(20).map_err(EnergySetupError::Engine)?;
-    let profile = EnergyProfile::new(
-        Volts(3.3),
-        table,
-        airtime,
-        Milliseconds(160.0),
-        Milliamps(11.5),
-        Microcoulombs(900.0),
-        Microamps(1.8),
-    )
-    .map_err(EnergySetupError::Engine)?;
+    let profile = headroom::energy::demo::demo_profile().map_err(EnergySetupError::Engine)?;
     let battery = Battery::new(MilliampHours(3000.0)).map_err(EnergySetupError::Engine)?;
     Ok(profile.with_battery(battery))
 }
@@ -153,4 +159,6 @@ pub enum EnergySetupError {
     Table(TableError),
     /// A value of the profile or the modem.
     Engine(headroom::Error),
+    /// A rate of the demo's table.
+    Rate(RateError),
 }

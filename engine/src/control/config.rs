@@ -478,8 +478,8 @@ impl ControllerConfig {
             rates: RateTable::empty(),
             logged_rate: None,
             duty_limit: DutyLimit::NoLimit,
-            rate_hysteresis: 0.05,
-            rate_dwell: 2,
+            rate_hysteresis: 0.1,
+            rate_dwell: 8,
         }
     }
 

@@ -652,25 +652,18 @@ impl<const W: usize> Replay<W> {
     /// A replay that costs every packet with `profile` (charge per packet
     /// at the chosen power and the chosen rate's airtime) and lets the
     /// controller choose among the rates by that cost.
-    pub fn with_energy(
+    pub fn with_energy<const N: usize>(
         cfg: ControllerConfig,
-        profile: &EnergyProfile,
+        profile: &EnergyProfile<N>,
     ) -> Result<Self, ConfigError> {
-        Self::build(cfg, Some(profile))
+        let charge = ChargeTable::from_profile(profile).map_err(|_| ConfigError::Inconsistent {
+            setting: "rates",
+            why: "the energy profile's transmit current table has too many points",
+        })?;
+        Self::build(cfg, Some(charge))
     }
 
-    fn build(cfg: ControllerConfig, profile: Option<&EnergyProfile>) -> Result<Self, ConfigError> {
-        let charge = match profile {
-            Some(p) => {
-                Some(
-                    ChargeTable::from_profile(p).map_err(|_| ConfigError::Inconsistent {
-                        setting: "rates",
-                        why: "the energy profile's transmit current table has too many points",
-                    })?,
-                )
-            }
-            None => None,
-        };
+    fn build(cfg: ControllerConfig, charge: Option<ChargeTable>) -> Result<Self, ConfigError> {
         let controller = Controller::<W>::with_charge(cfg, charge)?;
         let summary = Summary::new(controller.limits().1);
         Ok(Replay {

@@ -11,6 +11,7 @@
 //! |---|---|
 //! | [`profile`] | the radio energy profile, charge per packet, mean current, battery life, resends |
 //! | [`charge`] | the profile's charge per packet in the controller's integers (rate choice) |
+//! | [`demo`] | the invented node of the demos (energy profile and rates) |
 //! | [`airtime`] | time on air of a generic packet modem and of chirp spread spectrum |
 //! | [`duty`] | duty cycle, airtime per hour, EN 300 220 sub-band limits, the sliding airtime budget of one hour |
 //! | [`tally`] | linear sums of charge and airtime that add up over records and devices |
@@ -29,6 +30,7 @@
 
 pub mod airtime;
 pub mod charge;
+pub mod demo;
 pub mod duty;
 pub mod profile;
 pub mod replay;

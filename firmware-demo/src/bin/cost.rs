@@ -16,6 +16,7 @@ use cortex_m_rt::entry;
 use cortex_m_semihosting::hprintln;
 
 use headroom::control::{Controller, Observation, Replay};
+use headroom::energy::ChargeTable;
 use headroom::record::codec::{encode_decision, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogRecord};
 use headroom_firmware_demo::clock::{ticks_between, ticks_to_milli_instructions, Clock};
@@ -38,8 +39,128 @@ const SETTLE: usize = 1024;
 #[entry]
 fn main() -> ! {
     headroom_firmware_demo::stack::paint();
-    let ok = run();
+    let Some(p) = cortex_m::Peripherals::take() else {
+        host::eprint("peripherals already taken\n");
+        host::exit(false)
+    };
+    let clock = Clock::new(p.SYST);
+    // Two passes one after the other (not nested: their frames share the
+    // microbit's 16 KiB one at a time).
+    let ok = run(&clock) && run_rates(&clock);
+    hprintln!("stack_peak_bytes={}", stack::peak());
+    hprintln!("stack_available_bytes={}", stack::available());
     host::exit(ok)
+}
+
+/// One packet of the closed loop with rates: sent at the controller's power
+/// and rate (or the slot passes when the duty budget holds it); the
+/// controller takes the outcome. Returns what it was fed.
+fn rate_step<const W: usize>(radio: &mut SimRadio, ctrl: &mut Controller<W>) -> Option<Step> {
+    if ctrl.is_held() {
+        let t = radio.skip().ok()?;
+        ctrl.held(t);
+        return Some(Step::Held(t));
+    }
+    let ok = radio.set_tx_power(ctrl.tx()).is_ok()
+        && radio.set_rate(ctrl.rate().unwrap_or(0)).is_ok()
+        && radio.send(&[]).is_ok();
+    if !ok {
+        host::eprint("radio refused\n");
+        return None;
+    }
+    let f = radio.feedback().ok()?;
+    ctrl.update(&f);
+    Some(Step::Sent(f))
+}
+
+/// What a packet slot fed the controller.
+#[derive(Clone, Copy)]
+enum Step {
+    Sent(Observation),
+    Held(u64),
+}
+
+/// The update with rates in play: the live demo's five rates, its energy
+/// profile and a 10 % duty budget, over the demo's far link; the mean of
+/// `N` updates in the steady state and the slowest.
+#[inline(never)]
+fn run_rates(clock: &Clock) -> bool {
+    let (Ok(rates), Ok(energy)) = (scenario::rates(), scenario::energy_profile()) else {
+        host::eprint("rate table or energy profile refused\n");
+        return false;
+    };
+    let Ok(charge) = ChargeTable::from_profile(&energy) else {
+        host::eprint("energy profile refused\n");
+        return false;
+    };
+    let Ok(radio) = SimRadio::new(scenario::rate_channel(), scenario::SEED, scenario::RADIO) else {
+        host::eprint("channel refused\n");
+        return false;
+    };
+    let mut radio = radio.with_rates(rates);
+    let cfg = scenario::controller_config_with_rates(&radio.capabilities(), rates);
+    let Ok(mut ctrl) = Controller::<WINDOW>::with_charge(cfg, Some(charge)) else {
+        host::eprint("controller settings refused\n");
+        return false;
+    };
+    for _ in 0..SETTLE {
+        if rate_step(&mut radio, &mut ctrl).is_none() {
+            return false;
+        }
+    }
+    let settled = ctrl;
+    let mut fed = [Step::Held(0); N];
+    for f in fed.iter_mut() {
+        let Some(s) = rate_step(&mut radio, &mut ctrl) else {
+            return false;
+        };
+        *f = s;
+    }
+    let t0 = clock.now();
+    for f in fed.iter() {
+        black_box(f);
+    }
+    let overhead = ticks_between(t0, clock.now());
+    let mut c = settled;
+    let t0 = clock.now();
+    for f in fed.iter() {
+        match *f {
+            Step::Sent(o) => black_box(c.update(black_box(&o))),
+            Step::Held(t) => black_box(c.held(black_box(t))),
+        };
+    }
+    let ticks = ticks_between(t0, clock.now());
+    let mut c = settled;
+    let mut max_ticks = 0u32;
+    let mut empty_max = 0u32;
+    for _ in 0..8 {
+        let t = clock.now();
+        let u = clock.now();
+        empty_max = empty_max.max(ticks_between(t, u));
+    }
+    let mut changes = 0u32;
+    for f in fed.iter() {
+        let before = c.rate();
+        let t = clock.now();
+        match *f {
+            Step::Sent(o) => black_box(c.update(black_box(&o))),
+            Step::Held(t) => black_box(c.held(black_box(t))),
+        };
+        let u = clock.now();
+        max_ticks = max_ticks.max(ticks_between(t, u));
+        changes += u32::from(c.rate() != before);
+    }
+    hprintln!("rates_in_table={}", rates.len());
+    hprintln!("rates_changes_timed={}", changes);
+    hprintln!(
+        "rates_update_mean_milli_instructions={}",
+        per_item(ticks, overhead, N)
+    );
+    hprintln!(
+        "rates_update_max_instructions_upper={}",
+        ticks_to_milli_instructions(u64::from(max_ticks.saturating_sub(empty_max) + 1)) / 1000
+    );
+    true
 }
 
 /// Instructions (×1000) per item for a span of `ticks` over `n` items,
@@ -67,12 +188,8 @@ fn closed_loop_step<const W: usize>(
     }
 }
 
-fn run() -> bool {
-    let Some(p) = cortex_m::Peripherals::take() else {
-        host::eprint("peripherals already taken\n");
-        return false;
-    };
-    let clock = Clock::new(p.SYST);
+#[inline(never)]
+fn run(clock: &Clock) -> bool {
 
     // 1. A closed loop over the simulated link records what the controller
     //    is fed; a fresh controller fed the same sequence makes the same
@@ -233,7 +350,5 @@ fn run() -> bool {
         "encode_decision_mean_milli_instructions={}",
         per_item(encode_ticks, overhead, N)
     );
-    hprintln!("stack_peak_bytes={}", stack::peak());
-    hprintln!("stack_available_bytes={}", stack::available());
     true
 }

@@ -1,7 +1,9 @@
 //! Live demo: a packet loop over the simulated orchard link. Before each
-//! packet the engine's controller chooses the power; every decision is
-//! logged with defmt (decode with `defmt-print -e ELF`), and a summary ends
-//! the run.
+//! packet the engine's controller chooses the rate and the power within a
+//! duty-cycle budget; the simulated radio honours the rate (its airtime and
+//! its required SNR). Every decision is logged with defmt (decode with
+//! `defmt-print -e ELF`), every rate change on a line of its own, and a
+//! summary ends the run.
 #![no_std]
 #![no_main]
 
@@ -9,8 +11,8 @@ use cortex_m_rt::entry;
 use defmt_semihosting as _;
 use embedded_hal::delay::DelayNs;
 
-use headroom::control::{Controller, Observation, Outcome, ReplayStep, Summary};
-use headroom::energy::EnergyTally;
+use headroom::control::{Controller, Observation, Outcome, Reason, ReplayStep, Summary};
+use headroom::energy::{ChargeTable, EnergyTally, Microcoulombs, Milliseconds, PacketCost};
 use headroom::record::LogRecord;
 use headroom::units::Seconds;
 use headroom_firmware_demo::clock::{Clock, Delay};
@@ -39,15 +41,38 @@ fn run() -> bool {
     let clock = Clock::new(p.SYST);
     let mut delay = Delay::new(&clock);
 
-    let mut radio = match SimRadio::new(scenario::channel(), scenario::SEED, scenario::RADIO) {
+    let rates = match scenario::rates() {
         Ok(r) => r,
+        Err(e) => {
+            defmt::error!("rate table refused: {}", e);
+            return false;
+        }
+    };
+    let mut radio = match SimRadio::new(scenario::rate_channel(), scenario::SEED, scenario::RADIO)
+    {
+        Ok(r) => r.with_rates(rates),
         Err(e) => {
             defmt::error!("channel refused: {}", e);
             return false;
         }
     };
+    let energy = match scenario::energy_profile() {
+        Ok(e) => e,
+        Err(e) => {
+            defmt::error!("energy profile refused: {}", e);
+            return false;
+        }
+    };
+    let charge = match ChargeTable::from_profile(&energy) {
+        Ok(c) => c,
+        Err(e) => {
+            defmt::error!("energy profile refused: {}", e);
+            return false;
+        }
+    };
     let caps = radio.capabilities();
-    let mut ctrl = match Controller::<WINDOW>::new(scenario::controller_config(&caps)) {
+    let cfg = scenario::controller_config_with_rates(&caps, rates);
+    let mut ctrl = match Controller::<WINDOW>::with_charge(cfg, Some(charge)) {
         Ok(c) => c,
         Err(e) => {
             defmt::error!("controller settings refused: {}", e);
@@ -56,29 +81,75 @@ fn run() -> bool {
     };
     let (bottom, top) = ctrl.limits();
     defmt::info!(
-        "live demo on {=str}: {=u32} packets, levels {=f32}..{=f32} dBm, window {=usize}",
+        "live demo on {=str}: {=u32} packets, levels {=f32}..{=f32} dBm, window {=usize}, {=usize} rates, duty limit 10 %",
         board::BOARD,
         scenario::PACKETS,
         bottom.0,
         top.0,
-        WINDOW
+        WINDOW,
+        rates.len()
     );
+    let name = |m: Option<u8>| m.and_then(|m| rates.get(m)).map_or("-", |r| r.name.as_str());
 
-    let energy = match scenario::energy_profile() {
-        Ok(e) => e,
-        Err(e) => {
-            defmt::error!("energy profile refused: {}", e);
-            return false;
-        }
-    };
-
-    // The engine's replay totals count packets, losses and power the same
-    // way for the live loop as for a replayed log; its energy tally adds up
-    // the charge of each packet at the power it was sent.
+    // The engine's replay totals count packets, losses, power, rates and
+    // charge the same way for the live loop as for a replayed log; its
+    // energy tally adds up the charge of each packet at the power and the
+    // rate it was sent.
     let mut summary = Summary::new(top);
     let mut tally = EnergyTally::new();
     for k in 0..scenario::PACKETS {
         let chosen = ctrl.tx();
+        let rate = ctrl.rate();
+        let at_max = ctrl.at_top();
+        if ctrl.is_held() {
+            // No rate fits the duty budget: the slot passes unsent.
+            let t = match radio.skip() {
+                Ok(t) => t,
+                Err(e) => {
+                    defmt::error!("packet {=u32}: the link failed: {}", k, e);
+                    return false;
+                }
+            };
+            let d = ctrl.held(t);
+            let wake = PacketCost {
+                charge: energy.per_packet(),
+                radio_charge: Microcoulombs(0.0),
+                airtime: Milliseconds(0.0),
+            };
+            tally.add(t, &wake, energy.sleep_current(), Some(false));
+            summary.add(
+                &LogRecord {
+                    t_ms: t,
+                    ..LogRecord::default()
+                },
+                &ReplayStep {
+                    t_ms: t,
+                    chosen,
+                    replayed_snr: None,
+                    outcome: Outcome::Held,
+                    logged_lost: None,
+                    at_max,
+                    path_loss_estimate: d.path_loss(),
+                    margin: d.margin(),
+                    reason: d.reason,
+                    next_tx: d.tx,
+                    rate,
+                    next_rate: d.rate,
+                    next_held: d.held,
+                    airtime_us: Some(0),
+                    charge: Some(energy.per_packet()),
+                },
+            );
+            defmt::info!(
+                "pkt {=u32} t={=u64}ms held by the duty budget -> {=f32}dBm {=str} {}",
+                k,
+                t,
+                d.tx.0,
+                name(d.rate),
+                d.reason
+            );
+            continue;
+        }
         if let Err(e) = radio.set_tx_power(chosen) {
             defmt::error!(
                 "packet {=u32}: radio refused {=f32} dBm: {}",
@@ -88,6 +159,13 @@ fn run() -> bool {
             );
             return false;
         }
+        let airtime_us = match radio.set_rate(rate.unwrap_or(0)) {
+            Ok(a) => a,
+            Err(e) => {
+                defmt::error!("packet {=u32}: radio refused the rate: {}", k, e);
+                return false;
+            }
+        };
         if let Err(e) = radio.send(&k.to_le_bytes()) {
             defmt::error!("packet {=u32}: send failed: {}", k, e);
             return false;
@@ -100,7 +178,6 @@ fn run() -> bool {
                 return false;
             }
         };
-        let at_max = ctrl.at_top();
         let d = ctrl.update(&obs);
         let (outcome, snr) = match obs {
             Observation::Feedback {
@@ -110,26 +187,29 @@ fn run() -> bool {
             Observation::Lost { .. } => (Outcome::Lost, None),
             Observation::Beacon { .. } | Observation::Missing { .. } => (Outcome::Unjudged, None),
         };
-        match energy.packet_cost(chosen) {
-            Ok(cost) => tally.add(
-                obs.t_ms(),
-                &cost,
-                energy.sleep_current(),
-                match outcome {
-                    Outcome::Delivered => Some(true),
-                    Outcome::Lost => Some(false),
-                    Outcome::Unjudged | Outcome::Held => None,
-                },
-            ),
+        let air = Milliseconds(airtime_us as f32 / 1000.0);
+        let cost = match energy.packet_cost_for(chosen, air) {
+            Ok(cost) => cost,
             Err(e) => {
                 defmt::error!("packet {=u32}: no charge at {=f32} dBm: {}", k, chosen.0, e);
                 return false;
             }
-        }
+        };
+        tally.add(
+            obs.t_ms(),
+            &cost,
+            energy.sleep_current(),
+            match outcome {
+                Outcome::Delivered => Some(true),
+                Outcome::Lost => Some(false),
+                Outcome::Unjudged | Outcome::Held => None,
+            },
+        );
         // The packet as this device would log it: sent at `chosen`.
         let sent = LogRecord {
             t_ms: obs.t_ms(),
             tx_dbm: Some(chosen.0),
+            rate,
             ..LogRecord::default()
         };
         summary.add(
@@ -145,24 +225,29 @@ fn run() -> bool {
                 margin: d.margin(),
                 reason: d.reason,
                 next_tx: d.tx,
-                rate: None,
+                rate,
                 next_rate: d.rate,
                 next_held: d.held,
-                airtime_us: None,
-                charge: None,
+                airtime_us: Some(airtime_us),
+                charge: Some(cost.charge),
             },
         );
         defmt::info!(
-            "pkt {=u32} t={=u64}ms tx={=f32}dBm {} snr={} -> {=f32}dBm {} margin={=f32}dB",
+            "pkt {=u32} t={=u64}ms tx={=f32}dBm {=str} {} snr={} -> {=f32}dBm {} margin={=f32}dB",
             k,
             obs.t_ms(),
             chosen.0,
+            name(rate),
             outcome,
             snr.map(|s| s.0),
             d.tx.0,
             d.reason,
             d.margin().0
         );
+        if d.rate != rate {
+            let r: Reason = d.reason;
+            defmt::info!("rate {=str} -> {=str}: {}", name(rate), name(d.rate), r);
+        }
     }
 
     let loss = summary.outage_fraction().unwrap_or(0.0);
@@ -181,6 +266,19 @@ fn run() -> bool {
         saved_db,
         saved_fraction * 100.0,
         summary.power_changes
+    );
+    let share = |m: u8| summary.rate_share(m).unwrap_or(0.0) * 100.0;
+    defmt::info!(
+        "rates: {=u64} changes, shares sf7 {=f32} %, sf8 {=f32} %, sf9 {=f32} %, sf10 {=f32} %, sf12 {=f32} %; {=u64} held by the duty budget, {=u64} duty-shaped decisions, {=f32} uC per delivered packet",
+        summary.rate_changes,
+        share(0),
+        share(1),
+        share(2),
+        share(3),
+        share(4),
+        summary.held,
+        summary.duty_limited,
+        summary.charge_per_delivered_uc().map_or(f32::NAN, |c| c as f32)
     );
     // Charge and projected battery life of the controller against always
     // sending at the highest allowed power, at the demo's packet interval.

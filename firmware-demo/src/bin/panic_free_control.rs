@@ -14,7 +14,10 @@ use core::hint::black_box;
 
 use cortex_m_rt::entry;
 
-use headroom::control::{settings, Controller, ControllerConfig, Fleet, Observation, Replay};
+use headroom::control::{
+    settings, Controller, ControllerConfig, DutyLimit, Fleet, Observation, Replay,
+};
+use headroom::energy::{demo, AirtimeWindow, ChargeTable};
 use headroom::energy::airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
 use headroom::energy::duty::{duty_cycle, en_300_220_sub_bands, min_interval};
 use headroom::energy::{
@@ -97,7 +100,70 @@ fn run() -> bool {
         ..LogHeader::default()
     };
     black_box(settings::for_log(black_box(Some(&header))).is_ok());
-    energy()
+    rates() && energy()
+}
+
+/// The joint choice of rate and power: a controller and a replay with the
+/// demo node's rates, its energy profile and a duty budget, fed values no
+/// compiler can predict (held packets, rate indices outside the table).
+fn rates() -> bool {
+    let (Ok(table), Ok(profile)) = (demo::demo_rates(), demo::demo_profile()) else {
+        return false;
+    };
+    let Ok(charge) = ChargeTable::from_profile(black_box(&profile)) else {
+        return false;
+    };
+    let mut cfg = black_box(ControllerConfig::sub_ghz_node());
+    cfg.rates = black_box(table);
+    cfg.duty_limit = DutyLimit::AtMost(probe_f32(3, 9).abs().min(1.0).max(1e-3));
+    cfg.rate_hysteresis = black_box(0.1);
+    let (Ok(mut ctrl), Ok(mut replay)) = (
+        Controller::<WINDOW>::with_charge(cfg, Some(charge)),
+        Replay::<WINDOW>::with_energy(cfg, black_box(&profile)),
+    ) else {
+        return false;
+    };
+    for k in 0..black_box(256u32) {
+        let t_ms = black_box(u64::from(k) * 30_000);
+        let (a, b, c) = (probe_f32(k, 1), probe_f32(k, 2), probe_f32(k, 3));
+        if ctrl.is_held() {
+            black_box(ctrl.held(t_ms));
+        } else {
+            black_box(ctrl.update(black_box(&Observation::Feedback {
+                t_ms,
+                tx: Dbm(a),
+                rssi: Dbm(b),
+                noise: Dbm(c),
+                snr: None,
+            })));
+        }
+        let rec = LogRecord {
+            t_ms,
+            tx_dbm: Some(a),
+            rssi_dbm: Some(b),
+            noise_dbm: Some(c),
+            rate: Some(black_box((k % 7) as u8)),
+        };
+        black_box(replay.step(black_box(&rec)));
+    }
+    let s = replay.summary();
+    black_box((
+        s.charge_per_delivered_uc(),
+        s.delivered_fraction(),
+        s.rate_share(black_box(2)),
+    ));
+    let mut w = match AirtimeWindow::new(probe_f32(5, 5)) {
+        Ok(w) => w,
+        Err(_) => return true,
+    };
+    for k in 0..black_box(128u32) {
+        w.advance(black_box(u64::from(k) * 7_000));
+        if w.fits(black_box(k * 1000)) {
+            w.add(black_box(k * 1000));
+        }
+    }
+    black_box(w.used_us());
+    true
 }
 
 /// The energy functions on arbitrary inputs (any f32 bits, any integer).

@@ -6,6 +6,10 @@
 //! and writes one decision frame per record to a host file. `cargo xtask firmware` compares those frames with the
 //! host's `headroom replay` output, record by record.
 //!
+//! A log whose header has several rates is replayed with the rate choice
+//! costed by the engine's invented demo node
+//! ([`headroom::energy::demo::demo_profile`]).
+//!
 //! Usage (under QEMU): `-append "LOG.hrlog DECISIONS.hrlog"`; prints a
 //! one-line summary and exits 0, or prints why it failed and exits 1.
 #![no_std]
@@ -15,6 +19,7 @@ use cortex_m_rt::entry;
 use cortex_m_semihosting::hprintln;
 
 use headroom::control::{settings, Replay, REPLAY_WINDOW};
+use headroom::energy::demo;
 use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogHeader};
 use headroom_firmware_demo::host::{self, File, HostError, Mode};
@@ -45,6 +50,7 @@ enum Failure {
     Host(HostError),
     Config(settings::ResolveError),
     Encode(CodecError),
+    Profile,
 }
 
 impl core::fmt::Display for Failure {
@@ -56,6 +62,7 @@ impl core::fmt::Display for Failure {
             // (about 20 KB of flash) into the image; the host says them.
             Failure::Config(e) => write!(f, "controller settings refused: {}", e.setting()),
             Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
+            Failure::Profile => f.write_str("the demo node's energy profile was refused"),
         }
     }
 }
@@ -116,9 +123,15 @@ fn start(
     slot: &mut Option<Replay<REPLAY_WINDOW>>,
 ) -> Result<(), Failure> {
     let r = settings::for_log(h).map_err(Failure::Config)?;
-    *slot = Some(
-        Replay::new(r.config).map_err(|e| Failure::Config(settings::ResolveError::Invalid(e)))?,
-    );
+    let refused = |e| Failure::Config(settings::ResolveError::Invalid(e));
+    // A log with several rates: the rate is chosen by the charge of the
+    // engine's invented demo node, as `cargo xtask firmware` replays it.
+    *slot = Some(if r.config.rates.len() > 1 {
+        let profile = demo::demo_profile().map_err(|_| Failure::Profile)?;
+        Replay::with_energy(r.config, &profile).map_err(refused)?
+    } else {
+        Replay::new(r.config).map_err(refused)?
+    });
     Ok(())
 }
 

@@ -33,6 +33,13 @@ pub struct Cost {
     pub settle_packets: u64,
     /// Peak stack use of the cost firmware, bytes.
     pub stack_peak_bytes: u64,
+    /// Rates of the table in the pass with rates in play.
+    pub rates_in_table: u64,
+    /// Mean instructions per update × 1000 with rates in play (the live
+    /// demo's rates, energy profile and duty budget), steady state.
+    pub rates_update_mean_milli: u64,
+    /// Upper bound on the slowest update of that pass, instructions.
+    pub rates_update_max_upper: u64,
 }
 
 /// Run the `cost` firmware on `board` and parse its `key=value` lines.
@@ -74,16 +81,23 @@ pub fn measure(ctx: &Ctx, board: &Board) -> Result<Cost, String> {
         updates_timed: num("updates_timed")?,
         settle_packets: num("settle_packets")?,
         stack_peak_bytes: num("stack_peak_bytes")?,
+        rates_in_table: num("rates_in_table")?,
+        rates_update_mean_milli: num("rates_update_mean_milli_instructions")?,
+        rates_update_max_upper: num("rates_update_max_instructions_upper")?,
     };
     if c.update_mean_milli == 0 {
         return Err("cost firmware measured 0 instructions per update: was -icount active?".into());
     }
     println!(
-        "{}: {:.1} instructions per update (mean, steady state), {:.1} (mean from a fresh start), ≤ {} (slowest)",
+        "{}: {:.1} instructions per update (mean, steady state), {:.1} (mean from a fresh start), ≤ {} (slowest); \
+         with {} rates and a duty budget: {:.1} (mean, steady state), ≤ {} (slowest)",
         board.machine,
         c.update_mean_milli as f64 / 1000.0,
         c.update_fresh_mean_milli as f64 / 1000.0,
-        c.update_max_upper
+        c.update_max_upper,
+        c.rates_in_table,
+        c.rates_update_mean_milli as f64 / 1000.0,
+        c.rates_update_max_upper
     );
     Ok(c)
 }

@@ -67,7 +67,7 @@ pub const BOARDS: [Board; 2] = [
 pub const PANIC_PROBES: [(&str, &str); 3] = [
     (
         "panic_free_control",
-        "Controller::update, Replay::step, Summary, energy (profile, airtime, duty, tally)",
+        "Controller::update and held with rates, Replay::step with rates, Summary, energy (profile, charge table, airtime, duty window, tally)",
     ),
     (
         "panic_free_encoder",
@@ -359,9 +359,10 @@ fn print_table(
     );
     println!(
         "| board | core | state bytes | mean instr/update | max instr/update (≤) | \
-         mean, first {timed} from fresh | goal | replay step | encode decision frame | peak stack bytes |"
+         mean, first {timed} from fresh | goal | with rates: mean instr/update | with rates: max (≤) | \
+         replay step | encode decision frame | peak stack bytes |"
     );
-    println!("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|");
+    println!("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|");
     for (b, c) in costs {
         let verdict = if c.update_mean_milli <= b.update_goal * 1000 {
             "met"
@@ -369,7 +370,7 @@ fn print_table(
             "NOT met"
         };
         println!(
-            "| {} | {} | {} | {:.1} | {} | {:.1} | ≤ {} ({verdict}) | {:.1} | {:.1} | {} |",
+            "| {} | {} | {} | {:.1} | {} | {:.1} | ≤ {} ({verdict}) | {:.1} | {} | {:.1} | {:.1} | {} |",
             b.machine,
             b.core,
             c.controller_state_bytes,
@@ -377,6 +378,8 @@ fn print_table(
             c.update_max_upper,
             c.update_fresh_mean_milli as f64 / 1000.0,
             b.update_goal,
+            c.rates_update_mean_milli as f64 / 1000.0,
+            c.rates_update_max_upper,
             c.replay_step_mean_milli as f64 / 1000.0,
             c.encode_mean_milli as f64 / 1000.0,
             c.stack_peak_bytes

@@ -7,6 +7,16 @@
 //! the chosen power and exactly in outcome and reason:
 //! - `headroom replay LOG --out decisions.csv` (the host CLI), and
 //! - the engine's `Replay` run here on the decoded log.
+//!
+//! With rates in play: a log written here by the engine's channel simulator
+//! at a rate schedule, in log format 1.2 (the rate table in the header, the
+//! rate in every record), over an invented far link. Its header has several
+//! rates, so the replay chooses the rate, costed by the engine's invented
+//! demo node (`headroom::energy::demo`), on the target and here alike; the
+//! host CLI, which needs an energy profile file to choose rates, is not in
+//! that comparison (the rate itself is not in a decision frame: its effect
+//! is, through the outcome judged at the rate's required SNR and the
+//! reasons `rate_faster`, `rate_slower`).
 
 use std::env;
 use std::fs;
@@ -14,8 +24,14 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use headroom::control::{settings, Outcome, Reason, Replay, REPLAY_WINDOW};
-use headroom::record::codec::{Event, Frame, FrameDecoder};
-use headroom::record::DecisionRecord;
+use headroom::energy::demo;
+use headroom::propagation::PathLossModel;
+use headroom::record::codec::{Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
+use headroom::record::{DecisionRecord, LogHeader};
+use headroom::sim::{
+    ChannelConfig, FastFading, NoiseFloor, PowerPattern, RateSchedule, Shadowing, Synth, Trajectory,
+};
+use headroom::units::{Db, Dbi, Dbm, Hertz, Metres};
 
 use super::{Ctx, BOARDS};
 use crate::proc::{run_capture, run_inherit, show};
@@ -44,7 +60,13 @@ pub fn run(ctx: &Ctx) -> Result<(), String> {
             .unwrap_or("log")
             .to_string();
         match check_log(ctx, &headroom, &dir, log, &name) {
-            Ok(n) => println!("{name}: {n} decisions identical on host, mps2-an386 and microbit"),
+            Ok((n, true)) => {
+                println!("{name}: {n} decisions identical on host, mps2-an386 and microbit")
+            }
+            Ok((n, false)) => println!(
+                "{name}: {n} decisions identical in the engine here (rates in play, the demo node's \
+                 energy profile), on mps2-an386 and microbit"
+            ),
             Err(e) => {
                 println!("{name}: MISMATCH");
                 failures.push(format!("{name}: {e}"));
@@ -64,9 +86,21 @@ fn check_log(
     dir: &Path,
     log: &Path,
     name: &str,
-) -> Result<usize, String> {
+) -> Result<(usize, bool), String> {
     let bytes = fs::read(log).map_err(|e| format!("{}: {e}", log.display()))?;
-    let engine = engine_replay(&bytes)?;
+    let (engine, rates) = engine_replay(&bytes)?;
+    if rates > 1 {
+        for b in &BOARDS {
+            let target = run_target(ctx, b, dir, log, name)?;
+            compare(
+                &format!("firmware on {}", b.machine),
+                &target,
+                "the engine's Replay in xtask (demo node's energy profile)",
+                &engine,
+            )?;
+        }
+        return Ok((engine.len(), false));
+    }
 
     let csv = dir.join(format!("{name}.decisions.csv"));
     // The log as it is: its header's settings over the defaults, on the
@@ -89,38 +123,122 @@ fn check_log(
     )?;
 
     for b in &BOARDS {
-        let out_name = format!("{name}.{}.decisions.hrlog", b.machine);
-        let out_path = dir.join(&out_name);
-        let _ = fs::remove_file(&out_path);
-        let log_name = log
-            .file_name()
-            .and_then(|s| s.to_str())
-            .ok_or("log name is not UTF-8")?;
-        let mut q = ctx.qemu(
-            b,
-            &ctx.elf(b, "replay"),
-            false,
-            Some(&format!("{log_name} {out_name}")),
-        );
-        q.current_dir(log.parent().unwrap_or(dir));
-        let said = ctx.run_qemu(q, &format!("replay of {name} on {}", b.machine))?;
-        let frames = fs::read(log.parent().unwrap_or(dir).join(&out_name))
-            .map_err(|e| format!("{out_name}: {e}"))?;
-        let target = decode_decisions(&frames).map_err(|e| format!("{out_name}: {e}"))?;
+        let target = run_target(ctx, b, dir, log, name)?;
         compare(
             &format!("firmware on {}", b.machine),
             &target,
             "headroom replay (host CLI)",
             &cli,
-        )
-        .map_err(|e| {
-            format!(
-                "{e}\n  firmware said: {}",
-                String::from_utf8_lossy(&said).trim()
-            )
-        })?;
+        )?;
     }
-    Ok(engine.len())
+    Ok((engine.len(), true))
+}
+
+/// The `replay` firmware's decisions for `log` on board `b`.
+fn run_target(
+    ctx: &Ctx,
+    b: &super::Board,
+    dir: &Path,
+    log: &Path,
+    name: &str,
+) -> Result<Vec<DecisionRecord>, String> {
+    let out_name = format!("{name}.{}.decisions.hrlog", b.machine);
+    let out_path = dir.join(&out_name);
+    let _ = fs::remove_file(&out_path);
+    let log_name = log
+        .file_name()
+        .and_then(|s| s.to_str())
+        .ok_or("log name is not UTF-8")?;
+    let mut q = ctx.qemu(
+        b,
+        &ctx.elf(b, "replay"),
+        false,
+        Some(&format!("{log_name} {out_name}")),
+    );
+    q.current_dir(log.parent().unwrap_or(dir));
+    let said = ctx.run_qemu(q, &format!("replay of {name} on {}", b.machine))?;
+    let frames = fs::read(log.parent().unwrap_or(dir).join(&out_name))
+        .map_err(|e| format!("{out_name}: {e}"))?;
+    decode_decisions(&frames).map_err(|e| {
+        format!(
+            "{out_name}: {e}\n  firmware said: {}",
+            String::from_utf8_lossy(&said).trim()
+        )
+    })
+}
+
+/// A log with rates in play, written by the engine's channel simulator in
+/// log format 1.2: an invented node 2 to 4 km from its gateway at 868 MHz
+/// (log-distance, exponent 3.2; shadowing 4 dB; Rician K = 6 dB), one packet
+/// every 30 s for 3000 packets at 14 dBm, cycling spreading factors 7, 9
+/// and 12 of the demo node every 50 packets.
+fn write_rate_log(dir: &Path) -> Result<PathBuf, String> {
+    let rates = demo::demo_rates().map_err(|e| format!("demo rates: {e}"))?;
+    let channel = ChannelConfig {
+        frequency: Hertz(868.0e6),
+        path_loss: PathLossModel::LogDistance {
+            d0: Metres(1.0),
+            pl_d0: None,
+            exponent: 3.2,
+        },
+        tx_antenna_gain: Dbi(2.15),
+        rx_antenna_gain: Dbi(5.0),
+        trajectory: Trajectory {
+            start: Metres(2000.0),
+            speed_m_per_s: 0.5,
+            min: Some(Metres(2000.0)),
+            max: Some(Metres(4000.0)),
+        },
+        packet_interval_ms: 30_000,
+        start_ms: 0,
+        shadowing: Some(Shadowing {
+            sigma: Db(4.0),
+            decorrelation_distance: Metres(50.0),
+            time_constant_s: None,
+        }),
+        fading: FastFading::Rician { k_db: 6.0 },
+        fading_correlation: 0.2,
+        noise: NoiseFloor {
+            mean: Dbm(-117.0),
+            jitter: Db(0.5),
+            bursts: None,
+            burst_rise: Db(0.0),
+        },
+        min_snr: None,
+        feedback_dropouts: None,
+        report_resolution: Some(Db(1.0)),
+        steps: Default::default(),
+    };
+    let schedule = RateSchedule::new(rates, &[0, 2, 4], 50).map_err(|e| format!("{e}"))?;
+    let mut synth = Synth::<0>::new(channel, PowerPattern::fixed(Dbm(14.0)), &[], 20_261_203)
+        .map_err(|e| format!("rate log: {e}"))?
+        .with_rates(schedule);
+    let header = LogHeader {
+        device_id: 1515,
+        min_tx: Some(Dbm(-9.0)),
+        max_tx: Some(Dbm(22.0)),
+        tx_step: Some(Db(1.0)),
+        antenna_gain: Some(Dbi(2.15)),
+        eirp_cap: Some(Dbm(16.15)),
+        rates,
+        ..LogHeader::default()
+    };
+    let mut enc = Encoder::new();
+    let mut frame = [0u8; MAX_FRAME];
+    let mut bytes = enc
+        .header(&header, &mut frame)
+        .map_err(|e| format!("rate log header: {e}"))?
+        .to_vec();
+    for _ in 0..3000 {
+        let (_, rec) = synth.next_record().map_err(|e| format!("rate log: {e}"))?;
+        bytes.extend_from_slice(
+            enc.record(&rec, &mut frame)
+                .map_err(|e| format!("rate log record: {e}"))?,
+        );
+    }
+    let out = dir.join("rates-demo-node.hrlog");
+    fs::write(&out, bytes).map_err(|e| format!("{}: {e}", out.display()))?;
+    Ok(out)
 }
 
 /// `cargo build -p headroom-cli` (debug, as the tests build it); its path.
@@ -194,6 +312,7 @@ fn gather_logs(ctx: &Ctx, headroom: &Path, dir: &Path) -> Result<Vec<PathBuf>, S
         }
         logs.push(out);
     }
+    logs.push(write_rate_log(dir)?);
     Ok(logs)
 }
 
@@ -212,10 +331,19 @@ fn files_with(dir: &Path, ext: &str) -> Result<Vec<PathBuf>, String> {
 
 /// The engine's replay of a binary log, as the firmware's decision frames
 /// would say it.
-fn engine_replay(log: &[u8]) -> Result<Vec<DecisionRecord>, String> {
-    let start = |h: Option<&headroom::record::LogHeader>| {
+fn engine_replay(log: &[u8]) -> Result<(Vec<DecisionRecord>, usize), String> {
+    let mut rates = 0usize;
+    let mut start = |h: Option<&headroom::record::LogHeader>| {
         let r = settings::for_log(h).map_err(|e| format!("controller settings: {e}"))?;
-        Replay::<REPLAY_WINDOW>::new(r.config).map_err(|e| format!("controller settings: {e}"))
+        rates = r.config.rates.len();
+        if rates > 1 {
+            // As the firmware does: the engine's invented demo node.
+            let p = demo::demo_profile().map_err(|e| format!("demo profile: {e}"))?;
+            Replay::<REPLAY_WINDOW>::with_energy(r.config, &p)
+        } else {
+            Replay::<REPLAY_WINDOW>::new(r.config)
+        }
+        .map_err(|e| format!("controller settings: {e}"))
     };
     let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
     let mut failed: Option<String> = None;
@@ -266,7 +394,7 @@ fn engine_replay(log: &[u8]) -> Result<Vec<DecisionRecord>, String> {
     }
     match failed {
         Some(e) => Err(e),
-        None => Ok(out),
+        None => Ok((out, rates)),
     }
 }
 
