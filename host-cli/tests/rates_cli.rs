@@ -492,3 +492,44 @@ fn synth_logs_at_a_rate_schedule() {
     ]);
     assert_eq!(o.status.code(), Some(2));
 }
+
+#[test]
+fn a_rate_column_without_header_lines_is_read_by_the_profiles_table() {
+    let dir = tempfile::tempdir().unwrap();
+    // A device's log: a rate column, no '# rate:' lines.
+    let log = rated_log(dir.path(), "", "sf9");
+    let prof = example(ORCHARD_RATES);
+    let v = json(&headroom(&[
+        "replay",
+        log.to_str().unwrap(),
+        "--energy",
+        &prof,
+        "--format",
+        "json",
+    ]));
+    let l = &v["logs"][0];
+    assert_eq!(l["rates"]["source"], "energy-profile");
+    assert_eq!(l["ignored_readings"]["ignored_rate_unknown"], 0, "{l}");
+    assert_eq!(l["judged"], 200);
+    // A name the profile's table lacks is named with the table in force.
+    let log = rated_log(dir.path(), "", "sf13");
+    let o = headroom(&["replay", log.to_str().unwrap(), "--energy", &prof]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(
+        e.contains("column rate: 'sf13' is not a rate of the table in force (rates: sf7, sf8, sf9, sf10, sf11, sf12; the log's header has none)"),
+        "{e}"
+    );
+    // convert has no table in force: the log must carry its own.
+    let o = headroom(&[
+        "convert",
+        log.to_str().unwrap(),
+        dir.path().join("x.hrlog").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("the log's header has no rate table"),
+        "{}",
+        stderr(&o)
+    );
+}

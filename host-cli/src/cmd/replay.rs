@@ -260,7 +260,12 @@ fn baselines(
         let fleet::OpenLog {
             mut reader,
             settings,
-        } = fleet::open(path, &args.input.options(), resolver, None)?;
+        } = fleet::open(
+            path,
+            &args.input.options_with_rates(&energy_rates(Some(energy))),
+            resolver,
+            None,
+        )?;
         for w in &settings.warnings {
             warn(&format!("{name}: {w}"));
         }
@@ -336,6 +341,11 @@ fn baselines(
     }
 }
 
+/// The rate table of the energy profile, if any (empty without one).
+fn energy_rates(p: Option<&crate::energy::LoadedProfile>) -> headroom::rate::RateTable {
+    p.map(|e| e.rates).unwrap_or_default()
+}
+
 /// A warning on stderr.
 fn warn(msg: &str) {
     crate::diag::warn(msg);
@@ -362,7 +372,12 @@ fn replay_log(
     let fleet::OpenLog {
         mut reader,
         settings,
-    } = fleet::open(path, &args.input.options(), resolver, None)?;
+    } = fleet::open(
+        path,
+        &args.input.options_with_rates(&energy_rates(energy)),
+        resolver,
+        None,
+    )?;
     let cfg = settings.resolved.config;
     let mut replay = match energy {
         // The engine costs each packet (and chooses among rates) with the

@@ -289,6 +289,9 @@ pub(super) struct CsvReader {
     noise_from_snr: u64,
     /// Lines of further `# headroom-log` blocks before the header row.
     late_blocks: Vec<u64>,
+    /// The rate names a `rate` cell is read against when the header has no
+    /// table ([`ReadOptions::rate_names`]).
+    rate_names: Vec<String>,
 }
 
 impl CsvReader {
@@ -361,6 +364,7 @@ impl CsvReader {
             filled: [0; 4],
             noise_from_snr: 0,
             late_blocks: pre.late_blocks,
+            rate_names: opts.rate_names.clone(),
         })
     }
 
@@ -506,11 +510,15 @@ impl CsvReader {
                     None
                 } else {
                     let rates = self.header.as_ref().map(|h| h.rates).unwrap_or_default();
-                    let found = std::str::from_utf8(cell)
-                        .ok()
-                        .and_then(|n| rates.index_of(n));
+                    let name = std::str::from_utf8(cell).ok();
+                    let found = if rates.is_empty() && !self.rate_names.is_empty() {
+                        name.and_then(|n| self.rate_names.iter().position(|r| r == n))
+                            .and_then(|i| u8::try_from(i).ok())
+                    } else {
+                        name.and_then(|n| rates.index_of(n))
+                    };
                     if found.is_none() {
-                        return Err(unknown_rate(cell, &rates));
+                        return Err(unknown_rate(cell, &rates, &self.rate_names));
                     }
                     found
                 }
@@ -530,10 +538,20 @@ impl CsvReader {
 /// Why a rate cell names no rate of the header's table.
 #[cold]
 #[inline(never)]
-fn unknown_rate(cell: &[u8], rates: &headroom::rate::RateTable) -> (&'static str, String) {
-    let why = if rates.is_empty() {
+fn unknown_rate(
+    cell: &[u8],
+    rates: &headroom::rate::RateTable,
+    fallback: &[String],
+) -> (&'static str, String) {
+    let why = if rates.is_empty() && !fallback.is_empty() {
         format!(
-            "'{}' names a rate, but the log's header has no rate table ('# rate:' lines)",
+            "'{}' is not a rate of the table in force (rates: {}; the log's header has none)",
+            show(cell),
+            fallback.join(", ")
+        )
+    } else if rates.is_empty() {
+        format!(
+            "'{}' names a rate, but the log's header has no rate table ('# rate:' lines, or a profile's [[rate]] entries where the command takes --energy)",
             show(cell)
         )
     } else {

@@ -238,6 +238,11 @@ pub struct ReadOptions {
     /// `tx_dbm`, `rssi_dbm`, and `noise_dbm` or `snr_db`; without one it is
     /// refused at open, naming the column.
     pub require_readings: bool,
+    /// The names of the rate table in force (an energy profile's), in
+    /// order: a CSV `rate` column is read against them when the log's
+    /// header has no table of its own (the records' indices are then into
+    /// that table).
+    pub rate_names: Vec<String>,
 }
 
 /// The options of a command that reads logs, to flatten into its
@@ -267,6 +272,21 @@ impl InputArgs {
             columns: self.columns.clone(),
             strict: self.strict,
             require_readings: true,
+            rate_names: Vec::new(),
+        }
+    }
+
+    /// [`InputArgs::options`], with the rate table in force (an energy
+    /// profile's) to read a CSV `rate` column by when a log's header has
+    /// none.
+    pub fn options_with_rates(&self, rates: &headroom::rate::RateTable) -> ReadOptions {
+        ReadOptions {
+            rate_names: rates
+                .as_slice()
+                .iter()
+                .map(|r| r.name.as_str().to_string())
+                .collect(),
+            ..self.options()
         }
     }
 }

@@ -187,7 +187,9 @@ pub fn run(args: Args) -> CliResult {
         .ok_or_else(|| CliError::arg("LOG", "name at least one log"))?;
     // Refuse a bad combination before any replay (against the first log;
     // the others are checked as they run).
-    let opts = args.input.options();
+    let opts = args
+        .input
+        .options_with_rates(&energy.as_ref().map(|e| e.rates).unwrap_or_default());
     schedule::check_grid(first, &opts, &resolver, &grid)?;
     let base = crate::fleet::open(first, &opts, &resolver, None)?
         .settings
