@@ -57,6 +57,14 @@ built-in required SNR (a replay without one is refused) and no built-in \
 EIRP cap (none is applied unless given). The table and the JSON show every \
 setting with its source.
 
+Rates: with a rate table, the energy profile's [[rate]] entries (--energy) \
+or else the log header's, the controller chooses the rate with the power. A \
+log whose records do not name their rate needs --logged-rate NAME when the \
+table gives noise bandwidths (the rate is never guessed). There is no \
+built-in duty-cycle limit: --duty-limit 1% states your band's (none is \
+applied otherwise). --baselines compares the controller with the engine's \
+baseline rules on each log.
+
 Several logs: each log (or each .csv/.hrlog file of a directory, sorted by \
 name) is one device, replayed separately with a fresh controller set up from \
 its own header. The fleet total adds counts and linear powers (mW) over the \
