@@ -149,7 +149,10 @@ impl Radio for SimRadio {
             .packet(self.tx)
             .map_err(SimRadioError::Channel)?;
         if let Some(r) = self.rates.get(self.rate) {
-            let shift = self.rates.noise_change_db(self.rate, 0).map_or(0.0, |d| d.0);
+            let shift = self
+                .rates
+                .noise_change_db(self.rate, 0)
+                .map_or(0.0, |d| d.0);
             let received = s.snr.0 - shift >= r.required_snr.0;
             s.received = received;
             if !received || s.feedback_lost {

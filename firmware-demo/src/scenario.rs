@@ -5,8 +5,8 @@
 
 use headroom::control::{ControllerConfig, DutyLimit, PowerSteps};
 use headroom::energy::{Battery, EnergyProfile, TableError};
-use headroom::rate::{RateError, RateTable};
 use headroom::propagation::PathLossModel;
+use headroom::rate::{RateError, RateTable};
 use headroom::sim::{
     ChannelConfig, Episodes, FastFading, NoiseFloor, PathLossStep, Shadowing, Trajectory,
 };

@@ -545,6 +545,10 @@ fn no_replay_exceeds_the_duty_cycle_limit() {
                 if st.outcome != Outcome::Held {
                     sent.push((st.t_ms, st.airtime_us.expect("a rate table")));
                 }
+                // Every rate change has a reason that says so.
+                if st.next_rate != st.rate {
+                    assert!(st.reason.is_rate_change(), "{s:?} {limit}: {st:?}");
+                }
             }
             let worst = max_airtime_in_any_hour_us(&sent);
             let allowed = (f64::from(limit) * 3.6e9).floor() as u64;

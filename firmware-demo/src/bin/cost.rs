@@ -190,7 +190,6 @@ fn closed_loop_step<const W: usize>(
 
 #[inline(never)]
 fn run(clock: &Clock) -> bool {
-
     // 1. A closed loop over the simulated link records what the controller
     //    is fed; a fresh controller fed the same sequence makes the same
     //    decisions, so the timed passes below see the real mix of warm-up,

@@ -48,8 +48,7 @@ fn run() -> bool {
             return false;
         }
     };
-    let mut radio = match SimRadio::new(scenario::rate_channel(), scenario::SEED, scenario::RADIO)
-    {
+    let mut radio = match SimRadio::new(scenario::rate_channel(), scenario::SEED, scenario::RADIO) {
         Ok(r) => r.with_rates(rates),
         Err(e) => {
             defmt::error!("channel refused: {}", e);
@@ -89,7 +88,10 @@ fn run() -> bool {
         WINDOW,
         rates.len()
     );
-    let name = |m: Option<u8>| m.and_then(|m| rates.get(m)).map_or("-", |r| r.name.as_str());
+    let name = |m: Option<u8>| {
+        m.and_then(|m| rates.get(m))
+            .map_or("-", |r| r.name.as_str())
+    };
 
     // The engine's replay totals count packets, losses, power, rates and
     // charge the same way for the live loop as for a replayed log; its

@@ -17,9 +17,9 @@ use cortex_m_rt::entry;
 use headroom::control::{
     settings, Controller, ControllerConfig, DutyLimit, Fleet, Observation, Replay,
 };
-use headroom::energy::{demo, AirtimeWindow, ChargeTable};
 use headroom::energy::airtime::{ChirpModem, CodeRate, LowDataRate, PacketModem};
 use headroom::energy::duty::{duty_cycle, en_300_220_sub_bands, min_interval};
+use headroom::energy::{demo, AirtimeWindow, ChargeTable};
 use headroom::energy::{
     Battery, Delivery, EnergyProfile, EnergyTally, Refinements, TxCurrentTable,
 };
@@ -35,9 +35,12 @@ use headroom::control::REPLAY_WINDOW as WINDOW;
 
 #[entry]
 fn main() -> ! {
-    host::exit(run())
+    // One after the other, not nested: each pass's frame has the
+    // microbit's 16 KiB to itself.
+    host::exit(run() && rates() && energy())
 }
 
+#[inline(never)]
 fn run() -> bool {
     let cfg = black_box(ControllerConfig::sub_ghz_node());
     let (Ok(mut ctrl), Ok(mut replay)) =
@@ -100,12 +103,13 @@ fn run() -> bool {
         ..LogHeader::default()
     };
     black_box(settings::for_log(black_box(Some(&header))).is_ok());
-    rates() && energy()
+    true
 }
 
 /// The joint choice of rate and power: a controller and a replay with the
 /// demo node's rates, its energy profile and a duty budget, fed values no
 /// compiler can predict (held packets, rate indices outside the table).
+#[inline(never)]
 fn rates() -> bool {
     let (Ok(table), Ok(profile)) = (demo::demo_rates(), demo::demo_profile()) else {
         return false;
@@ -167,6 +171,7 @@ fn rates() -> bool {
 }
 
 /// The energy functions on arbitrary inputs (any f32 bits, any integer).
+#[inline(never)]
 fn energy() -> bool {
     let mut tally = EnergyTally::new();
     for k in 0..black_box(256u32) {

@@ -118,10 +118,7 @@ impl Output {
 /// layers, the controller being built) then share no frame with the loop,
 /// which keeps the peak stack within the microbit's 16 KiB.
 #[inline(never)]
-fn start(
-    h: Option<&LogHeader>,
-    slot: &mut Option<Replay<REPLAY_WINDOW>>,
-) -> Result<(), Failure> {
+fn start(h: Option<&LogHeader>, slot: &mut Option<Replay<REPLAY_WINDOW>>) -> Result<(), Failure> {
     let r = settings::for_log(h).map_err(Failure::Config)?;
     let refused = |e| Failure::Config(settings::ResolveError::Invalid(e));
     // A log with several rates: the rate is chosen by the charge of the
