@@ -12,6 +12,12 @@ mod error;
 #[allow(dead_code, unused_imports)]
 #[path = "../src/logio/mod.rs"]
 mod logio;
+#[allow(dead_code)]
+#[path = "../src/quantity.rs"]
+mod quantity;
+#[allow(dead_code)]
+#[path = "../src/rates.rs"]
+mod rates;
 
 use std::path::Path;
 use std::process::ExitCode;

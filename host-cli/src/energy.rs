@@ -28,6 +28,20 @@
 //! `header_bits`, `crc_bits`, `coding` as `"k/n"`, `payload_bytes`). Every
 //! key of the chosen kind is required: no default changes an airtime
 //! silently. Unknown keys are refused; every error names the file and the key.
+//!
+//! `[[rate]]` entries (at most eight) list the radio's data rates, in the
+//! order of the table ([`headroom::rate::RateTable`]); quantities carry
+//! their units and go through the one unit parser:
+//!
+//! | key | meaning |
+//! |---|---|
+//! | `name` | 1 to 8 ASCII characters, as logs name the rate (`sf9`) |
+//! | `required_snr` | SNR the far end needs at this rate: `"-12.5 dB"` (a bare number is dB) |
+//! | `airtime` | time on air of one packet at this rate: `"205.824 ms"` (a bare number is refused) |
+//! | `modem` | instead of `airtime`: `[modem]` keys that differ from the profile's, `{ spreading_factor = 9 }`; the engine computes the airtime for the profile's payload |
+//! | `noise_bandwidth` | optional: `"125 kHz"` (a bare number is refused); every rate or none |
+//!
+//! An error in an entry names it: `rate 2 (sf8): airtime: ...`.
 
 use std::io::Read as _;
 use std::path::Path;
@@ -40,8 +54,12 @@ use headroom::units::{
 use headroom::Error;
 use serde::Deserialize;
 
-use crate::error::{CliError, CliResult};
+use headroom::rate::RateTable;
+
+use crate::error::{printable, CliError, CliResult};
 use crate::output::json_num;
+use crate::quantity::{self, Q};
+use crate::rates;
 
 /// Largest profile file read, bytes.
 pub const MAX_FILE_BYTES: u64 = 1 << 20;
@@ -63,12 +81,27 @@ struct ProfileFile {
     sleep_outside_active: Option<bool>,
     max_retries: Option<i64>,
     modem: Option<ModemSpec>,
+    rate: Option<Vec<RateSpec>>,
 }
 
+/// One `[[rate]]` entry: a name, the SNR the far end needs at this rate, and
+/// the airtime either given (`airtime = "41.216 ms"`) or computed by the
+/// engine from `modem`, a table of `[modem]` keys that override the
+/// profile's own `[modem]` (`modem = { spreading_factor = 7 }`).
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
+struct RateSpec {
+    name: String,
+    required_snr: Q,
+    airtime: Option<Q>,
+    modem: Option<ModemSpec>,
+    noise_bandwidth: Option<Q>,
+}
+
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
 struct ModemSpec {
-    kind: String,
+    kind: Option<String>,
     payload_bytes: Option<i64>,
     // chirp
     spreading_factor: Option<i64>,
@@ -151,6 +184,8 @@ pub struct LoadedProfile {
     pub airtime_source: AirtimeSource,
     /// The file's description.
     pub description: Option<String>,
+    /// The radio's rates (`[[rate]]` entries; empty when the file has none).
+    pub rates: RateTable,
 }
 
 /// Read and check an energy profile file.
@@ -304,7 +339,10 @@ fn engine(e: Error) -> CliError {
 }
 
 fn modem(m: &ModemSpec) -> CliResult<(Milliseconds, AirtimeSource)> {
-    let kind = m.kind.as_str();
+    let kind = m
+        .kind
+        .as_deref()
+        .ok_or_else(|| CliError::arg("modem.kind", "missing: \"chirp\" or \"packet\""))?;
     let chirp_keys = [
         ("modem.spreading_factor", m.spreading_factor.is_some()),
         ("modem.bandwidth_hz", m.bandwidth_hz.is_some()),
@@ -429,6 +467,70 @@ fn modem(m: &ModemSpec) -> CliResult<(Milliseconds, AirtimeSource)> {
     }
 }
 
+impl ModemSpec {
+    /// These keys over `base`'s: a rate's modem that changes only what
+    /// differs from the profile's.
+    fn over(&self, base: &ModemSpec) -> ModemSpec {
+        let b = base.clone();
+        ModemSpec {
+            kind: self.kind.clone().or(b.kind),
+            payload_bytes: self.payload_bytes.or(b.payload_bytes),
+            spreading_factor: self.spreading_factor.or(b.spreading_factor),
+            bandwidth_hz: self.bandwidth_hz.or(b.bandwidth_hz),
+            coding_rate: self.coding_rate.clone().or(b.coding_rate),
+            preamble_symbols: self.preamble_symbols.or(b.preamble_symbols),
+            explicit_header: self.explicit_header.or(b.explicit_header),
+            crc: self.crc.or(b.crc),
+            low_data_rate: self.low_data_rate.clone().or(b.low_data_rate),
+            bit_rate: self.bit_rate.or(b.bit_rate),
+            preamble_bits: self.preamble_bits.or(b.preamble_bits),
+            sync_bits: self.sync_bits.or(b.sync_bits),
+            header_bits: self.header_bits.or(b.header_bits),
+            crc_bits: self.crc_bits.or(b.crc_bits),
+            coding: self.coding.clone().or(b.coding),
+        }
+    }
+}
+
+/// The `[[rate]]` entries as the engine's table; every error names the
+/// entry (`rate 2 (sf8): airtime: ...`).
+fn rate_table(specs: &[RateSpec], profile_modem: Option<&ModemSpec>) -> CliResult<RateTable> {
+    let mut rates = Vec::with_capacity(specs.len());
+    for (i, spec) in specs.iter().enumerate() {
+        let entry = format!("rate {} ({})", i + 1, printable(&spec.name));
+        let at = |m: String| CliError::Input(format!("{entry}: {m}"));
+        let snr = spec
+            .required_snr
+            .db()
+            .map_err(|e| at(format!("required_snr: {e}")))?;
+        let bw = spec.noise_bandwidth.as_ref().map(Q::text);
+        let airtime_us = match (&spec.airtime, &spec.modem) {
+            (Some(a), None) => {
+                quantity::duration_us(&a.text()).map_err(|e| at(format!("airtime: {e}")))?
+            }
+            (None, Some(m)) => {
+                let merged = m.over(profile_modem.unwrap_or(&ModemSpec::default()));
+                let (t, _) = modem(&merged).map_err(|e| at(e.to_string()))?;
+                // The engine's airtime in ms, to the microsecond.
+                quantity::duration_us(&format!("{}ms", t.0)).map_err(at)?
+            }
+            (Some(_), Some(_)) => {
+                return Err(at(
+                    "give either airtime or modem (the airtime computed from it), not both".into(),
+                ))
+            }
+            (None, None) => return Err(at(
+                "missing airtime: give airtime = \"41.2 ms\" or modem = { spreading_factor = 7 }"
+                    .into(),
+            )),
+        };
+        let rate =
+            rates::rate_with_airtime(&spec.name, snr, airtime_us, bw.as_deref()).map_err(at)?;
+        rates.push((entry, rate));
+    }
+    rates::table(&rates).map_err(CliError::Input)
+}
+
 fn build(f: ProfileFile) -> CliResult<LoadedProfile> {
     let supply = ranged("supply_v", f.supply_v, 0.5, 60.0, false, " V")?;
     if f.tx_current_ma.len() > TX_POINTS {
@@ -452,6 +554,7 @@ fn build(f: ProfileFile) -> CliResult<LoadedProfile> {
             "needs at least one [dBm, mA] point",
         ));
     }
+    let rates = rate_table(f.rate.as_deref().unwrap_or(&[]), f.modem.as_ref())?;
     let (airtime, airtime_source) = match (f.airtime_ms, &f.modem) {
         (Some(a), None) => (
             Milliseconds(ranged("airtime_ms", a, 0.0, 60_000.0, true, " ms")?),
@@ -517,6 +620,7 @@ fn build(f: ProfileFile) -> CliResult<LoadedProfile> {
         max_retries,
         airtime_source,
         description: f.description,
+        rates,
     })
 }
 
@@ -583,6 +687,111 @@ battery_mah = 1000.0
         assert!(e.contains("sleep_current_ua"), "{e}");
         let e = err(&format!("{GOOD}usable_fraction = 0\n"));
         assert!(e.contains("usable_fraction: 0 is outside"), "{e}");
+    }
+
+    #[test]
+    fn rate_entries_load_into_the_engine_table() {
+        let text = format!(
+            "{GOOD}{}",
+            r#"
+[[rate]]
+name = "fast"
+required_snr = "-7.5 dB"
+airtime = "41.216 ms"
+[[rate]]
+name = "slow"
+required_snr = -20
+airtime = "0.991232 s"
+"#
+        );
+        let p = load_text(&text).map_err(|e| e.to_string());
+        let Ok(p) = p else { panic!("{p:?}") };
+        assert_eq!(p.rates.len(), 2);
+        assert_eq!(p.rates.get(1).map(|r| r.airtime_us), Some(991_232));
+        assert_eq!(p.rates.get(1).map(|r| r.required_snr.0), Some(-20.0));
+        let e = err(&text.replace("\"0.991232 s\"", "991"));
+        assert!(
+            e.contains("rate 2 (slow): airtime: '991' needs a unit"),
+            "{e}"
+        );
+        let e = err(&text.replace("name = \"slow\"", "name = \"fast\""));
+        assert!(
+            e.contains("rate 2 (fast): two rates in the table have the same name"),
+            "{e}"
+        );
+        let e = err(&text.replace("airtime = \"41.216 ms\"\n", ""));
+        assert!(e.contains("rate 1 (fast): missing airtime"), "{e}");
+        let e = err(&format!("{text}noise_bandwidth = \"125 kHz\"\n"));
+        assert!(e.contains("rate 2 (slow): either every rate"), "{e}");
+        let e = err(&text.replace(
+            "name = \"fast\"\nrequired_snr = \"-7.5 dB\"",
+            "name = \"fast\"\nrequired_snr = \"-7.5 dBm\"",
+        ));
+        assert!(
+            e.contains("rate 1 (fast): required_snr: unknown unit"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn a_rate_modem_overrides_the_profile_modem() {
+        let text = GOOD.replace("airtime_ms = 100.0\n", "")
+            + r#"
+[modem]
+kind = "chirp"
+spreading_factor = 7
+bandwidth_hz = 125000
+coding_rate = "4/5"
+preamble_symbols = 8
+explicit_header = true
+crc = true
+low_data_rate = "auto"
+payload_bytes = 10
+
+[[rate]]
+name = "sf7"
+required_snr = "-7.5 dB"
+modem = {}
+[[rate]]
+name = "sf12"
+required_snr = "-20 dB"
+modem = { spreading_factor = 12 }
+"#;
+        let p = load_text(&text).map_err(|e| e.to_string());
+        let Ok(p) = p else { panic!("{p:?}") };
+        // The engine's airtime of the same modems (checked in the engine
+        // against a published airtime calculation).
+        let sf = |n: u8| {
+            ChirpModem {
+                spreading_factor: n,
+                bandwidth: Hertz(125e3),
+                coding_rate: 1,
+                preamble_symbols: 8,
+                explicit_header: true,
+                crc: true,
+                low_data_rate: LowDataRate::Auto,
+            }
+            .airtime(10)
+            .map(|t| (t.0 * 1000.0).round())
+        };
+        assert_eq!(
+            p.rates.get(0).map(|r| f64::from(r.airtime_us)),
+            sf(7).ok().map(f64::from)
+        );
+        assert_eq!(
+            p.rates.get(1).map(|r| f64::from(r.airtime_us)),
+            sf(12).ok().map(f64::from)
+        );
+        let e = err(&text.replace("{ spreading_factor = 12 }", "{ spreading_factor = 13 }"));
+        assert!(
+            e.contains("rate 2 (sf12): modem.spreading_factor: 13 is outside"),
+            "{e}"
+        );
+        let e = err(&text.replace("modem = {}", "modem = {}\nairtime = \"5 ms\""));
+        assert!(
+            e.contains("rate 1 (sf7): give either airtime or modem"),
+            "{e}"
+        );
     }
 
     #[test]

@@ -22,6 +22,7 @@ pub mod names;
 pub mod output;
 pub mod plot;
 pub mod quantity;
+pub mod rates;
 
 /// The safety caution shown after every command's help.
 macro_rules! caution {

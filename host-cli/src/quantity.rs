@@ -472,11 +472,30 @@ mod tests {
     }
 }
 
-/// A duration with its unit: `250ms`, `30s`, `15min`, `1h`, `2d`, returned
-/// in seconds. A bare number is refused: `15` could be seconds or minutes.
+/// A duration with its unit: `250ms`, `30s`, `15min`, `1h`, `2d` (and `us`
+/// or `µs` for microseconds), returned in seconds. A bare number is refused:
+/// `15` could be seconds or minutes.
 pub fn duration(s: &str) -> Result<headroom::units::Seconds, String> {
+    let secs = duration_f64(s)?;
+    Ok(headroom::units::Seconds(to_f32(secs, s)?))
+}
+
+/// A duration as whole microseconds (`41.216ms` is 41216), for the airtime
+/// of a rate; read in f64 so that every microsecond up to a minute is kept.
+/// A bare number is refused as in [`duration`].
+pub fn duration_us(s: &str) -> Result<u64, String> {
+    let us = (duration_f64(s)? * 1e6).round();
+    if !(0.0..=1e15).contains(&us) {
+        return Err(format!("'{}' is not a duration from 0 up", s.trim()));
+    }
+    #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)] // checked above
+    Ok(us as u64)
+}
+
+fn duration_f64(s: &str) -> Result<f64, String> {
     let (x, unit) = split(s)?;
-    let scale = match unit {
+    let scale = match unit_key(unit).as_str() {
+        "us" => 1e-6,
         "ms" => 1e-3,
         "s" => 1.0,
         "min" => 60.0,
@@ -484,21 +503,22 @@ pub fn duration(s: &str) -> Result<headroom::units::Seconds, String> {
         "d" => 86_400.0,
         "" => {
             return Err(format!(
-                "'{s}' needs a unit: give it as 250ms, 30s, 15min, 1h or 2d"
+                "'{}' needs a unit: give it as 250ms, 30s, 15min, 1h or 2d",
+                s.trim()
             ))
         }
         _ => {
             return Err(format!(
-                "unknown duration unit '{unit}' (use ms, s, min, h or d)"
+                "unknown duration unit '{unit}' (use us, ms, s, min, h or d)"
             ))
         }
     };
-    Ok(headroom::units::Seconds(to_f32(x * scale, s)?))
+    Ok(x * scale)
 }
 
 #[cfg(test)]
 mod duration_tests {
-    use super::duration;
+    use super::{duration, duration_us};
     use headroom::units::Seconds;
 
     #[test]
@@ -512,5 +532,10 @@ mod duration_tests {
         assert!(bare.contains("needs a unit"), "{bare}");
         assert!(duration("15 fortnights").is_err());
         assert!(duration("min").is_err());
+        assert_eq!(duration_us("41.216ms"), Ok(41_216));
+        assert_eq!(duration_us("59.999999 s"), Ok(59_999_999));
+        assert_eq!(duration_us("7 µs"), Ok(7));
+        assert!(duration_us("41.216").is_err_and(|e| e.contains("needs a unit")));
+        assert!(duration_us("-1ms").is_err());
     }
 }

@@ -382,6 +382,43 @@ fn cases() -> Vec<Case> {
             finding: None,
         },
         Case {
+            input: "CSV rate line with a bare airtime (`# rate: sf7, -7.5 dB, 41`)",
+            files: vec![(
+                "rate.csv",
+                text("# headroom-log 1.2\n# rate: sf7, -7.5 dB, 41\nt_ms,rssi_dbm\n1,-90\n"),
+            )],
+            args: &["convert", "rate.csv", "out.hrlog"],
+            exit: 2,
+            names: &["rate.csv:2", "airtime", "needs a unit"],
+            finding: None,
+        },
+        Case {
+            input: "CSV record naming a rate not in the header (`sf13`)",
+            files: vec![(
+                "rates.csv",
+                text("# headroom-log 1.2\n# rate: sf7, -7.5 dB, 41ms\nt_ms,rssi_dbm,rate\n1,-90,sf7\n2,-90,sf13\n"),
+            )],
+            args: &["convert", "rates.csv", "out.hrlog"],
+            exit: 2,
+            names: &["rates.csv:5", "column rate", "sf13"],
+            finding: None,
+        },
+        Case {
+            input: "energy profile `[[rate]]` with a bare airtime (`airtime = 41`)",
+            files: vec![(
+                "rates.toml",
+                {
+                    let mut t = fs::read(repo().join("examples/energy/orchard-868.toml")).unwrap();
+                    t.extend_from_slice(b"\n[[rate]]\nname = \"sf7\"\nrequired_snr = \"-7.5 dB\"\nairtime = 41\n");
+                    t
+                },
+            )],
+            args: &["battery", "rates.toml", "--interval", "5min", "--tx", "14dBm"],
+            exit: 2,
+            names: &["rates.toml", "rate 1 (sf7)", "airtime", "needs a unit"],
+            finding: None,
+        },
+        Case {
             input: "CSV row with more cells than the header",
             files: vec![("cells.csv", text("t_ms,rssi_dbm\n1,-90,5\n"))],
             args: &["convert", "cells.csv", "out.hrlog"],

@@ -193,3 +193,60 @@ fn refusals() {
         "sleep_current_ua: -1 is outside the accepted range: from 0 up to 100000 µA",
     );
 }
+
+#[test]
+fn a_rate_table_lists_each_rate_with_the_engine_airtime() {
+    use headroom::energy::airtime::{ChirpModem, LowDataRate};
+    use headroom::units::Hertz;
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../examples/energy/orchard-868-rates.toml"
+    );
+    let v = json(&["battery", path, "--interval", "5min", "--tx", "14dBm"]);
+    let rates = v["rates"].as_array().expect("rates");
+    assert_eq!(rates.len(), 6);
+    for (r, sf) in rates.iter().zip(7u8..) {
+        assert_eq!(r["name"], format!("sf{sf}"));
+        // The engine's airtime of the profile's modem at this spreading
+        // factor, for its 20-byte payload.
+        let want = ChirpModem {
+            spreading_factor: sf,
+            bandwidth: Hertz(125e3),
+            coding_rate: 1,
+            preamble_symbols: 8,
+            explicit_header: true,
+            crc: true,
+            low_data_rate: LowDataRate::Auto,
+        }
+        .airtime(20)
+        .expect("airtime");
+        let got = r["airtime_ms"].as_f64().expect("airtime_ms");
+        assert!(
+            (got - f64::from(want.0)).abs() < 1e-3,
+            "sf{sf}: {got} vs {want:?}"
+        );
+        assert_eq!(r["noise_bandwidth_hz"], 125000.0);
+    }
+    // The profile's own airtime (SF9) is the sf9 rate's.
+    assert_eq!(v["airtime_ms"], rates[2]["airtime_ms"]);
+    // Without [[rate]] entries, no rates key.
+    let v = json(&["battery", ORCHARD, "--interval", "5min", "--tx", "14dBm"]);
+    assert!(v.get("rates").is_none());
+}
+
+#[test]
+fn a_bare_airtime_in_a_rate_is_refused_naming_the_entry() {
+    let text = std::fs::read_to_string(ORCHARD).expect("profile")
+        + "\n[[rate]]\nname = \"sf7\"\nrequired_snr = \"-7.5 dB\"\nairtime = 41.216\n";
+    let mut f = tempfile::NamedTempFile::new().expect("temp");
+    f.write_all(text.as_bytes()).expect("write");
+    let path = f.path().to_string_lossy().into_owned();
+    let o = headroom(&["battery", &path, "--interval", "5min", "--tx", "14dBm"]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        e.contains("rate 1 (sf7): airtime: '41.216' needs a unit"),
+        "{e}"
+    );
+    assert_eq!(e.lines().count(), 1, "{e}");
+}

@@ -158,7 +158,7 @@ fn binary_to_csv_to_binary_is_byte_identical() {
     let csv = std::fs::read_to_string(&c).unwrap();
     assert_eq!(std::fs::read_to_string(&c2).unwrap(), csv);
     assert!(
-        csv.starts_with("# headroom-log 1.1\n# device_id: 7001\n"),
+        csv.starts_with("# headroom-log 1.2\n# device_id: 7001\n"),
         "{csv}"
     );
     assert!(
@@ -188,10 +188,10 @@ fn csv_to_binary_to_csv_is_text_identical() {
     let back = std::fs::read_to_string(&c).unwrap();
     // f32 Display writes 1e-40 (a subnormal) in full decimal: compare values
     // for that cell, text for the rest.
-    // A 1.0 log comes back written in the current version, 1.1.
+    // A 1.0 log comes back written in the current version, 1.2.
     let want = text
         .replace("1e-40", &format!("{}", "1e-40".parse::<f32>().unwrap()))
-        .replace("headroom-log 1.0", "headroom-log 1.1");
+        .replace("headroom-log 1.0", "headroom-log 1.2");
     assert_eq!(back, want);
 }
 
@@ -625,7 +625,7 @@ fn columns_named_otherwise_bom_and_warnings() {
     assert!(headroom(&[&b, &c]).status.success());
     assert_eq!(
         std::fs::read_to_string(&c).unwrap(),
-        "# headroom-log 1.1\n# device_id: 0\n# epoch_ms: 0\n# max_tx_dbm: 5\n\
+        "# headroom-log 1.2\n# device_id: 0\n# epoch_ms: 0\n# max_tx_dbm: 5\n\
          t_ms,tx_dbm,rssi_dbm,noise_dbm\n0,5,-90,-80\n1,5,-91,-80\n"
     );
     // An unknown field is refused by the argument parser, naming the fields.
@@ -633,7 +633,7 @@ fn columns_named_otherwise_bom_and_warnings() {
     assert_eq!(o.status.code(), Some(2));
     assert!(
         stderr(&o).contains(
-            "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db)"
+            "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db, rate)"
         ),
         "{}",
         stderr(&o)
@@ -664,4 +664,133 @@ fn a_late_header_is_reported_by_convert() {
         "{}",
         stderr(&o)
     );
+}
+
+/// A header with a rate table of our own invented radio.
+fn rated_header() -> LogHeader {
+    use headroom::rate::{Rate, RateTable};
+    LogHeader {
+        device_id: 9,
+        required_snr: Some(Db(-12.5)),
+        rates: RateTable::new(&[
+            Rate::new("sf7", Db(-7.5), 41_216, Some(125e3)).unwrap(),
+            Rate::new("sf9", Db(-12.5), 144_384, Some(125e3)).unwrap(),
+            Rate::new("sf12", Db(-20.0), 991_232, Some(125e3)).unwrap(),
+        ])
+        .unwrap(),
+        ..LogHeader::default()
+    }
+}
+
+#[test]
+fn rates_survive_binary_to_csv_to_binary() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, c, b) = (
+        dir.path().join("rated.hrlog"),
+        dir.path().join("rated.csv"),
+        dir.path().join("rated2.hrlog"),
+    );
+    let mut enc = Encoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let mut bytes = enc.header(&rated_header(), &mut buf).unwrap().to_vec();
+    for i in 0..12u64 {
+        let r = LogRecord {
+            t_ms: 1000 * i,
+            tx_dbm: Some(10.0),
+            rssi_dbm: Some(-110.0),
+            noise_dbm: Some(-117.0),
+            // Every rate, and a record that does not say.
+            rate: [Some(0), Some(1), Some(2), None][(i % 4) as usize],
+        };
+        bytes.extend_from_slice(enc.record(&r, &mut buf).unwrap());
+    }
+    std::fs::write(&a, &bytes).unwrap();
+    let o = headroom(&[&a, &c]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(&c).unwrap();
+    assert!(
+        csv.contains(
+            "# rate: sf7, -7.5 dB, 41.216 ms, 125000 Hz\n\
+             # rate: sf9, -12.5 dB, 144.384 ms, 125000 Hz\n\
+             # rate: sf12, -20 dB, 991.232 ms, 125000 Hz\n\
+             t_ms,tx_dbm,rssi_dbm,noise_dbm,rate\n\
+             0,10,-110,-117,sf7\n1000,10,-110,-117,sf9\n2000,10,-110,-117,sf12\n3000,10,-110,-117,\n"
+        ),
+        "{csv}"
+    );
+    // Back to format 1, the format it was written in: the same bytes.
+    let o = headroom_flags(&[&c, &b], &["--binary-version", "1"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(std::fs::read(&b).unwrap(), bytes, "table and rates kept");
+    // And through format 2 (the default) and back, the same CSV.
+    let (b2, c2) = (
+        dir.path().join("rated3.hrlog"),
+        dir.path().join("rated3.csv"),
+    );
+    let o = headroom(&[&c, &b2]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let o = headroom(&[&b2, &c2]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(
+        std::fs::read_to_string(&c2).unwrap(),
+        csv,
+        "format 2 keeps them too"
+    );
+}
+
+#[test]
+fn rate_lines_and_rate_cells_are_checked() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out.hrlog");
+    let good =
+        "# headroom-log 1.2\n# rate: fast, -7.5 dB, 41.216 ms\n# rate: slow, -20 dB, 0.991232 s\n\
+                t_ms,tx_dbm,rssi_dbm,noise_dbm,Used\n0,10,-110,-117,fast\n1000,10,-110,-117,slow\n";
+    let run = |name: &str, text: &str, flags: &[&str]| {
+        let p = dir.path().join(name);
+        std::fs::write(&p, text).unwrap();
+        let _ = std::fs::remove_file(&out);
+        headroom_flags(&[&p, &out], flags)
+    };
+    // The column named otherwise, mapped.
+    let o = run("good.csv", good, &["--column", "rate=Used"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let back = dir.path().join("back.csv");
+    assert!(headroom(&[&out, &back]).status.success());
+    let text = std::fs::read_to_string(&back).unwrap();
+    assert!(text.ends_with(",fast\n1000,10,-110,-117,slow\n"), "{text}");
+    // Unmapped, the column is another column: no rate read.
+    let o = run("good2.csv", good, &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for (name, text, want) in [
+        (
+            "unknown.csv",
+            good.replace("117,slow", "117,sf9"),
+            "unknown.csv:6: column rate: 'sf9' is not a rate of the log's header (rates: fast, slow)",
+        ),
+        (
+            "bare.csv",
+            good.replace("41.216 ms", "41.216"),
+            "bare.csv:2: rate line: airtime: '41.216' needs a unit",
+        ),
+        (
+            "fields.csv",
+            good.replace("fast, -7.5 dB, 41.216 ms", "fast, -7.5 dB"),
+            "fields.csv:2: rate line: 'fast, -7.5 dB' is not NAME, REQUIRED_SNR dB, AIRTIME",
+        ),
+        (
+            "twice.csv",
+            good.replace("# rate: slow", "# rate: fast"),
+            "twice.csv:3: rate line: two rates in the table have the same name",
+        ),
+        (
+            "notable.csv",
+            good.replace("# rate: fast, -7.5 dB, 41.216 ms\n# rate: slow, -20 dB, 0.991232 s\n", ""),
+            "notable.csv:3: column rate: 'fast' names a rate, but the log's header has no rate table",
+        ),
+    ] {
+        let o = run(name, &text, &["--column", "rate=Used"]);
+        assert_eq!(o.status.code(), Some(2), "{name}: {}", stderr(&o));
+        assert!(stderr(&o).contains(want), "{name}: {}", stderr(&o));
+        assert!(!out.exists(), "{name}: nothing written");
+    }
 }

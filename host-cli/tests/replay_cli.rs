@@ -74,7 +74,13 @@ fn small_log(dir: &Path) -> PathBuf {
     p
 }
 
-const SUMMARY_KEYS: [&str; 19] = [
+const SUMMARY_KEYS: [&str; 25] = [
+    "charge_per_delivered_uc",
+    "delivered_fraction",
+    "duty_limited",
+    "held",
+    "rate_changes",
+    "rates",
     "ignored_readings",
     "judged",
     "judged_at_max",

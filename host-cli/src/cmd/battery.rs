@@ -5,7 +5,7 @@ use std::path::PathBuf;
 
 use headroom::energy::duty::{airtime_per_hour, duty_cycle, en_300_220_sub_bands, min_interval};
 use headroom::energy::Delivery;
-use headroom::units::{Dbm, Hertz, Seconds};
+use headroom::units::{Dbm, Hertz, Milliseconds, Seconds};
 use serde_json::{json, Map, Value};
 
 use crate::energy;
@@ -201,6 +201,25 @@ pub fn run(args: Args) -> CliResult {
         rows.push(Value::Object(m));
     }
     rep.value("per_power", Value::Array(rows));
+    if !loaded.rates.is_empty() {
+        // The profile's [[rate]] entries: each rate's airtime and the duty
+        // cycle it takes at this interval.
+        let mut rates = Vec::new();
+        for r in loaded.rates.as_slice() {
+            let airtime = Milliseconds(r.airtime_us as f32 / 1000.0);
+            let mut m = Map::new();
+            m.insert("name".into(), json!(r.name.as_str()));
+            m.insert("required_snr_db".into(), json_num(r.required_snr.0));
+            m.insert("airtime_ms".into(), json_num(airtime.0));
+            if let Some(b) = r.noise_bandwidth_hz {
+                m.insert("noise_bandwidth_hz".into(), json_num(b));
+            }
+            let duty = duty_cycle(airtime, interval).map_err(refused)?;
+            m.insert("duty_cycle_percent".into(), json_num(duty * 100.0));
+            rates.push(Value::Object(m));
+        }
+        rep.value("rates", Value::Array(rates));
+    }
     rep.print(args.format)
 }
 

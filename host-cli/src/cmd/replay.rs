@@ -57,6 +57,14 @@ built-in required SNR (a replay without one is refused) and no built-in \
 EIRP cap (none is applied unless given). The table and the JSON show every \
 setting with its source.
 
+Rates: with a rate table, the energy profile's [[rate]] entries (--energy) \
+or else the log header's, the controller chooses the rate with the power. A \
+log whose records do not name their rate needs --logged-rate NAME when the \
+table gives noise bandwidths (the rate is never guessed). There is no \
+built-in duty-cycle limit: --duty-limit 1% states your band's (none is \
+applied otherwise). --baselines compares the controller with the engine's \
+baseline rules on each log.
+
 Several logs: each log (or each .csv/.hrlog file of a directory, sorted by \
 name) is one device, replayed separately with a fresh controller set up from \
 its own header. The fleet total adds counts and linear powers (mW) over the \
@@ -100,6 +108,14 @@ pub struct Args {
     /// interval the log's time stamps give.
     #[arg(long, value_name = "DURATION", value_parser = crate::quantity::duration, requires = "energy")]
     interval: Option<headroom::units::Seconds>,
+    /// Compare, on each log, the joint (rate, power) controller with the
+    /// engine's baselines: power-only control at each fixed rate, the rate
+    /// rule of common practice, and the best single rate with a fixed margin
+    /// chosen in hindsight. Needs --energy with a rate table (the profile's
+    /// or the log's); prints loss, charge per delivered packet, mean current,
+    /// battery life and the most airtime in any hour per rule.
+    #[arg(long, requires = "energy", conflicts_with_all = ["out", "plot"])]
+    baselines: bool,
     /// Replace the files of `--out` and `--plot` if they exist (never an input).
     #[arg(long)]
     force: bool,
@@ -182,11 +198,17 @@ pub fn run_observed(args: Args, observer: &mut dyn Observer) -> CliResult {
             )
         })?;
     }
-    let resolver = Resolver::new(&args.settings)?;
     let energy = match &args.energy {
         Some(p) => Some(crate::energy::load(p)?),
         None => None,
     };
+    let resolver = Resolver::new(&args.settings)?
+        .with_profile_rates(energy.as_ref().map(|e| e.rates).unwrap_or_default());
+    if args.baselines {
+        if let Some(p) = &energy {
+            return baselines(&list.logs, &resolver, p, &args);
+        }
+    }
     let mut fleet = Fleet::new();
     let mut fleet_energy = ReplayEnergy::new(None);
     let mut names: Vec<String> = Vec::new();
@@ -208,6 +230,7 @@ pub fn run_observed(args: Args, observer: &mut dyn Observer) -> CliResult {
         }
         let target = settings.resolved.config.target_outage;
         let mut obj = report::log_json(&name, &settings.resolved, &settings.warnings, &s);
+        obj.insert("rates".into(), report::rates_json(&settings.resolved, &s));
         if let (Some(e), Some(p)) = (&e, &energy) {
             obj.insert("energy".into(), report::energy_json(e, p, true));
             fleet_energy.merge(e);
@@ -224,6 +247,7 @@ pub fn run_observed(args: Args, observer: &mut dyn Observer) -> CliResult {
                 report::settings_table(&mut table, &settings.resolved);
                 let _ = writeln!(table);
                 report::summary_table(&mut table, &s);
+                report::rates_table(&mut table, &settings.resolved, &s);
                 if let (Some(e), Some(p)) = (&e, &energy) {
                     report::energy_table(&mut table, e, p, true);
                 }
@@ -267,6 +291,111 @@ pub fn run_observed(args: Args, observer: &mut dyn Observer) -> CliResult {
     }
 }
 
+/// Most records of one log `--baselines` holds (the hindsight search replays
+/// them many times): about 40 MB.
+const MAX_BASELINE_RECORDS: usize = 1_000_000;
+
+/// `--baselines`: every rule over each log, as a table or JSON.
+fn baselines(
+    logs: &[std::path::PathBuf],
+    resolver: &Resolver,
+    energy: &crate::energy::LoadedProfile,
+    args: &Args,
+) -> CliResult {
+    use std::fmt::Write as _;
+    let mut table = String::new();
+    let mut blocks = Vec::new();
+    for path in logs {
+        let name = path.display().to_string();
+        let fleet::OpenLog {
+            mut reader,
+            settings,
+        } = fleet::open(
+            path,
+            &args.input.options_with_rates(&energy_rates(Some(energy))),
+            resolver,
+            None,
+        )?;
+        for w in &settings.warnings {
+            warn(&format!("{name}: {w}"));
+        }
+        let cfg = settings.resolved.config;
+        if cfg.rates.is_empty() {
+            return Err(CliError::arg(
+                "--baselines",
+                format!(
+                    "{name}: no rate table: give --energy a profile with [[rate]] entries, or a log with '# rate:' lines"
+                ),
+            ));
+        }
+        let remap = crate::rates::Remap::new(
+            &reader.header().map(|h| h.rates).unwrap_or_default(),
+            &cfg.rates,
+        );
+        let mut records = Vec::new();
+        for rec in &mut reader {
+            let mut rec = rec?;
+            rec.rate = remap.apply(rec.rate).map_err(|why| {
+                CliError::Input(format!("{name}: record at t_ms {}: {why}", rec.t_ms))
+            })?;
+            if records.len() == MAX_BASELINE_RECORDS {
+                return Err(CliError::arg(
+                    "--baselines",
+                    format!("{name}: more than {MAX_BASELINE_RECORDS} records: compare a part of the log"),
+                ));
+            }
+            records.push(rec);
+        }
+        for w in reader.warnings() {
+            warn(&w);
+        }
+        let rows =
+            fleet::baselines::compare(&cfg, &energy.profile, &records).map_err(|e| match e {
+                CliError::Input(m) => CliError::Input(format!("{name}: {m}")),
+                other => other,
+            })?;
+        match args.format {
+            ReplayFormat::Table => {
+                let _ = writeln!(table, "== {}", crate::error::printable(&name));
+                report::settings_table(&mut table, &settings.resolved);
+                let _ = writeln!(table);
+                fleet::baselines::table(&mut table, &rows, &energy.profile, cfg.target_outage);
+                let _ = writeln!(table);
+            }
+            ReplayFormat::Json | ReplayFormat::Jsonl => {
+                let mut obj = Map::new();
+                obj.insert("log".into(), name.clone().into());
+                obj.insert("settings".into(), report::settings_json(&settings.resolved));
+                obj.insert(
+                    "baselines".into(),
+                    Value::Array(rows.iter().map(|r| r.json(&energy.profile)).collect()),
+                );
+                if args.format == ReplayFormat::Jsonl {
+                    let line = crate::output::json_line(&Value::Object(obj))?;
+                    print_text(&format!("{line}\n"))?;
+                } else {
+                    blocks.push(Value::Object(obj));
+                }
+            }
+        }
+    }
+    match args.format {
+        ReplayFormat::Table => print_text(&table),
+        ReplayFormat::Json => {
+            let mut m = Map::new();
+            m.insert("logs".into(), Value::Array(blocks));
+            let s = crate::output::json_text(&Value::Object(m))?;
+            print_text(&format!("{s}\n"))
+        }
+        ReplayFormat::Jsonl => Ok(()),
+    }
+}
+
+/// The rate table of the energy profile, if any (empty without one).
+fn energy_rates(p: Option<&crate::energy::LoadedProfile>) -> headroom::rate::RateTable {
+    p.map(|e| e.rates).unwrap_or_default()
+}
+
 /// A warning on stderr.
 fn warn(msg: &str) {
     crate::diag::warn(msg);
@@ -291,22 +420,45 @@ fn replay_log(
 ) -> CliResult<(fleet::settings::LogSettings, Summary, Option<ReplayEnergy>)> {
     let fleet::OpenLog { reader, settings } = match given {
         Some(reader) => fleet::open_reader(path, reader, resolver, None)?,
-        None => fleet::open(path, &args.input.options(), resolver, None)?,
+        None => fleet::open(
+            path,
+            &args.input.options_with_rates(&energy_rates(energy)),
+            resolver,
+            None,
+        )?,
     };
     let cfg = settings.resolved.config;
-    let mut replay = HostReplay::new(cfg)
-        .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
+    let mut replay = match energy {
+        // The engine costs each packet (and chooses among rates) with the
+        // profile.
+        Some(p) => HostReplay::with_energy(cfg, &p.profile),
+        None => HostReplay::new(cfg),
+    }
+    .map_err(|e| CliError::Input(format!("{}: controller settings: {e}", path.display())))?;
+    // The log's rate indices, as indices of the table in force.
+    let remap = crate::rates::Remap::new(
+        &reader.header().map(|h| h.rates).unwrap_or_default(),
+        &cfg.rates,
+    );
     let mut out = match &args.out {
-        Some(p) => Some(DecisionWriter::create(p, args.force)?),
+        Some(p) => Some(DecisionWriter::create(p, args.force, cfg.rates)?),
         None => None,
     };
     let mut series = args.plot.as_ref().map(|_| ReplaySeries::new());
+    let mut last_rate = None;
     let mut tally = energy.map(|_| ReplayEnergy::new(args.interval));
     // The log is read and decoded on a thread of its own while the records
     // before are replayed.
     let mut records = crate::logio::ReadAhead::new(reader);
     for rec in &mut records {
-        let rec = rec?;
+        let mut rec = rec?;
+        rec.rate = remap.apply(rec.rate).map_err(|why| {
+            CliError::Input(format!(
+                "{}: record at t_ms {}: {why}",
+                path.display(),
+                rec.t_ms
+            ))
+        })?;
         let step = replay.step(&rec);
         each(&rec, &step);
         if let (Some(t), Some(p)) = (tally.as_mut(), energy) {
@@ -323,6 +475,10 @@ fn replay_log(
         if let Some(w) = out.as_mut() {
             w.row(&step)?;
         }
+        let rate_before = last_rate;
+        if step.rate.is_some() {
+            last_rate = step.rate;
+        }
         if let Some(s) = series.as_mut() {
             s.push(ReplayPoint {
                 t_ms: step.t_ms,
@@ -333,6 +489,9 @@ fn replay_log(
                 margin_db: Some(step.margin.0),
                 lost: step.outcome == Outcome::Lost,
                 threshold_dbm: replay.loss_threshold(&rec).map(|d| d.0),
+                rate_changed: rate_before.is_some()
+                    && step.rate.is_some()
+                    && step.rate != rate_before,
             });
         }
     }
@@ -391,17 +550,27 @@ pub const DECISION_COLUMNS: [&str; 9] = [
 struct DecisionWriter {
     file: AtomicFile,
     binary: Option<(Encoder, Box<[u8; MAX_FRAME]>)>,
+    /// The rate table in force: CSV rows name the chosen rate when it is
+    /// not empty.
+    rates: headroom::rate::RateTable,
 }
 
 impl DecisionWriter {
-    fn create(dest: &Path, force: bool) -> CliResult<Self> {
+    fn create(dest: &Path, force: bool, rates: headroom::rate::RateTable) -> CliResult<Self> {
         let format = LogFormat::from_path(dest)?;
         let mut w = DecisionWriter {
             file: AtomicFile::create(dest, force)?,
             binary: None,
+            rates,
         };
         match format {
-            LogFormat::Csv => w.write_line(&DECISION_COLUMNS.join(","))?,
+            LogFormat::Csv => {
+                let mut head = DECISION_COLUMNS.join(",");
+                if !rates.is_empty() {
+                    head.push_str(",rate,airtime_us,charge_uc");
+                }
+                w.write_line(&head)?;
+            }
             LogFormat::Binary => w.binary = Some((Encoder::new(), Box::new([0u8; MAX_FRAME]))),
         }
         Ok(w)
@@ -444,6 +613,18 @@ impl DecisionWriter {
             num(s.path_loss_estimate.map(|d| d.0)),
             s.margin.0,
             s.reason.as_str()
+        );
+        if self.rates.is_empty() {
+            return self.write_line(&line);
+        }
+        let rate = s
+            .rate
+            .and_then(|m| self.rates.get(m))
+            .map_or("", |r| r.name.as_str());
+        let line = format!(
+            "{line},{rate},{},{}",
+            s.airtime_us.map_or(String::new(), |a| a.to_string()),
+            num(s.charge.map(|c| c.0))
         );
         self.write_line(&line)
     }

@@ -9,7 +9,7 @@
 use std::path::{Path, PathBuf};
 
 use headroom::record::LogHeader;
-use headroom::sim::{ChannelConfig, Fault, PowerPattern, Synth, MAX_FAULTS};
+use headroom::sim::{ChannelConfig, Fault, PowerPattern, RateSchedule, Synth, MAX_FAULTS};
 use headroom::units::{Db, Dbi, Dbm};
 use serde::Deserialize;
 
@@ -42,9 +42,69 @@ pub struct Args {
     force: bool,
     #[command(flatten)]
     write: logio::OutputArgs,
+    /// Energy profile whose `[[rate]]` table the log is written with (its
+    /// header carries the table, each record its rate): with
+    /// `--rate-schedule`.
+    #[arg(long, value_name = "PROFILE.toml", requires = "rate_schedule")]
+    rates: Option<PathBuf>,
+    /// The rates the packets are sent at, cycled, by name (`sf7,sf9,sf12`):
+    /// the noise floor of each record is at its rate's noise bandwidth.
+    #[arg(long, value_name = "NAME,...", requires = "rates")]
+    rate_schedule: Option<String>,
+    /// Packets sent at each rate of the schedule before the next.
+    #[arg(
+        long,
+        value_name = "N",
+        requires = "rate_schedule",
+        default_value_t = 1
+    )]
+    rate_hold: u64,
     /// Format of the summary printed after writing.
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
+}
+
+/// The rate schedule of `--rates`, `--rate-schedule` and `--rate-hold`.
+fn rate_schedule(args: &Args) -> CliResult<Option<RateSchedule>> {
+    let (Some(path), Some(names)) = (&args.rates, &args.rate_schedule) else {
+        return Ok(None);
+    };
+    let table = crate::energy::load(path)?.rates;
+    if table.is_empty() {
+        return Err(CliError::arg(
+            "--rates",
+            format!("{}: the profile has no [[rate]] entries", path.display()),
+        ));
+    }
+    let indices = names
+        .split(',')
+        .map(|n| {
+            let n = n.trim();
+            table.index_of(n).ok_or_else(|| {
+                CliError::arg(
+                    "--rate-schedule",
+                    format!(
+                        "'{}' is not a rate of {} (rates: {})",
+                        crate::error::printable(n),
+                        path.display(),
+                        crate::rates::names(&table)
+                    ),
+                )
+            })
+        })
+        .collect::<CliResult<Vec<u8>>>()?;
+    RateSchedule::new(table, &indices, args.rate_hold)
+        .map(Some)
+        .map_err(|e| {
+            crate::error::engine_error(
+                &e,
+                &[
+                    ("rate schedule (index)", "--rate-schedule"),
+                    ("rate schedule (count)", "--rate-schedule"),
+                    ("rate schedule hold_packets", "--rate-hold"),
+                ],
+            )
+        })
 }
 
 /// A scenario file.
@@ -281,17 +341,21 @@ pub struct Tally {
     pub faulty: u64,
 }
 
-/// Simulate `records` packets of `sc` with `seed`, handing each logged record
-/// to `sink`.
+/// Simulate `records` packets of `sc` with `seed` (at the rates of
+/// `rates`, if given), handing each logged record to `sink`.
 pub fn simulate(
     sc: &Scenario,
     seed: u64,
     records: u64,
+    rates: Option<&RateSchedule>,
     mut sink: impl FnMut(&headroom::record::LogRecord) -> CliResult,
 ) -> CliResult<Tally> {
     let mut synth =
         Synth::<MAX_FAULTS>::new(sc.channel.clone(), sc.power.clone(), &sc.faults, seed)
             .map_err(|e| CliError::arg("scenario", e))?;
+    if let Some(r) = rates {
+        synth = synth.with_rates(r.clone());
+    }
     let mut tally = Tally::default();
     for k in 0..records {
         let (s, rec) = synth
@@ -317,7 +381,11 @@ pub fn run(args: Args) -> CliResult {
     }
     let mut warnings = Vec::new();
     let sc = load_scenario_warn(&args.scenario, &mut warnings)?;
-    let header = sc.radio.as_ref().map(Radio::header).transpose()?;
+    let mut header = sc.radio.as_ref().map(Radio::header).transpose()?;
+    let schedule = rate_schedule(&args)?;
+    if let Some(r) = &schedule {
+        header.get_or_insert_with(LogHeader::default).rates = r.table;
+    }
     let mut out = logio::create_versioned(
         &args.out,
         None,
@@ -325,7 +393,9 @@ pub fn run(args: Args) -> CliResult {
         args.force,
         header,
     )?;
-    let tally = simulate(&sc, args.seed, args.records, |r| out.write(r))?;
+    let tally = simulate(&sc, args.seed, args.records, schedule.as_ref(), |r| {
+        out.write(r)
+    })?;
     out.finish()?;
 
     let mut rep = Report::new();
@@ -338,8 +408,20 @@ pub fn run(args: Args) -> CliResult {
         .value("lost", tally.lost.into())
         .value("feedback_lost", tally.feedback_lost.into())
         .value("in_noise_burst", tally.in_noise_burst.into())
-        .value("faulty_records", tally.faulty.into())
-        .value("warnings", warnings.into());
+        .value("faulty_records", tally.faulty.into());
+    if let (Some(r), Some(names)) = (&schedule, &args.rate_schedule) {
+        rep.value("rate_schedule", names.clone().into())
+            .value("rate_hold", r.hold_packets.into())
+            .value(
+                "rates",
+                crate::rates::describe(&r.table)
+                    .into_iter()
+                    .map(serde_json::Value::from)
+                    .collect::<Vec<_>>()
+                    .into(),
+            );
+    }
+    rep.value("warnings", warnings.into());
     rep.print(args.format)
 }
 
@@ -368,7 +450,7 @@ length = 2
     fn minimal_scenario_parses_and_runs() {
         let sc = parse_scenario(MINIMAL).expect("the minimal scenario parses");
         let mut recs = Vec::new();
-        let t = simulate(&sc, 5, 10, |r| {
+        let t = simulate(&sc, 5, 10, None, |r| {
             recs.push(*r);
             Ok(())
         });
@@ -416,7 +498,7 @@ length = 2
                 let out = dir.path().join(format!("{name}.{ext}"));
                 let mut want = Vec::new();
                 let mut w = logio::create(&out, false, None).expect("create");
-                simulate(&sc, 7, 3100, |r| {
+                simulate(&sc, 7, 3100, None, |r| {
                     want.push(*r);
                     w.write(r)
                 })

@@ -5,6 +5,7 @@
 //! semantics (`headroom::control::Replay`) and window
 //! ([`REPLAY_WINDOW`]), the same as the firmware's replay on target.
 
+pub mod baselines;
 pub mod logs;
 pub mod report;
 pub mod settings;

@@ -19,7 +19,7 @@ use headroom::energy::{EnergyTally, ReplayEnergy};
 use crate::energy::LoadedProfile;
 use serde_json::{Map, Value};
 
-use super::settings::{show, OWN_FLAG};
+use super::settings::{show, source_name, OWN_FLAG};
 use crate::output::json_num;
 
 /// A setting's value in JSON: a number, a whole number, `{"uniform": dB}`
@@ -62,7 +62,7 @@ pub fn settings_json(r: &Resolved) -> Value {
     for s in Setting::ALL {
         let mut e = Map::new();
         e.insert("value".into(), value_json(r.value(s)));
-        e.insert("source".into(), r.source(s).as_str().into());
+        e.insert("source".into(), source_name(r, s).into());
         m.insert(s.key().into(), Value::Object(e));
     }
     Value::Object(m)
@@ -95,6 +95,14 @@ pub fn summary_json(s: &Summary) -> Map<String, Value> {
     ins("max_allowed_tx_dbm", json_num(s.max_allowed.0));
     ins("max_tx_dbm_used", opt(s.max_tx_dbm_used.map(|d| d.0)));
     ins("power_changes", s.power_changes.into());
+    ins("rate_changes", s.rate_changes.into());
+    ins("held", s.held.into());
+    ins("duty_limited", s.duty_limited.into());
+    ins("delivered_fraction", opt(s.delivered_fraction()));
+    ins(
+        "charge_per_delivered_uc",
+        s.charge_per_delivered_uc().map_or(Value::Null, Value::from),
+    );
     let mut logged = Map::new();
     logged.insert("judged".into(), s.logged.judged.into());
     logged.insert("lost".into(), s.logged.lost.into());
@@ -114,6 +122,9 @@ pub fn summary_json(s: &Summary) -> Map<String, Value> {
     sums.insert("logs".into(), s.logs.into());
     sums.insert("tx_mw_sum".into(), Value::from(s.tx_mw_sum));
     sums.insert("max_mw_sum".into(), Value::from(s.max_mw_sum));
+    sums.insert("airtime_us".into(), s.airtime_us.into());
+    sums.insert("charge_uc".into(), Value::from(s.charge_uc));
+    sums.insert("charged".into(), s.charged.into());
     sums.insert(
         "logged_records_with_tx".into(),
         s.logged.records_with_tx.into(),
@@ -192,9 +203,9 @@ pub fn settings_table(out: &mut String, r: &Resolved) {
         let source = if s == Setting::StartTxDbm && r.source(s) == Source::Default {
             "default: the highest allowed"
         } else {
-            r.source(s).as_str()
+            source_name(r, s)
         };
-        let _ = writeln!(out, "  {:<22}{:<28}{source}", s.key(), v);
+        let _ = writeln!(out, "  {:<22}{:<28} {source}", s.key(), v);
     }
     if hidden > 0 {
         let _ = writeln!(
@@ -288,6 +299,105 @@ pub fn summary_table(out: &mut String, s: &Summary) {
         })
         .collect();
     line(out, "ignored_readings", ignored.join(", "));
+}
+
+/// The rate table in force and what the replay did at each rate, in JSON:
+/// `source` (`energy-profile`, `log-header` or `default` for none), and per
+/// rate its `name`, `required_snr_db`, `airtime_ms`, `noise_bandwidth_hz`,
+/// then the replay's `packets`, `share`, `delivered`, `lost`,
+/// `airtime_ms_sum` and `charge_uc` at that rate (the engine's
+/// [`Summary::per_rate`] and [`Summary::rate_share`]).
+pub fn rates_json(r: &Resolved, s: &Summary) -> Value {
+    let table = match r.value(Setting::Rates) {
+        SettingValue::Rates(t) => t,
+        _ => headroom::rate::RateTable::empty(),
+    };
+    let mut rows = Vec::new();
+    for (i, (rate, tot)) in table.as_slice().iter().zip(s.per_rate.iter()).enumerate() {
+        let mut m = Map::new();
+        m.insert("name".into(), rate.name.as_str().into());
+        m.insert("required_snr_db".into(), json_num(rate.required_snr.0));
+        #[allow(clippy::cast_precision_loss)] // µs below 2^32: exact in f64
+        m.insert(
+            "airtime_ms".into(),
+            Value::from(f64::from(rate.airtime_us) / 1000.0),
+        );
+        m.insert("noise_bandwidth_hz".into(), opt(rate.noise_bandwidth_hz));
+        m.insert("packets".into(), tot.packets.into());
+        m.insert(
+            "share".into(),
+            opt(u8::try_from(i).ok().and_then(|i| s.rate_share(i))),
+        );
+        m.insert("delivered".into(), tot.delivered.into());
+        m.insert("lost".into(), tot.lost.into());
+        #[allow(clippy::cast_precision_loss)] // a sum far below 2^53
+        m.insert(
+            "airtime_ms_sum".into(),
+            Value::from(tot.airtime_us as f64 / 1000.0),
+        );
+        m.insert("charge_uc".into(), Value::from(tot.charge_uc));
+        rows.push(Value::Object(m));
+    }
+    let mut m = Map::new();
+    m.insert("source".into(), source_name(r, Setting::Rates).into());
+    m.insert("table".into(), Value::Array(rows));
+    Value::Object(m)
+}
+
+/// The rate table in force and the replay's use of each rate, as table
+/// lines (nothing without a rate table): the same numbers as [`rates_json`],
+/// then the packets held by the duty budget, the decisions limited by it,
+/// the rate changes and the charge per delivered packet.
+pub fn rates_table(out: &mut String, r: &Resolved, s: &Summary) {
+    let v = rates_json(r, s);
+    let Some(rows) = v["table"].as_array().filter(|t| !t.is_empty()) else {
+        return;
+    };
+    let _ = writeln!(
+        out,
+        "rate table in force (source: {}):",
+        v["source"].as_str().unwrap_or("")
+    );
+    let _ = writeln!(
+        out,
+        "  {:<10}{:>10}{:>13}{:>12}{:>10}{:>9}{:>8}{:>14}",
+        "rate", "req SNR", "airtime", "bandwidth", "packets", "share", "lost", "charge"
+    );
+    for row in rows {
+        let num = |k: &str| row[k].as_f64();
+        let _ = writeln!(
+            out,
+            "  {:<10}{:>10}{:>13}{:>12}{:>10}{:>9}{:>8}{:>14}",
+            row["name"].as_str().unwrap_or(""),
+            num("required_snr_db").map_or("n/a".into(), |x| format!("{x:.1} dB")),
+            num("airtime_ms").map_or("n/a".into(), |x| format!("{x:.3} ms")),
+            num("noise_bandwidth_hz").map_or("-".into(), |x| format!("{:.1} kHz", x / 1e3)),
+            row["packets"].to_string(),
+            num("share").map_or("n/a".into(), |x| format!("{:.1} %", 100.0 * x)),
+            row["lost"].to_string(),
+            num("charge_uc").map_or("n/a".into(), |x| format!("{x:.0} µC")),
+        );
+    }
+    let _ = writeln!(
+        out,
+        "  {:<22}{}  (not sent: no rate fitted the duty-cycle budget)",
+        "held", s.held
+    );
+    let _ = writeln!(
+        out,
+        "  {:<22}{}  (decisions limited by the duty-cycle budget)",
+        "duty_limited", s.duty_limited
+    );
+    let _ = writeln!(out, "  {:<22}{}", "rate_changes", s.rate_changes);
+    let _ = writeln!(
+        out,
+        "  {:<22}{}",
+        "charge_per_delivered",
+        s.charge_per_delivered_uc().map_or_else(
+            || "n/a (needs --energy)".into(),
+            |x| format!("{x:.1} µC  (every packet's charge over the delivered ones)")
+        )
+    );
 }
 
 /// The fleet's lines (after its summary).

@@ -51,6 +51,17 @@ pub struct SettingArgs {
     /// Uniform step between the radio's powers (replaces any level table).
     #[arg(long, value_name = "D")]
     pub tx_step_db: Option<String>,
+    /// Regional duty-cycle limit: the fraction of any hour the radio may
+    /// be on air (`1%`, `0.001`), or `none`. There is no built-in value:
+    /// without one, no duty budget is applied (shown as none). Check the
+    /// rules of your band and region.
+    #[arg(long, value_name = "F|none")]
+    pub duty_limit: Option<String>,
+    /// The rate a log's packets were sent at when its records do not say
+    /// (no `rate` column or field): a name of the rate table in force.
+    /// Needed to replay such a log across rates with noise bandwidths.
+    #[arg(long, value_name = "NAME")]
+    pub logged_rate: Option<String>,
     /// Any setting by its TOML key: `--set margin_step_db=0.25dB`
     /// (repeatable).
     #[arg(long = "set", value_name = "KEY=VALUE")]
@@ -59,7 +70,7 @@ pub struct SettingArgs {
 
 /// The settings with a flag of their own (the ones users set most); the
 /// settings table always shows them.
-pub const OWN_FLAG: [Setting; 8] = [
+pub const OWN_FLAG: [Setting; 10] = [
     Setting::RequiredSnrDb,
     Setting::TargetOutage,
     Setting::MinTxDbm,
@@ -68,6 +79,8 @@ pub const OWN_FLAG: [Setting; 8] = [
     Setting::AntennaGainDbi,
     Setting::StartTxDbm,
     Setting::Steps,
+    Setting::DutyLimit,
+    Setting::LoggedRate,
 ];
 
 /// The flag that sets a setting, for messages.
@@ -114,7 +127,10 @@ pub fn parse_value(s: Setting, text: &str) -> Result<Value, String> {
         Kind::RateName => headroom::rate::RateName::new(t)
             .map(|n| Value::Rate(Some(n)))
             .map_err(|e| e.to_string()),
-        Kind::Rates => Err("a rate table comes from a radio profile or the log header".into()),
+        Kind::Rates => Err(
+            "a rate table comes from an energy profile's [[rate]] entries (--energy) or the log header"
+                .into(),
+        ),
     }
 }
 
@@ -213,6 +229,8 @@ impl SettingArgs {
             (Setting::AntennaGainDbi, &self.antenna_gain_dbi),
             (Setting::StartTxDbm, &self.start_tx_dbm),
             (Setting::Steps, &self.tx_step_db),
+            (Setting::DutyLimit, &self.duty_limit),
+            (Setting::LoggedRate, &self.logged_rate),
         ];
         for (s, text) in named {
             if let Some(t) = text {
@@ -257,6 +275,9 @@ pub struct Resolver {
     config: Layer,
     config_path: Option<PathBuf>,
     defaults: Layer,
+    /// The rate table of the energy profile (`--energy`), above the log's
+    /// header (empty: none).
+    profile_rates: headroom::rate::RateTable,
 }
 
 /// One log's resolved settings and what the user should be told about them.
@@ -280,7 +301,16 @@ impl Resolver {
             config,
             config_path: args.config.clone(),
             defaults: Layer::defaults(),
+            profile_rates: headroom::rate::RateTable::empty(),
         })
+    }
+
+    /// The rate table of an energy profile's `[[rate]]` entries: it beats
+    /// the log header's (the source shown is `energy-profile`, see
+    /// [`source_name`]). An empty table changes nothing.
+    pub fn with_profile_rates(mut self, rates: headroom::rate::RateTable) -> Self {
+        self.profile_rates = rates;
+        self
     }
 
     /// The flags' layer.
@@ -305,6 +335,11 @@ impl Resolver {
     ) -> CliResult<LogSettings> {
         let header_layer = header.map_or_else(Layer::empty, Layer::from_header);
         let mut flags = self.flags;
+        if !self.profile_rates.is_empty() {
+            flags
+                .set(Setting::Rates, Value::Rates(self.profile_rates))
+                .map_err(|e| CliError::arg("--energy", e))?;
+        }
         if let Some(x) = extra {
             for s in Setting::ALL {
                 if let Some(v) = x.get(s) {
@@ -388,6 +423,16 @@ fn resolve_error(log: &Path, e: &ResolveError, header_damaged: bool) -> CliError
     }
 }
 
+/// Where a setting in force came from, as tables and JSON name it. The rate
+/// table has no flag: set above the log's header, it came from the energy
+/// profile (`--energy`), or from a candidate of a `tune` sweep.
+pub fn source_name(r: &Resolved, s: Setting) -> &'static str {
+    match (s, r.source(s)) {
+        (Setting::Rates, headroom::control::settings::Source::Flag) => "energy-profile",
+        (_, src) => src.as_str(),
+    }
+}
+
 /// A value as a person reads it, with its unit.
 pub fn show(s: Setting, v: Value) -> String {
     let unit = match s.kind() {
@@ -414,7 +459,7 @@ pub fn show(s: Setting, v: Value) -> String {
         Value::Cap(EirpCap::AtMost(l)) => format!("{}{unit}", l.0),
         Value::Cap(EirpCap::NoCap) => "none (no cap configured)".into(),
         Value::Duty(DutyLimit::AtMost(f)) => format!("{f} ({}% of any hour)", f * 100.0),
-        Value::Duty(DutyLimit::NoLimit) => "none (no duty-cycle limit configured)".into(),
+        Value::Duty(DutyLimit::NoLimit) => "none (no limit given)".into(),
         Value::Rate(Some(n)) => n.as_str().to_string(),
         Value::Rate(None) => "none".into(),
         Value::Rates(t) if t.is_empty() => "none (power only)".into(),

@@ -16,7 +16,7 @@ use crate::error::{printable, CliError, CliResult};
 pub(super) const MAGIC: &str = "headroom-log";
 /// Version written after [`MAGIC`]; the CSV layout follows the binary
 /// format's version numbers.
-const VERSION: &str = "1.1";
+const VERSION: &str = "1.2";
 /// Column names, in the order the writer puts them.
 const COLUMNS: [Field; 4] = [Field::TMs, Field::TxDbm, Field::RssiDbm, Field::NoiseDbm];
 /// The UTF-8 byte-order mark some editors put first.
@@ -253,6 +253,7 @@ struct Columns {
     rssi: Option<usize>,
     noise: Option<usize>,
     snr: Option<usize>,
+    rate: Option<usize>,
 }
 
 /// The reading columns, in the order of [`CsvReader::filled`].
@@ -288,6 +289,9 @@ pub(super) struct CsvReader {
     noise_from_snr: u64,
     /// Lines of further `# headroom-log` blocks before the header row.
     late_blocks: Vec<u64>,
+    /// The rate names a `rate` cell is read against when the header has no
+    /// table ([`ReadOptions::rate_names`]).
+    rate_names: Vec<String>,
 }
 
 impl CsvReader {
@@ -360,6 +364,7 @@ impl CsvReader {
             filled: [0; 4],
             noise_from_snr: 0,
             late_blocks: pre.late_blocks,
+            rate_names: opts.rate_names.clone(),
         })
     }
 
@@ -498,14 +503,65 @@ impl CsvReader {
                 self.noise_from_snr += 1;
             }
         }
+        let rate = match cols.rate {
+            Some(i) => {
+                let cell = unquote(rec.get(i).unwrap_or(b""));
+                if cell.is_empty() {
+                    None
+                } else {
+                    let rates = self.header.as_ref().map(|h| h.rates).unwrap_or_default();
+                    let name = std::str::from_utf8(cell).ok();
+                    let found = if rates.is_empty() && !self.rate_names.is_empty() {
+                        name.and_then(|n| self.rate_names.iter().position(|r| r == n))
+                            .and_then(|i| u8::try_from(i).ok())
+                    } else {
+                        name.and_then(|n| rates.index_of(n))
+                    };
+                    if found.is_none() {
+                        return Err(unknown_rate(cell, &rates, &self.rate_names));
+                    }
+                    found
+                }
+            }
+            None => None,
+        };
         Ok(LogRecord {
             t_ms,
             tx_dbm,
             rssi_dbm,
             noise_dbm,
-            rate: None,
+            rate,
         })
     }
+}
+
+/// Why a rate cell names no rate of the header's table.
+#[cold]
+#[inline(never)]
+fn unknown_rate(
+    cell: &[u8],
+    rates: &headroom::rate::RateTable,
+    fallback: &[String],
+) -> (&'static str, String) {
+    let why = if rates.is_empty() && !fallback.is_empty() {
+        format!(
+            "'{}' is not a rate of the table in force (rates: {}; the log's header has none)",
+            show(cell),
+            fallback.join(", ")
+        )
+    } else if rates.is_empty() {
+        format!(
+            "'{}' names a rate, but the log's header has no rate table ('# rate:' lines, or a profile's [[rate]] entries where the command takes --energy)",
+            show(cell)
+        )
+    } else {
+        format!(
+            "'{}' is not a rate of the log's header (rates: {})",
+            show(cell),
+            crate::rates::names(rates)
+        )
+    };
+    ("rate", why)
 }
 
 /// Why a time cell is bad (kept out of the row loop: only errors build
@@ -604,6 +660,7 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
     let mut status = HeaderStatus::Absent;
     let mut late_blocks = Vec::new();
     let mut in_block = false;
+    let mut rates: Vec<headroom::rate::Rate> = Vec::new();
     let mut lines = 0u64;
     let mut total = 0usize;
     let mut line = Vec::with_capacity(128);
@@ -661,6 +718,17 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
             continue;
         }
         if let (Some(h), true) = (header.as_mut(), in_block) {
+            if let Some(value) = rate_line(text) {
+                // A rate table decides every result across rates: a bad
+                // line is an error, not a damaged header read without it.
+                let rate = crate::rates::parse_line(value)
+                    .map_err(|why| CliError::Input(format!("{name}:{lines}: rate line: {why}")))?;
+                rates.push(rate);
+                // Checked at each line, so the line that breaks it is named.
+                h.rates = headroom::rate::RateTable::new(&rates)
+                    .map_err(|why| CliError::Input(format!("{name}:{lines}: rate line: {why}")))?;
+                continue;
+            }
             if let Err(why) = parse_header_line(text, h) {
                 if matches!(status, HeaderStatus::Present) {
                     status = HeaderStatus::Damaged {
@@ -676,6 +744,12 @@ fn read_preamble<R: Read>(name: &str, input: &mut BufReader<R>) -> CliResult<Pre
         lines,
         late_blocks,
     })
+}
+
+/// The value of a `rate: ...` header line (the key in any case).
+fn rate_line(text: &str) -> Option<&str> {
+    let (key, value) = text.split_once(':')?;
+    key.trim().eq_ignore_ascii_case("rate").then_some(value)
 }
 
 /// Read one `key: value` line of a header block into `h`; lines without a
@@ -744,7 +818,7 @@ fn find_columns(
             w.1.clone_from(&m.column);
         }
     }
-    let mut found: [Option<usize>; 5] = [None; 5];
+    let mut found: [Option<usize>; 6] = [None; 6];
     for (i, cell) in names.iter().enumerate() {
         let cell = unquote(cell);
         for (k, (_, col)) in wanted.iter().enumerate() {
@@ -799,7 +873,7 @@ fn find_columns(
             seen()
         ))
     };
-    let [t, tx, rssi, noise, snr] = found;
+    let [t, tx, rssi, noise, snr, rate] = found;
     let Some(t) = t else {
         return Err(missing(&[Field::TMs]));
     };
@@ -822,6 +896,7 @@ fn find_columns(
             rssi,
             noise,
             snr,
+            rate,
         },
         [col_name(tx), col_name(rssi), col_name(noise), col_name(snr)],
     ))
@@ -948,12 +1023,15 @@ fn fast_decimal(digits: &[u8]) -> Option<f32> {
 /// Writes records as CSV rows.
 pub(super) struct CsvEncoder {
     line: Vec<u8>,
+    /// The header's rate table: a `rate` column by name when not empty.
+    rates: headroom::rate::RateTable,
 }
 
 impl CsvEncoder {
     pub(super) fn new() -> Self {
         CsvEncoder {
             line: Vec::with_capacity(256),
+            rates: headroom::rate::RateTable::empty(),
         }
     }
 
@@ -984,8 +1062,17 @@ impl CsvEncoder {
             if let Some(v) = h.eirp_cap {
                 writeln!(out, "# eirp_cap_dbm: {}", v.0)?;
             }
+            for r in h.rates.as_slice() {
+                writeln!(out, "# rate: {}", crate::rates::format_line(r))?;
+            }
+            self.rates = h.rates;
         }
-        writeln!(out, "{}", COLUMNS.map(Field::name).join(","))
+        let mut names = COLUMNS.map(Field::name).join(",");
+        if !self.rates.is_empty() {
+            names.push(',');
+            names.push_str(Field::Rate.name());
+        }
+        writeln!(out, "{names}")
     }
 
     pub(super) fn write(&mut self, out: &mut dyn Write, r: &LogRecord) -> io::Result<()> {
@@ -999,6 +1086,23 @@ impl CsvEncoder {
                 // same f32 (`NaN`, `inf`, `-inf` for the others).
                 write!(line, "{v}")?;
             }
+        }
+        if let Some(i) = r.rate {
+            let Some(rate) = self.rates.get(i) else {
+                return Err(io::Error::new(
+                    io::ErrorKind::InvalidData,
+                    format!(
+                        "record at t_ms {} names rate {i}, which the header's table of {} rate{} does not have",
+                        r.t_ms,
+                        self.rates.len(),
+                        if self.rates.len() == 1 { "" } else { "s" }
+                    ),
+                ));
+            };
+            line.push(b',');
+            line.extend_from_slice(rate.name.as_str().as_bytes());
+        } else if !self.rates.is_empty() {
+            line.push(b',');
         }
         line.push(b'\n');
         out.write_all(line)

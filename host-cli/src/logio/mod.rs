@@ -5,7 +5,10 @@
 //!
 //! - **CSV** (`.csv`): a header row naming the columns, in any order:
 //!   `t_ms` (whole milliseconds), `tx_dbm`, `rssi_dbm`, and `noise_dbm` or
-//!   `snr_db` (an empty cell is a reading that was not logged). A log with
+//!   `snr_db` (an empty cell is a reading that was not logged), and
+//!   optionally `rate`, the name of a rate of the header's table (format
+//!   1.2: `# rate: sf7, -7.5 dB, 41.216 ms, 125000 Hz` lines, read by
+//!   [`crate::rates::parse_line`]). A log with
 //!   an SNR and no noise floor is a full log: noise = RSSI − SNR, per row,
 //!   by [`headroom::record::noise_from_snr`]. Columns named otherwise are
 //!   mapped with `--column FIELD=NAME` ([`ColumnMap`]). Other columns are
@@ -176,17 +179,21 @@ pub enum Field {
     /// SNR at the far end, dB: read where a log has no noise floor
     /// (noise = RSSI − SNR, [`headroom::record::noise_from_snr`]).
     SnrDb,
+    /// The rate the packet was sent at, by name (a rate of the header's
+    /// table, `# rate:` lines).
+    Rate,
 }
 
 impl Field {
     /// Every field, in the order a CSV writer puts its columns (`snr_db`,
     /// read only, last).
-    pub const ALL: [Field; 5] = [
+    pub const ALL: [Field; 6] = [
         Field::TMs,
         Field::TxDbm,
         Field::RssiDbm,
         Field::NoiseDbm,
         Field::SnrDb,
+        Field::Rate,
     ];
 
     /// The column name.
@@ -197,6 +204,7 @@ impl Field {
             Field::RssiDbm => "rssi_dbm",
             Field::NoiseDbm => "noise_dbm",
             Field::SnrDb => "snr_db",
+            Field::Rate => "rate",
         }
     }
 
@@ -266,6 +274,11 @@ pub struct ReadOptions {
     /// `tx_dbm`, `rssi_dbm`, and `noise_dbm` or `snr_db`; without one it is
     /// refused at open, naming the column.
     pub require_readings: bool,
+    /// The names of the rate table in force (an energy profile's), in
+    /// order: a CSV `rate` column is read against them when the log's
+    /// header has no table of its own (the records' indices are then into
+    /// that table).
+    pub rate_names: Vec<String>,
 }
 
 /// The options of a command that reads logs, to flatten into its
@@ -278,7 +291,7 @@ pub struct InputArgs {
     pub from: Option<LogFormat>,
     /// A CSV column named otherwise: `--column rssi_dbm=RSSI` reads the
     /// column `RSSI` as `rssi_dbm` (repeatable; fields: t_ms, tx_dbm,
-    /// rssi_dbm, noise_dbm, snr_db).
+    /// rssi_dbm, noise_dbm, snr_db, rate).
     #[arg(long = "column", value_name = "FIELD=NAME")]
     pub columns: Vec<ColumnMap>,
     /// Any damage is an error: a damaged or lost header, a damaged binary
@@ -295,6 +308,21 @@ impl InputArgs {
             columns: self.columns.clone(),
             strict: self.strict,
             require_readings: true,
+            rate_names: Vec::new(),
+        }
+    }
+
+    /// [`InputArgs::options`], with the rate table in force (an energy
+    /// profile's) to read a CSV `rate` column by when a log's header has
+    /// none.
+    pub fn options_with_rates(&self, rates: &headroom::rate::RateTable) -> ReadOptions {
+        ReadOptions {
+            rate_names: rates
+                .as_slice()
+                .iter()
+                .map(|r| r.name.as_str().to_string())
+                .collect(),
+            ..self.options()
         }
     }
 }
@@ -461,6 +489,7 @@ fn header_differences(a: &LogHeader, b: &LogHeader) -> Vec<&'static str> {
             "eirp_cap_dbm",
             bits(a.eirp_cap.map(|v| v.0)) == bits(b.eirp_cap.map(|v| v.0)),
         ),
+        ("rate", a.rates == b.rates),
     ];
     pairs
         .into_iter()
@@ -659,7 +688,7 @@ pub struct LogWriter {
 }
 
 enum Encoder {
-    Csv(csv::CsvEncoder),
+    Csv(Box<csv::CsvEncoder>),
     Binary(Box<binary::BinaryEncoder>),
 }
 
@@ -696,7 +725,7 @@ pub fn create_versioned(
     };
     let mut out = AtomicFile::create(path, force)?;
     let mut enc = match format {
-        LogFormat::Csv => Encoder::Csv(csv::CsvEncoder::new()),
+        LogFormat::Csv => Encoder::Csv(Box::new(csv::CsvEncoder::new())),
         LogFormat::Binary => Encoder::Binary(Box::new(binary::BinaryEncoder::new(version))),
     };
     let res = match &mut enc {
@@ -874,7 +903,7 @@ mod tests {
         for (bad, want) in [
             (
                 "rssi=RSSI",
-                "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db)",
+                "'rssi' is not a log field (fields: t_ms, tx_dbm, rssi_dbm, noise_dbm, snr_db, rate)",
             ),
             ("rssi_dbm", "is not FIELD=NAME"),
             ("rssi_dbm=", "names no column"),

@@ -222,6 +222,7 @@ mod tests {
                 margin_db: Some(rx + 117.0 + 10.0 - 11.5),
                 lost: rx <= -121.0,
                 threshold_dbm: Some(-117.0 + 8.0),
+                rate_changed: false,
             });
         }
         s

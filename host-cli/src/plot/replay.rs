@@ -70,6 +70,8 @@ pub struct ReplayPoint {
     /// Loss threshold: the received power below which the packet is lost
     /// (noise floor + required SNR), dBm.
     pub threshold_dbm: Option<f32>,
+    /// The controller sent this packet at another rate than the one before.
+    pub rate_changed: bool,
 }
 
 impl ReplayPoint {
@@ -110,6 +112,8 @@ struct Bucket {
     lines: [Option<Extremes>; LINES],
     /// Time of the first lost packet.
     lost: Option<u64>,
+    /// Time of the first rate change.
+    rate_change: Option<u64>,
 }
 
 impl Bucket {
@@ -122,16 +126,19 @@ impl Bucket {
                 (Some(_), None) => {}
             }
         }
-        self.lost = match (self.lost, o.lost) {
+        let first = |a: Option<u64>, b: Option<u64>| match (a, b) {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
+        self.lost = first(self.lost, o.lost);
+        self.rate_change = first(self.rate_change, o.rate_change);
     }
 
     fn of(p: &ReplayPoint) -> Bucket {
         let mut b = Bucket {
             records: 1,
             lost: p.lost.then_some(p.t_ms),
+            rate_change: p.rate_changed.then_some(p.t_ms),
             ..Bucket::default()
         };
         for (slot, v) in b.lines.iter_mut().zip(p.values()) {
@@ -145,7 +152,7 @@ impl Bucket {
 }
 
 /// The records of a replay, decimated as they are pushed: memory is bounded
-/// by [`MAX_BUCKETS`] buckets of 264 bytes whatever the length of the log
+/// by [`MAX_BUCKETS`] buckets of 280 bytes whatever the length of the log
 /// (under 1 MB with the map that holds them).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ReplaySeries {
@@ -321,6 +328,15 @@ fn lost_marks(s: &ReplaySeries, unit: TimeUnit) -> Vec<f64> {
         .collect()
 }
 
+/// x positions of rate changes: the first of each bucket.
+fn rate_marks(s: &ReplaySeries, unit: TimeUnit) -> Vec<f64> {
+    s.buckets
+        .values()
+        .filter_map(|b| b.rate_change)
+        .map(|t| x_of(t, s.t_min, unit))
+        .collect()
+}
+
 struct Line {
     label: &'static str,
     colour: RGBColor,
@@ -336,6 +352,7 @@ struct ReplayFigure {
     bucket_ms: Option<u64>,
     top: Vec<Line>,
     lost: Vec<f64>,
+    rate_changes: Vec<f64>,
     tx: Option<Line>,
     margin: Option<Line>,
     limits: Option<(f32, f32)>,
@@ -386,6 +403,7 @@ pub fn replay_plot(path: &Path, force: bool, title: &str, series: &ReplaySeries)
             .then(|| 1u64.checked_shl(s.shift).unwrap_or(u64::MAX)),
         top,
         lost: lost_marks(s, unit),
+        rate_changes: rate_marks(s, unit),
         tx: line("transmit power chosen", TX, TX_LINE),
         margin: line("margin", MARGIN_C, MARGIN_LINE),
         limits: s.limits_dbm,
@@ -555,6 +573,28 @@ impl Figure for ReplayFigure {
         if let Some(l) = &self.tx {
             draw_line(&mut chart, l)?;
         }
+        // Rate changes: short ticks along the bottom of the power panel.
+        if !self.rate_changes.is_empty() {
+            let (lo, hi) = (tx_range.0, tx_range.1);
+            let band = (hi - lo).abs().max(1.0) * 0.05;
+            let (a, b) = (lo - band, lo);
+            let mut first = true;
+            for chunk in self.rate_changes.chunks(4096) {
+                let drawn =
+                    chart.draw_series(chunk.iter().map(|&t| {
+                        PathElement::new(vec![(t, a), (t, b)], GRID_C.stroke_width(2))
+                    }))?;
+                if first {
+                    drawn.label("rate changed").legend(|(x, y)| {
+                        PathElement::new(
+                            vec![(x + 12, y - 6), (x + 12, y + 6)],
+                            GRID_C.stroke_width(2),
+                        )
+                    });
+                    first = false;
+                }
+            }
+        }
         // The limits in force, dashed: the radio's range and the EIRP cap.
         let marks = [
             self.limits
@@ -674,7 +714,7 @@ mod tests {
         assert!(s.buckets.len() <= MAX_BUCKETS);
         assert_eq!(s.len(), 300_000);
         // The size the README states.
-        assert!(std::mem::size_of::<Bucket>() <= 264);
+        assert!(std::mem::size_of::<Bucket>() <= 280);
         // Every bucket's values lie within the data.
         for b in s.buckets.values() {
             let e = b.lines[LOGGED_LINE].expect("value");
@@ -721,6 +761,15 @@ mod tests {
         }));
         let marks = lost_marks(&s, SECONDS).len();
         assert!(marks <= MAX_BUCKETS && marks > MAX_BUCKETS / 2, "{marks}");
+    }
+
+    #[test]
+    fn rate_changes_stay_visible() {
+        let s = series((0..1_000_000u64).map(|k| ReplayPoint {
+            rate_changed: k == 123_456 || k == 900_000,
+            ..point(k * 10, Some(-90.0))
+        }));
+        assert_eq!(rate_marks(&s, SECONDS), vec![1_234.56, 9_000.0]);
     }
 
     #[test]

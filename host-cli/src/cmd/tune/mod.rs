@@ -157,12 +157,24 @@ pub fn run(args: Args) -> CliResult {
         schedule::check_rereadable(p)?;
     }
     let names: Vec<String> = logs.iter().map(|p| p.display().to_string()).collect();
-    let resolver = Resolver::new(&args.settings)?;
     let grid = Grid::new(args.sweeps.clone(), args.incomparable)?;
     let energy = match &args.energy {
         Some(p) => Some(crate::energy::load(p)?),
         None => None,
     };
+    let resolver = Resolver::new(&args.settings)?
+        .with_profile_rates(energy.as_ref().map(|e| e.rates).unwrap_or_default());
+    if grid
+        .sweeps
+        .iter()
+        .any(|s| s.setting == headroom::control::settings::Setting::Rates)
+        && energy.is_none()
+    {
+        return Err(CliError::arg(
+            "--sweep",
+            "rates: choosing among rates costs each packet: add --energy PROFILE.toml",
+        ));
+    }
     if args.objective != Objective::Power && energy.is_none() {
         return Err(CliError::arg(
             "--objective",
@@ -175,7 +187,9 @@ pub fn run(args: Args) -> CliResult {
         .ok_or_else(|| CliError::arg("LOG", "name at least one log"))?;
     // Refuse a bad combination before any replay (against the first log;
     // the others are checked as they run).
-    let opts = args.input.options();
+    let opts = args
+        .input
+        .options_with_rates(&energy.as_ref().map(|e| e.rates).unwrap_or_default());
     schedule::check_grid(first, &opts, &resolver, &grid)?;
     let base = crate::fleet::open(first, &opts, &resolver, None)?
         .settings

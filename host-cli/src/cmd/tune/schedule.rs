@@ -50,23 +50,38 @@ pub fn replay_group(
     };
     let header = reader.header().copied();
     let damaged = matches!(reader.header_status(), HeaderStatus::Damaged { .. });
-    type Live = (usize, HostReplay, f32, Vec<String>, Option<ReplayEnergy>);
+    type Live = (
+        usize,
+        HostReplay,
+        f32,
+        Vec<String>,
+        Option<ReplayEnergy>,
+        crate::rates::Remap,
+    );
     let mut live: Vec<Live> = Vec::with_capacity(cands.len());
     for &(j, cand) in cands {
         let r = grid.layer(cand).and_then(|extra| {
             let s = resolver.resolve(path, header.as_ref(), damaged, Some(&extra))?;
-            let replay = HostReplay::new(s.resolved.config).map_err(|e| {
+            let cfg = s.resolved.config;
+            let replay = match profile {
+                Some(p) => HostReplay::with_energy(cfg, p),
+                None => HostReplay::new(cfg),
+            }
+            .map_err(|e| {
                 CliError::Input(format!("{}: controller settings: {e}", path.display()))
             })?;
-            Ok((replay, s.resolved.config.target_outage, s.warnings))
+            let remap =
+                crate::rates::Remap::new(&header.map(|h| h.rates).unwrap_or_default(), &cfg.rates);
+            Ok((replay, cfg.target_outage, s.warnings, remap))
         });
         match r {
-            Ok((replay, target, warnings)) => live.push((
+            Ok((replay, target, warnings, remap)) => live.push((
                 j,
                 replay,
                 target,
                 warnings,
                 profile.map(|_| ReplayEnergy::new(None)),
+                remap,
             )),
             Err(e) => out.push((j, Err(e))),
         }
@@ -92,8 +107,21 @@ pub fn replay_group(
                 }
             }
         }
-        for (_, replay, _, _, energy) in &mut live {
+        for (_, replay, _, _, energy, remap) in &mut live {
             for rec in &batch {
+                let mut rec = *rec;
+                match remap.apply(rec.rate) {
+                    Ok(r) => rec.rate = r,
+                    Err(why) => {
+                        failed.get_or_insert(CliError::Input(format!(
+                            "{}: record at t_ms {}: {why}",
+                            path.display(),
+                            rec.t_ms
+                        )));
+                        break;
+                    }
+                }
+                let rec = &rec;
                 let step = replay.step(rec);
                 if let (Some(e), Some(p)) = (energy.as_mut(), profile) {
                     if let Err(err) = e.add(p, rec, &step) {
@@ -121,7 +149,7 @@ pub fn replay_group(
     let damage: Vec<String> = reader.warnings();
     out.extend(
         live.into_iter()
-            .map(|(j, replay, target, warnings, energy)| {
+            .map(|(j, replay, target, warnings, energy, _)| {
                 let mut w: Vec<String> = warnings
                     .into_iter()
                     .map(|w| format!("{}: {w}", path.display()))

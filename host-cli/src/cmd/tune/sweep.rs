@@ -3,6 +3,12 @@
 //! engine's table of names) and the values take the setting's units
 //! (`margin_step_db=0.25dB,0.5dB`, `target_outage=0.5%,1%`).
 //!
+//! `rates=A.toml,B.toml,none` sweeps the choice of rate table: each value is
+//! an energy profile whose `[[rate]]` entries make the table (`none`: no
+//! table, the power only). The candidates are comparable: each packet is
+//! judged at the rate its candidate chose, by that rate's required SNR, and
+//! `--objective charge` compares their charge per delivered packet.
+//!
 //! Settings that decide how a packet is judged (`required_snr_db`,
 //! `target_outage`) or that state the radio's facts (power limits, steps,
 //! antenna gains, EIRP cap) change what is being compared, not how the
@@ -28,6 +34,9 @@ pub struct Sweep {
     pub setting: Setting,
     /// Its values, in order.
     pub values: Vec<Value>,
+    /// What each value is called in labels, when not its value (the file
+    /// a rate table came from).
+    pub names: Vec<String>,
 }
 
 const SWEEP_FORM: &str =
@@ -103,6 +112,9 @@ pub fn parse_sweep(s: &str) -> Result<Sweep, String> {
     }
     let setting = setting_named(name)?;
     let spec = spec.trim();
+    if setting == Setting::Rates {
+        return rate_tables(spec);
+    }
     let values = if let Some((from, rest)) = spec.split_once("..") {
         let (to, step) = rest
             .split_once(':')
@@ -134,7 +146,38 @@ pub fn parse_sweep(s: &str) -> Result<Sweep, String> {
             .map(|v| parse_value(setting, v).map_err(|e| format!("{name}: {e}")))
             .collect::<Result<Vec<_>, _>>()?
     };
-    Ok(Sweep { setting, values })
+    Ok(Sweep {
+        setting,
+        values,
+        names: Vec::new(),
+    })
+}
+
+/// `rates=A.toml,B.toml,none`: the rate tables of energy profiles.
+fn rate_tables(spec: &str) -> Result<Sweep, String> {
+    let mut values = Vec::new();
+    let mut names = Vec::new();
+    for item in spec.split(',').map(str::trim) {
+        if item.eq_ignore_ascii_case("none") {
+            values.push(Value::Rates(headroom::rate::RateTable::empty()));
+            names.push("none".to_string());
+            continue;
+        }
+        let path = std::path::Path::new(item);
+        let loaded = crate::energy::load(path).map_err(|e| format!("rates: {e}"))?;
+        if loaded.rates.is_empty() {
+            return Err(format!(
+                "rates: {item}: the profile has no [[rate]] entries (write none for no table)"
+            ));
+        }
+        values.push(Value::Rates(loaded.rates));
+        names.push(item.to_string());
+    }
+    Ok(Sweep {
+        setting: Setting::Rates,
+        values,
+        names,
+    })
 }
 
 /// The grid: the sweeps and its size.
@@ -162,6 +205,8 @@ impl Grid {
                 ));
             }
             match s.setting.role() {
+                // The choice of rate table is what is being tuned.
+                _ if s.setting == Setting::Rates => {}
                 Role::JudgingRule | Role::RadioFact => {
                     if !allow_incomparable {
                         let what = if s.setting.role() == Role::JudgingRule {
@@ -202,12 +247,21 @@ impl Grid {
 
     /// The values of combination `k` (0-based), first sweep slowest.
     fn values(&self, k: usize) -> Vec<(Setting, Value)> {
+        self.named_values(k)
+            .into_iter()
+            .map(|(s, v, _)| (s, v))
+            .collect()
+    }
+
+    /// The values of combination `k`, each with its name in labels.
+    fn named_values(&self, k: usize) -> Vec<(Setting, Value, Option<&str>)> {
         let mut rest = k;
         let mut out = Vec::with_capacity(self.sweeps.len());
         for s in self.sweeps.iter().rev() {
             let n = s.values.len().max(1);
-            if let Some(v) = s.values.get(rest % n) {
-                out.push((s.setting, *v));
+            let i = rest % n;
+            if let Some(v) = s.values.get(i) {
+                out.push((s.setting, *v, s.names.get(i).map(String::as_str)));
             }
             rest /= n;
         }
@@ -231,8 +285,12 @@ impl Grid {
     pub fn settings_json(&self, cand: usize) -> Map<String, Json> {
         let mut m = Map::new();
         if let Some(k) = cand.checked_sub(1) {
-            for (s, v) in self.values(k) {
-                m.insert(s.key().into(), value_json(v));
+            for (s, v, name) in self.named_values(k) {
+                let v = match name {
+                    Some(n) => Json::from(n),
+                    None => value_json(v),
+                };
+                m.insert(s.key().into(), v);
             }
         }
         m
@@ -243,9 +301,11 @@ impl Grid {
         match cand.checked_sub(1) {
             None => "default".into(),
             Some(k) => self
-                .values(k)
+                .named_values(k)
                 .into_iter()
-                .map(|(s, v)| format!("{s}={}", show(s, v)))
+                .map(|(s, v, name)| {
+                    format!("{s}={}", name.map_or_else(|| show(s, v), String::from))
+                })
                 .collect::<Vec<_>>()
                 .join(" "),
         }

@@ -1,0 +1,358 @@
+//! `replay --baselines`: the joint (rate, power) controller beside the
+//! rules it is compared with, each replayed over the same records and
+//! judged by the same rule. The rules are the engine's
+//! (`headroom::control::baseline`, the controller itself for power-only
+//! control at one rate); the costs are the engine's energy profile
+//! (`EnergyProfile::packet_cost_for`, `EnergyTally`); the duty use is the
+//! engine's one-hour `AirtimeWindow`. This module only feeds them records
+//! and collects their answers.
+//!
+//! Rows, for a log replayed with a rate table of `n` rates:
+//! - `joint`: the controller choosing rate and power (`Replay::with_energy`);
+//! - `power-only RATE`: the controller with a table of that rate alone
+//!   (`baseline::single_rate`), one row per rate;
+//! - `common-practice`: `baseline::CommonPracticeRate`;
+//! - `hindsight`: `baseline::FixedMarginRate` at the rate and fixed margin
+//!   that, knowing the whole log, deliver at the target for the least charge
+//!   per delivered packet (margins searched from 0 to
+//!   [`HINDSIGHT_MAX_MARGIN_DB`] in steps of [`HINDSIGHT_STEP_DB`]).
+
+use headroom::control::baseline::{self, CommonPracticeRate, FixedMarginRate, Judge};
+use headroom::control::{ControllerConfig, Outcome};
+use headroom::energy::duty::AirtimeWindow;
+use headroom::energy::{EnergyProfile, EnergyTally, Milliseconds, ReplayEnergy};
+use headroom::record::LogRecord;
+use headroom::units::Dbm;
+use serde_json::{Map, Value};
+
+use super::HostReplay;
+use crate::error::{CliError, CliResult};
+use crate::output::json_num;
+
+/// Largest fixed margin the hindsight search tries, dB.
+pub const HINDSIGHT_MAX_MARGIN_DB: f32 = 30.0;
+/// Step of the hindsight search, dB.
+pub const HINDSIGHT_STEP_DB: f32 = 0.5;
+
+/// What one rule did over a log.
+#[derive(Debug, Clone)]
+pub struct Row {
+    /// The rule, as the table names it.
+    pub rule: String,
+    /// Packets judged (readings to judge by).
+    pub judged: u64,
+    /// Judged packets lost.
+    pub lost: u64,
+    /// Packets held by a duty budget (the joint controller only).
+    pub held: u64,
+    /// The charge of every packet, the delivered ones counted.
+    pub tally: EnergyTally,
+    /// Most airtime in any hour, µs (the engine's one-hour window).
+    pub max_hour_airtime_us: u32,
+    /// Airtime of one hour, µs (the window's limit at a fraction of 1).
+    pub hour_us: u32,
+}
+
+impl Row {
+    fn new(rule: String) -> CliResult<Row> {
+        let w = window()?;
+        Ok(Row {
+            rule,
+            judged: 0,
+            lost: 0,
+            held: 0,
+            tally: EnergyTally::new(),
+            max_hour_airtime_us: 0,
+            hour_us: w.limit_us(),
+        })
+    }
+
+    /// Loss over the judged and held packets.
+    pub fn loss(&self) -> Option<f64> {
+        let all = self.judged + self.held;
+        #[allow(clippy::cast_precision_loss)] // counts far below 2^53
+        (all > 0).then(|| (self.lost + self.held) as f64 / all as f64)
+    }
+
+    /// The row as JSON.
+    pub fn json(&self, p: &EnergyProfile) -> Value {
+        let mut m = Map::new();
+        m.insert("rule".into(), self.rule.clone().into());
+        m.insert("judged".into(), self.judged.into());
+        m.insert("lost".into(), self.lost.into());
+        m.insert("held".into(), self.held.into());
+        m.insert(
+            "loss_fraction".into(),
+            self.loss().map_or(Value::Null, Value::from),
+        );
+        let opt = |x: Option<f32>| x.map_or(Value::Null, json_num);
+        m.insert(
+            "charge_per_delivered_uc".into(),
+            opt(self.tally.charge_per_delivered().map(|q| q.0)),
+        );
+        let mean = self.tally.mean_current();
+        m.insert("mean_current_ua".into(), opt(mean.map(|i| i.0)));
+        m.insert(
+            "battery_life_days".into(),
+            opt(mean.and_then(|i| p.battery_life(i).ok()).map(|d| d.0)),
+        );
+        #[allow(clippy::cast_precision_loss)]
+        m.insert(
+            "max_duty_fraction".into(),
+            Value::from(f64::from(self.max_hour_airtime_us) / f64::from(self.hour_us.max(1))),
+        );
+        Value::Object(m)
+    }
+}
+
+fn window() -> CliResult<AirtimeWindow> {
+    AirtimeWindow::new(1.0).map_err(|e| CliError::Input(format!("airtime window: {e}")))
+}
+
+/// Cost and airtime bookkeeping of one rule.
+struct Books {
+    row: Row,
+    window: AirtimeWindow,
+}
+
+impl Books {
+    fn new(rule: String) -> CliResult<Books> {
+        Ok(Books {
+            row: Row::new(rule)?,
+            window: window()?,
+        })
+    }
+
+    /// A packet sent at `tx` and rate `m` (airtime `airtime_us`), judged
+    /// `delivered` (`None`: not judged).
+    fn sent(
+        &mut self,
+        p: &EnergyProfile,
+        t_ms: u64,
+        tx: f32,
+        airtime_us: u32,
+        delivered: Option<bool>,
+    ) -> CliResult {
+        let cost = p
+            .packet_cost_for(Dbm(tx), Milliseconds(airtime_us as f32 / 1000.0))
+            .map_err(|e| crate::energy::refusal(&e, "--energy", "--interval", &[]))?;
+        self.row
+            .tally
+            .add(t_ms, &cost, p.sleep_current(), delivered);
+        self.window.advance(t_ms);
+        self.window.add(airtime_us);
+        self.row.max_hour_airtime_us = self.row.max_hour_airtime_us.max(self.window.used_us());
+        if let Some(d) = delivered {
+            self.row.judged += 1;
+            self.row.lost += u64::from(!d);
+        }
+        Ok(())
+    }
+}
+
+/// A per-packet rule of the engine's baselines.
+trait Rule {
+    fn choice(&self) -> (f32, u8);
+    fn judge(&self) -> &Judge;
+    fn observe(&mut self, delivered: Option<f32>);
+}
+
+impl Rule for CommonPracticeRate {
+    fn choice(&self) -> (f32, u8) {
+        CommonPracticeRate::choice(self)
+    }
+    fn judge(&self) -> &Judge {
+        CommonPracticeRate::judge(self)
+    }
+    fn observe(&mut self, delivered: Option<f32>) {
+        CommonPracticeRate::observe(self, delivered);
+    }
+}
+
+impl Rule for FixedMarginRate {
+    fn choice(&self) -> (f32, u8) {
+        FixedMarginRate::choice(self)
+    }
+    fn judge(&self) -> &Judge {
+        FixedMarginRate::judge(self)
+    }
+    fn observe(&mut self, delivered: Option<f32>) {
+        FixedMarginRate::observe(self, delivered);
+    }
+}
+
+/// Feed `rec` to `rule` and book its packet.
+fn step_rule(
+    rule: &mut dyn Rule,
+    books: &mut Books,
+    cfg: &ControllerConfig,
+    p: &EnergyProfile,
+    rec: &LogRecord,
+) -> CliResult {
+    let (tx, m) = rule.choice();
+    let airtime = cfg.rates.get(m).map_or(0, |r| r.airtime_us);
+    let judged = rule.judge().judge(rec, tx, m);
+    books.sent(p, rec.t_ms, tx, airtime, judged.map(|j| j.delivered))?;
+    if let Some(j) = judged {
+        rule.observe(j.delivered.then_some(j.z));
+    }
+    Ok(())
+}
+
+/// Every rule over `records` (read once into memory by the caller: the
+/// hindsight search replays them many times). `cfg` is the joint
+/// controller's configuration (its rate table, duty limit and target).
+pub fn compare(
+    cfg: &ControllerConfig,
+    p: &EnergyProfile,
+    records: &[LogRecord],
+) -> CliResult<Vec<Row>> {
+    let bad =
+        |e: headroom::control::ConfigError| CliError::Input(format!("controller settings: {e}"));
+    let mut rows = Vec::new();
+    // The joint controller.
+    // Its costs are the replay's own (`ReplayEnergy`, as `replay --energy`
+    // reports them: a held packet costs the wake-up only).
+    let mut joint = HostReplay::with_energy(*cfg, p).map_err(bad)?;
+    let mut energy = ReplayEnergy::new(None);
+    let mut books = Books::new("joint (rate, power)".into())?;
+    for rec in records {
+        let s = joint.step(rec);
+        energy
+            .add(p, rec, &s)
+            .map_err(|e| crate::energy::refusal(&e, "--energy", "--interval", &[]))?;
+        match s.outcome {
+            Outcome::Held => books.row.held += 1,
+            o => {
+                let delivered = match o {
+                    Outcome::Delivered => Some(true),
+                    Outcome::Lost => Some(false),
+                    _ => None,
+                };
+                let air = s.airtime_us.unwrap_or(0);
+                books.sent(p, rec.t_ms, s.chosen.0, air, delivered)?;
+            }
+        }
+    }
+    books.row.tally = energy.replayed;
+    rows.push(books.row);
+    // Power-only control at each fixed rate.
+    for (m, rate) in cfg.rates.as_slice().iter().enumerate() {
+        let Some(one) = u8::try_from(m)
+            .ok()
+            .and_then(|m| baseline::single_rate(cfg, m))
+        else {
+            continue;
+        };
+        // The controller at this one rate; every packet judged by the
+        // whole table's rule (the log's rate and bandwidth), as every row.
+        let idx = u8::try_from(m).unwrap_or(0);
+        let mut r = HostReplay::with_energy(one, p).map_err(bad)?;
+        let mut books = Books::new(format!("power-only {}", rate.name))?;
+        let judge = Judge::new(cfg);
+        let logged_rate = cfg.logged_rate.and_then(|n| cfg.rates.index_of(n.as_str()));
+        for rec in records {
+            // The record as the one-rate controller sees it: its noise floor
+            // at this rate's bandwidth (the engine's noise change between
+            // the rate it was logged at and this one), sent at its one rate.
+            let seen = match rec.rate.or(logged_rate) {
+                Some(l) => LogRecord {
+                    noise_dbm: rec
+                        .noise_dbm
+                        .zip(cfg.rates.noise_change_db(idx, l))
+                        .map(|(n, d)| n + d.0),
+                    rate: Some(0),
+                    ..*rec
+                },
+                None => LogRecord { rate: None, ..*rec },
+            };
+            let s = r.step(&seen);
+            // Judged by the same rule as every other row.
+            let delivered = judge.judge(rec, s.chosen.0, idx).map(|j| j.delivered);
+            books.sent(p, rec.t_ms, s.chosen.0, rate.airtime_us, delivered)?;
+        }
+        rows.push(books.row);
+    }
+    // The rate rule of common practice.
+    let mut rule = CommonPracticeRate::new(cfg);
+    let mut books = Books::new("common practice".into())?;
+    for rec in records {
+        step_rule(&mut rule, &mut books, cfg, p, rec)?;
+    }
+    rows.push(books.row);
+    // The best single rate in hindsight, with a hindsight-tuned margin.
+    let target = f64::from(cfg.target_outage);
+    let mut best: Option<Row> = None;
+    for m in 0..u8::try_from(cfg.rates.len()).unwrap_or(0) {
+        let mut k = 0u16;
+        loop {
+            let margin = f32::from(k) * HINDSIGHT_STEP_DB;
+            if margin > HINDSIGHT_MAX_MARGIN_DB {
+                break;
+            }
+            k += 1;
+            let mut rule = FixedMarginRate::new(cfg, m, margin);
+            let name = cfg.rates.get(m).map_or("?", |r| r.name.as_str());
+            let mut books = Books::new(format!("hindsight: {name}, margin {margin} dB"))?;
+            for rec in records {
+                step_rule(&mut rule, &mut books, cfg, p, rec)?;
+            }
+            let row = books.row;
+            let meets = row.loss().is_some_and(|l| l <= target);
+            let cost = row.tally.charge_per_delivered().map(|q| q.0);
+            if meets {
+                let better = match (&best, cost) {
+                    (None, Some(_)) => true,
+                    (Some(b), Some(c)) => b.tally.charge_per_delivered().is_none_or(|q| c < q.0),
+                    _ => false,
+                };
+                if better {
+                    best = Some(row);
+                }
+            }
+        }
+    }
+    rows.push(best.unwrap_or(Row::new(
+        "hindsight: no single rate meets the target".into(),
+    )?));
+    Ok(rows)
+}
+
+/// The rows as a table: loss, charge per delivered packet, mean current,
+/// battery life and the most airtime in any hour, per rule; the rows that
+/// miss `target` are marked.
+pub fn table(out: &mut String, rows: &[Row], p: &EnergyProfile, target: f32) {
+    use std::fmt::Write as _;
+    let _ = writeln!(
+        out,
+        "each rule over the same records, judged by the same rule (target: {} % lost):",
+        target * 100.0
+    );
+    let _ = writeln!(
+        out,
+        "  {:<34}{:>9}{:>16}{:>11}{:>12}{:>13}",
+        "rule", "lost %", "µC/delivered", "mean µA", "life days", "max duty %"
+    );
+    for r in rows {
+        let v = r.json(p);
+        let num = |k: &str, scale: f64, d: usize| {
+            v[k].as_f64()
+                .map_or_else(|| "n/a".to_string(), |x| format!("{:.d$}", x * scale))
+        };
+        let miss = if r.loss().is_some_and(|l| l > f64::from(target)) {
+            "  misses the target"
+        } else {
+            ""
+        };
+        let _ = writeln!(
+            out,
+            "  {:<34}{:>9}{:>16}{:>11}{:>12}{:>13}{miss}",
+            r.rule,
+            num("loss_fraction", 100.0, 3),
+            num("charge_per_delivered_uc", 1.0, 1),
+            num("mean_current_ua", 1.0, 2),
+            num("battery_life_days", 1.0, 0),
+            num("max_duty_fraction", 100.0, 3),
+        );
+    }
+}
