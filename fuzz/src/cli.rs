@@ -217,6 +217,9 @@ pub fn csv_log_with(data: &[u8], skip_known: bool) {
             .collect(),
         strict: data.first().is_some_and(|b| b & 1 == 1),
         require_readings: true,
+        // A `rate` column read against a table in force, as replay does
+        // with an energy profile's rates.
+        rate_names: vec!["sf7".into(), "sf9".into()],
     };
     let _ = read_with(&path, &mapped);
     let Ok((header, records, _)) = read_all(&path, LogFormat::Csv) else {

@@ -98,6 +98,12 @@ fn the_per_rate_report_is_the_engines_replay() {
     let want = s.charge_per_delivered_uc().unwrap();
     let got = l["charge_per_delivered_uc"].as_f64().unwrap();
     assert!((got - want).abs() <= 1e-12 * want, "{got} vs {want}");
+    // One rule for charge per delivered packet: the summary's and the
+    // energy tally's (an f32) agree.
+    let tally = l["energy"]["replayed"]["charge_per_delivered_uc"]
+        .as_f64()
+        .unwrap();
+    assert!((tally - want).abs() <= 1e-6 * want, "{tally} vs {want}");
     let mut shares = 0.0;
     for (i, row) in table.iter().enumerate() {
         let t = s.per_rate[i];

@@ -277,6 +277,12 @@ pub struct Summary {
     pub charge_uc: f64,
     /// Records costed in `charge_uc`.
     pub charged: u64,
+    /// Σ charge of the judged and the held records, µC: what the delivered
+    /// packets cost, losses and held packets included (an unjudged record's
+    /// fate is unknown, so it is in `charge_uc` only). The numerator of
+    /// [`Summary::charge_per_delivered_uc`], as of
+    /// [`EnergyTally::charge_per_delivered`](crate::energy::EnergyTally::charge_per_delivered).
+    pub judged_charge_uc: f64,
     last_chosen: Option<f32>,
     last_rate: Option<u8>,
     last_mw: f64,
@@ -311,6 +317,7 @@ impl Summary {
             airtime_us: 0,
             charge_uc: 0.0,
             charged: 0,
+            judged_charge_uc: 0.0,
             last_chosen: None,
             last_rate: None,
             last_mw: 0.0,
@@ -365,6 +372,9 @@ impl Summary {
         if let Some(c) = s.charge {
             self.charge_uc += f64::from(c.0);
             self.charged += 1;
+            if s.outcome != Outcome::Unjudged {
+                self.judged_charge_uc += f64::from(c.0);
+            }
         }
         if s.at_max && s.outcome != Outcome::Unjudged {
             self.judged_at_max += 1;
@@ -457,6 +467,7 @@ impl Summary {
         self.airtime_us += other.airtime_us;
         self.charge_uc += other.charge_uc;
         self.charged += other.charged;
+        self.judged_charge_uc += other.judged_charge_uc;
     }
 
     /// Delivered / (judged + held): held packets count as not delivered
@@ -465,16 +476,19 @@ impl Summary {
         ratio(self.judged - self.lost, self.judged + self.held)
     }
 
-    /// Σ charge / delivered packets, µC (`None` without an energy profile
-    /// or before a delivered packet). Every record's charge counts,
-    /// unjudged and held ones included.
+    /// Charge of the judged and held packets per delivered packet, µC
+    /// (`None` without an energy profile or before a delivered packet): a
+    /// lost or held packet costs its charge and delivers nothing; an
+    /// unjudged record, whose fate is unknown, is left out of both sides.
+    /// The same rule as the energy tally's
+    /// [`charge_per_delivered`](crate::energy::EnergyTally::charge_per_delivered).
     pub fn charge_per_delivered_uc(&self) -> Option<f64> {
         let delivered = self.judged - self.lost;
         if self.charged == 0 || delivered == 0 {
             None
         } else {
             #[allow(clippy::cast_precision_loss)] // a count far below 2⁵³
-            Some(self.charge_uc / delivered as f64)
+            Some(self.judged_charge_uc / delivered as f64)
         }
     }
 

@@ -125,6 +125,7 @@ pub fn summary_json(s: &Summary) -> Map<String, Value> {
     sums.insert("airtime_us".into(), s.airtime_us.into());
     sums.insert("charge_uc".into(), Value::from(s.charge_uc));
     sums.insert("charged".into(), s.charged.into());
+    sums.insert("judged_charge_uc".into(), Value::from(s.judged_charge_uc));
     sums.insert(
         "logged_records_with_tx".into(),
         s.logged.records_with_tx.into(),
@@ -395,7 +396,7 @@ pub fn rates_table(out: &mut String, r: &Resolved, s: &Summary) {
         "charge_per_delivered",
         s.charge_per_delivered_uc().map_or_else(
             || "n/a (needs --energy)".into(),
-            |x| format!("{x:.1} µC  (every packet's charge over the delivered ones)")
+            |x| format!("{x:.1} µC  (the judged and held packets' charge over the delivered ones)")
         )
     );
 }
