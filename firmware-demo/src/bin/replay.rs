@@ -51,6 +51,8 @@ enum Failure {
     Config(settings::ResolveError),
     Encode(CodecError),
     Profile,
+    /// A static state was asked for twice (cannot happen: `run` runs once).
+    Static,
 }
 
 impl core::fmt::Display for Failure {
@@ -63,6 +65,7 @@ impl core::fmt::Display for Failure {
             Failure::Config(e) => write!(f, "controller settings refused: {}", e.setting()),
             Failure::Encode(e) => write!(f, "a decision frame did not encode: {e}"),
             Failure::Profile => f.write_str("the demo node's energy profile was refused"),
+            Failure::Static => f.write_str("a static state was taken twice"),
         }
     }
 }
@@ -150,13 +153,18 @@ fn run() -> Result<(), Failure> {
     };
 
     // Set up by the log's header frame, or without a header when a record
-    // comes first (the header was lost): as the host does.
-    let mut replay: Option<Replay<REPLAY_WINDOW>> = None;
+    // comes first (the header was lost): as the host does. The replay and
+    // the decoder (about 3 KB together with rates and format 2 blocks) live
+    // in static memory, not in this frame: the peak stack of the loop then
+    // stays within the microbit's 16 KiB.
+    let replay: &'static mut Option<Replay<REPLAY_WINDOW>> =
+        cortex_m::singleton!(: Option<Replay<REPLAY_WINDOW>> = None).ok_or(Failure::Static)?;
     let mut enc = Encoder::new();
     let mut frame = [0u8; MAX_FRAME];
     out.push(enc.header(&LogHeader::default(), &mut frame)?)?;
 
-    let mut dec: FrameDecoder = FrameDecoder::new();
+    let dec: &'static mut FrameDecoder =
+        cortex_m::singleton!(: FrameDecoder = FrameDecoder::new()).ok_or(Failure::Static)?;
     let mut chunk = [0u8; READ_CHUNK];
     let mut damaged = 0u64;
     let mut other = 0u64;
@@ -167,7 +175,7 @@ fn run() -> Result<(), Failure> {
                 ..
             } => {
                 if replay.is_none() {
-                    start(None, &mut replay)?;
+                    start(None, replay)?;
                 }
                 let Some(replay) = replay.as_mut() else {
                     return Ok(());
@@ -188,7 +196,7 @@ fn run() -> Result<(), Failure> {
                 // The first header sets the replay up; a later one is only
                 // counted (the host reports it).
                 if replay.is_none() {
-                    start(Some(&header), &mut replay)?;
+                    start(Some(&header), replay)?;
                 } else {
                     other += 1;
                 }
@@ -213,7 +221,7 @@ fn run() -> Result<(), Failure> {
     }
     out.flush()?;
 
-    let Some(replay) = replay else {
+    let Some(replay) = replay.as_ref() else {
         hprintln!("replay: {} bytes in, no record", log_len);
         return Ok(());
     };
