@@ -311,6 +311,7 @@ fn build_log(b: &mut Bytes<'_>) -> (Vec<u8>, Vec<Placed>) {
                 tx_dbm: b.near(10.0),
                 outcome: b.u8(),
                 reason: b.u8(),
+                rate: None,
             })
         } else {
             Frame::Record(LogRecord {

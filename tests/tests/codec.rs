@@ -158,6 +158,7 @@ fn every_kind_round_trips() {
             tx_dbm: -3.5,
             outcome: 255,
             reason: 0,
+            rate: None,
         }),
     ];
     for (i, f) in frames.iter().enumerate() {
@@ -596,7 +597,7 @@ proptest! {
 
     #[test]
     fn decisions_round_trip(t in any::<u64>(), tx in any::<u32>(), o in any::<u8>(), why in any::<u8>(), seq in any::<u16>()) {
-        let d = DecisionRecord { t_ms: t, tx_dbm: f32::from_bits(tx), outcome: o, reason: why };
+        let d = DecisionRecord { t_ms: t, tx_dbm: f32::from_bits(tx), outcome: o, reason: why, rate: None };
         let mut buf = [0u8; MAX_FRAME];
         let f = encode_frame(seq, &Frame::Decision(d), &mut buf).unwrap().to_vec();
         let one = f[..f.len() - 1].to_vec();

@@ -70,6 +70,8 @@ static int handle(replay_job *job, const headroom_event *ev, replay_write_fn wri
         d.tx_dbm = step.chosen_dbm;
         d.outcome = step.outcome;
         d.reason = step.reason;
+        d.rate = step.rate;
+        d.has_rate = step.has_rate;
         st = headroom_encode_decision(&job->encoder, &d, job->frame, sizeof job->frame, &n);
     }
     if (st != HEADROOM_OK) {

@@ -433,6 +433,14 @@ typedef struct {
    * Reason code (`headroom_reason_name`).
    */
   uint8_t reason;
+  /**
+   * Index of the chosen rate in the rate table in force.
+   */
+  uint8_t rate;
+  /**
+   * `rate` is valid (a rate table is in force).
+   */
+  uint8_t has_rate;
 } headroom_decision_record;
 
 /**
@@ -866,6 +874,14 @@ typedef struct {
    * `path_loss_db` is valid.
    */
   uint8_t has_path_loss;
+  /**
+   * Index of the chosen rate in the rate table in force.
+   */
+  uint8_t rate;
+  /**
+   * `rate` is valid (a rate table is in force).
+   */
+  uint8_t has_rate;
 } headroom_replayed_record;
 
 /**

@@ -90,6 +90,10 @@ pub struct headroom_decision_record {
     pub outcome: u8,
     /// Reason code (`headroom_reason_name`).
     pub reason: u8,
+    /// Index of the chosen rate in the rate table in force.
+    pub rate: u8,
+    /// `rate` is valid (a rate table is in force).
+    pub has_rate: u8,
 }
 
 fn opt(has: u8, v: f32) -> Option<f32> {
@@ -163,6 +167,7 @@ fn decision_record(d: &headroom_decision_record) -> DecisionRecord {
         tx_dbm: d.tx_dbm,
         outcome: d.outcome,
         reason: d.reason,
+        rate: (d.has_rate != 0).then_some(d.rate),
     }
 }
 
@@ -172,6 +177,8 @@ fn c_decision_record(d: &DecisionRecord) -> headroom_decision_record {
         tx_dbm: d.tx_dbm,
         outcome: d.outcome,
         reason: d.reason,
+        rate: d.rate.unwrap_or(0),
+        has_rate: u8::from(d.rate.is_some()),
     }
 }
 

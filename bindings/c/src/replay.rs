@@ -66,6 +66,10 @@ pub struct headroom_replayed_record {
     pub has_replayed_snr: u8,
     /// `path_loss_db` is valid.
     pub has_path_loss: u8,
+    /// Index of the chosen rate in the rate table in force.
+    pub rate: u8,
+    /// `rate` is valid (a rate table is in force).
+    pub has_rate: u8,
 }
 
 /// A replay's running totals: counts and linear sums, so that totals of
@@ -198,6 +202,8 @@ pub unsafe extern "C" fn headroom_replay_step(
             at_max: u8::from(s.at_max),
             has_replayed_snr: u8::from(s.replayed_snr.is_some()),
             has_path_loss: u8::from(s.path_loss_estimate.is_some()),
+            rate: s.rate.unwrap_or(0),
+            has_rate: u8::from(s.rate.is_some()),
         };
         // SAFETY: guaranteed by the caller.
         unsafe { output(step, c) };

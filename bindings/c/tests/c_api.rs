@@ -243,6 +243,7 @@ fn check_replay(out: &str, header: Option<&LogHeader>, records: &[LogRecord], de
                 tx_dbm: s.chosen.0,
                 outcome: s.outcome.code(),
                 reason: s.reason.code(),
+                rate: None,
             }
         })
         .collect();

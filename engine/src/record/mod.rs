@@ -98,4 +98,7 @@ pub struct DecisionRecord {
     pub outcome: u8,
     /// Reason code of the decision.
     pub reason: u8,
+    /// Index, in the rate table in force, of the rate chosen for the packet;
+    /// `None` without a rate table (since format 1.2).
+    pub rate: Option<u8>,
 }

@@ -273,6 +273,7 @@ fn run(clock: &Clock) -> bool {
             tx_dbm: -3.0,
             outcome: 0,
             reason: 1,
+            rate: None,
         };
         frames_ok &= black_box(encode_decision(i as u16, black_box(&d), &mut buf)).is_ok();
     }

@@ -64,6 +64,7 @@ fn run() -> bool {
             tx_dbm: probe_f32(k, 4),
             outcome: k as u8,
             reason: (k >> 8) as u8,
+            rate: if k % 3 == 0 { None } else { Some(k as u8) },
         };
         ok &= black_box(encode_decision(seq, black_box(&d), &mut buf)).is_ok();
         // A buffer too small must be an error, not a panic.

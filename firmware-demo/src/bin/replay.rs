@@ -186,6 +186,7 @@ fn run() -> Result<(), Failure> {
                     tx_dbm: s.chosen.0,
                     outcome: s.outcome.code(),
                     reason: s.reason.code(),
+                    rate: s.rate,
                 };
                 out.push(enc.decision(&d, &mut frame)?)?;
             }

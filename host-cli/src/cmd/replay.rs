@@ -587,6 +587,7 @@ impl DecisionWriter {
                 tx_dbm: s.chosen.0,
                 outcome: s.outcome.code(),
                 reason: s.reason.code(),
+                rate: s.rate,
             };
             let frame = enc
                 .decision(&d, &mut buf[..])

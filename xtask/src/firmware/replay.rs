@@ -423,6 +423,7 @@ fn engine_replay(log: &[u8]) -> Result<(Vec<DecisionRecord>, usize), String> {
                 tx_dbm: s.chosen.0,
                 outcome: s.outcome.code(),
                 reason: s.reason.code(),
+                rate: s.rate,
             });
         }
     };
@@ -518,6 +519,7 @@ fn parse_cli_csv(text: &str) -> Result<Vec<DecisionRecord>, String> {
             tx_dbm,
             outcome: outcome.code(),
             reason: reason.code(),
+            rate: None,
         });
     }
     Ok(out)
@@ -534,7 +536,8 @@ fn compare(
         let same = x.t_ms == y.t_ms
             && x.tx_dbm.to_bits() == y.tx_dbm.to_bits()
             && x.outcome == y.outcome
-            && x.reason == y.reason;
+            && x.reason == y.reason
+            && x.rate == y.rate;
         if !same {
             return Err(format!(
                 "record {i} differs:\n  {a_name}: {}\n  {b_name}: {}",
@@ -556,8 +559,9 @@ fn compare(
 fn show_decision(d: &DecisionRecord) -> String {
     let outcome = Outcome::from_code(d.outcome).map_or("?", Outcome::as_str);
     let reason = Reason::from_code(d.reason).map_or("?", Reason::as_str);
+    let rate = d.rate.map_or_else(|| "-".to_string(), |m| m.to_string());
     format!(
-        "t_ms={} tx={} dBm (bits {:#010x}) outcome={outcome} reason={reason}",
+        "t_ms={} tx={} dBm (bits {:#010x}) outcome={outcome} reason={reason} rate={rate}",
         d.t_ms,
         d.tx_dbm,
         d.tx_dbm.to_bits()
@@ -574,6 +578,7 @@ mod tests {
             tx_dbm: tx,
             outcome,
             reason,
+            rate: None,
         }
     }
 

@@ -563,6 +563,7 @@ pub(crate) mod tests {
                     tx_dbm: 3.5,
                     outcome: 2,
                     reason: 7,
+                    rate: None,
                 }),
             ),
         ] {

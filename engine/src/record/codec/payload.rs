@@ -267,20 +267,32 @@ fn encode_body(frame: &Frame, body: &mut [u8]) -> Result<(u8, usize), CodecError
             };
             (KIND_RECORD, n)
         }
-        Frame::Decision(d) => (
-            KIND_DECISION,
-            postcard::to_slice(
+        Frame::Decision(d) => {
+            let n = postcard::to_slice(
                 &WireDecision {
                     t_ms: d.t_ms,
                     tx_dbm: d.tx_dbm,
                     outcome: d.outcome,
                     reason: d.reason,
                 },
-                body,
+                &mut *body,
             )
             .map_err(too_small)?
-            .len(),
-        ),
+            .len();
+            // Since 1.2 the chosen rate follows, only when there is one (as
+            // a record's): `01` and its index.
+            let n = match d.rate {
+                None => n,
+                Some(m) => {
+                    let end = n + 2;
+                    body.get_mut(n..end)
+                        .ok_or(CodecError::BufferTooSmall)?
+                        .copy_from_slice(&[1, m]);
+                    end
+                }
+            };
+            (KIND_DECISION, n)
+        }
         Frame::Block(b) => {
             let src = b.body();
             body.get_mut(..src.len())
@@ -510,13 +522,15 @@ pub(super) fn parse_payload(p: &[u8]) -> Result<Payload, CodecError> {
             });
         }
         KIND_DECISION => {
-            let (d, _) =
+            let (d, rest) =
                 postcard::take_from_bytes::<WireDecision>(body).map_err(|_| CodecError::Payload)?;
+            let (rate, _) = take_trailing_option_u8(rest).ok_or(CodecError::Payload)?;
             Frame::Decision(DecisionRecord {
                 t_ms: d.t_ms,
                 tx_dbm: d.tx_dbm,
                 outcome: d.outcome,
                 reason: d.reason,
+                rate,
             })
         }
         kind => Frame::Other { kind },
@@ -815,6 +829,45 @@ mod tests {
         };
         let n = encode_payload(0, &frame, &mut q).unwrap();
         assert_eq!(decode_payload(&q[..n]).unwrap().frame, frame);
+    }
+
+    #[test]
+    fn a_decision_keeps_its_rate_and_a_1_1_decision_reads_without_one() {
+        let base = DecisionRecord {
+            t_ms: 1500,
+            tx_dbm: 7.0,
+            outcome: 1,
+            reason: 2,
+            rate: None,
+        };
+        let mut q = [0u8; MAX_PAYLOAD];
+        for d in [
+            base,
+            DecisionRecord {
+                rate: Some(5),
+                ..base
+            },
+        ] {
+            let n = encode_payload(9, &Frame::Decision(d), &mut q).unwrap();
+            assert_eq!(decode_payload(&q[..n]).unwrap().frame, Frame::Decision(d));
+            // Without a rate, the bytes of a 1.1 decision: t_ms (2 bytes),
+            // tx (4), outcome, reason; with one, `01 05` after them.
+            let body = n - 3 - 4;
+            assert_eq!(body, if d.rate.is_some() { 10 } else { 8 });
+        }
+        // Too small a buffer for the rate is an error, not a truncation.
+        let d = DecisionRecord {
+            rate: Some(5),
+            ..base
+        };
+        let mut wire = [0u8; MAX_FRAME];
+        let n = crate::record::codec::encode_frame(9, &Frame::Decision(d), &mut wire)
+            .unwrap()
+            .len();
+        for size in 0..n {
+            let small = &mut wire[..size];
+            assert!(crate::record::codec::encode_frame(9, &Frame::Decision(d), small).is_err());
+        }
     }
 
     #[test]
