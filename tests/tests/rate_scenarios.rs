@@ -22,7 +22,7 @@
 //! The table the README shows:
 //! `cargo test --release -p headroom-tests --test rate_scenarios -- --nocapture rate_comparison_table`
 
-use headroom::control::baseline::{single_rate, CommonPracticeRate, FixedMarginRate, Judge};
+use headroom::control::baseline::{self, single_rate, CommonPracticeRate, FixedMarginRate, Rule};
 use headroom::control::{ControllerConfig, DutyLimit, Outcome, Replay, Summary};
 use headroom::energy::{
     ChirpModem, EnergyProfile, LowDataRate, Microamps, Microcoulombs, Milliamps, Milliseconds,
@@ -269,19 +269,15 @@ fn run_controller(log: &[LogRecord], cfg: ControllerConfig) -> (Run, Vec<(u64, u
     (run_of(r.summary()), sent)
 }
 
-/// A baseline rule fed record by record, costed by the profile.
-fn run_rule(
-    log: &[LogRecord],
-    judge: &Judge,
-    mut choice: impl FnMut() -> (f32, u8),
-    mut observe: impl FnMut(Option<f32>),
-) -> Run {
+/// A baseline rule fed record by record (the engine's `baseline::step`),
+/// costed by the profile.
+fn run_rule(log: &[LogRecord], rule: &mut impl Rule) -> Run {
     let p = profile();
     let t = rates();
     let (mut judged, mut delivered, mut charge) = (0u64, 0u64, 0.0f64);
     let mut at = [0u64; 6];
     for rec in log {
-        let (tx, m) = choice();
+        let (tx, m, j) = baseline::step(rule, rec);
         let air = t.get(m).expect("rate").airtime_us as f32 / 1000.0;
         charge += f64::from(
             p.packet_cost_for(Dbm(tx), Milliseconds(air))
@@ -290,16 +286,11 @@ fn run_rule(
                 .0,
         );
         at[usize::from(m)] += 1;
-        let Some(j) = judge.judge(rec, tx, m) else {
+        let Some(j) = j else {
             continue;
         };
         judged += 1;
-        if j.delivered {
-            delivered += 1;
-            observe(Some(j.z));
-        } else {
-            observe(None);
-        }
+        delivered += u64::from(j.delivered);
     }
     let n = log.len() as f64;
     Run {
@@ -310,25 +301,11 @@ fn run_rule(
 }
 
 fn run_common_practice(log: &[LogRecord], cfg: &ControllerConfig) -> Run {
-    let rule = std::cell::RefCell::new(CommonPracticeRate::new(cfg));
-    let judge = *rule.borrow().judge();
-    run_rule(
-        log,
-        &judge,
-        || rule.borrow().choice(),
-        |o| rule.borrow_mut().observe(o),
-    )
+    run_rule(log, &mut CommonPracticeRate::new(cfg))
 }
 
 fn run_fixed_margin(log: &[LogRecord], cfg: &ControllerConfig, m: u8, margin: f32) -> Run {
-    let rule = std::cell::RefCell::new(FixedMarginRate::new(cfg, m, margin));
-    let judge = *rule.borrow().judge();
-    run_rule(
-        log,
-        &judge,
-        || rule.borrow().choice(),
-        |o| rule.borrow_mut().observe(o),
-    )
+    run_rule(log, &mut FixedMarginRate::new(cfg, m, margin))
 }
 
 /// Baseline (c): per rate the smallest margin (to 0.01 dB) that meets the

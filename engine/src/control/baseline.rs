@@ -125,6 +125,30 @@ impl Judge {
     }
 }
 
+/// A per-packet baseline rule: what it sends, the rule it is judged by and
+/// what it learns from a judged packet. [`step`] is the one way to feed it.
+pub trait Rule {
+    /// Power (dBm) and rate index for the next packet.
+    fn choice(&self) -> (f32, u8);
+    /// The judge of this rule's configuration.
+    fn judge(&self) -> &Judge;
+    /// Take the outcome of the packet just sent (`Some(z)` delivered, with
+    /// its loss to noise; `None` lost).
+    fn observe(&mut self, delivered: Option<f32>);
+}
+
+/// One packet of `rule` on record `rec`: its choice, judged by the rule's
+/// judge; the rule learns from a judged packet only (an unjudged one
+/// teaches it nothing). Returns the power, the rate and the judgement.
+pub fn step<R: Rule + ?Sized>(rule: &mut R, rec: &LogRecord) -> (f32, u8, Option<Judged>) {
+    let (tx, m) = rule.choice();
+    let judged = rule.judge().judge(rec, tx, m);
+    if let Some(j) = judged {
+        rule.observe(j.delivered.then_some(j.z));
+    }
+    (tx, m, judged)
+}
+
 /// The lowest level of `cfg`'s grid at or above `p`, within
 /// `[min_tx_dbm, tx_ceiling]`.
 pub fn level_at_or_above(cfg: &ControllerConfig, p: f32) -> f32 {
@@ -229,20 +253,18 @@ impl CommonPracticeRate {
             by_speed,
         }
     }
+}
 
-    /// Power and rate for the next packet.
-    pub fn choice(&self) -> (f32, u8) {
+impl Rule for CommonPracticeRate {
+    fn choice(&self) -> (f32, u8) {
         (self.tx, self.rate)
     }
 
-    /// The judge of this rule's configuration.
-    pub fn judge(&self) -> &Judge {
+    fn judge(&self) -> &Judge {
         &self.judge
     }
 
-    /// Take the outcome of the packet just sent (`Some(z)` delivered, with
-    /// its loss to noise; `None` lost).
-    pub fn observe(&mut self, delivered: Option<f32>) {
+    fn observe(&mut self, delivered: Option<f32>) {
         let top = top_level(&self.cfg);
         let n_rates = self.cfg.rates.len();
         match delivered {
@@ -325,20 +347,18 @@ impl FixedMarginRate {
             tx: top_level(cfg),
         }
     }
+}
 
-    /// Power and rate for the next packet.
-    pub fn choice(&self) -> (f32, u8) {
+impl Rule for FixedMarginRate {
+    fn choice(&self) -> (f32, u8) {
         (self.tx, self.rate)
     }
 
-    /// The judge of this rule's configuration.
-    pub fn judge(&self) -> &Judge {
+    fn judge(&self) -> &Judge {
         &self.judge
     }
 
-    /// Take the outcome of the packet just sent (`Some(z)` delivered, with
-    /// its loss to noise; `None` lost).
-    pub fn observe(&mut self, delivered: Option<f32>) {
+    fn observe(&mut self, delivered: Option<f32>) {
         if let Some(z) = delivered {
             self.filtered = Some(match self.filtered {
                 None => z,

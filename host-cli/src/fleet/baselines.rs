@@ -17,7 +17,7 @@
 //!   per delivered packet (margins searched from 0 to
 //!   [`HINDSIGHT_MAX_MARGIN_DB`] in steps of [`HINDSIGHT_STEP_DB`]).
 
-use headroom::control::baseline::{self, CommonPracticeRate, FixedMarginRate, Judge};
+use headroom::control::baseline::{self, CommonPracticeRate, FixedMarginRate, Judge, Rule};
 use headroom::control::{ControllerConfig, Outcome};
 use headroom::energy::duty::AirtimeWindow;
 use headroom::energy::{EnergyProfile, EnergyTally, Milliseconds, ReplayEnergy};
@@ -150,38 +150,8 @@ impl Books {
     }
 }
 
-/// A per-packet rule of the engine's baselines.
-trait Rule {
-    fn choice(&self) -> (f32, u8);
-    fn judge(&self) -> &Judge;
-    fn observe(&mut self, delivered: Option<f32>);
-}
-
-impl Rule for CommonPracticeRate {
-    fn choice(&self) -> (f32, u8) {
-        CommonPracticeRate::choice(self)
-    }
-    fn judge(&self) -> &Judge {
-        CommonPracticeRate::judge(self)
-    }
-    fn observe(&mut self, delivered: Option<f32>) {
-        CommonPracticeRate::observe(self, delivered);
-    }
-}
-
-impl Rule for FixedMarginRate {
-    fn choice(&self) -> (f32, u8) {
-        FixedMarginRate::choice(self)
-    }
-    fn judge(&self) -> &Judge {
-        FixedMarginRate::judge(self)
-    }
-    fn observe(&mut self, delivered: Option<f32>) {
-        FixedMarginRate::observe(self, delivered);
-    }
-}
-
-/// Feed `rec` to `rule` and book its packet.
+/// Feed `rec` to `rule` (the engine's [`baseline::step`]) and book its
+/// packet.
 fn step_rule(
     rule: &mut dyn Rule,
     books: &mut Books,
@@ -189,14 +159,9 @@ fn step_rule(
     p: &EnergyProfile,
     rec: &LogRecord,
 ) -> CliResult {
-    let (tx, m) = rule.choice();
+    let (tx, m, judged) = baseline::step(rule, rec);
     let airtime = cfg.rates.get(m).map_or(0, |r| r.airtime_us);
-    let judged = rule.judge().judge(rec, tx, m);
-    books.sent(p, rec.t_ms, tx, airtime, judged.map(|j| j.delivered))?;
-    if let Some(j) = judged {
-        rule.observe(j.delivered.then_some(j.z));
-    }
-    Ok(())
+    books.sent(p, rec.t_ms, tx, airtime, judged.map(|j| j.delivered))
 }
 
 /// Every rule over `records` (read once into memory by the caller: the
