@@ -395,19 +395,14 @@ fn pct(x: f64) -> String {
 
 /// The rows where the joint controller does **not** beat the best single
 /// rate chosen with hindsight (measured, seeds 500..502; see the README's
-/// table): the hindsight baseline tunes one fixed margin over the whole
-/// log, so it can accept more than the target's loss where the link is
-/// expensive and make it up where it is cheap; the joint controller holds
-/// the target packet by packet and pays for the slow rates when the link is
-/// weak. Kept exact: a row that starts winning fails the test until it is
-/// removed from this list.
-const KNOWN_SHORTFALLS: [(Scenario, f32); 5] = [
-    (Scenario::Static, 0.01),
-    (Scenario::Mobile, 0.01),
-    (Scenario::Mobile, 0.10),
-    (Scenario::Fading, 0.01),
-    (Scenario::Fading, 0.10),
-];
+/// table). In the correlated-fading scenario at a 10 % target the loss
+/// price moves by a factor of 2 to 4 within a few hundred packets (the
+/// sawtooth of the outer loop at a high loss rate), and the packets sent
+/// while it is high buy slower rates that a constant price, which the
+/// hindsight margin amounts to, would not: about 6 % more charge per
+/// delivered packet. Kept exact: a row that starts winning fails the test
+/// until it is removed from this list.
+const KNOWN_SHORTFALLS: [(Scenario, f32); 1] = [(Scenario::Fading, 0.10)];
 
 /// On every other row the joint controller meets the loss target (within
 /// ±30 %, as the power controller's own scenarios) with less charge per

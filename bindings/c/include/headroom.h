@@ -138,7 +138,7 @@
 /**
  * Number of reason codes (length of `headroom_summary.ignored_readings`).
  */
-#define HEADROOM_REASON_COUNT 20
+#define HEADROOM_REASON_COUNT 21
 
 /**
  * Bytes of a `headroom_settings`.

@@ -15,7 +15,7 @@ use crate::{headroom_status, WindowReplay};
 pub const HEADROOM_REPLAY_SIZE: usize = 2048;
 
 /// Number of reason codes (length of `headroom_summary.ignored_readings`).
-pub const HEADROOM_REASON_COUNT: usize = 20;
+pub const HEADROOM_REASON_COUNT: usize = 21;
 
 const _: () = assert!(HEADROOM_REASON_COUNT == Reason::COUNT);
 

@@ -434,6 +434,12 @@ pub struct ControllerConfig {
     /// change the rate again (a rate the link can no longer carry, or the
     /// duty budget, changes it at once).
     pub rate_dwell: u16,
+    /// With several rates: the highest chance of loss the controller may
+    /// plan for one packet when it prices losses across packets (1: no
+    /// ceiling, a packet may be given up where delivering it is dearest;
+    /// the target then holds on average over the log). At least
+    /// `target_outage`.
+    pub outage_ceiling: f32,
 }
 
 impl Default for ControllerConfig {
@@ -478,8 +484,9 @@ impl ControllerConfig {
             rates: RateTable::empty(),
             logged_rate: None,
             duty_limit: DutyLimit::NoLimit,
-            rate_hysteresis: 0.1,
-            rate_dwell: 8,
+            rate_hysteresis: 0.05,
+            rate_dwell: 2,
+            outage_ceiling: 1.0,
         }
     }
 
@@ -531,6 +538,26 @@ impl ControllerConfig {
                 max: 1.0,
             });
         }
+        let c = self.outage_ceiling;
+        if !c.is_finite() {
+            return Err(ConfigError::NotFinite {
+                setting: "outage_ceiling",
+            });
+        }
+        if !(c > 0.0 && c <= 1.0) {
+            return Err(ConfigError::OutOfRange {
+                setting: "outage_ceiling",
+                value: c,
+                min: 0.0,
+                max: 1.0,
+            });
+        }
+        if c < self.target_outage {
+            return Err(ConfigError::Inconsistent {
+                setting: "outage_ceiling",
+                why: "is below target_outage: the target could not be met where holding the link is cheap",
+            });
+        }
         if let Some(name) = self.logged_rate {
             if self.rates.index_of(name.as_str()).is_none() {
                 return Err(ConfigError::Inconsistent {
@@ -551,7 +578,6 @@ impl ControllerConfig {
     pub(crate) fn validate_inner(&self) -> Result<(f32, f32), ConfigError> {
         let c = self;
         check_level("required_snr_db", c.required_snr_db.0)?;
-        c.validate_rates()?;
         if !c.target_outage.is_finite() {
             return Err(ConfigError::NotFinite {
                 setting: "target_outage",
@@ -575,6 +601,7 @@ impl ControllerConfig {
                 max: 0.5,
             });
         }
+        c.validate_rates()?;
         check_level("min_tx_dbm", c.min_tx_dbm.0)?;
         check_level("max_tx_dbm", c.max_tx_dbm.0)?;
         if let EirpCap::AtMost(cap) = c.eirp_cap_dbm {

@@ -141,6 +141,10 @@ impl Decision {
     }
 
     /// Adaptive margin after this update (to 1/8192 dB, rounded toward −∞).
+    /// With several rates and an estimate, where losses are priced across
+    /// packets: how far the planned power is above the chosen rate's
+    /// requirement at the predicted loss to noise (negative for a packet
+    /// given up, [`Reason::PricedOut`]).
     pub fn margin(&self) -> Db {
         Db(from_fine(self.margin))
     }
@@ -510,6 +514,12 @@ pub struct Controller<const W: usize> {
     duty: Option<AirtimeWindow>,
     /// The last decision held the next packet.
     held: bool,
+    /// With several rates: `log2` of the loss price (pC), 2⁻²⁴ octave,
+    /// and what the plan of the packet in flight says about it (see
+    /// [`super::rates::Priced`]).
+    price: i32,
+    risky: bool,
+    slack: bool,
 }
 
 impl<const W: usize> Controller<W> {
@@ -651,6 +661,9 @@ impl<const W: usize> Controller<W> {
             since_change: 0,
             duty: None,
             held: false,
+            price: 0,
+            risky: false,
+            slack: false,
         };
         c.s.bottom = c.fine_at(0);
         c.s.top = c.fine_at(kmax);
@@ -741,6 +754,9 @@ impl<const W: usize> Controller<W> {
         }
         self.set_rate(start);
         self.margin = self.clamp_margin(0);
+        self.price = self.plan.price.start;
+        self.risky = false;
+        self.slack = false;
         self.loss_run = 0;
         self.mode = Mode::WarmUp;
         self.clamped_high = false;
@@ -1040,7 +1056,31 @@ impl<const W: usize> Controller<W> {
             r => r,
         };
         let mut flushed: Option<Reason> = None;
+        let priced = self.plan.n > 1;
         match outcome {
+            Some(false) if priced => {
+                // Every loss counts, even one at the most robust rate and
+                // the highest power: the target is an average, so a loss
+                // that cannot be cured here is made up where it is cheap.
+                if self.mode != Mode::WarmUp {
+                    let p = &self.plan.price;
+                    self.price = self.price.saturating_add(p.up).min(p.max);
+                }
+                // A loss the plan expected says nothing about the estimate.
+                if !self.risky {
+                    self.loss_run = self.loss_run.saturating_add(1);
+                }
+            }
+            Some(true) if priced => {
+                if self.mode != Mode::WarmUp && !self.slack {
+                    let p = &self.plan.price;
+                    self.price = self.price.saturating_sub(p.down).max(p.min);
+                }
+                if self.loss_run >= climb_after {
+                    flushed = Some(Reason::Recovered);
+                }
+                self.loss_run = 0;
+            }
             Some(false) => {
                 if self.mode != Mode::WarmUp && !self.clamped_high {
                     // The margin is within its bounds (±300 dB, below 2⁴⁹
@@ -1101,6 +1141,10 @@ impl<const W: usize> Controller<W> {
         //     power the shared estimate says it needs, costs the least.
         let mut rate_reason: Option<Reason> = None;
         let mut jump = false;
+        // With several rates and an estimate: the priced plan (its power
+        // and how far above the rate's requirement it is).
+        let mut plan: Option<(i32, i32)> = None;
+        let (mut risky, mut slack) = (false, false);
         if self.plan.n > 0 {
             let climbing = self.loss_run >= climb_after;
             let base = if !climbing && n >= self.s.min_readings {
@@ -1114,15 +1158,37 @@ impl<const W: usize> Controller<W> {
                 None
             };
             let may_switch = flushed.is_none() && ignored.is_none();
-            let mut choice = self.plan.choose(
-                self.rate,
-                base,
-                self.s.bottom,
-                self.s.top,
-                self.since_change,
-                self.duty.as_ref(),
-                may_switch,
-            );
+            let priced = match (base, prediction) {
+                (Some(_), Some((level, mae))) if may_switch && priced => {
+                    self.plan.choose_priced(
+                        self.rate,
+                        level,
+                        mae.unwrap_or(0),
+                        self.price,
+                        self.s.bottom,
+                        self.s.top,
+                        self.since_change,
+                        self.duty.as_ref(),
+                    )
+                }
+                _ => None,
+            };
+            let mut choice = match priced {
+                Some(p) => {
+                    plan = Some((p.wanted, p.above));
+                    (risky, slack) = (p.risky, p.slack);
+                    p.choice
+                }
+                None => self.plan.choose(
+                    self.rate,
+                    base,
+                    self.s.bottom,
+                    self.s.top,
+                    self.since_change,
+                    self.duty.as_ref(),
+                    may_switch,
+                ),
+            };
             // Losses at the highest power: one rate more robust (the loss
             // at this rate says the same of the shared estimate at all).
             if climbing
@@ -1164,10 +1230,13 @@ impl<const W: usize> Controller<W> {
         } else {
             self.mode = Mode::Track;
             let (level, mae) = prediction.unwrap_or((0, None));
-            let w = required
-                .saturating_add(level)
-                .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
-                .saturating_add(margin);
+            let w = match plan {
+                Some((w, _)) => w,
+                None => required
+                    .saturating_add(level)
+                    .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
+                    .saturating_add(margin),
+            };
             wanted = Some(w);
             // A level is "at or above" x when it is above x less EPS_FINE.
             let need = w.saturating_sub(EPS_FINE);
@@ -1223,6 +1292,11 @@ impl<const W: usize> Controller<W> {
                 self.set_level(next);
             }
         }
+        self.risky = risky;
+        self.slack = slack;
+        if risky && self.mode == Mode::Track {
+            reason = Reason::PricedOut;
+        }
         if let Some(r) = rate_reason {
             reason = r;
         }
@@ -1262,7 +1336,7 @@ impl<const W: usize> Controller<W> {
             } else {
                 None
             },
-            margin,
+            margin: plan.map_or(margin, |(_, above)| above),
         }
     }
 

@@ -24,6 +24,7 @@ pub mod baseline;
 mod config;
 mod controller;
 mod fixed;
+mod price;
 mod rates;
 mod reason;
 mod replay;

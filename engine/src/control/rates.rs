@@ -8,6 +8,7 @@
 
 use super::config::{ConfigError, ControllerConfig};
 use super::fixed::to_fine;
+use super::price::{self, LossModel, LOG_BITS, PRICE_BITS};
 use super::reason::Reason;
 use crate::energy::{AirtimeWindow, ChargeTable};
 use crate::rate::MAX_RATES;
@@ -38,6 +39,49 @@ pub(crate) struct RatePlan {
     pub(crate) keep: u32,
     /// `rate_dwell`.
     pub(crate) dwell: u16,
+    /// `log2` of each rate's airtime (µs), 2⁻¹² octave.
+    pub(crate) log_air: [i32; MAX_RATES],
+    /// The loss price's loop (several rates only): its start, bounds and
+    /// steps, `log2` of pC in 2⁻²⁴ octave.
+    pub(crate) price: PriceLoop,
+    /// `outage_ceiling` as `log2(1/(2q))` (see [`price::ceiling_log`]).
+    pub(crate) ceiling: Option<i32>,
+}
+
+/// The settings of the loss price's loop, `log2` of pC in 2⁻²⁴ octave.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub(crate) struct PriceLoop {
+    /// `log2` of the price to start from: the charge of the fastest rate's
+    /// packet at the highest power over the target loss.
+    pub(crate) start: i32,
+    /// Lowest price: the charge of the cheapest packet (a delivered packet
+    /// is worth at least one packet).
+    pub(crate) min: i32,
+    /// Highest price: the dearest packet over the target loss, times 16.
+    pub(crate) max: i32,
+    /// Rise after a loss: half the margin step as a power ratio
+    /// (`margin_step_db · log2(10)/20` octave: ×1.06 for 0.5 dB).
+    pub(crate) up: i32,
+    /// Fall after a delivery: `up · p/(1−p)`.
+    pub(crate) down: i32,
+}
+
+/// The priced choice of one packet (see [`RatePlan::choose_priced`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) struct Priced {
+    /// The rate and why it changed.
+    pub(crate) choice: Choice,
+    /// The power wanted at that rate, 1/8192 dBm (before rounding to a
+    /// level), and how far it is above the rate's requirement.
+    pub(crate) wanted: i32,
+    pub(crate) above: i32,
+    /// The plan expects to lose the packet more often than not: a loss
+    /// then says nothing about the estimate (no climb).
+    pub(crate) risky: bool,
+    /// The price does not bind: the power wanted is below the lowest
+    /// level (no fall of the price on a delivery: no wind-down).
+    pub(crate) slack: bool,
 }
 
 /// The rate layer's answer for the next packet.
@@ -62,6 +106,15 @@ impl RatePlan {
             charge: None,
             keep: 0,
             dwell: 0,
+            log_air: [0; MAX_RATES],
+            price: PriceLoop {
+                start: 0,
+                min: 0,
+                max: 0,
+                up: 0,
+                down: 0,
+            },
+            ceiling: None,
         }
     }
 
@@ -104,6 +157,9 @@ impl RatePlan {
             charge,
             keep: 0,
             dwell: cfg.rate_dwell,
+            log_air: [0; MAX_RATES],
+            price: PriceLoop::default(),
+            ceiling: price::ceiling_log(cfg.outage_ceiling),
         };
 
         for (i, r) in t.as_slice().iter().enumerate() {
@@ -119,6 +175,13 @@ impl RatePlan {
                 *c = req.saturating_add(norm);
                 *d = r.airtime_us;
             }
+            if let Some(l) = p.log_air.get_mut(i) {
+                *l = price::log2_q12(u64::from(r.airtime_us));
+            }
+        }
+        if let (Some(c), true) = (&p.charge, p.n > 1) {
+            let air = p.airtime_us.get(..usize::from(p.n)).unwrap_or(&[]);
+            p.price = PriceLoop::new(cfg, c, air, bottom, top);
         }
         #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
         {
@@ -316,5 +379,154 @@ impl RatePlan {
             }
         }
         pick.map(|(m, _)| m)
+    }
+}
+
+impl PriceLoop {
+    /// The loop for `cfg` over the charge table `c`, the rates' airtimes
+    /// `air` (µs) and the levels `[bottom, top]` (1/8192 dBm).
+    #[allow(clippy::cast_precision_loss, clippy::cast_possible_truncation)]
+    fn new(cfg: &ControllerConfig, c: &ChargeTable, air: &[u32], bottom: i32, top: i32) -> Self {
+        let fast = air.iter().copied().min().unwrap_or(0);
+        let slow = air.iter().copied().max().unwrap_or(0);
+        let p = cfg.target_outage;
+        let q = |x: f32| libm::roundf(x * (1u32 << PRICE_BITS) as f32) as i32;
+        let lg = |pc: u64| libm::log2f(pc.max(1) as f32);
+        // Half the margin step's ratio: measured on the rate scenarios
+        // (`tests/tests/rate_scenarios.rs`), the full step made the price
+        // noisier and the charge higher; a tenth was too slow to reach a
+        // 1 % target in 20 days of packets.
+        let up = q(cfg.margin_step_db.0 * libm::log2f(10.0) / 20.0).max(1);
+        let down = libm::roundf(up as f32 * p / (1.0 - p)).max(1.0) as i32;
+        let min = q(lg(c.charge_pc(bottom, fast)));
+        let max = q(lg(c.charge_pc(top, slow)) - libm::log2f(p) + 4.0);
+        let start = q(lg(c.charge_pc(top, fast)) - libm::log2f(p)).clamp(min, max);
+        PriceLoop {
+            start,
+            min,
+            max,
+            up,
+            down,
+        }
+    }
+}
+
+impl RatePlan {
+    /// The `x ≥ 0` above rate `m`'s requirement `base` (1/8192 dBm) where
+    /// one more dB of power costs what it saves in risk, walking the
+    /// current table's segments down from the one holding `top`.
+    fn balance(&self, c: &ChargeTable, model: &LossModel, base: i32, m: u8, top: i32) -> i32 {
+        // The charge per 1/8192 dB is slope · airtime · 2⁻¹⁶ pC.
+        let la = Self::at(&self.log_air, m).saturating_sub(16 << LOG_BITS);
+        let mut j = c.points().saturating_sub(2);
+        loop {
+            let Some((lo, hi, slope)) = c.segment(j) else {
+                return 0;
+            };
+            if lo < top || j == 0 {
+                let hi = hi.min(top);
+                let Ok(s) = u64::try_from(slope) else {
+                    // Power that costs nothing more: all of the segment.
+                    return hi.saturating_sub(base).max(0);
+                };
+                if s == 0 {
+                    return hi.saturating_sub(base).max(0);
+                }
+                let x = model.balance(price::log2_q12(s).saturating_add(la));
+                let p = base.saturating_add(x);
+                if p >= lo || j == 0 {
+                    return p.min(hi).saturating_sub(base).max(0);
+                }
+            }
+            j -= 1;
+        }
+    }
+
+    /// The priced choice for the next packet (several rates, an estimate
+    /// that drives the power): for each rate that fits the duty budget, the
+    /// power that minimises `charge + μ·q` (see [`super::price`]) given the
+    /// prediction `zhat` (loss to noise at rate 0's bandwidth, 1/8192 dB)
+    /// and its mean absolute error `b`; the cheapest rate replaces the one
+    /// in use when that one does not fit the budget (at once) or after
+    /// `dwell` packets when it saves more than the hysteresis. `None` when
+    /// no rate fits the budget (the packet is held: see [`Self::choose`]).
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn choose_priced(
+        &self,
+        cur: u8,
+        zhat: i32,
+        b: u32,
+        price_log: i32,
+        bottom: i32,
+        top: i32,
+        since_change: u16,
+        window: Option<&AirtimeWindow>,
+    ) -> Option<Priced> {
+        let charge = self.charge.as_ref()?;
+        let model = LossModel::new(price_log, b);
+        let floor_x = self.ceiling.map(|c| model.x_at(c));
+        // Per rate: (cost J, power, unclamped power, x).
+        let mut best: Option<(u8, u64)> = None;
+        let mut at: [(u64, i32, i32); MAX_RATES] = [(u64::MAX, 0, 0); MAX_RATES];
+        for m in 0..self.n {
+            if !self.fits(m, window) {
+                continue;
+            }
+            let o = self.offset(m);
+            let base = zhat.saturating_add(o);
+            let air = self.airtime(m);
+            let x = self.balance(charge, &model, base, m, top);
+            let x = floor_x.map_or(x, |f| x.max(f));
+            let want = base.saturating_add(x);
+            let a = want.clamp(bottom, top);
+            let g = floor_x
+                .map_or(bottom, |f| base.saturating_add(f))
+                .clamp(bottom, top);
+            let j = |p: i32| {
+                charge
+                    .charge_pc(p, air)
+                    .saturating_add(model.risk(p.saturating_sub(base)))
+            };
+            let (ja, jg) = (j(a), if g < a { j(g) } else { u64::MAX });
+            let pick = if jg < ja { (jg, g, g) } else { (ja, a, want) };
+            if let Some(e) = at.get_mut(usize::from(m)) {
+                *e = pick;
+            }
+            if best.is_none_or(|(_, bj)| pick.0 < bj) {
+                best = Some((m, pick.0));
+            }
+        }
+        let entry = |m: u8| at.get(usize::from(m)).copied().unwrap_or((0, 0, 0));
+        let cur_fits = self.fits(cur, window);
+        // No rate fits the budget: the unpriced choice holds the packet.
+        let best = best?;
+        let (rate, reason, held) = match best {
+            (b, _) if b == cur => (cur, None, false),
+            (b, bj) => {
+                // Charges below 2⁴⁷ pC (140 C): the products cannot saturate.
+                let cheaper = bj.saturating_mul(1 << KEEP_BITS)
+                    < entry(cur).0.saturating_mul(u64::from(self.keep));
+                if !cur_fits {
+                    (b, Some(Reason::DutyLimited), false)
+                } else if since_change >= self.dwell && cheaper {
+                    (b, Some(self.direction(cur, b)), false)
+                } else {
+                    (cur, None, false)
+                }
+            }
+        };
+        let (_, p, want) = entry(rate);
+        let base = zhat.saturating_add(self.offset(rate));
+        Some(Priced {
+            choice: Choice {
+                rate,
+                reason,
+                held,
+            },
+            wanted: want,
+            above: p.saturating_sub(base),
+            risky: p < base,
+            slack: want < bottom,
+        })
     }
 }

@@ -58,11 +58,16 @@ pub enum Reason {
     /// setting while the table gives noise bandwidths, or an index outside
     /// the table): its readings cannot be judged.
     IgnoredRateUnknown = 19,
+    /// With several rates: delivering this packet would cost more than the
+    /// price of its loss, so it is sent as cheaply as the plan allows and
+    /// more likely lost than not (the target holds on average; see
+    /// `outage_ceiling`).
+    PricedOut = 20,
 }
 
 impl Reason {
     /// Number of reasons (length of arrays indexed by [`Reason::index`]).
-    pub const COUNT: usize = 20;
+    pub const COUNT: usize = 21;
 
     /// Every reason, in code order.
     pub const ALL: [Reason; Reason::COUNT] = [
@@ -86,6 +91,7 @@ impl Reason {
         Reason::DutyLimited,
         Reason::DutyHeld,
         Reason::IgnoredRateUnknown,
+        Reason::PricedOut,
     ];
 
     /// Stable lower-case name for logs, CSV and JSON.
@@ -111,6 +117,7 @@ impl Reason {
             Reason::DutyLimited => "duty_limited",
             Reason::DutyHeld => "duty_held",
             Reason::IgnoredRateUnknown => "ignored_rate_unknown",
+            Reason::PricedOut => "priced_out",
         }
     }
 

@@ -217,11 +217,14 @@ settings_table! {
     RateHysteresis => "rate_hysteresis", Fraction, Tuning;
     /// `rate_dwell`: packets between two rate changes made for cost.
     RateDwell => "rate_dwell", Count, Tuning;
+    /// `outage_ceiling`: with several rates, the highest chance of loss the
+    /// controller may plan for one packet (1: none).
+    OutageCeiling => "outage_ceiling", Fraction, Tuning;
 }
 
 impl Setting {
     /// Number of settings.
-    pub const COUNT: usize = 30;
+    pub const COUNT: usize = 31;
 
     /// The setting named `key`, if any.
     pub fn from_key(key: &str) -> Option<Setting> {
@@ -472,6 +475,7 @@ fn read(c: &ControllerConfig, s: Setting) -> Value {
         S::DutyLimit => Value::Duty(c.duty_limit),
         S::RateHysteresis => n(c.rate_hysteresis),
         S::RateDwell => Value::Whole(u32::from(c.rate_dwell)),
+        S::OutageCeiling => n(c.outage_ceiling),
     }
 }
 
@@ -509,6 +513,7 @@ fn write(c: &mut ControllerConfig, s: Setting, v: Value) -> Result<(), ResolveEr
             S::NoiseMaxDbm => c.noise_max_dbm = Dbm(x),
             S::DefaultNoiseDbm => c.default_noise_dbm = Dbm(x),
             S::RateHysteresis => c.rate_hysteresis = x,
+            S::OutageCeiling => c.outage_ceiling = x,
             _ => return Err(wrong),
         },
         (Kind::Count, Value::Whole(x)) => match s {

@@ -156,6 +156,25 @@ impl ChargeTable {
         }
     }
 
+    /// Number of points of the transmit current table.
+    pub(crate) fn points(&self) -> usize {
+        usize::from(self.len)
+    }
+
+    /// Segment `i` of the table (from point `i` to point `i + 1`): its
+    /// lower and upper power (1/8192 dBm) and its slope (2⁻¹⁶ µA per
+    /// 1/8192 dB); `None` past the last segment.
+    pub(crate) fn segment(&self, i: usize) -> Option<(i32, i32, i32)> {
+        if i + 1 >= usize::from(self.len) {
+            return None;
+        }
+        Some((
+            *self.level.get(i)?,
+            *self.level.get(i + 1)?,
+            *self.slope.get(i)?,
+        ))
+    }
+
     /// The profile's own airtime (a packet without a rate table), µs.
     pub fn profile_airtime_us(&self) -> u32 {
         self.airtime_us
