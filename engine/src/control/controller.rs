@@ -729,6 +729,23 @@ impl<const W: usize> Controller<W> {
         Db(from_fine(margin_fine(self.margin)))
     }
 
+    /// `log2` of the loss price (pC), 2⁻²⁴ octave (several rates only).
+    pub(crate) fn price_log(&self) -> i32 {
+        self.price
+    }
+
+    /// The loss price's loop settings (tests of the priced choice).
+    #[cfg(test)]
+    pub(crate) fn price_loop(&self) -> super::rates::PriceLoop {
+        self.plan.price
+    }
+
+    /// Set the loss price (tests of the priced choice).
+    #[cfg(test)]
+    pub(crate) fn set_price_log(&mut self, p: i32) {
+        self.price = p;
+    }
+
     /// What the controller is doing now.
     pub fn mode(&self) -> Mode {
         self.mode
@@ -1062,7 +1079,7 @@ impl<const W: usize> Controller<W> {
                 // Every loss counts, even one at the most robust rate and
                 // the highest power: the target is an average, so a loss
                 // that cannot be cured here is made up where it is cheap.
-                if self.mode != Mode::WarmUp {
+                if self.mode == Mode::Track {
                     let p = &self.plan.price;
                     self.price = self.price.saturating_add(p.up).min(p.max);
                 }
@@ -1159,18 +1176,16 @@ impl<const W: usize> Controller<W> {
             };
             let may_switch = flushed.is_none() && ignored.is_none();
             let priced = match (base, prediction) {
-                (Some(_), Some((level, mae))) if may_switch && priced => {
-                    self.plan.choose_priced(
-                        self.rate,
-                        level,
-                        mae.unwrap_or(0),
-                        self.price,
-                        self.s.bottom,
-                        self.s.top,
-                        self.since_change,
-                        self.duty.as_ref(),
-                    )
-                }
+                (Some(_), Some((level, mae))) if may_switch && priced => self.plan.choose_priced(
+                    self.rate,
+                    level,
+                    mae.unwrap_or(0),
+                    self.price,
+                    self.s.bottom,
+                    self.s.top,
+                    self.since_change,
+                    self.duty.as_ref(),
+                ),
                 _ => None,
             };
             let mut choice = match priced {

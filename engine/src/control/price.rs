@@ -225,7 +225,19 @@ mod tests {
 
     #[test]
     fn log2_is_within_a_ten_thousandth_of_an_octave() {
-        for &x in &[1u64, 2, 3, 5, 7, 100, 1000, 12345, 1 << 20, 3 << 40, u64::MAX] {
+        for &x in &[
+            1u64,
+            2,
+            3,
+            5,
+            7,
+            100,
+            1000,
+            12345,
+            1 << 20,
+            3 << 40,
+            u64::MAX,
+        ] {
             let want = (x as f64).log2();
             let got = f64::from(log2_q12(x)) / 4096.0;
             assert!((got - want).abs() < 5e-4, "{x}: {got} vs {want}");
@@ -235,7 +247,9 @@ mod tests {
 
     #[test]
     fn exp2_is_within_a_ten_thousandth_relative() {
-        for &y in &[-40000i32, -4096, -1, 0, 1, 777, 4096, 65536, 150_000, 200_000] {
+        for &y in &[
+            -40000i32, -4096, -1, 0, 1, 777, 4096, 65536, 150_000, 200_000,
+        ] {
             let want = 2f64.powf(f64::from(y) / 4096.0);
             let got = exp2_q12(y) as f64;
             if (1e3..1e18).contains(&want) {
@@ -262,7 +276,11 @@ mod tests {
                 1.0 - 0.5 * (xdb / 4.0).exp()
             };
             let got = m.risk(x) as f64;
-            assert!((got / (mu * q) - 1.0).abs() < 2e-3, "{xdb}: {got} vs {}", mu * q);
+            assert!(
+                (got / (mu * q) - 1.0).abs() < 2e-3,
+                "{xdb}: {got} vs {}",
+                mu * q
+            );
         }
     }
 
@@ -276,7 +294,10 @@ mod tests {
         let want = 3.0 * (f64::from(1u32 << 30) / (2.0 * 24576.0 * 64.0)).ln();
         assert!((f64::from(x) / 8192.0 - want).abs() < 0.01, "{x} vs {want}");
         // No balance when the price is below b·g·2.
-        assert_eq!(LossModel::new(10 << PRICE_BITS, b).balance(6 << LOG_BITS), 0);
+        assert_eq!(
+            LossModel::new(10 << PRICE_BITS, b).balance(6 << LOG_BITS),
+            0
+        );
     }
 
     #[test]

@@ -518,15 +518,140 @@ impl RatePlan {
         let (_, p, want) = entry(rate);
         let base = zhat.saturating_add(self.offset(rate));
         Some(Priced {
-            choice: Choice {
-                rate,
-                reason,
-                held,
-            },
+            choice: Choice { rate, reason, held },
             wanted: want,
             above: p.saturating_sub(base),
             risky: p < base,
             slack: want < bottom,
         })
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::unwrap_used, clippy::panic)]
+mod tests {
+    use super::super::{Controller, ControllerConfig, Observation, Reason};
+    use crate::energy::demo::{demo_profile, demo_rates};
+    use crate::energy::ChargeTable;
+    use crate::units::{Db, Dbm};
+
+    fn ctl(ceiling: f32) -> Controller<32> {
+        let cfg = ControllerConfig {
+            rates: demo_rates().unwrap(),
+            required_snr_db: Db(-7.5),
+            outage_ceiling: ceiling,
+            ..ControllerConfig::sub_ghz_node()
+        };
+        let charge = ChargeTable::from_profile(&demo_profile().unwrap()).unwrap();
+        Controller::with_charge(cfg, Some(charge)).unwrap()
+    }
+
+    /// A delivered packet sent at `tx` that arrived at `rssi` over a
+    /// −117 dBm noise floor (at rate `m`'s bandwidth: all 125 kHz here).
+    fn heard(t: u64, tx: f32, rssi: f32) -> Observation {
+        Observation::Feedback {
+            t_ms: t,
+            tx: Dbm(tx),
+            rssi: Dbm(rssi),
+            noise: Dbm(-117.0),
+            snr: None,
+        }
+    }
+
+    /// A link 22 dB of loss to noise away with ±1 dB of jitter: the
+    /// fastest rate needs +14.5 dBm, above the +14 dBm the cap allows;
+    /// the slowest needs +2 dBm.
+    fn deep(c: &mut Controller<32>, from: u64, n: u64) -> crate::control::Decision {
+        let mut d = c.update(&heard(from, 14.0, -125.0));
+        for i in 1..n {
+            let j = if i % 2 == 0 { 1.0 } else { -1.0 };
+            d = c.update(&heard(from + i * 60_000, 14.0, -125.0 + j));
+        }
+        d
+    }
+
+    #[test]
+    fn a_low_price_gives_up_a_dear_packet_and_a_high_one_pays_for_it() {
+        let mut c = ctl(1.0);
+        deep(&mut c, 0, 40);
+        let min = c.price_loop().min;
+        c.set_price_log(min);
+        // The first decision reports the change to the fastest rate.
+        let d = deep(&mut c, 40 * 60_000, 1);
+        assert_eq!((d.reason, d.rate), (Reason::RateFaster, Some(0)), "{d:?}");
+        c.set_price_log(min);
+        let d = deep(&mut c, 41 * 60_000, 1);
+        assert_eq!(d.reason, Reason::PricedOut, "{d:?}");
+        assert!(d.margin().0 < 0.0, "{d:?}");
+        let (bottom, _) = c.limits();
+        assert_eq!(d.tx, bottom);
+        // At the highest price the plan delivers: a slow rate, no give-up.
+        c.set_price_log(c.price_loop().max);
+        let d = deep(&mut c, 42 * 60_000, 10);
+        assert_ne!(d.reason, Reason::PricedOut, "{d:?}");
+        assert!(d.margin().0 > 0.0, "{d:?}");
+        assert!(d.rate.unwrap() >= 2, "{d:?}");
+    }
+
+    #[test]
+    fn a_ceiling_at_the_target_never_plans_a_give_up() {
+        let mut c = ctl(0.01);
+        deep(&mut c, 0, 40);
+        c.set_price_log(c.price_loop().min);
+        let d = deep(&mut c, 40 * 60_000, 20);
+        assert_ne!(d.reason, Reason::PricedOut, "{d:?}");
+        assert!(d.margin().0 > 0.0, "{d:?}");
+    }
+
+    #[test]
+    fn the_price_follows_losses_and_a_dead_link_does_not_wind_it_up() {
+        let mut c = ctl(1.0);
+        deep(&mut c, 0, 100);
+        let before = c.price_log();
+        // Deliveries lower it.
+        deep(&mut c, 100 * 60_000, 50);
+        assert!(c.price_log() < before);
+        let settled = c.price_log();
+        // A dead link: every packet lost for a day. The climb takes over
+        // after a few losses and the price stops: a few steps at most.
+        for i in 0..1440u64 {
+            c.update(&Observation::Lost {
+                t_ms: (150 + i) * 60_000,
+            });
+        }
+        let after = c.price_log();
+        let up = c.price_loop().up;
+        assert!(after <= settled + 8 * up, "{settled} -> {after}");
+        assert!(after <= c.price_loop().max);
+        // Back on the link: tracking again within a few packets.
+        let d = deep(&mut c, 1600 * 60_000, 20);
+        assert!(
+            matches!(
+                d.reason,
+                Reason::Hold
+                    | Reason::Lower
+                    | Reason::Raise
+                    | Reason::ClampedMax
+                    | Reason::RateFaster
+                    | Reason::RateSlower
+            ),
+            "{d:?}"
+        );
+    }
+
+    #[test]
+    fn the_price_is_bounded() {
+        let mut c = ctl(1.0);
+        deep(&mut c, 0, 40);
+        // Losses the plan did not expect, one after a delivery each: no
+        // climb, the price rises to its bound and stops there.
+        for i in 0..20_000u64 {
+            c.update(&Observation::Lost {
+                t_ms: (40 + 2 * i) * 60_000,
+            });
+            c.update(&heard((41 + 2 * i) * 60_000, 14.0, -125.0));
+        }
+        assert!(c.price_log() <= c.price_loop().max);
+        assert!(c.price_log() >= c.price_loop().min);
     }
 }
