@@ -730,6 +730,7 @@ impl<const W: usize> Controller<W> {
     }
 
     /// `log2` of the loss price (pC), 2⁻²⁴ octave (several rates only).
+    #[cfg(test)]
     pub(crate) fn price_log(&self) -> i32 {
         self.price
     }
@@ -1182,7 +1183,6 @@ impl<const W: usize> Controller<W> {
                     mae.unwrap_or(0),
                     self.price,
                     self.s.bottom,
-                    self.s.top,
                     self.since_change,
                     self.duty.as_ref(),
                 ),

@@ -138,8 +138,9 @@ pub(crate) struct LossModel {
     log_b: i32,
     /// `b·ln 2`, 1/8192 dB (at least 1).
     scale: i64,
-    /// `2⁴⁰ / (b·ln 2)`: `x · inv >> 28` is `x/(b·ln 2)` in 2⁻¹² octave.
-    inv: i64,
+    /// `2³² / (b·ln 2)` (a 32-bit division): `x · inv >> 20` is
+    /// `x/(b·ln 2)` in 2⁻¹² octave.
+    inv: u32,
 }
 
 /// `ln 2` in 2⁻¹⁶.
@@ -158,15 +159,16 @@ impl LossModel {
             log_b: log2_q12(b),
             #[allow(clippy::cast_possible_wrap)] // b < 2³²
             scale: scale as i64,
-            #[allow(clippy::cast_possible_wrap)]
-            inv: ((1u64 << 40) / scale) as i64,
+            // scale ≥ 709: the quotient is below 2²³.
+            inv: u32::MAX / u32::try_from(scale).unwrap_or(u32::MAX),
         }
     }
 
     /// `μ·q` at `x` (1/8192 dB) above the requirement, pC.
     pub(crate) fn risk(&self, x: i32) -> u64 {
-        // |x| < 2³¹ and inv ≤ 2⁴⁰/710: the product is below 2⁶³.
-        let t = (i64::from(x).abs().saturating_mul(self.inv)) >> 28;
+        // |x| < 2³¹ and inv < 2²³: the product is below 2⁵⁴.
+        let t = (u64::from(x.unsigned_abs()) * u64::from(self.inv)) >> 20;
+        let t = i64::try_from(t).unwrap_or(i64::MAX);
         let y = i64::from(self.half_price_log) - t;
         let y = i32::try_from(y.max(i64::from(i32::MIN))).unwrap_or(i32::MIN);
         let tail = exp2_q12(y);
