@@ -46,49 +46,20 @@ pub(crate) struct RatePlan {
     pub(crate) price: PriceLoop,
     /// `outage_ceiling` as `log2(1/(2q))` (see [`price::ceiling_log`]).
     pub(crate) ceiling: Option<i32>,
-    /// The transmit current table cut to the levels in use
-    /// (`[bottom, top]`), for the priced choice: `segs` segments.
-    pub(crate) segs: [Segment; TX_POINTS],
-    pub(crate) n_segs: u8,
-    /// The per-packet charge beside the transmitter's (receive window,
-    /// wake-up), pC.
-    pub(crate) fixed_pc: u64,
+    /// `log2` of each segment's slope of the transmit current table (2⁻¹⁶
+    /// µA per 1/8192 dB), 2⁻¹² octave; `i32::MIN` where the current does
+    /// not rise.
+    pub(crate) log_slope: [i32; TX_POINTS],
+    /// The segments that hold the levels in use, `seg_lo..=seg_hi`, and
+    /// those levels' bounds, 1/8192 dBm.
+    pub(crate) seg_lo: u8,
+    pub(crate) seg_hi: u8,
+    pub(crate) bottom: i32,
+    pub(crate) top: i32,
     /// The rates from the most robust (lowest offset) to the least, and
     /// each rate's place in that order.
     pub(crate) by_offset: [u8; MAX_RATES],
     pub(crate) rank: [u8; MAX_RATES],
-}
-
-/// One segment of the transmit current table, within the levels in use.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub(crate) struct Segment {
-    /// Lower and upper power, 1/8192 dBm.
-    lo: i32,
-    hi: i32,
-    /// Current at `lo`, µA.
-    current: u32,
-    /// Slope, 2⁻¹⁶ µA per 1/8192 dB, and its `log2` (2⁻¹² octave;
-    /// `i32::MIN` where the current does not rise).
-    slope: i32,
-    log_slope: i32,
-}
-
-impl Segment {
-    const NONE: Segment = Segment {
-        lo: 0,
-        hi: 0,
-        current: 0,
-        slope: 0,
-        log_slope: i32::MIN,
-    };
-
-    /// Current at `x` (within the segment), µA.
-    fn current_at(&self, x: i32) -> u64 {
-        let d = i64::from(x.saturating_sub(self.lo));
-        let c = i64::from(self.current) + ((d * i64::from(self.slope)) >> 16);
-        u64::try_from(c).unwrap_or(0)
-    }
 }
 
 /// The settings of the loss price's loop, `log2` of pC in 2⁻²⁴ octave.
@@ -158,9 +129,11 @@ impl RatePlan {
                 down: 0,
             },
             ceiling: None,
-            segs: [Segment::NONE; TX_POINTS],
-            n_segs: 0,
-            fixed_pc: 0,
+            log_slope: [i32::MIN; TX_POINTS],
+            seg_lo: 0,
+            seg_hi: 0,
+            bottom: 0,
+            top: 0,
             by_offset: [0; MAX_RATES],
             rank: [0; MAX_RATES],
         }
@@ -208,9 +181,11 @@ impl RatePlan {
             log_air: [0; MAX_RATES],
             price: PriceLoop::default(),
             ceiling: price::ceiling_log(cfg.outage_ceiling),
-            segs: [Segment::NONE; TX_POINTS],
-            n_segs: 0,
-            fixed_pc: 0,
+            log_slope: [i32::MIN; TX_POINTS],
+            seg_lo: 0,
+            seg_hi: 0,
+            bottom: 0,
+            top: 0,
             by_offset: [0; MAX_RATES],
             rank: [0; MAX_RATES],
         };
@@ -259,36 +234,31 @@ impl RatePlan {
                 *r = u8::try_from(k).unwrap_or(0);
             }
         }
+        p.bottom = bottom;
+        p.top = top;
         if let Some(c) = &p.charge {
-            p.fixed_pc = c.charge_pc(bottom, 0);
-            let mut k = 0usize;
+            let mut lo: Option<u8> = None;
             for j in 0..c.points() {
-                let Some((lo, hi, slope)) = c.segment(j) else {
+                let Some((_, hi, slope)) = c.segment(j) else {
                     break;
                 };
-                if hi <= bottom && j + 2 < c.points() {
-                    continue;
+                if let Some(l) = p.log_slope.get_mut(j) {
+                    *l = u64::try_from(slope)
+                        .ok()
+                        .filter(|&s| s > 0)
+                        .map_or(i32::MIN, price::log2_q12);
                 }
-                let lo = lo.max(bottom);
-                let hi = hi.min(top).max(lo);
-                if let Some(seg) = p.segs.get_mut(k) {
-                    *seg = Segment {
-                        lo,
-                        hi,
-                        current: c.current_ua(lo),
-                        slope,
-                        log_slope: u64::try_from(slope)
-                            .ok()
-                            .filter(|&s| s > 0)
-                            .map_or(i32::MIN, price::log2_q12),
-                    };
-                    k += 1;
+                let j8 = u8::try_from(j).unwrap_or(0);
+                let last = j + 2 >= c.points();
+                if lo.is_none() && (hi > bottom || last) {
+                    lo = Some(j8);
                 }
-                if hi >= top {
+                if lo.is_some() && (hi >= top || last) {
+                    p.seg_hi = j8;
                     break;
                 }
             }
-            p.n_segs = u8::try_from(k).unwrap_or(0);
+            p.seg_lo = lo.unwrap_or(0);
         }
         if let (Some(c), true) = (&p.charge, p.n > 1) {
             let air = p.airtime_us.get(..usize::from(p.n)).unwrap_or(&[]);
@@ -543,6 +513,7 @@ impl RatePlan {
     /// in use; with the power wanted before clamping and the segment.
     fn balance(
         &self,
+        c: &ChargeTable,
         model: &LossModel,
         base: i32,
         m: u8,
@@ -550,18 +521,20 @@ impl RatePlan {
     ) -> (i32, i32, usize) {
         // The charge per 1/8192 dB is slope · airtime · 2⁻¹⁶ pC.
         let la = Self::at(&self.log_air, m).saturating_sub(16 << LOG_BITS);
-        let n = usize::from(self.n_segs);
-        let mut j = n.saturating_sub(1);
+        let (first, last) = (usize::from(self.seg_lo), usize::from(self.seg_hi));
+        let mut j = last;
         let mut want = base;
-        while let Some(seg) = self.segs.get(j) {
-            if seg.log_slope == i32::MIN {
+        while let Some((lo, hi, _)) = c.segment(j) {
+            let hi = hi.min(self.top);
+            let ls = self.log_slope.get(j).copied().unwrap_or(i32::MIN);
+            if ls == i32::MIN {
                 // Power that costs nothing more: all of the segment.
-                want = seg.hi;
+                want = hi;
                 break;
             }
-            let p = base.saturating_add(model.balance(seg.log_slope.saturating_add(la)));
-            if p >= seg.lo || j == 0 {
-                want = p.min(seg.hi);
+            let p = base.saturating_add(model.balance(ls.saturating_add(la)));
+            if p >= lo || j <= first {
+                want = p.min(hi);
                 break;
             }
             j -= 1;
@@ -570,23 +543,12 @@ impl RatePlan {
         if let Some(f) = floor_x {
             want = want.max(base.saturating_add(f));
         }
-        let (bottom, top) = match (self.segs.first(), self.segs.get(n.saturating_sub(1))) {
-            (Some(a), Some(b)) => (a.lo, b.hi),
-            _ => (want, want),
-        };
-        let p = clamp(want, bottom, top);
+        let p = clamp(want, self.bottom, self.top);
         // The segment of p: at or above j.
-        while j + 1 < n && self.segs.get(j).is_some_and(|s| p > s.hi) {
+        while j < last && c.segment(j).is_some_and(|(_, hi, _)| p > hi) {
             j += 1;
         }
         (p, want, j)
-    }
-
-    /// Charge of a packet at rate `m` and power `p` in segment `j`, pC.
-    fn charge_at(&self, m: u8, p: i32, j: usize) -> u64 {
-        let i = self.segs.get(j).map_or(0, |s| s.current_at(p));
-        i.saturating_mul(u64::from(self.airtime(m)))
-            .saturating_add(self.fixed_pc)
     }
 
     /// The priced choice for the next packet (several rates, an estimate
@@ -610,9 +572,7 @@ impl RatePlan {
         since_change: u16,
         window: Option<&AirtimeWindow>,
     ) -> Option<Priced> {
-        if self.n_segs == 0 {
-            return None;
-        }
+        let c = self.charge.as_ref()?;
         let model = LossModel::new(price_log, b);
         let floor_x = self.ceiling.map(|c| model.x_at(c));
         // Half the price: a packet planned below its requirement (x < 0)
@@ -653,9 +613,9 @@ impl RatePlan {
                 continue;
             }
             let base = zhat.saturating_add(self.offset(m));
-            let (a, want, j) = self.balance(&model, base, m, floor_x);
-            let ja = self
-                .charge_at(m, a, j)
+            let (a, want, j) = self.balance(c, &model, base, m, floor_x);
+            let ja = c
+                .charge_in(j, a, self.airtime(m))
                 .saturating_add(model.risk(a.saturating_sub(base)));
             // The give-up: as low as the ceiling allows (the lowest level
             // without one), priced only when it could be cheaper.
@@ -664,14 +624,15 @@ impl RatePlan {
                 bottom,
                 a,
             );
-            let floor = self.charge_at(m, bottom, 0);
+            let first = usize::from(self.seg_lo);
+            let floor = c.charge_in(first, bottom, self.airtime(m));
             let pick = if g < a && ja > floor.saturating_add(half_price) {
-                let mut k = 0;
-                while k < j && self.segs.get(k).is_some_and(|s| g > s.hi) {
+                let mut k = first;
+                while k < j && c.segment(k).is_some_and(|(_, hi, _)| g > hi) {
                     k += 1;
                 }
-                let jg = self
-                    .charge_at(m, g, k)
+                let jg = c
+                    .charge_in(k, g, self.airtime(m))
                     .saturating_add(model.risk(g.saturating_sub(base)));
                 if jg < ja {
                     (jg, g, g)

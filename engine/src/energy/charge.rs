@@ -175,6 +175,24 @@ impl ChargeTable {
         ))
     }
 
+    /// Charge of one packet at level `x` known to lie in segment `j` (see
+    /// [`Self::segment`]; no search), pC: the same value as
+    /// [`Self::charge_pc`] for an `x` inside that segment.
+    pub(crate) fn charge_in(&self, j: usize, x: i32, airtime_us: u32) -> u64 {
+        let (Some(&l0), Some(&c0), Some(&s)) =
+            (self.level.get(j), self.current.get(j), self.slope.get(j))
+        else {
+            return self.charge_pc(x, airtime_us);
+        };
+        let d = i64::from(x) - i64::from(l0);
+        let c = i64::from(c0) + ((d * i64::from(s)) >> SLOPE_BITS);
+        let c = u64::try_from(c.max(0))
+            .unwrap_or(0)
+            .min(u64::from(u32::MAX));
+        c.saturating_mul(u64::from(airtime_us))
+            .saturating_add(self.fixed_pc)
+    }
+
     /// The profile's own airtime (a packet without a rate table), µs.
     pub fn profile_airtime_us(&self) -> u32 {
         self.airtime_us
