@@ -18,7 +18,7 @@
 use cortex_m_rt::entry;
 use cortex_m_semihosting::hprintln;
 
-use headroom::control::{settings, Replay, REPLAY_WINDOW};
+use headroom::control::{settings, ControllerConfig, Replay, REPLAY_WINDOW};
 use headroom::energy::demo;
 use headroom::record::codec::{CodecError, Encoder, Event, Frame, FrameDecoder, MAX_FRAME};
 use headroom::record::{DecisionRecord, LogHeader};
@@ -117,21 +117,33 @@ impl Output {
 }
 
 /// Set the replay up from the log's header (or none): the settings the
-/// engine resolves from it. Not inlined: its temporaries (the settings
-/// layers, the controller being built) then share no frame with the loop,
-/// which keeps the peak stack within the microbit's 16 KiB.
+/// engine resolves from it. Not inlined, and in two steps that are not
+/// inlined either: the settings layers and the replay being built then
+/// share no frame with the loop nor with each other, which keeps the peak
+/// stack within the microbit's 16 KiB.
 #[inline(never)]
 fn start(h: Option<&LogHeader>, slot: &mut Option<Replay<REPLAY_WINDOW>>) -> Result<(), Failure> {
-    let r = settings::for_log(h).map_err(Failure::Config)?;
+    let config = resolve(h)?;
+    build(&config, slot)
+}
+
+#[inline(never)]
+fn resolve(h: Option<&LogHeader>) -> Result<ControllerConfig, Failure> {
+    Ok(settings::for_log(h).map_err(Failure::Config)?.config)
+}
+
+#[inline(never)]
+fn build(config: &ControllerConfig, slot: &mut Option<Replay<REPLAY_WINDOW>>) -> Result<(), Failure> {
     let refused = |e| Failure::Config(settings::ResolveError::Invalid(e));
     // A log with several rates: the rate is chosen by the charge of the
     // engine's invented demo node, as `cargo xtask firmware` replays it.
-    *slot = Some(if r.config.rates.len() > 1 {
+    let replay = if config.rates.len() > 1 {
         let profile = demo::demo_profile().map_err(|_| Failure::Profile)?;
-        Replay::with_energy(r.config, &profile).map_err(refused)?
+        Replay::with_energy(*config, &profile)
     } else {
-        Replay::new(r.config).map_err(refused)?
-    });
+        Replay::new(*config)
+    };
+    *slot = Some(replay.map_err(refused)?);
     Ok(())
 }
 
