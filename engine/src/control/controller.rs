@@ -204,6 +204,8 @@ struct Window<const W: usize> {
     head: u16,
     n: u16,
     sum_z: i32,
+    /// Mean of z in 1/8192 dB after the last push (0 when empty).
+    mean: i32,
 }
 
 impl<const W: usize> Window<W> {
@@ -213,6 +215,7 @@ impl<const W: usize> Window<W> {
             head: 0,
             n: 0,
             sum_z: 0,
+            mean: 0,
         }
     }
 
@@ -220,6 +223,7 @@ impl<const W: usize> Window<W> {
         self.head = 0;
         self.n = 0;
         self.sum_z = 0;
+        self.mean = 0;
     }
 
     fn push(&mut self, z: i16) {
@@ -241,6 +245,7 @@ impl<const W: usize> Window<W> {
                 u16::try_from(next).unwrap_or(0)
             };
         }
+        self.mean = self.compute_mean();
     }
 
     /// `W` as an `i32` (`W ≤ MAX_WINDOW = 4096`, checked by `Controller::new`;
@@ -258,21 +263,30 @@ impl<const W: usize> Window<W> {
     const SMALL: bool = W < 256;
 
     /// Mean of z in 1/8192 dB, truncated toward zero (exact integer
-    /// arithmetic).
+    /// arithmetic), `None` when empty: computed once per push.
     fn mean_z_fine(&self) -> Option<i32> {
+        if self.n == 0 {
+            None
+        } else {
+            Some(self.mean)
+        }
+    }
+
+    /// The mean of [`Window::mean_z_fine`] from the sum (0 when empty).
+    fn compute_mean(&self) -> i32 {
         let n = i32::from(self.n);
         if n == 0 {
-            return None;
+            return 0;
         }
         let full = usize::from(self.n) >= W;
         if Self::SMALL {
             // |sum| < 255 · 2¹⁵, times 2⁸ below 2³¹.
             let x = self.sum_z << FINE_BITS;
-            return Some(if full {
+            return if full {
                 x.checked_div(Self::W_I32).unwrap_or(0)
             } else {
                 x.checked_div(n).unwrap_or(0)
-            });
+            };
         }
         // The sum is at most 4096 · 2¹⁵ in magnitude, the remainder below
         // 4096: quotient and remainder apart.
@@ -287,11 +301,25 @@ impl<const W: usize> Window<W> {
             (self.sum_z / n, self.sum_z % n)
         };
         // |q| < 2¹⁵ and |r·256/n| < 256: no wrap can occur.
-        Some(
-            q.wrapping_mul(1 << FINE_BITS)
-                .wrapping_add((r << FINE_BITS) / n),
-        )
+        q.wrapping_mul(1 << FINE_BITS)
+            .wrapping_add((r << FINE_BITS) / n)
     }
+}
+
+/// The prediction of the next packet's loss to noise, as the last reading
+/// left it: computed once per reading (the decision of every update, and of
+/// every rate, only reads it).
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct Estimate {
+    /// Predicted z, 1/8192 dB.
+    level: i32,
+    /// Mean absolute error of its predictor, 1/8192 dB (`None` before the
+    /// first prediction error).
+    mae: Option<u32>,
+    /// `level + k·σ`, 1/8192 dB, saturating: the decision's estimate before
+    /// the required SNR and the margin.
+    need: i32,
 }
 
 /// Gain of the exponential filter of the far end's noise floor, as a right
@@ -317,13 +345,18 @@ enum Grid {
         inv_step: f32,
         min_fine: i32,
         step_fine: i32,
+        /// log2(`step_fine`) when it is a power of two (a 1 dB step is
+        /// 2¹³): finding a level is then a shift.
+        step_shift: Option<u8>,
     },
     /// The usable levels of a table, in 1/`per_db` dB (exact: a table's
     /// levels are validated to be all multiples of 0.01 dB or all of 1/64 dB,
-    /// within ±300 dB).
+    /// within ±300 dB), and the same levels in 1/8192 dB (rounded, computed
+    /// once).
     Table {
         levels: [i16; MAX_LEVELS],
         per_db: u8,
+        fine: [i32; MAX_LEVELS],
     },
 }
 
@@ -491,6 +524,8 @@ pub struct Controller<const W: usize> {
     noise: i32,
     /// Prediction errors seen since the history started (saturating).
     errors: u16,
+    /// The prediction from the readings so far (`None` before the first).
+    est: Option<Estimate>,
     loss_run: u16,
     mode: Mode,
     clamped_high: bool,
@@ -548,13 +583,15 @@ impl<const W: usize> Controller<W> {
             PowerSteps::Uniform(s) => {
                 let inv_step = 1.0 / s.0;
                 let k = libm::roundf((top - bottom) * inv_step);
+                let step_fine = to_fine(s.0);
                 (
                     Grid::Uniform {
                         min: cfg.min_tx_dbm.0,
                         step: s.0,
                         inv_step,
                         min_fine: to_fine(cfg.min_tx_dbm.0),
-                        step_fine: to_fine(s.0),
+                        step_fine,
+                        step_shift: pow2_shift(step_fine),
                     },
                     level_count_index(k),
                 )
@@ -569,8 +606,16 @@ impl<const W: usize> Controller<W> {
                         n += 1;
                     }
                 }
+                let mut fine = [0i32; MAX_LEVELS];
+                for (f, &u) in fine.iter_mut().zip(levels.iter()) {
+                    *f = table_fine(u, per_db);
+                }
                 (
-                    Grid::Table { levels, per_db },
+                    Grid::Table {
+                        levels,
+                        per_db,
+                        fine,
+                    },
                     u16::try_from(n.saturating_sub(1)).unwrap_or(0),
                 )
             }
@@ -638,6 +683,7 @@ impl<const W: usize> Controller<W> {
             mae_sum: [0; 3],
             noise: 0,
             errors: 0,
+            est: None,
             loss_run: 0,
             mode: Mode::WarmUp,
             clamped_high: false,
@@ -756,6 +802,7 @@ impl<const W: usize> Controller<W> {
         self.filters = [0; 2];
         self.mae_sum = [0; 3];
         self.errors = 0;
+        self.est = None;
         self.have_noise = false;
     }
 
@@ -763,7 +810,7 @@ impl<const W: usize> Controller<W> {
     fn power_at(&self, k: u16) -> f32 {
         match self.s.grid {
             Grid::Uniform { min, step, .. } => min + f32::from(k) * step,
-            Grid::Table { levels, per_db } => {
+            Grid::Table { levels, per_db, .. } => {
                 // Exact: the level is a whole number of 1/per_db dB.
                 f32::from(levels.get(usize::from(k)).copied().unwrap_or(0)) / f32::from(per_db)
             }
@@ -771,6 +818,7 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Level `k` in 1/8192 dB.
+    #[inline(always)]
     fn fine_at(&self, k: u16) -> i32 {
         match self.s.grid {
             // k·step_fine is within the validated span (±600 dB, 2²³ steps)
@@ -780,14 +828,7 @@ impl<const W: usize> Controller<W> {
                 step_fine,
                 ..
             } => min_fine.wrapping_add(i32::from(k).wrapping_mul(step_fine)),
-            Grid::Table { levels, per_db } => {
-                // |level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits.
-                let u = i32::from(levels.get(usize::from(k)).copied().unwrap_or(0));
-                let d = i32::from(per_db);
-                let x = u * (1 << FINE_PER_DB_BITS);
-                let half = if x >= 0 { d / 2 } else { -(d / 2) };
-                x.wrapping_add(half).checked_div(d).unwrap_or(0)
-            }
+            Grid::Table { fine, .. } => fine.get(usize::from(k)).copied().unwrap_or(0),
         }
     }
 
@@ -798,12 +839,16 @@ impl<const W: usize> Controller<W> {
             Grid::Uniform {
                 min_fine,
                 step_fine,
+                step_shift,
                 ..
             } => {
-                let k = x
-                    .saturating_sub(min_fine)
-                    .checked_div(step_fine)
-                    .unwrap_or(0);
+                let d = x.saturating_sub(min_fine);
+                // A shift rounds a negative `d` down, a division toward
+                // zero: both give a level at or below 0, the lowest.
+                let k = match step_shift {
+                    Some(b) => d >> b,
+                    None => d.checked_div(step_fine).unwrap_or(0),
+                };
                 if k <= 0 {
                     0
                 } else if k >= i32::from(self.s.kmax) {
@@ -868,37 +913,40 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Score the predictors on a new reading (z already quantised), then
-    /// take it into the window, the filters and the noise floor. Integer
-    /// arithmetic only.
+    /// take it into the window, the filters and the noise floor, and make
+    /// the prediction for the next packet. Integer arithmetic only.
     fn learn(&mut self, zq: i16, noise: i32) {
         let z = i32::from(zq) << FINE_BITS;
-        match self.window.mean_z_fine() {
-            Some(mz) => {
-                self.errors = self.errors.saturating_add(1);
-                let filling = self.errors <= self.s.spread_memory;
-                let [f0, f1] = self.filters;
-                // z, the mean and the filters are within ±2²³: the differences
-                // cannot wrap.
-                let e = [z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1)];
-                let (m, k) = (u32::from(self.s.spread_memory), self.s.memory_shift);
-                for (s, e) in self.mae_sum.iter_mut().zip(e.iter()) {
-                    // |e| in 1/32 dB, rounded (|e| < 2²⁴: no wrap).
-                    let a = e.unsigned_abs().wrapping_add(1 << (FINE_BITS - 1)) >> FINE_BITS;
-                    let kept = if filling {
-                        *s
-                    } else {
-                        // (s + m/2)/m ≤ s: no wrap.
-                        s.wrapping_sub(over_memory(*s, m, k))
-                    };
-                    *s = kept.saturating_add(a);
-                }
-                // The two filters with their gains as constant shifts.
-                self.filters = [
-                    f0.wrapping_add(z.wrapping_sub(f0) >> FILTER_SHIFTS[0]),
-                    f1.wrapping_add(z.wrapping_sub(f1) >> FILTER_SHIFTS[1]),
-                ];
-            }
-            None => self.filters = [z; 2],
+        if let Some(mz) = self.window.mean_z_fine() {
+            self.errors = self.errors.saturating_add(1);
+            let [f0, f1] = self.filters;
+            // z, the mean and the filters are within ±2²³: the differences
+            // cannot wrap.
+            let (e0, e1, e2) = (z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1));
+            let a = [abs_q(e0), abs_q(e1), abs_q(e2)];
+            let [s0, s1, s2] = self.mae_sum;
+            // While the memory fills the sums add up; then each decays by
+            // its share 1/memory (a shift for a power of two).
+            let m = self.s.spread_memory;
+            self.mae_sum = if self.errors <= m {
+                [s0, s1, s2]
+            } else if let Some(k) = self.s.memory_shift {
+                decayed([s0, s1, s2], |s| over_memory_shift(s, m, k))
+            } else {
+                decayed([s0, s1, s2], |s| over_memory(s, u32::from(m)))
+            };
+            self.mae_sum = [
+                self.mae_sum[0].saturating_add(a[0]),
+                self.mae_sum[1].saturating_add(a[1]),
+                self.mae_sum[2].saturating_add(a[2]),
+            ];
+            // The two filters with their gains as constant shifts.
+            self.filters = [
+                f0.wrapping_add(e1 >> FILTER_SHIFTS[0]),
+                f1.wrapping_add(e2 >> FILTER_SHIFTS[1]),
+            ];
+        } else {
+            self.filters = [z; 2];
         }
         self.noise = if self.have_noise {
             // Both within ±2²³: no wrap.
@@ -909,15 +957,25 @@ impl<const W: usize> Controller<W> {
         };
         self.have_noise = true;
         self.window.push(zq);
+        self.est = self.estimate();
     }
 
     /// Predicted z for the next packet (1/8192 dB) and the mean absolute
-    /// error of its predictor (1/8192 dB), from the predictor with the
-    /// smallest one.
+    /// error of its predictor (1/8192 dB), as the last reading left them.
     fn predict(&self) -> Option<(i32, Option<u32>)> {
+        self.est.map(|e| (e.level, e.mae))
+    }
+
+    /// The prediction from the window, the filters and their scores: the
+    /// predictor with the smallest mean absolute error.
+    fn estimate(&self) -> Option<Estimate> {
         let mz = self.window.mean_z_fine()?;
         if self.errors == 0 {
-            return Some((mz, None));
+            return Some(Estimate {
+                level: mz,
+                mae: None,
+                need: mz,
+            });
         }
         let [s0, s1, s2] = self.mae_sum;
         let [f0, f1] = self.filters;
@@ -950,7 +1008,11 @@ impl<const W: usize> Controller<W> {
             q.saturating_mul(1 << FINE_BITS)
                 .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
         };
-        Some((level, Some(fine)))
+        Some(Estimate {
+            level,
+            mae: Some(fine),
+            need: level.saturating_add(spread_term(fine, self.s.sigma_factor)),
+        })
     }
 
     /// `true` if `p` is one of the levels the controller may choose.
@@ -1104,12 +1166,7 @@ impl<const W: usize> Controller<W> {
         if self.plan.n > 0 {
             let climbing = self.loss_run >= climb_after;
             let base = if !climbing && n >= self.s.min_readings {
-                let (level, mae) = prediction.unwrap_or((0, None));
-                Some(
-                    level
-                        .saturating_add(mae.map_or(0, |m| spread_term(m, self.s.sigma_factor)))
-                        .saturating_add(margin),
-                )
+                Some(self.est.map_or(0, |e| e.need).saturating_add(margin))
             } else {
                 None
             };
@@ -1163,10 +1220,8 @@ impl<const W: usize> Controller<W> {
             (cur, Reason::WarmUp)
         } else {
             self.mode = Mode::Track;
-            let (level, mae) = prediction.unwrap_or((0, None));
             let w = required
-                .saturating_add(level)
-                .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
+                .saturating_add(self.est.map_or(0, |e| e.need))
                 .saturating_add(margin);
             wanted = Some(w);
             // A level is "at or above" x when it is above x less EPS_FINE.
@@ -1477,6 +1532,24 @@ impl<const W: usize> Controller<W> {
     }
 }
 
+/// log2(`x`) when `x` is a positive power of two.
+fn pow2_shift(x: i32) -> Option<u8> {
+    if x > 0 && x.count_ones() == 1 {
+        u8::try_from(x.trailing_zeros()).ok()
+    } else {
+        None
+    }
+}
+
+/// A table level `u` in 1/`per_db` dB as 1/8192 dB, rounded half away from
+/// zero (|level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits).
+fn table_fine(u: i16, per_db: u8) -> i32 {
+    let d = i32::from(per_db);
+    let x = i32::from(u) * (1 << FINE_PER_DB_BITS);
+    let half = if x >= 0 { d / 2 } else { -(d / 2) };
+    x.wrapping_add(half).checked_div(d).unwrap_or(0)
+}
+
 /// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
 /// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
 fn spread_term(mae: u32, factor: u32) -> i32 {
@@ -1495,13 +1568,35 @@ fn level_count_index(k: f32) -> u16 {
     }
 }
 
-/// `s / m`, rounded; `k = log2(m)` when `m` is a power of two.
-fn over_memory(s: u32, m: u32, k: Option<u8>) -> u32 {
-    let half = s.saturating_add(m >> 1);
-    match k {
-        Some(k) => half >> k,
-        None => half.checked_div(m).unwrap_or(0),
-    }
+/// A prediction error `e` (1/8192 dB) as its magnitude in 1/32 dB, rounded
+/// (|e| < 2²⁴: no wrap).
+#[inline(always)]
+fn abs_q(e: i32) -> u32 {
+    e.unsigned_abs().wrapping_add(1 << (FINE_BITS - 1)) >> FINE_BITS
+}
+
+/// The three sums of absolute errors less their share `part(s) ≤ s`.
+#[inline(always)]
+fn decayed(s: [u32; 3], part: impl Fn(u32) -> u32) -> [u32; 3] {
+    let [s0, s1, s2] = s;
+    // part(s) ≤ s: no wrap.
+    [
+        s0.wrapping_sub(part(s0)),
+        s1.wrapping_sub(part(s1)),
+        s2.wrapping_sub(part(s2)),
+    ]
+}
+
+/// `s / m`, rounded.
+#[inline(always)]
+fn over_memory(s: u32, m: u32) -> u32 {
+    s.saturating_add(m >> 1).checked_div(m).unwrap_or(0)
+}
+
+/// `s / m`, rounded, for `m = 2^k`.
+#[inline(always)]
+fn over_memory_shift(s: u32, m: u16, k: u8) -> u32 {
+    s.saturating_add(u32::from(m >> 1)) >> k
 }
 
 /// `k` with `Q(k) = p` for the standard normal upper tail, `p` in (0, 0.5].
@@ -1717,6 +1812,7 @@ mod tests {
             inv_step: f32::MAX,
             min_fine: to_fine(-9.0),
             step_fine: 1,
+            step_shift: None,
         };
         assert_eq!(c.first_guess(to_fine(0.5), 0), c.s.kmax);
         assert_eq!(c.first_guess(to_fine(-10.0), 5), 0);
