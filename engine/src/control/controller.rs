@@ -106,25 +106,39 @@ pub struct Decision {
     pub held: bool,
     /// Readings in the window.
     pub readings: u16,
-    wanted: Option<i32>,
-    path_loss: Option<i32>,
+    /// The estimates in 1/8192 dB, [`NONE_FINE`] when absent (none can
+    /// reach it: all are sums of a few values within ±300 dB).
+    wanted: i32,
+    path_loss: i32,
     /// Mean absolute prediction error, 1/8192 dB.
     mae: Option<u32>,
-    noise: Option<i32>,
+    noise: i32,
     margin: i32,
+}
+
+/// "No value" of an estimate kept in a [`Decision`].
+const NONE_FINE: i32 = i32::MIN;
+
+/// An estimate kept in a [`Decision`], `None` when absent.
+fn some_fine(x: i32) -> Option<i32> {
+    if x == NONE_FINE {
+        None
+    } else {
+        Some(x)
+    }
 }
 
 impl Decision {
     /// What the estimates asked for before rounding, clamping and step
     /// limiting (`None` while warming up or climbing).
     pub fn wanted(&self) -> Option<Dbm> {
-        self.wanted.map(|w| Dbm(from_fine(w)))
+        some_fine(self.wanted).map(|w| Dbm(from_fine(w)))
     }
 
     /// Predicted path loss (antenna gains included) from the predictor in
     /// use, `None` before the first reading.
     pub fn path_loss(&self) -> Option<Db> {
-        self.path_loss.map(|p| Db(from_fine(p)))
+        some_fine(self.path_loss).map(|p| Db(from_fine(p)))
     }
 
     /// RMS one-step prediction error of the loss to noise (fading and
@@ -137,7 +151,7 @@ impl Decision {
     /// Noise floor at the far end, filtered over the readings (gain 1/16),
     /// `None` before the first reading.
     pub fn noise(&self) -> Option<Dbm> {
-        self.noise.map(|n| Dbm(from_fine(n)))
+        some_fine(self.noise).map(|n| Dbm(from_fine(n)))
     }
 
     /// Adaptive margin after this update (to 1/8192 dB, rounded toward −∞).
@@ -378,16 +392,17 @@ struct Settings {
     margin_max: i32,
     step_up: i32,
     step_down: i32,
-    /// Plausibility bounds of the readings and the default noise floor, in
-    /// the window's 1/32 dB (sanity bounds: 0.03 dB does not matter).
-    tx_lo: i16,
-    tx_hi: i16,
-    rssi_lo: i16,
-    rssi_hi: i16,
-    rssi_saturation: i16,
-    noise_lo: i16,
-    noise_hi: i16,
-    default_noise: i16,
+    /// Plausibility bounds of the readings and the default noise floor,
+    /// rounded to the window's 1/32 dB (sanity bounds: 0.03 dB does not
+    /// matter) and kept in 1/8192 dB, the readings' unit.
+    tx_lo: i32,
+    tx_hi: i32,
+    rssi_lo: i32,
+    rssi_hi: i32,
+    rssi_saturation: i32,
+    noise_lo: i32,
+    noise_hi: i32,
+    default_noise: i32,
     /// Both antenna gains (to report the path loss).
     gains: i32,
     /// Lowest and highest usable level (`fine_at(0)`, `fine_at(kmax)`, kept
@@ -653,14 +668,14 @@ impl<const W: usize> Controller<W> {
                 margin_max,
                 step_up: to_fine(cfg.max_step_up_db.0),
                 step_down: to_fine(cfg.max_step_down_db.0),
-                tx_lo: to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB),
-                tx_hi: to_q(cfg.max_tx_dbm.0 + TX_TOLERANCE_DB),
-                rssi_lo: to_q(cfg.rssi_min_dbm.0),
-                rssi_hi: to_q(cfg.rssi_max_dbm.0),
-                rssi_saturation: to_q(cfg.rssi_saturation_dbm.0),
-                noise_lo: to_q(cfg.noise_min_dbm.0),
-                noise_hi: to_q(cfg.noise_max_dbm.0),
-                default_noise: to_q(cfg.default_noise_dbm.0),
+                tx_lo: q_fine(to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB)),
+                tx_hi: q_fine(to_q(cfg.max_tx_dbm.0 + TX_TOLERANCE_DB)),
+                rssi_lo: q_fine(to_q(cfg.rssi_min_dbm.0)),
+                rssi_hi: q_fine(to_q(cfg.rssi_max_dbm.0)),
+                rssi_saturation: q_fine(to_q(cfg.rssi_saturation_dbm.0)),
+                noise_lo: q_fine(to_q(cfg.noise_min_dbm.0)),
+                noise_hi: q_fine(to_q(cfg.noise_max_dbm.0)),
+                default_noise: q_fine(to_q(cfg.default_noise_dbm.0)),
                 gains: to_fine(cfg.antenna_gain_dbi.0 + cfg.far_antenna_gain_dbi.0),
                 bottom: 0,
                 top: 0,
@@ -1288,20 +1303,20 @@ impl<const W: usize> Controller<W> {
             reason = i;
         }
 
+        let noise = if self.have_noise {
+            self.noise
+        } else {
+            NONE_FINE
+        };
         let (path_loss, mae) = match prediction {
-            Some((level, mae)) => (
-                if self.have_noise {
-                    Some(
-                        level
-                            .saturating_sub(self.noise)
-                            .saturating_add(self.s.gains),
-                    )
-                } else {
-                    None
-                },
+            Some((level, mae)) if self.have_noise => (
+                level
+                    .saturating_sub(self.noise)
+                    .saturating_add(self.s.gains),
                 mae,
             ),
-            None => (None, None),
+            Some((_, mae)) => (NONE_FINE, mae),
+            None => (NONE_FINE, None),
         };
         Decision {
             tx: Dbm(self.tx),
@@ -1309,14 +1324,10 @@ impl<const W: usize> Controller<W> {
             rate: self.rate(),
             held: self.held,
             readings: n,
-            wanted,
+            wanted: wanted.unwrap_or(NONE_FINE),
             path_loss,
             mae,
-            noise: if self.have_noise {
-                Some(self.noise)
-            } else {
-                None
-            },
+            noise,
             margin,
         }
     }
@@ -1392,7 +1403,7 @@ impl<const W: usize> Controller<W> {
     /// Whether the received power of `r` at the level in use reaches the far
     /// end's saturation level (its report would be clipped).
     pub(crate) fn saturates_at_level(&self, r: &LoggedReading) -> bool {
-        r.rssi_less_tx.saturating_add(self.level) >= q_fine(self.s.rssi_saturation)
+        r.rssi_less_tx.saturating_add(self.level) >= self.s.rssi_saturation
     }
 
     /// A value in 1/8192 dB as dB.
@@ -1441,23 +1452,23 @@ impl<const W: usize> Controller<W> {
             Some(x) => Some(fine_of(x).ok_or(Reason::IgnoredNotFinite)?),
             None => None,
         };
-        if tx < q_fine(s.tx_lo) || tx > q_fine(s.tx_hi) {
+        if tx < s.tx_lo || tx > s.tx_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
+        if rssi < s.rssi_lo || rssi > s.rssi_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if noise < q_fine(s.noise_lo) || noise > q_fine(s.noise_hi) {
+        if noise < s.noise_lo || noise > s.noise_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi >= q_fine(s.rssi_saturation) {
+        if rssi >= s.rssi_saturation {
             return Err(Reason::IgnoredSaturated);
         }
         // All within ±300 dB (±2²² steps): no sum below can wrap.
         let snr = match snr {
             Some(x) => {
-                if x < q_fine(s.rssi_lo) - q_fine(s.noise_hi)
-                    || x > q_fine(s.rssi_hi) - q_fine(s.noise_lo)
+                if x < s.rssi_lo - s.noise_hi
+                    || x > s.rssi_hi - s.noise_lo
                 {
                     return Err(Reason::IgnoredImplausible);
                 }
@@ -1478,16 +1489,16 @@ impl<const W: usize> Controller<W> {
         if beacon_tx < BEACON_TX_RANGE_FINE.0 || beacon_tx > BEACON_TX_RANGE_FINE.1 {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
+        if rssi < s.rssi_lo || rssi > s.rssi_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi >= q_fine(s.rssi_saturation) {
+        if rssi >= s.rssi_saturation {
             return Err(Reason::IgnoredSaturated);
         }
         let noise = if self.have_noise {
             self.noise
         } else {
-            q_fine(s.default_noise)
+            s.default_noise
         };
         // SNR of our packet = tx − PL − noise + gains, PL − gains = beacon_tx − rssi.
         // All within ±300 dB: no wrap.
