@@ -725,7 +725,7 @@ impl<const W: usize> Controller<W> {
             })?);
         }
         let start = to_fine(cfg.start_tx_dbm.0).saturating_sub(EPS_FINE);
-        c.s.start = c.walk_above(c.first_guess(start, 0), start);
+        c.s.start = c.level_at_or_above(start, 0);
         c.reset();
         Ok(c)
     }
@@ -847,9 +847,11 @@ impl<const W: usize> Controller<W> {
         }
     }
 
-    /// Where to start looking for the level nearest `x` (1/8192 dB): on a
-    /// uniform grid the level computed from `x`, in a table level `from`.
-    fn first_guess(&self, x: i32, from: u16) -> u16 {
+    /// Lowest level at or above `need` (1/8192 dB), the highest if none.
+    /// On a uniform grid the levels are `min_fine + k·step_fine` exactly, so
+    /// this is `⌈(need − min_fine) / step_fine⌉` within `0..=kmax` (a shift
+    /// for a power-of-two step); a table is searched from level `from`.
+    fn level_at_or_above(&self, need: i32, from: u16) -> u16 {
         match self.s.grid {
             Grid::Uniform {
                 min_fine,
@@ -857,27 +859,57 @@ impl<const W: usize> Controller<W> {
                 step_shift,
                 ..
             } => {
-                let d = x.saturating_sub(min_fine);
-                // A shift rounds a negative `d` down, a division toward
-                // zero: both give a level at or below 0, the lowest.
+                let d = need.saturating_sub(min_fine);
                 let k = match step_shift {
-                    Some(b) => d >> b,
-                    None => d.checked_div(step_fine).unwrap_or(0),
+                    Some(b) => d.saturating_add(step_fine - 1) >> b,
+                    // d ≤ 0 is at or below level 0.
+                    None if d <= 0 => 0,
+                    None => (d - 1).checked_div(step_fine).unwrap_or(0) + 1,
                 };
-                if k <= 0 {
-                    0
-                } else if k >= i32::from(self.s.kmax) {
-                    self.s.kmax
-                } else {
-                    u16::try_from(k).unwrap_or(self.s.kmax)
-                }
+                self.clamp_level(k)
             }
-            Grid::Table { .. } => from,
+            Grid::Table { .. } => self.walk_above(from, need),
         }
     }
 
-    /// Lowest level at or above `need` (1/8192 dB), the highest if none,
-    /// searching from level `k`.
+    /// Highest level at or below `limit` (1/8192 dB), the lowest if none:
+    /// `⌊(limit − min_fine) / step_fine⌋` within `0..=kmax` on a uniform
+    /// grid; a table is searched from level `from`.
+    fn level_at_or_below(&self, limit: i32, from: u16) -> u16 {
+        match self.s.grid {
+            Grid::Uniform {
+                min_fine,
+                step_fine,
+                step_shift,
+                ..
+            } => {
+                let d = limit.saturating_sub(min_fine);
+                let k = match step_shift {
+                    Some(b) => d >> b,
+                    // Below level 0: the lowest.
+                    None if d < 0 => 0,
+                    None => d.checked_div(step_fine).unwrap_or(0),
+                };
+                self.clamp_level(k)
+            }
+            Grid::Table { .. } => self.walk_below(from, limit),
+        }
+    }
+
+    /// A level index within `0..=kmax`.
+    #[inline(always)]
+    fn clamp_level(&self, k: i32) -> u16 {
+        if k <= 0 {
+            0
+        } else if k >= i32::from(self.s.kmax) {
+            self.s.kmax
+        } else {
+            u16::try_from(k).unwrap_or(self.s.kmax)
+        }
+    }
+
+    /// Lowest level of a table at or above `need` (1/8192 dB), the highest
+    /// if none, searching from level `k`.
     fn walk_above(&self, k: u16, need: i32) -> u16 {
         let kmax = self.s.kmax;
         let mut k = if k > kmax { kmax } else { k };
@@ -896,8 +928,8 @@ impl<const W: usize> Controller<W> {
         k
     }
 
-    /// Highest level at or below `limit` (1/8192 dB), the lowest if none,
-    /// searching from level `k`.
+    /// Highest level of a table at or below `limit` (1/8192 dB), the lowest
+    /// if none, searching from level `k`.
     fn walk_below(&self, k: u16, limit: i32) -> u16 {
         let kmax = self.s.kmax;
         let mut k = if k > kmax { kmax } else { k };
@@ -1226,10 +1258,7 @@ impl<const W: usize> Controller<W> {
                 .level
                 .saturating_add(s.step_up)
                 .saturating_add(EPS_FINE);
-            (
-                self.walk_below(self.first_guess(limit, cur), limit),
-                Reason::Climb,
-            )
+            (self.level_at_or_below(limit, cur), Reason::Climb)
         } else if n < s.min_readings {
             self.mode = Mode::WarmUp;
             (cur, Reason::WarmUp)
@@ -1244,19 +1273,16 @@ impl<const W: usize> Controller<W> {
             let need_down = need.saturating_add(s.deadband);
             if jump {
                 // A new rate: straight to the power it needs.
-                (
-                    self.walk_above(self.first_guess(need, cur), need),
-                    Reason::Hold,
-                )
+                (self.level_at_or_above(need, cur), Reason::Hold)
             } else if self.level < need && cur < s.kmax {
-                let up = self.walk_above(self.first_guess(need, cur), need);
+                let up = self.level_at_or_above(need, cur);
                 if up > cur {
                     (up, Reason::Raise)
                 } else {
                     (cur, Reason::Hold)
                 }
             } else if self.below >= need_down {
-                let down = self.walk_above(self.first_guess(need_down, cur), need_down);
+                let down = self.level_at_or_above(need_down, cur);
                 if down < cur {
                     (down, Reason::Lower)
                 } else {
@@ -1467,9 +1493,7 @@ impl<const W: usize> Controller<W> {
         // All within ±300 dB (±2²² steps): no sum below can wrap.
         let snr = match snr {
             Some(x) => {
-                if x < s.rssi_lo - s.noise_hi
-                    || x > s.rssi_hi - s.noise_lo
-                {
+                if x < s.rssi_lo - s.noise_hi || x > s.rssi_hi - s.noise_lo {
                     return Err(Reason::IgnoredImplausible);
                 }
                 x
@@ -1533,10 +1557,10 @@ impl<const W: usize> Controller<W> {
         let down = self.level.saturating_sub(s.step_down);
         if t > up.saturating_add(EPS_FINE) {
             let limit = up.saturating_add(EPS_FINE);
-            (self.walk_below(self.first_guess(limit, cur), limit), true)
+            (self.level_at_or_below(limit, cur), true)
         } else if t < down.saturating_sub(EPS_FINE) {
             let need = down.saturating_sub(EPS_FINE);
-            (self.walk_above(self.first_guess(need, cur), need), true)
+            (self.level_at_or_above(need, cur), true)
         } else {
             (target, false)
         }
@@ -1825,12 +1849,49 @@ mod tests {
             step_fine: 1,
             step_shift: None,
         };
-        assert_eq!(c.first_guess(to_fine(0.5), 0), c.s.kmax);
-        assert_eq!(c.first_guess(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_below(to_fine(0.5), 0), c.s.kmax);
+        assert_eq!(c.level_at_or_above(to_fine(0.5), 0), c.s.kmax);
+        assert_eq!(c.level_at_or_above(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_below(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_above(i32::MAX, 0), c.s.kmax);
+        assert_eq!(c.level_at_or_below(i32::MIN, 3), 0);
         assert_eq!(to_fine(f32::MAX), i32::MAX);
         assert_eq!(to_fine(f32::MIN), -i32::MAX);
         assert_eq!(fine_to_q(i32::MAX), i16::MAX);
         assert_eq!(fine_to_q(i32::MIN), i16::MIN);
+    }
+
+    /// The level lookups of a uniform grid (a division or a shift) against
+    /// a plain scan of the levels, on grids of several steps, at and around
+    /// every level and beyond both ends.
+    #[test]
+    fn uniform_level_lookups_match_a_scan() {
+        for step in [0.01f32, 0.1, 0.25, 0.5, 1.0, 2.0] {
+            let mut cfg = ControllerConfig::sub_ghz_node();
+            cfg.steps = PowerSteps::Uniform(Db(step));
+            let c = match Controller::<32>::new(cfg) {
+                Ok(c) => c,
+                Err(e) => panic!("step {step}: {e}"),
+            };
+            let kmax = c.s.kmax;
+            let above = |x: i32| (0..=kmax).find(|&k| c.fine_at(k) >= x).unwrap_or(kmax);
+            let below = |x: i32| (0..=kmax).rev().find(|&k| c.fine_at(k) <= x).unwrap_or(0);
+            let mut xs = vec![
+                i32::MIN,
+                i32::MAX,
+                c.fine_at(0) - 100_000,
+                c.fine_at(kmax) + 100_000,
+            ];
+            for k in 0..=kmax {
+                for d in [-2, -1, 0, 1, 2, 4095, 4096, 4097] {
+                    xs.push(c.fine_at(k) + d);
+                }
+            }
+            for x in xs {
+                assert_eq!(c.level_at_or_above(x, 0), above(x), "step {step}, {x}");
+                assert_eq!(c.level_at_or_below(x, kmax), below(x), "step {step}, {x}");
+            }
+        }
     }
 
     /// `fine_of` against an independent f64 computation (x·8192 is exact in
