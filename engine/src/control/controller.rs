@@ -973,7 +973,11 @@ impl<const W: usize> Controller<W> {
             let a = [abs_q(e0), abs_q(e1), abs_q(e2)];
             let [s0, s1, s2] = self.mae_sum;
             // While the memory fills the sums add up; then each decays by
-            // its share 1/memory (a shift for a power of two).
+            // its share 1/memory (a shift for a power of two). No sum can
+            // wrap: |e| < 2²⁴ makes each |e| in 1/32 dB at most 2¹⁶, so a
+            // sum stays at or below memory·2¹⁶ < 2³² − 2¹⁶ (filling: at most
+            // memory terms; decaying: s − ⌊(s + m/2)/m⌋ + 2¹⁶ ≤ m·2¹⁶ when
+            // s ≤ m·2¹⁶), and s + m/2 below 2³².
             let m = self.s.spread_memory;
             self.mae_sum = if self.errors <= m {
                 [s0, s1, s2]
@@ -983,9 +987,9 @@ impl<const W: usize> Controller<W> {
                 decayed([s0, s1, s2], |s| over_memory(s, u32::from(m)))
             };
             self.mae_sum = [
-                self.mae_sum[0].saturating_add(a[0]),
-                self.mae_sum[1].saturating_add(a[1]),
-                self.mae_sum[2].saturating_add(a[2]),
+                self.mae_sum[0].wrapping_add(a[0]),
+                self.mae_sum[1].wrapping_add(a[1]),
+                self.mae_sum[2].wrapping_add(a[2]),
             ];
             // The two filters with their gains as constant shifts.
             self.filters = [
@@ -1622,16 +1626,16 @@ fn decayed(s: [u32; 3], part: impl Fn(u32) -> u32) -> [u32; 3] {
     ]
 }
 
-/// `s / m`, rounded.
+/// `s / m`, rounded (`s + m/2` below 2³²: see `learn`).
 #[inline(always)]
 fn over_memory(s: u32, m: u32) -> u32 {
-    s.saturating_add(m >> 1).checked_div(m).unwrap_or(0)
+    s.wrapping_add(m >> 1).checked_div(m).unwrap_or(0)
 }
 
-/// `s / m`, rounded, for `m = 2^k`.
+/// `s / m`, rounded, for `m = 2^k` (`s + m/2` below 2³²: see `learn`).
 #[inline(always)]
 fn over_memory_shift(s: u32, m: u16, k: u8) -> u32 {
-    s.saturating_add(u32::from(m >> 1)) >> k
+    s.wrapping_add(u32::from(m >> 1)) >> k
 }
 
 /// `k` with `Q(k) = p` for the standard normal upper tail, `p` in (0, 0.5].
