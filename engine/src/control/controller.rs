@@ -365,12 +365,12 @@ enum Grid {
     },
     /// The usable levels of a table, in 1/`per_db` dB (exact: a table's
     /// levels are validated to be all multiples of 0.01 dB or all of 1/64 dB,
-    /// within ±300 dB), and the same levels in 1/8192 dB (rounded, computed
-    /// once).
+    /// within ±300 dB). Kept as they are, not in 1/8192 dB: that would
+    /// double the table's 32 bytes for a division saved only when the power
+    /// changes.
     Table {
         levels: [i16; MAX_LEVELS],
         per_db: u8,
-        fine: [i32; MAX_LEVELS],
     },
 }
 
@@ -621,16 +621,8 @@ impl<const W: usize> Controller<W> {
                         n += 1;
                     }
                 }
-                let mut fine = [0i32; MAX_LEVELS];
-                for (f, &u) in fine.iter_mut().zip(levels.iter()) {
-                    *f = table_fine(u, per_db);
-                }
                 (
-                    Grid::Table {
-                        levels,
-                        per_db,
-                        fine,
-                    },
+                    Grid::Table { levels, per_db },
                     u16::try_from(n.saturating_sub(1)).unwrap_or(0),
                 )
             }
@@ -825,7 +817,7 @@ impl<const W: usize> Controller<W> {
     fn power_at(&self, k: u16) -> f32 {
         match self.s.grid {
             Grid::Uniform { min, step, .. } => min + f32::from(k) * step,
-            Grid::Table { levels, per_db, .. } => {
+            Grid::Table { levels, per_db } => {
                 // Exact: the level is a whole number of 1/per_db dB.
                 f32::from(levels.get(usize::from(k)).copied().unwrap_or(0)) / f32::from(per_db)
             }
@@ -843,7 +835,9 @@ impl<const W: usize> Controller<W> {
                 step_fine,
                 ..
             } => min_fine.wrapping_add(i32::from(k).wrapping_mul(step_fine)),
-            Grid::Table { fine, .. } => fine.get(usize::from(k)).copied().unwrap_or(0),
+            Grid::Table { levels, per_db } => {
+                table_fine(levels.get(usize::from(k)).copied().unwrap_or(0), per_db)
+            }
         }
     }
 
