@@ -498,20 +498,24 @@ pub(crate) struct LoggedReading {
 /// one rate, the decisions are the power-only ones, bit for bit.
 ///
 /// ## Cost
-/// All state is in this fixed-size struct (no allocation, 744 bytes for
-/// `W = 32`, of which the power controller is 256 and the rest the rate
+/// All state is in this fixed-size struct (no allocation, 784 bytes for
+/// `W = 32`, of which the power controller is 296 and the rest the rate
 /// table, the energy profile and the duty budget's slots): the settings are
 /// kept only in the form the update uses. The rate choice is one pass over
 /// the table per update, integers only.
 /// One [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
 /// exponential, square root or division by a variable once the window is
-/// full (when `W` and `spread_memory` are powers of two). Everything between
+/// full (when `W` and `spread_memory` are powers of two). The prediction
+/// (the chosen predictor, its spread and `ẑ + k·σ`) is made once per
+/// reading and only read by the decisions; on a uniform grid a new level is
+/// found in O(1) (one division, a shift for a power-of-two step such as
+/// 1 dB), in a table by a short walk. Everything between
 /// the readings and the decision is integer arithmetic: readings, levels and
 /// estimates in 1/8192 dB, the margin in 2⁻⁴⁰ dB. Floats are used only to
 /// quantise the readings, to report the decision, and for the power (dBm) of
 /// a new level when the power changes; holding the power compares two
 /// integers with the level in use and the one below it. The plausibility
-/// bounds are kept to 1/32 dB.
+/// bounds are kept to 1/32 dB (in the readings' 1/8192 dB).
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
@@ -1033,25 +1037,13 @@ impl<const W: usize> Controller<W> {
         };
         // Mean absolute error in 1/8192 dB: sum / n with the remainder kept.
         let memory = self.s.spread_memory;
-        let n = u32::from(if self.errors < memory {
-            self.errors
-        } else {
-            memory
-        });
-        let full = n == u32::from(memory);
-        let fine = if sum < 1 << (32 - FINE_BITS) {
-            // sum·2⁸ fits: one division, or a shift for a full memory of a
-            // power of two (the same value as with quotient and remainder).
-            let x = sum << FINE_BITS;
-            match self.s.memory_shift {
-                Some(k) if full => x >> k,
-                _ => x.checked_div(n).unwrap_or(0),
+        let fine = match self.s.memory_shift {
+            // The steady state: a full memory of a power of two and sum·2⁸
+            // within 32 bits, a shift (the same value as the division).
+            Some(k) if self.errors >= memory && sum < 1 << (32 - FINE_BITS) => {
+                (sum << FINE_BITS) >> k
             }
-        } else {
-            let q = sum.checked_div(n).unwrap_or(0);
-            let r = sum.checked_rem(n).unwrap_or(0);
-            q.saturating_mul(1 << FINE_BITS)
-                .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
+            _ => mean_of_sum(sum, u32::from(self.errors.min(memory))),
         };
         Some(Estimate {
             level,
@@ -1562,6 +1554,20 @@ impl<const W: usize> Controller<W> {
         } else {
             (target, false)
         }
+    }
+}
+
+/// `sum / n` in 1/8192 dB for a sum in 1/32 dB, truncated, saturating
+/// (`n` > 0; 0 for `n` = 0).
+fn mean_of_sum(sum: u32, n: u32) -> u32 {
+    if sum < 1 << (32 - FINE_BITS) {
+        // sum·2⁸ fits: one division.
+        (sum << FINE_BITS).checked_div(n).unwrap_or(0)
+    } else {
+        let q = sum.checked_div(n).unwrap_or(0);
+        let r = sum.checked_rem(n).unwrap_or(0);
+        q.saturating_mul(1 << FINE_BITS)
+            .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
     }
 }
 
