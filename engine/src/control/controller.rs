@@ -106,25 +106,39 @@ pub struct Decision {
     pub held: bool,
     /// Readings in the window.
     pub readings: u16,
-    wanted: Option<i32>,
-    path_loss: Option<i32>,
+    /// The estimates in 1/8192 dB, [`NONE_FINE`] when absent (none can
+    /// reach it: all are sums of a few values within ±300 dB).
+    wanted: i32,
+    path_loss: i32,
     /// Mean absolute prediction error, 1/8192 dB.
     mae: Option<u32>,
-    noise: Option<i32>,
+    noise: i32,
     margin: i32,
+}
+
+/// "No value" of an estimate kept in a [`Decision`].
+const NONE_FINE: i32 = i32::MIN;
+
+/// An estimate kept in a [`Decision`], `None` when absent.
+fn some_fine(x: i32) -> Option<i32> {
+    if x == NONE_FINE {
+        None
+    } else {
+        Some(x)
+    }
 }
 
 impl Decision {
     /// What the estimates asked for before rounding, clamping and step
     /// limiting (`None` while warming up or climbing).
     pub fn wanted(&self) -> Option<Dbm> {
-        self.wanted.map(|w| Dbm(from_fine(w)))
+        some_fine(self.wanted).map(|w| Dbm(from_fine(w)))
     }
 
     /// Predicted path loss (antenna gains included) from the predictor in
     /// use, `None` before the first reading.
     pub fn path_loss(&self) -> Option<Db> {
-        self.path_loss.map(|p| Db(from_fine(p)))
+        some_fine(self.path_loss).map(|p| Db(from_fine(p)))
     }
 
     /// RMS one-step prediction error of the loss to noise (fading and
@@ -137,7 +151,7 @@ impl Decision {
     /// Noise floor at the far end, filtered over the readings (gain 1/16),
     /// `None` before the first reading.
     pub fn noise(&self) -> Option<Dbm> {
-        self.noise.map(|n| Dbm(from_fine(n)))
+        some_fine(self.noise).map(|n| Dbm(from_fine(n)))
     }
 
     /// Adaptive margin after this update (to 1/8192 dB, rounded toward −∞).
@@ -208,6 +222,8 @@ struct Window<const W: usize> {
     head: u16,
     n: u16,
     sum_z: i32,
+    /// Mean of z in 1/8192 dB after the last push (0 when empty).
+    mean: i32,
 }
 
 impl<const W: usize> Window<W> {
@@ -217,6 +233,7 @@ impl<const W: usize> Window<W> {
             head: 0,
             n: 0,
             sum_z: 0,
+            mean: 0,
         }
     }
 
@@ -224,6 +241,7 @@ impl<const W: usize> Window<W> {
         self.head = 0;
         self.n = 0;
         self.sum_z = 0;
+        self.mean = 0;
     }
 
     fn push(&mut self, z: i16) {
@@ -245,6 +263,7 @@ impl<const W: usize> Window<W> {
                 u16::try_from(next).unwrap_or(0)
             };
         }
+        self.mean = self.compute_mean();
     }
 
     /// `W` as an `i32` (`W ≤ MAX_WINDOW = 4096`, checked by `Controller::new`;
@@ -262,21 +281,30 @@ impl<const W: usize> Window<W> {
     const SMALL: bool = W < 256;
 
     /// Mean of z in 1/8192 dB, truncated toward zero (exact integer
-    /// arithmetic).
+    /// arithmetic), `None` when empty: computed once per push.
     fn mean_z_fine(&self) -> Option<i32> {
+        if self.n == 0 {
+            None
+        } else {
+            Some(self.mean)
+        }
+    }
+
+    /// The mean of [`Window::mean_z_fine`] from the sum (0 when empty).
+    fn compute_mean(&self) -> i32 {
         let n = i32::from(self.n);
         if n == 0 {
-            return None;
+            return 0;
         }
         let full = usize::from(self.n) >= W;
         if Self::SMALL {
             // |sum| < 255 · 2¹⁵, times 2⁸ below 2³¹.
             let x = self.sum_z << FINE_BITS;
-            return Some(if full {
+            return if full {
                 x.checked_div(Self::W_I32).unwrap_or(0)
             } else {
                 x.checked_div(n).unwrap_or(0)
-            });
+            };
         }
         // The sum is at most 4096 · 2¹⁵ in magnitude, the remainder below
         // 4096: quotient and remainder apart.
@@ -291,11 +319,25 @@ impl<const W: usize> Window<W> {
             (self.sum_z / n, self.sum_z % n)
         };
         // |q| < 2¹⁵ and |r·256/n| < 256: no wrap can occur.
-        Some(
-            q.wrapping_mul(1 << FINE_BITS)
-                .wrapping_add((r << FINE_BITS) / n),
-        )
+        q.wrapping_mul(1 << FINE_BITS)
+            .wrapping_add((r << FINE_BITS) / n)
     }
+}
+
+/// The prediction of the next packet's loss to noise, as the last reading
+/// left it: computed once per reading (the decision of every update, and of
+/// every rate, only reads it).
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+struct Estimate {
+    /// Predicted z, 1/8192 dB.
+    level: i32,
+    /// Mean absolute error of its predictor, 1/8192 dB (`None` before the
+    /// first prediction error).
+    mae: Option<u32>,
+    /// `level + k·σ`, 1/8192 dB, saturating: the decision's estimate before
+    /// the required SNR and the margin.
+    need: i32,
 }
 
 /// Gain of the exponential filter of the far end's noise floor, as a right
@@ -321,10 +363,15 @@ enum Grid {
         inv_step: f32,
         min_fine: i32,
         step_fine: i32,
+        /// log2(`step_fine`) when it is a power of two (a 1 dB step is
+        /// 2¹³): finding a level is then a shift.
+        step_shift: Option<u8>,
     },
     /// The usable levels of a table, in 1/`per_db` dB (exact: a table's
     /// levels are validated to be all multiples of 0.01 dB or all of 1/64 dB,
-    /// within ±300 dB).
+    /// within ±300 dB). Kept as they are, not in 1/8192 dB: that would
+    /// double the table's 32 bytes for a division saved only when the power
+    /// changes.
     Table {
         levels: [i16; MAX_LEVELS],
         per_db: u8,
@@ -349,16 +396,17 @@ struct Settings {
     margin_max: i32,
     step_up: i32,
     step_down: i32,
-    /// Plausibility bounds of the readings and the default noise floor, in
-    /// the window's 1/32 dB (sanity bounds: 0.03 dB does not matter).
-    tx_lo: i16,
-    tx_hi: i16,
-    rssi_lo: i16,
-    rssi_hi: i16,
-    rssi_saturation: i16,
-    noise_lo: i16,
-    noise_hi: i16,
-    default_noise: i16,
+    /// Plausibility bounds of the readings and the default noise floor,
+    /// rounded to the window's 1/32 dB (sanity bounds: 0.03 dB does not
+    /// matter) and kept in 1/8192 dB, the readings' unit.
+    tx_lo: i32,
+    tx_hi: i32,
+    rssi_lo: i32,
+    rssi_hi: i32,
+    rssi_saturation: i32,
+    noise_lo: i32,
+    noise_hi: i32,
+    default_noise: i32,
     /// Both antenna gains (to report the path loss).
     gains: i32,
     /// Lowest and highest usable level (`fine_at(0)`, `fine_at(kmax)`, kept
@@ -454,20 +502,24 @@ pub(crate) struct LoggedReading {
 /// one rate, the decisions are the power-only ones, bit for bit.
 ///
 /// ## Cost
-/// All state is in this fixed-size struct (no allocation, 744 bytes for
-/// `W = 32`, of which the power controller is 256 and the rest the rate
+/// All state is in this fixed-size struct (no allocation, 784 bytes for
+/// `W = 32`, of which the power controller is 296 and the rest the rate
 /// table, the energy profile and the duty budget's slots): the settings are
 /// kept only in the form the update uses. The rate choice is one pass over
 /// the table per update, integers only.
 /// One [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
 /// exponential, square root or division by a variable once the window is
-/// full (when `W` and `spread_memory` are powers of two). Everything between
+/// full (when `W` and `spread_memory` are powers of two). The prediction
+/// (the chosen predictor, its spread and `ẑ + k·σ`) is made once per
+/// reading and only read by the decisions; on a uniform grid a new level is
+/// found in O(1) (one division, a shift for a power-of-two step such as
+/// 1 dB), in a table by a short walk. Everything between
 /// the readings and the decision is integer arithmetic: readings, levels and
 /// estimates in 1/8192 dB, the margin in 2⁻⁴⁰ dB. Floats are used only to
 /// quantise the readings, to report the decision, and for the power (dBm) of
 /// a new level when the power changes; holding the power compares two
 /// integers with the level in use and the one below it. The plausibility
-/// bounds are kept to 1/32 dB.
+/// bounds are kept to 1/32 dB (in the readings' 1/8192 dB).
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Controller<const W: usize> {
@@ -495,6 +547,8 @@ pub struct Controller<const W: usize> {
     noise: i32,
     /// Prediction errors seen since the history started (saturating).
     errors: u16,
+    /// The prediction from the readings so far (`None` before the first).
+    est: Option<Estimate>,
     loss_run: u16,
     mode: Mode,
     clamped_high: bool,
@@ -558,13 +612,15 @@ impl<const W: usize> Controller<W> {
             PowerSteps::Uniform(s) => {
                 let inv_step = 1.0 / s.0;
                 let k = libm::roundf((top - bottom) * inv_step);
+                let step_fine = to_fine(s.0);
                 (
                     Grid::Uniform {
                         min: cfg.min_tx_dbm.0,
                         step: s.0,
                         inv_step,
                         min_fine: to_fine(cfg.min_tx_dbm.0),
-                        step_fine: to_fine(s.0),
+                        step_fine,
+                        step_shift: pow2_shift(step_fine),
                     },
                     level_count_index(k),
                 )
@@ -618,14 +674,14 @@ impl<const W: usize> Controller<W> {
                 margin_max,
                 step_up: to_fine(cfg.max_step_up_db.0),
                 step_down: to_fine(cfg.max_step_down_db.0),
-                tx_lo: to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB),
-                tx_hi: to_q(cfg.max_tx_dbm.0 + TX_TOLERANCE_DB),
-                rssi_lo: to_q(cfg.rssi_min_dbm.0),
-                rssi_hi: to_q(cfg.rssi_max_dbm.0),
-                rssi_saturation: to_q(cfg.rssi_saturation_dbm.0),
-                noise_lo: to_q(cfg.noise_min_dbm.0),
-                noise_hi: to_q(cfg.noise_max_dbm.0),
-                default_noise: to_q(cfg.default_noise_dbm.0),
+                tx_lo: q_fine(to_q(cfg.min_tx_dbm.0 - TX_TOLERANCE_DB)),
+                tx_hi: q_fine(to_q(cfg.max_tx_dbm.0 + TX_TOLERANCE_DB)),
+                rssi_lo: q_fine(to_q(cfg.rssi_min_dbm.0)),
+                rssi_hi: q_fine(to_q(cfg.rssi_max_dbm.0)),
+                rssi_saturation: q_fine(to_q(cfg.rssi_saturation_dbm.0)),
+                noise_lo: q_fine(to_q(cfg.noise_min_dbm.0)),
+                noise_hi: q_fine(to_q(cfg.noise_max_dbm.0)),
+                default_noise: q_fine(to_q(cfg.default_noise_dbm.0)),
                 gains: to_fine(cfg.antenna_gain_dbi.0 + cfg.far_antenna_gain_dbi.0),
                 bottom: 0,
                 top: 0,
@@ -648,6 +704,7 @@ impl<const W: usize> Controller<W> {
             mae_sum: [0; 3],
             noise: 0,
             errors: 0,
+            est: None,
             loss_run: 0,
             mode: Mode::WarmUp,
             clamped_high: false,
@@ -677,7 +734,7 @@ impl<const W: usize> Controller<W> {
             })?);
         }
         let start = to_fine(cfg.start_tx_dbm.0).saturating_sub(EPS_FINE);
-        c.s.start = c.walk_above(c.first_guess(start, 0), start);
+        c.s.start = c.level_at_or_above(start, 0);
         c.reset();
         Ok(c)
     }
@@ -790,6 +847,7 @@ impl<const W: usize> Controller<W> {
         self.filters = [0; 2];
         self.mae_sum = [0; 3];
         self.errors = 0;
+        self.est = None;
         self.have_noise = false;
     }
 
@@ -805,6 +863,7 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Level `k` in 1/8192 dB.
+    #[inline(always)]
     fn fine_at(&self, k: u16) -> i32 {
         match self.s.grid {
             // k·step_fine is within the validated span (±600 dB, 2²³ steps)
@@ -815,43 +874,74 @@ impl<const W: usize> Controller<W> {
                 ..
             } => min_fine.wrapping_add(i32::from(k).wrapping_mul(step_fine)),
             Grid::Table { levels, per_db } => {
-                // |level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits.
-                let u = i32::from(levels.get(usize::from(k)).copied().unwrap_or(0));
-                let d = i32::from(per_db);
-                let x = u * (1 << FINE_PER_DB_BITS);
-                let half = if x >= 0 { d / 2 } else { -(d / 2) };
-                x.wrapping_add(half).checked_div(d).unwrap_or(0)
+                table_fine(levels.get(usize::from(k)).copied().unwrap_or(0), per_db)
             }
         }
     }
 
-    /// Where to start looking for the level nearest `x` (1/8192 dB): on a
-    /// uniform grid the level computed from `x`, in a table level `from`.
-    fn first_guess(&self, x: i32, from: u16) -> u16 {
+    /// Lowest level at or above `need` (1/8192 dB), the highest if none.
+    /// On a uniform grid the levels are `min_fine + k·step_fine` exactly, so
+    /// this is `⌈(need − min_fine) / step_fine⌉` within `0..=kmax` (a shift
+    /// for a power-of-two step); a table is searched from level `from`.
+    fn level_at_or_above(&self, need: i32, from: u16) -> u16 {
         match self.s.grid {
             Grid::Uniform {
                 min_fine,
                 step_fine,
+                step_shift,
                 ..
             } => {
-                let k = x
-                    .saturating_sub(min_fine)
-                    .checked_div(step_fine)
-                    .unwrap_or(0);
-                if k <= 0 {
-                    0
-                } else if k >= i32::from(self.s.kmax) {
-                    self.s.kmax
-                } else {
-                    u16::try_from(k).unwrap_or(self.s.kmax)
-                }
+                let d = need.saturating_sub(min_fine);
+                let k = match step_shift {
+                    Some(b) => d.saturating_add(step_fine - 1) >> b,
+                    // d ≤ 0 is at or below level 0.
+                    None if d <= 0 => 0,
+                    None => (d - 1).checked_div(step_fine).unwrap_or(0) + 1,
+                };
+                self.clamp_level(k)
             }
-            Grid::Table { .. } => from,
+            Grid::Table { .. } => self.walk_above(from, need),
         }
     }
 
-    /// Lowest level at or above `need` (1/8192 dB), the highest if none,
-    /// searching from level `k`.
+    /// Highest level at or below `limit` (1/8192 dB), the lowest if none:
+    /// `⌊(limit − min_fine) / step_fine⌋` within `0..=kmax` on a uniform
+    /// grid; a table is searched from level `from`.
+    fn level_at_or_below(&self, limit: i32, from: u16) -> u16 {
+        match self.s.grid {
+            Grid::Uniform {
+                min_fine,
+                step_fine,
+                step_shift,
+                ..
+            } => {
+                let d = limit.saturating_sub(min_fine);
+                let k = match step_shift {
+                    Some(b) => d >> b,
+                    // Below level 0: the lowest.
+                    None if d < 0 => 0,
+                    None => d.checked_div(step_fine).unwrap_or(0),
+                };
+                self.clamp_level(k)
+            }
+            Grid::Table { .. } => self.walk_below(from, limit),
+        }
+    }
+
+    /// A level index within `0..=kmax`.
+    #[inline(always)]
+    fn clamp_level(&self, k: i32) -> u16 {
+        if k <= 0 {
+            0
+        } else if k >= i32::from(self.s.kmax) {
+            self.s.kmax
+        } else {
+            u16::try_from(k).unwrap_or(self.s.kmax)
+        }
+    }
+
+    /// Lowest level of a table at or above `need` (1/8192 dB), the highest
+    /// if none, searching from level `k`.
     fn walk_above(&self, k: u16, need: i32) -> u16 {
         let kmax = self.s.kmax;
         let mut k = if k > kmax { kmax } else { k };
@@ -870,8 +960,8 @@ impl<const W: usize> Controller<W> {
         k
     }
 
-    /// Highest level at or below `limit` (1/8192 dB), the lowest if none,
-    /// searching from level `k`.
+    /// Highest level of a table at or below `limit` (1/8192 dB), the lowest
+    /// if none, searching from level `k`.
     fn walk_below(&self, k: u16, limit: i32) -> u16 {
         let kmax = self.s.kmax;
         let mut k = if k > kmax { kmax } else { k };
@@ -902,37 +992,44 @@ impl<const W: usize> Controller<W> {
     }
 
     /// Score the predictors on a new reading (z already quantised), then
-    /// take it into the window, the filters and the noise floor. Integer
-    /// arithmetic only.
+    /// take it into the window, the filters and the noise floor, and make
+    /// the prediction for the next packet. Integer arithmetic only.
     fn learn(&mut self, zq: i16, noise: i32) {
         let z = i32::from(zq) << FINE_BITS;
-        match self.window.mean_z_fine() {
-            Some(mz) => {
-                self.errors = self.errors.saturating_add(1);
-                let filling = self.errors <= self.s.spread_memory;
-                let [f0, f1] = self.filters;
-                // z, the mean and the filters are within ±2²³: the differences
-                // cannot wrap.
-                let e = [z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1)];
-                let (m, k) = (u32::from(self.s.spread_memory), self.s.memory_shift);
-                for (s, e) in self.mae_sum.iter_mut().zip(e.iter()) {
-                    // |e| in 1/32 dB, rounded (|e| < 2²⁴: no wrap).
-                    let a = e.unsigned_abs().wrapping_add(1 << (FINE_BITS - 1)) >> FINE_BITS;
-                    let kept = if filling {
-                        *s
-                    } else {
-                        // (s + m/2)/m ≤ s: no wrap.
-                        s.wrapping_sub(over_memory(*s, m, k))
-                    };
-                    *s = kept.saturating_add(a);
-                }
-                // The two filters with their gains as constant shifts.
-                self.filters = [
-                    f0.wrapping_add(z.wrapping_sub(f0) >> FILTER_SHIFTS[0]),
-                    f1.wrapping_add(z.wrapping_sub(f1) >> FILTER_SHIFTS[1]),
-                ];
-            }
-            None => self.filters = [z; 2],
+        if let Some(mz) = self.window.mean_z_fine() {
+            self.errors = self.errors.saturating_add(1);
+            let [f0, f1] = self.filters;
+            // z, the mean and the filters are within ±2²³: the differences
+            // cannot wrap.
+            let (e0, e1, e2) = (z.wrapping_sub(mz), z.wrapping_sub(f0), z.wrapping_sub(f1));
+            let a = [abs_q(e0), abs_q(e1), abs_q(e2)];
+            let [s0, s1, s2] = self.mae_sum;
+            // While the memory fills the sums add up; then each decays by
+            // its share 1/memory (a shift for a power of two). No sum can
+            // wrap: |e| < 2²⁴ makes each |e| in 1/32 dB at most 2¹⁶, so a
+            // sum stays at or below memory·2¹⁶ < 2³² − 2¹⁶ (filling: at most
+            // memory terms; decaying: s − ⌊(s + m/2)/m⌋ + 2¹⁶ ≤ m·2¹⁶ when
+            // s ≤ m·2¹⁶), and s + m/2 below 2³².
+            let m = self.s.spread_memory;
+            self.mae_sum = if self.errors <= m {
+                [s0, s1, s2]
+            } else if let Some(k) = self.s.memory_shift {
+                decayed([s0, s1, s2], |s| over_memory_shift(s, m, k))
+            } else {
+                decayed([s0, s1, s2], |s| over_memory(s, u32::from(m)))
+            };
+            self.mae_sum = [
+                self.mae_sum[0].wrapping_add(a[0]),
+                self.mae_sum[1].wrapping_add(a[1]),
+                self.mae_sum[2].wrapping_add(a[2]),
+            ];
+            // The two filters with their gains as constant shifts.
+            self.filters = [
+                f0.wrapping_add(e1 >> FILTER_SHIFTS[0]),
+                f1.wrapping_add(e2 >> FILTER_SHIFTS[1]),
+            ];
+        } else {
+            self.filters = [z; 2];
         }
         self.noise = if self.have_noise {
             // Both within ±2²³: no wrap.
@@ -943,15 +1040,25 @@ impl<const W: usize> Controller<W> {
         };
         self.have_noise = true;
         self.window.push(zq);
+        self.est = self.estimate();
     }
 
     /// Predicted z for the next packet (1/8192 dB) and the mean absolute
-    /// error of its predictor (1/8192 dB), from the predictor with the
-    /// smallest one.
+    /// error of its predictor (1/8192 dB), as the last reading left them.
     fn predict(&self) -> Option<(i32, Option<u32>)> {
+        self.est.map(|e| (e.level, e.mae))
+    }
+
+    /// The prediction from the window, the filters and their scores: the
+    /// predictor with the smallest mean absolute error.
+    fn estimate(&self) -> Option<Estimate> {
         let mz = self.window.mean_z_fine()?;
         if self.errors == 0 {
-            return Some((mz, None));
+            return Some(Estimate {
+                level: mz,
+                mae: None,
+                need: mz,
+            });
         }
         let [s0, s1, s2] = self.mae_sum;
         let [f0, f1] = self.filters;
@@ -964,27 +1071,19 @@ impl<const W: usize> Controller<W> {
         };
         // Mean absolute error in 1/8192 dB: sum / n with the remainder kept.
         let memory = self.s.spread_memory;
-        let n = u32::from(if self.errors < memory {
-            self.errors
-        } else {
-            memory
-        });
-        let full = n == u32::from(memory);
-        let fine = if sum < 1 << (32 - FINE_BITS) {
-            // sum·2⁸ fits: one division, or a shift for a full memory of a
-            // power of two (the same value as with quotient and remainder).
-            let x = sum << FINE_BITS;
-            match self.s.memory_shift {
-                Some(k) if full => x >> k,
-                _ => x.checked_div(n).unwrap_or(0),
+        let fine = match self.s.memory_shift {
+            // The steady state: a full memory of a power of two and sum·2⁸
+            // within 32 bits, a shift (the same value as the division).
+            Some(k) if self.errors >= memory && sum < 1 << (32 - FINE_BITS) => {
+                (sum << FINE_BITS) >> k
             }
-        } else {
-            let q = sum.checked_div(n).unwrap_or(0);
-            let r = sum.checked_rem(n).unwrap_or(0);
-            q.saturating_mul(1 << FINE_BITS)
-                .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
+            _ => mean_of_sum(sum, u32::from(self.errors.min(memory))),
         };
-        Some((level, Some(fine)))
+        Some(Estimate {
+            level,
+            mae: Some(fine),
+            need: level.saturating_add(spread_term(fine, self.s.sigma_factor)),
+        })
     }
 
     /// `true` if `p` is one of the levels the controller may choose.
@@ -1166,21 +1265,16 @@ impl<const W: usize> Controller<W> {
         if self.plan.n > 0 {
             let climbing = self.loss_run >= climb_after;
             let base = if !climbing && n >= self.s.min_readings {
-                let (level, mae) = prediction.unwrap_or((0, None));
-                Some(
-                    level
-                        .saturating_add(mae.map_or(0, |m| spread_term(m, self.s.sigma_factor)))
-                        .saturating_add(margin),
-                )
+                Some(self.est.map_or(0, |e| e.need).saturating_add(margin))
             } else {
                 None
             };
             let may_switch = flushed.is_none() && ignored.is_none();
-            let priced = match (base, prediction) {
-                (Some(_), Some((level, mae))) if may_switch && priced => self.plan.choose_priced(
+            let priced = match (base, self.est) {
+                (Some(_), Some(e)) if may_switch && priced => self.plan.choose_priced(
                     self.rate,
-                    level,
-                    mae.unwrap_or(0),
+                    e.level,
+                    e.mae.unwrap_or(0),
                     self.price,
                     self.s.bottom,
                     self.since_change,
@@ -1235,21 +1329,16 @@ impl<const W: usize> Controller<W> {
                 .level
                 .saturating_add(s.step_up)
                 .saturating_add(EPS_FINE);
-            (
-                self.walk_below(self.first_guess(limit, cur), limit),
-                Reason::Climb,
-            )
+            (self.level_at_or_below(limit, cur), Reason::Climb)
         } else if n < s.min_readings {
             self.mode = Mode::WarmUp;
             (cur, Reason::WarmUp)
         } else {
             self.mode = Mode::Track;
-            let (level, mae) = prediction.unwrap_or((0, None));
             let w = match plan {
                 Some((w, _)) => w,
                 None => required
-                    .saturating_add(level)
-                    .saturating_add(mae.map_or(0, |m| spread_term(m, s.sigma_factor)))
+                    .saturating_add(self.est.map_or(0, |e| e.need))
                     .saturating_add(margin),
             };
             wanted = Some(w);
@@ -1258,19 +1347,16 @@ impl<const W: usize> Controller<W> {
             let need_down = need.saturating_add(s.deadband);
             if jump {
                 // A new rate: straight to the power it needs.
-                (
-                    self.walk_above(self.first_guess(need, cur), need),
-                    Reason::Hold,
-                )
+                (self.level_at_or_above(need, cur), Reason::Hold)
             } else if self.level < need && cur < s.kmax {
-                let up = self.walk_above(self.first_guess(need, cur), need);
+                let up = self.level_at_or_above(need, cur);
                 if up > cur {
                     (up, Reason::Raise)
                 } else {
                     (cur, Reason::Hold)
                 }
             } else if self.below >= need_down {
-                let down = self.walk_above(self.first_guess(need_down, cur), need_down);
+                let down = self.level_at_or_above(need_down, cur);
                 if down < cur {
                     (down, Reason::Lower)
                 } else {
@@ -1322,20 +1408,20 @@ impl<const W: usize> Controller<W> {
             reason = i;
         }
 
+        let noise = if self.have_noise {
+            self.noise
+        } else {
+            NONE_FINE
+        };
         let (path_loss, mae) = match prediction {
-            Some((level, mae)) => (
-                if self.have_noise {
-                    Some(
-                        level
-                            .saturating_sub(self.noise)
-                            .saturating_add(self.s.gains),
-                    )
-                } else {
-                    None
-                },
+            Some((level, mae)) if self.have_noise => (
+                level
+                    .saturating_sub(self.noise)
+                    .saturating_add(self.s.gains),
                 mae,
             ),
-            None => (None, None),
+            Some((_, mae)) => (NONE_FINE, mae),
+            None => (NONE_FINE, None),
         };
         Decision {
             tx: Dbm(self.tx),
@@ -1343,14 +1429,10 @@ impl<const W: usize> Controller<W> {
             rate: self.rate(),
             held: self.held,
             readings: n,
-            wanted,
+            wanted: wanted.unwrap_or(NONE_FINE),
             path_loss,
             mae,
-            noise: if self.have_noise {
-                Some(self.noise)
-            } else {
-                None
-            },
+            noise,
             margin: plan.map_or(margin, |(_, above)| above),
         }
     }
@@ -1426,7 +1508,7 @@ impl<const W: usize> Controller<W> {
     /// Whether the received power of `r` at the level in use reaches the far
     /// end's saturation level (its report would be clipped).
     pub(crate) fn saturates_at_level(&self, r: &LoggedReading) -> bool {
-        r.rssi_less_tx.saturating_add(self.level) >= q_fine(self.s.rssi_saturation)
+        r.rssi_less_tx.saturating_add(self.level) >= self.s.rssi_saturation
     }
 
     /// A value in 1/8192 dB as dB.
@@ -1475,24 +1557,22 @@ impl<const W: usize> Controller<W> {
             Some(x) => Some(fine_of(x).ok_or(Reason::IgnoredNotFinite)?),
             None => None,
         };
-        if tx < q_fine(s.tx_lo) || tx > q_fine(s.tx_hi) {
+        if tx < s.tx_lo || tx > s.tx_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
+        if rssi < s.rssi_lo || rssi > s.rssi_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if noise < q_fine(s.noise_lo) || noise > q_fine(s.noise_hi) {
+        if noise < s.noise_lo || noise > s.noise_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi >= q_fine(s.rssi_saturation) {
+        if rssi >= s.rssi_saturation {
             return Err(Reason::IgnoredSaturated);
         }
         // All within ±300 dB (±2²² steps): no sum below can wrap.
         let snr = match snr {
             Some(x) => {
-                if x < q_fine(s.rssi_lo) - q_fine(s.noise_hi)
-                    || x > q_fine(s.rssi_hi) - q_fine(s.noise_lo)
-                {
+                if x < s.rssi_lo - s.noise_hi || x > s.rssi_hi - s.noise_lo {
                     return Err(Reason::IgnoredImplausible);
                 }
                 x
@@ -1512,16 +1592,16 @@ impl<const W: usize> Controller<W> {
         if beacon_tx < BEACON_TX_RANGE_FINE.0 || beacon_tx > BEACON_TX_RANGE_FINE.1 {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi < q_fine(s.rssi_lo) || rssi > q_fine(s.rssi_hi) {
+        if rssi < s.rssi_lo || rssi > s.rssi_hi {
             return Err(Reason::IgnoredImplausible);
         }
-        if rssi >= q_fine(s.rssi_saturation) {
+        if rssi >= s.rssi_saturation {
             return Err(Reason::IgnoredSaturated);
         }
         let noise = if self.have_noise {
             self.noise
         } else {
-            q_fine(s.default_noise)
+            s.default_noise
         };
         // SNR of our packet = tx − PL − noise + gains, PL − gains = beacon_tx − rssi.
         // All within ±300 dB: no wrap.
@@ -1556,14 +1636,46 @@ impl<const W: usize> Controller<W> {
         let down = self.level.saturating_sub(s.step_down);
         if t > up.saturating_add(EPS_FINE) {
             let limit = up.saturating_add(EPS_FINE);
-            (self.walk_below(self.first_guess(limit, cur), limit), true)
+            (self.level_at_or_below(limit, cur), true)
         } else if t < down.saturating_sub(EPS_FINE) {
             let need = down.saturating_sub(EPS_FINE);
-            (self.walk_above(self.first_guess(need, cur), need), true)
+            (self.level_at_or_above(need, cur), true)
         } else {
             (target, false)
         }
     }
+}
+
+/// `sum / n` in 1/8192 dB for a sum in 1/32 dB, truncated, saturating
+/// (`n` > 0; 0 for `n` = 0).
+fn mean_of_sum(sum: u32, n: u32) -> u32 {
+    if sum < 1 << (32 - FINE_BITS) {
+        // sum·2⁸ fits: one division.
+        (sum << FINE_BITS).checked_div(n).unwrap_or(0)
+    } else {
+        let q = sum.checked_div(n).unwrap_or(0);
+        let r = sum.checked_rem(n).unwrap_or(0);
+        q.saturating_mul(1 << FINE_BITS)
+            .saturating_add((r << FINE_BITS).checked_div(n).unwrap_or(0))
+    }
+}
+
+/// log2(`x`) when `x` is a positive power of two.
+fn pow2_shift(x: i32) -> Option<u8> {
+    if x > 0 && x.count_ones() == 1 {
+        u8::try_from(x.trailing_zeros()).ok()
+    } else {
+        None
+    }
+}
+
+/// A table level `u` in 1/`per_db` dB as 1/8192 dB, rounded half away from
+/// zero (|level| ≤ 300 dB: ≤ 30 000 units, times 8192 fits).
+fn table_fine(u: i16, per_db: u8) -> i32 {
+    let d = i32::from(per_db);
+    let x = i32::from(u) * (1 << FINE_PER_DB_BITS);
+    let half = if x >= 0 { d / 2 } else { -(d / 2) };
+    x.wrapping_add(half).checked_div(d).unwrap_or(0)
 }
 
 /// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
@@ -1584,13 +1696,35 @@ fn level_count_index(k: f32) -> u16 {
     }
 }
 
-/// `s / m`, rounded; `k = log2(m)` when `m` is a power of two.
-fn over_memory(s: u32, m: u32, k: Option<u8>) -> u32 {
-    let half = s.saturating_add(m >> 1);
-    match k {
-        Some(k) => half >> k,
-        None => half.checked_div(m).unwrap_or(0),
-    }
+/// A prediction error `e` (1/8192 dB) as its magnitude in 1/32 dB, rounded
+/// (|e| < 2²⁴: no wrap).
+#[inline(always)]
+fn abs_q(e: i32) -> u32 {
+    e.unsigned_abs().wrapping_add(1 << (FINE_BITS - 1)) >> FINE_BITS
+}
+
+/// The three sums of absolute errors less their share `part(s) ≤ s`.
+#[inline(always)]
+fn decayed(s: [u32; 3], part: impl Fn(u32) -> u32) -> [u32; 3] {
+    let [s0, s1, s2] = s;
+    // part(s) ≤ s: no wrap.
+    [
+        s0.wrapping_sub(part(s0)),
+        s1.wrapping_sub(part(s1)),
+        s2.wrapping_sub(part(s2)),
+    ]
+}
+
+/// `s / m`, rounded (`s + m/2` below 2³²: see `learn`).
+#[inline(always)]
+fn over_memory(s: u32, m: u32) -> u32 {
+    s.wrapping_add(m >> 1).checked_div(m).unwrap_or(0)
+}
+
+/// `s / m`, rounded, for `m = 2^k` (`s + m/2` below 2³²: see `learn`).
+#[inline(always)]
+fn over_memory_shift(s: u32, m: u16, k: u8) -> u32 {
+    s.wrapping_add(u32::from(m >> 1)) >> k
 }
 
 /// `k` with `Q(k) = p` for the standard normal upper tail, `p` in (0, 0.5].
@@ -1806,13 +1940,51 @@ mod tests {
             inv_step: f32::MAX,
             min_fine: to_fine(-9.0),
             step_fine: 1,
+            step_shift: None,
         };
-        assert_eq!(c.first_guess(to_fine(0.5), 0), c.s.kmax);
-        assert_eq!(c.first_guess(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_below(to_fine(0.5), 0), c.s.kmax);
+        assert_eq!(c.level_at_or_above(to_fine(0.5), 0), c.s.kmax);
+        assert_eq!(c.level_at_or_above(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_below(to_fine(-10.0), 5), 0);
+        assert_eq!(c.level_at_or_above(i32::MAX, 0), c.s.kmax);
+        assert_eq!(c.level_at_or_below(i32::MIN, 3), 0);
         assert_eq!(to_fine(f32::MAX), i32::MAX);
         assert_eq!(to_fine(f32::MIN), -i32::MAX);
         assert_eq!(fine_to_q(i32::MAX), i16::MAX);
         assert_eq!(fine_to_q(i32::MIN), i16::MIN);
+    }
+
+    /// The level lookups of a uniform grid (a division or a shift) against
+    /// a plain scan of the levels, on grids of several steps, at and around
+    /// every level and beyond both ends.
+    #[test]
+    fn uniform_level_lookups_match_a_scan() {
+        for step in [0.01f32, 0.1, 0.25, 0.5, 1.0, 2.0] {
+            let mut cfg = ControllerConfig::sub_ghz_node();
+            cfg.steps = PowerSteps::Uniform(Db(step));
+            let c = match Controller::<32>::new(cfg) {
+                Ok(c) => c,
+                Err(e) => panic!("step {step}: {e}"),
+            };
+            let kmax = c.s.kmax;
+            let above = |x: i32| (0..=kmax).find(|&k| c.fine_at(k) >= x).unwrap_or(kmax);
+            let below = |x: i32| (0..=kmax).rev().find(|&k| c.fine_at(k) <= x).unwrap_or(0);
+            let mut xs = vec![
+                i32::MIN,
+                i32::MAX,
+                c.fine_at(0) - 100_000,
+                c.fine_at(kmax) + 100_000,
+            ];
+            for k in 0..=kmax {
+                for d in [-2, -1, 0, 1, 2, 4095, 4096, 4097] {
+                    xs.push(c.fine_at(k) + d);
+                }
+            }
+            for x in xs {
+                assert_eq!(c.level_at_or_above(x, 0), above(x), "step {step}, {x}");
+                assert_eq!(c.level_at_or_below(x, kmax), below(x), "step {step}, {x}");
+            }
+        }
     }
 
     /// `fine_of` against an independent f64 computation (x·8192 is exact in

@@ -51,33 +51,30 @@ pub(crate) fn fine_of(x: f32) -> Option<i32> {
     if exp == 0xff {
         return None;
     }
-    let frac = bits & 0x007f_ffff;
-    // |x| = sig · 2^(e − 150), so |x|·2¹³ = sig · 2^(e − 137); a subnormal
-    // has e = 1 and no implicit bit.
-    let (sig, e) = if exp == 0 {
-        (frac, 1)
-    } else {
-        (frac | 0x0080_0000, exp)
-    };
-    let mag = if e >= 137 {
+    // |x| = sig · 2^(e − 150) for a normal number, so |x|·2¹³ =
+    // sig · 2^(e − 137). Below e = 113 (subnormals included) |x|·2¹³ is
+    // under ½ and rounds to 0.
+    let sig = (bits & 0x007f_ffff) | 0x0080_0000;
+    // `down − 1` for a right shift by `down` in 1..=24 (the common case:
+    // readings of a few to a few hundred dB).
+    let d1 = 136u32.wrapping_sub(exp);
+    let mag = if d1 <= 23 {
+        // (sig + 2^(down−1)) >> down, as ((sig >> (down−1)) + 1) >> 1.
+        ((sig >> d1) + 1) >> 1
+    } else if exp >= 137 {
         // sig < 2²⁴: up to 7 left shifts stay below 2³¹.
-        let up = e - 137;
+        let up = exp - 137;
         if up > 7 {
             i32::MAX as u32
         } else {
             sig << up
         }
     } else {
-        let down = 137 - e;
-        if down > 24 {
-            // Below 2^-1 fine steps: rounds to 0.
-            0
-        } else {
-            (sig + (1 << (down - 1))) >> down
-        }
+        0
     };
-    let mag = mag as i32;
-    Some(if bits >> 31 == 1 { -mag } else { mag })
+    // Negate when the sign bit is set: (mag ^ s) − s with s = 0 or −1.
+    let s = (bits as i32) >> 31;
+    Some((mag as i32 ^ s).wrapping_sub(s))
 }
 
 /// A dB value in 1/8192 dB, rounded half away from zero (NaN gives 0).
