@@ -21,7 +21,7 @@ use super::sweep::Grid;
 /// before the next ones are read (a few hundred kB per thread).
 const BATCH: usize = 4096;
 
-/// Distinct checks of a batch kept at once (each about 100 kB): beyond
+/// Distinct checks of a batch kept at once (each 4 096 × 20 bytes): beyond
 /// this many different plausibility settings in a group, a candidate checks
 /// its records itself.
 const SHARED_CHECKS: usize = 4;
