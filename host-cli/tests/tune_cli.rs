@@ -219,6 +219,41 @@ fn agrees_with_replay_log_by_log() {
     assert_eq!(out[0]["settings"], serde_json::json!({}));
 }
 
+/// Candidates that check records differently (a plausibility bound swept,
+/// more distinct bounds than tune shares checks for) each give `replay`'s
+/// totals with that bound, bit for bit.
+#[test]
+fn swept_plausibility_bounds_agree_with_replay() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let log = synthetic_log(dir.path(), "node.csv", 600, 0.0);
+    let log = log.to_str().expect("utf-8");
+    let bounds = ["-80", "-84", "-88", "-92", "-96", "-100"];
+    let sweep = format!("rssi_max_dbm={}", bounds.join(","));
+    let out = lines(&tune(&[log, "--sweep", &sweep, "--format", "jsonl"]));
+    assert_eq!(out.len(), bounds.len() + 1);
+    let mut ignored = Vec::new();
+    for (k, line) in out.iter().enumerate() {
+        let mut args = vec![log, "--format", "json"];
+        let set = k
+            .checked_sub(1)
+            .map(|b| format!("rssi_max_dbm={}", bounds[b]));
+        if let Some(s) = &set {
+            args.extend(["--set", s.as_str()]);
+        }
+        let want = json(&run("replay", &args))["logs"][0].clone();
+        for (key, v) in want.as_object().expect("object") {
+            if matches!(key.as_str(), "log" | "settings" | "warnings" | "rates") {
+                continue;
+            }
+            assert_eq!(&line[key], v, "candidate {k}, {key}: {line} vs {want}");
+        }
+        ignored.push(want["ignored_readings"].clone());
+    }
+    // The bounds do change what is judged.
+    ignored.dedup();
+    assert!(ignored.len() > 4, "{ignored:?}");
+}
+
 #[test]
 fn fleet_totals_are_sums_of_the_lines() {
     let dir = tempfile::tempdir().expect("tempdir");

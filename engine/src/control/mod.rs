@@ -37,5 +37,6 @@ pub use config::{
 pub use controller::{Controller, Decision, Mode, Observation};
 pub use reason::Reason;
 pub use replay::{
-    Fleet, LoggedTotals, Outcome, RateTotals, Replay, ReplayStep, Summary, REPLAY_WINDOW,
+    CheckedRecord, Fleet, LoggedTotals, Outcome, RateTotals, Replay, ReplayStep, Summary,
+    REPLAY_WINDOW,
 };

@@ -6,7 +6,7 @@
 //! it, so they agree bit for bit. [`Replay`] states the semantics.
 
 use super::config::{ConfigError, ControllerConfig};
-use super::controller::Controller;
+use super::controller::{Controller, LoggedReading};
 use super::reason::Reason;
 use crate::energy::{ChargeTable, EnergyProfile, Microcoulombs};
 use crate::rate::MAX_RATES;
@@ -384,21 +384,23 @@ impl Summary {
         }
         let p = s.chosen.0;
         // The power changes once in several records: reuse its mW otherwise
-        // (the same exp10f of the same value, so the sum is unchanged).
+        // (the same exp10f of the same value, so the sum is unchanged), and
+        // the highest power so far, which already holds it.
         let chosen_mw = match self.last_chosen {
             Some(last) if last == p => self.last_mw,
-            Some(_) => {
-                self.power_changes += 1;
-                mw(p)
+            last => {
+                if last.is_some() {
+                    self.power_changes += 1;
+                }
+                self.last_chosen = Some(p);
+                self.last_mw = mw(p);
+                self.max_tx_dbm_used = Some(match self.max_tx_dbm_used {
+                    Some(m) if m.0 >= p => m,
+                    _ => s.chosen,
+                });
+                self.last_mw
             }
-            None => mw(p),
         };
-        self.last_chosen = Some(p);
-        self.last_mw = chosen_mw;
-        self.max_tx_dbm_used = Some(match self.max_tx_dbm_used {
-            Some(m) if m.0 >= p => m,
-            _ => s.chosen,
-        });
         // Linear mW summed in f64: 10⁶ records of 25 mW lose nothing.
         self.tx_mw_sum += chosen_mw;
         self.max_mw_sum += self.max_mw;
@@ -595,6 +597,19 @@ impl Fleet {
     }
 }
 
+/// A record's logged readings as a replay checks them (item 5 of
+/// [`Replay`]'s semantics), from [`Replay::check`]: what the record says,
+/// apart from what the controller does with it. The check reads only
+/// settings that do not move, so it can run ahead of the replay (on
+/// another thread) or once for several replays that check alike
+/// ([`Replay::checks_like`]); [`Replay::step_checked`] takes it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct CheckedRecord {
+    /// `None`: a reading is missing; else the checked readings or why
+    /// they cannot be judged.
+    readings: Option<Result<LoggedReading, Reason>>,
+}
+
 /// A controller replaying a log, with its running [`Summary`].
 ///
 /// ## Semantics
@@ -737,6 +752,38 @@ impl<const W: usize> Replay<W> {
 
     /// Replay one record (see [`Replay`] for the semantics).
     pub fn step(&mut self, rec: &LogRecord) -> ReplayStep {
+        let checked = self.check(rec);
+        self.step_checked(rec, &checked)
+    }
+
+    /// Check the logged readings of `rec` (item 5 of the semantics): the
+    /// part of [`Replay::step`] that depends on the record and the settings
+    /// only, never on what the replay has seen.
+    pub fn check(&self, rec: &LogRecord) -> CheckedRecord {
+        CheckedRecord {
+            readings: match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
+                (Some(tx), Some(rssi), Some(noise)) => {
+                    Some(self.controller.check_logged(tx, rssi, noise))
+                }
+                _ => None,
+            },
+        }
+    }
+
+    /// Whether `other` checks records exactly as this replay does (the same
+    /// plausibility bounds and saturation level): a [`CheckedRecord`] of
+    /// either serves both.
+    pub fn checks_like(&self, other: &Self) -> bool {
+        self.controller.checks_like(&other.controller)
+    }
+
+    /// [`Replay::step`] with the record's check done already: `checked` is
+    /// `check(rec)` of this replay or of one that [`checks_like`] it (any
+    /// other gives the replay of other readings). `step(rec)` is
+    /// `step_checked(rec, &check(rec))`, bit for bit.
+    ///
+    /// [`checks_like`]: Replay::checks_like
+    pub fn step_checked(&mut self, rec: &LogRecord, checked: &CheckedRecord) -> ReplayStep {
         let logged_rate = self.logged_rate_of(rec);
         let c = &mut self.controller;
         let chosen = c.tx();
@@ -746,9 +793,9 @@ impl<const W: usize> Replay<W> {
         let at_max = c.at_top();
         let t_ms = rec.t_ms;
         let m = rate.unwrap_or(0);
-        let (outcome, snr, logged_lost, d) = match (rec.tx_dbm, rec.rssi_dbm, rec.noise_dbm) {
-            (Some(tx), Some(rssi), Some(noise)) => {
-                match (c.check_logged(tx, rssi, noise), logged_rate) {
+        let (outcome, snr, logged_lost, d) = match checked.readings {
+            Some(readings) => {
+                match (readings, logged_rate) {
                     (Err(why), _) | (Ok(_), Err(why)) => {
                         if held {
                             (Outcome::Held, None, None, c.held(t_ms))
@@ -931,6 +978,56 @@ mod tests {
             .saving_vs_logged_db()
             .is_some_and(|e| (e.0 + 4.0).abs() < 1e-4));
         assert_eq!(sum.power_changes, 0);
+    }
+
+    #[test]
+    fn a_shared_check_replays_as_the_replay_own() {
+        // Records of every kind: judged, lost, missing a reading, not
+        // finite, implausible, saturated.
+        let recs: [LogRecord; 8] = [
+            rec(0, 10.0, -105.0, -110.0),
+            rec(1, 10.0, -108.0, -110.0),
+            LogRecord {
+                t_ms: 2,
+                tx_dbm: Some(10.0),
+                rssi_dbm: None,
+                noise_dbm: Some(-110.0),
+                rate: None,
+            },
+            rec(3, 10.0, f32::NAN, -110.0),
+            rec(4, 25.1, -100.0, -110.0),
+            rec(5, 10.0, 0.0, -110.0),
+            rec(6, -9.0, -5.0, -110.0),
+            rec(7, 12.0, -96.5, -111.25),
+        ];
+        let mut moves = ControllerConfig::sub_ghz_node();
+        moves.margin_step_db = Db(1.5);
+        moves.max_step_down_db = Db(4.0);
+        let mut own = match Replay::<32>::new(moves) {
+            Ok(r) => r,
+            Err(e) => panic!("{e}"),
+        };
+        let mut shared = own;
+        let checker = replay();
+        assert!(checker.checks_like(&own));
+        for _ in 0..20 {
+            for r in &recs {
+                let a = own.step(r);
+                let b = shared.step_checked(r, &checker.check(r));
+                assert_eq!(a, b, "{r:?}");
+            }
+        }
+        assert_eq!(own.summary(), shared.summary());
+        // Other plausibility bounds check otherwise.
+        let mut narrow = ControllerConfig::sub_ghz_node();
+        narrow.rssi_max_dbm = Dbm(-100.0);
+        let other = match Replay::<32>::new(narrow) {
+            Ok(r) => r,
+            Err(e) => panic!("{e}"),
+        };
+        assert!(!other.checks_like(&own));
+        let loud = rec(8, -9.0, -5.0, -110.0);
+        assert_ne!(other.check(&loud), own.check(&loud));
     }
 
     #[test]

@@ -1,6 +1,9 @@
 //! Reading ahead: a log's records read and decoded on a thread of their
 //! own while the caller works on the ones before, so that a replay costs
 //! the larger of decoding and replaying a record rather than their sum.
+//! The reading thread may also do per-record work that does not depend on
+//! the caller's state (the replay's check of the logged readings), which
+//! takes it off the caller's path.
 
 use std::sync::mpsc::{self, Receiver, SyncSender};
 use std::thread::{self, JoinHandle};
@@ -16,26 +19,39 @@ const BATCH: usize = 1024;
 const IN_FLIGHT: usize = 2;
 
 /// A batch, last record first: the reader takes records with `pop`, which
-/// keeps the batch's memory for the next one.
-type Batch = Vec<CliResult<LogRecord>>;
+/// keeps the batch's memory for the next one. Each record comes with what
+/// the reading thread computed of it.
+type Batch<T> = Vec<CliResult<(LogRecord, T)>>;
 
-/// The records of a [`LogReader`] read on a thread of their own, in order;
+/// The records of a [`LogReader`] read on a thread of their own, in order,
+/// each with `T`, what the reading thread computed of it;
 /// [`ReadAhead::finish`] hands the reader back (its warnings, damage and
 /// counts) once the records are used up.
-pub struct ReadAhead {
-    batches: Receiver<Batch>,
+pub struct ReadAhead<T = ()> {
+    batches: Receiver<Batch<T>>,
     /// Emptied batches go back to the reading thread.
-    spent: SyncSender<Batch>,
-    current: Batch,
+    spent: SyncSender<Batch<T>>,
+    current: Batch<T>,
     thread: Option<JoinHandle<LogReader>>,
 }
 
-impl ReadAhead {
+impl ReadAhead<()> {
     /// Start reading `reader` ahead.
-    pub fn new(reader: LogReader) -> ReadAhead {
-        let (send, batches) = mpsc::sync_channel::<Batch>(IN_FLIGHT);
-        let (spent, recycled) = mpsc::sync_channel::<Batch>(IN_FLIGHT + 2);
-        let thread = thread::spawn(move || fill(reader, &send, &recycled));
+    pub fn new(reader: LogReader) -> ReadAhead<()> {
+        ReadAhead::with(reader, |_| ())
+    }
+}
+
+impl<T: Send + 'static> ReadAhead<T> {
+    /// Start reading `reader` ahead, the reading thread computing `each`
+    /// of every record.
+    pub fn with<F>(reader: LogReader, each: F) -> ReadAhead<T>
+    where
+        F: FnMut(&LogRecord) -> T + Send + 'static,
+    {
+        let (send, batches) = mpsc::sync_channel::<Batch<T>>(IN_FLIGHT);
+        let (spent, recycled) = mpsc::sync_channel::<Batch<T>>(IN_FLIGHT + 2);
+        let thread = thread::spawn(move || fill(reader, each, &send, &recycled));
         ReadAhead {
             batches,
             spent,
@@ -62,7 +78,12 @@ impl ReadAhead {
 
 /// The reading thread: batches of records until the log ends or no one
 /// takes them.
-fn fill(mut reader: LogReader, send: &SyncSender<Batch>, recycled: &Receiver<Batch>) -> LogReader {
+fn fill<T, F: FnMut(&LogRecord) -> T>(
+    mut reader: LogReader,
+    mut each: F,
+    send: &SyncSender<Batch<T>>,
+    recycled: &Receiver<Batch<T>>,
+) -> LogReader {
     loop {
         let mut batch = recycled
             .try_recv()
@@ -71,7 +92,10 @@ fn fill(mut reader: LogReader, send: &SyncSender<Batch>, recycled: &Receiver<Bat
         let mut ended = false;
         while batch.len() < BATCH {
             match reader.next() {
-                Some(item) => batch.push(item),
+                Some(item) => batch.push(item.map(|r| {
+                    let t = each(&r);
+                    (r, t)
+                })),
                 None => {
                     ended = true;
                     break;
@@ -89,8 +113,8 @@ fn fill(mut reader: LogReader, send: &SyncSender<Batch>, recycled: &Receiver<Bat
     reader
 }
 
-impl Iterator for ReadAhead {
-    type Item = CliResult<LogRecord>;
+impl<T> Iterator for ReadAhead<T> {
+    type Item = CliResult<(LogRecord, T)>;
 
     #[inline]
     fn next(&mut self) -> Option<Self::Item> {
@@ -131,7 +155,7 @@ mod tests {
             .collect();
         let mut ahead = ReadAhead::new(super::super::open(&path).expect("open"));
         let got: Vec<Result<u64, String>> = (&mut ahead)
-            .map(|r| r.map(|r| r.t_ms).map_err(|e| e.to_string()))
+            .map(|r| r.map(|(r, ())| r.t_ms).map_err(|e| e.to_string()))
             .collect();
         assert_eq!(got, direct);
         assert_eq!(got.len(), n);
