@@ -2,6 +2,7 @@
 
 use super::config::{ConfigError, ControllerConfig, PowerSteps, GRID_EPS, MAX_LEVELS, MAX_WINDOW};
 use super::fixed::*;
+use super::price;
 use super::rates::RatePlan;
 use super::reason::Reason;
 use crate::energy::{AirtimeWindow, ChargeTable};
@@ -340,6 +341,10 @@ struct Estimate {
     need: i32,
 }
 
+/// Memory of the averages behind the loss price's floor, as a right
+/// shift: 1/64, about 64 packets.
+const PAID_SHIFT: u32 = 6;
+
 /// Gain of the exponential filter of the far end's noise floor, as a right
 /// shift: 1/16, a memory of about sixteen readings.
 const NOISE_SHIFT: u32 = 4;
@@ -574,6 +579,12 @@ pub struct Controller<const W: usize> {
     price: i32,
     risky: bool,
     slack: bool,
+    /// The charge per packet (pC) and the delivered fraction (2⁻¹⁶),
+    /// averaged over about 64 packets whose fate is known: their ratio,
+    /// the charge per delivered packet, is the least a loss may be priced
+    /// at (a delivered packet is worth what one costs on average).
+    paid: u64,
+    got: u32,
 }
 
 impl<const W: usize> Controller<W> {
@@ -721,6 +732,8 @@ impl<const W: usize> Controller<W> {
             price: 0,
             risky: false,
             slack: false,
+            paid: 0,
+            got: 1 << 16,
         };
         c.s.bottom = c.fine_at(0);
         c.s.top = c.fine_at(kmax);
@@ -804,6 +817,22 @@ impl<const W: usize> Controller<W> {
         self.price = p;
     }
 
+    /// The least the loss price may be, `log2` pC in 2⁻²⁴ octave: the
+    /// recent charge per delivered packet (`paid / got`), within the loop's
+    /// bounds.
+    fn price_floor(&self) -> i32 {
+        let p = &self.plan.price;
+        if self.paid == 0 {
+            return p.min;
+        }
+        let l = price::log2_q12(self.paid)
+            .saturating_sub(price::log2_q12(u64::from(self.got.max(1))))
+            .saturating_add(16 << price::LOG_BITS);
+        l.saturating_mul(1 << (price::PRICE_BITS - price::LOG_BITS))
+            .max(p.min)
+            .min(p.max)
+    }
+
     /// What the controller is doing now.
     pub fn mode(&self) -> Mode {
         self.mode
@@ -832,6 +861,8 @@ impl<const W: usize> Controller<W> {
         self.price = self.plan.price.start;
         self.risky = false;
         self.slack = false;
+        self.paid = 0;
+        self.got = 1 << 16;
         self.loss_run = 0;
         self.mode = Mode::WarmUp;
         self.clamped_high = false;
@@ -1174,6 +1205,24 @@ impl<const W: usize> Controller<W> {
         };
         let mut flushed: Option<Reason> = None;
         let priced = self.plan.n > 1;
+        let tracking = self.mode == Mode::Track;
+        if let (true, true, Some(d), Some(c)) =
+            (priced, tracking, outcome, self.plan.charge.as_ref())
+        {
+            // The packet whose fate this is went at the level and rate in
+            // use: its charge, and the averages of the price's floor (while
+            // tracking only: a dead link, climbing, must not make a
+            // delivered packet look priceless).
+            let pc = c.charge_pc(self.level, self.plan.airtime(self.rate));
+            self.paid = if self.paid == 0 {
+                pc
+            } else {
+                // Never above the larger of the two: no overflow.
+                (self.paid - (self.paid >> PAID_SHIFT)).saturating_add(pc >> PAID_SHIFT)
+            };
+            let g = if d { 1u32 << 16 } else { 0 };
+            self.got = (self.got - (self.got >> PAID_SHIFT)).saturating_add(g >> PAID_SHIFT);
+        }
         match outcome {
             Some(false) if priced => {
                 // Every loss counts, even one at the most robust rate and
@@ -1183,6 +1232,7 @@ impl<const W: usize> Controller<W> {
                     let p = &self.plan.price;
                     self.price = self.price.saturating_add(p.up).min(p.max);
                 }
+                self.price = self.price.max(self.price_floor());
                 // A loss the plan expected says nothing about the estimate.
                 if !self.risky {
                     self.loss_run = self.loss_run.saturating_add(1);
@@ -1193,6 +1243,7 @@ impl<const W: usize> Controller<W> {
                     let p = &self.plan.price;
                     self.price = self.price.saturating_sub(p.down).max(p.min);
                 }
+                self.price = self.price.max(self.price_floor());
                 if self.loss_run >= climb_after {
                     flushed = Some(Reason::Recovered);
                 }
