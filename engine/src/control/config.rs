@@ -427,8 +427,10 @@ pub struct ControllerConfig {
     /// Regional duty-cycle limit: the most airtime in any one-hour window,
     /// as a fraction of the hour (no built-in default).
     pub duty_limit: DutyLimit,
-    /// A cheaper rate replaces the one in use only when its expected charge
-    /// per delivered packet is lower by more than this fraction.
+    /// A cheaper rate replaces the one in use only when its priced cost
+    /// (the charge the choice moves, the fixed per-packet charge left out,
+    /// plus the price of its expected loss) is lower by more than this
+    /// fraction.
     pub rate_hysteresis: f32,
     /// Packets that must pass after a rate change before the cost alone may
     /// change the rate again (a rate the link can no longer carry, or the

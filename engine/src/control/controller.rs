@@ -498,23 +498,37 @@ pub(crate) struct LoggedReading {
 /// ## Rates
 /// With a rate table ([`ControllerConfig::rates`]) and an energy profile
 /// ([`Controller::with_charge`]) the controller also chooses the rate of the
-/// next packet ([`Decision::rate`]): the rate whose power for the target
-/// (the requirement above at that rate's required SNR and noise bandwidth)
-/// costs the least charge, within the power limits, with a hysteresis and
-/// a dwell, and within the duty-cycle budget (`duty_limit`: the next packet
-/// is held, [`Decision::held`], when no rate fits). One estimate serves all
+/// next packet ([`Decision::rate`]), and the target loss is then met *on
+/// average*, not packet by packet: each packet gets the rate and power that
+/// minimise `charge + μ·q`, its charge plus a price `μ` times its chance of
+/// loss `q` (a Laplace model of the estimate's error, scale = the mean
+/// absolute error; see the `price` module). The outer loop moves `log2 μ`
+/// as the margin above moves (up after a loss, down by `p/(1−p)` of that
+/// after a delivery, while tracking), and `μ` never falls below the recent
+/// charge per delivered packet (a delivered packet is worth what one
+/// costs). Where delivering is cheap the price buys a low loss; where it is
+/// dear (a deep fade that only the slowest rate at full power would cross)
+/// the packet may be given up: sent as cheaply as `outage_ceiling` allows,
+/// with [`Reason::PricedOut`]. The rate moves one step of robustness per
+/// decision (the rate in use against its neighbours in the table ordered by
+/// required SNR plus noise change), with a hysteresis on the charge the
+/// choice moves and a dwell, and within the duty-cycle budget (`duty_limit`:
+/// when the rate in use does not fit, every rate is priced; the next packet
+/// is held, [`Decision::held`], when none fits). One estimate serves all
 /// rates: readings are kept at rate 0's noise bandwidth. With no table, or
 /// one rate, the decisions are the power-only ones, bit for bit.
 ///
 /// ## Cost
-/// All state is in this fixed-size struct (no allocation, 784 bytes for
+/// All state is in this fixed-size struct (no allocation, 952 bytes for
 /// `W = 32`, of which the power controller is 296 and the rest the rate
-/// table, the energy profile and the duty budget's slots): the settings are
-/// kept only in the form the update uses. The rate choice is one pass over
-/// the table per update, integers only.
-/// One [`Controller::update`] per packet, O(1) in `W`, with no logarithm,
-/// exponential, square root or division by a variable once the window is
-/// full (when `W` and `spread_memory` are powers of two). The prediction
+/// table, the energy profile, the loss price and the duty budget's slots):
+/// the settings are kept only in the form the update uses. The priced rate
+/// choice prices at most three rates per update (all of them when the duty
+/// budget rules the rate in use out), in integers: logarithms and powers of
+/// two from tables, one 32-bit division per update.
+/// Without rates, one [`Controller::update`] per packet is O(1) in `W`,
+/// with no logarithm, exponential, square root or division by a variable
+/// once the window is full (when `W` and `spread_memory` are powers of two). The prediction
 /// (the chosen predictor, its spread and `ẑ + k·σ`) is made once per
 /// reading and only read by the decisions; on a uniform grid a new level is
 /// found in O(1) (one division, a shift for a power-of-two step such as

@@ -339,8 +339,8 @@ impl Layer {
     /// readings are believable (the values of
     /// [`ControllerConfig::sub_ghz_node`]), a radio settable from −9 to
     /// +22 dBm in 1 dB steps, antennas of 0 dBi (unknown: isotropic), no
-    /// rate table (the power only), a rate hysteresis of 0.1 and a dwell of
-    /// 8 packets. No required SNR, no EIRP cap, no start power, no duty
+    /// rate table (the power only), a rate hysteresis of 0.05, a dwell of 2
+    /// packets and no outage ceiling (1). No required SNR, no EIRP cap, no start power, no duty
     /// limit, no logged rate (see the module's doc).
     pub const fn defaults() -> Self {
         let mut values = ControllerConfig::sub_ghz_node();
