@@ -56,6 +56,11 @@ pub(crate) struct RatePlan {
     pub(crate) seg_hi: u8,
     pub(crate) bottom: i32,
     pub(crate) top: i32,
+    /// The transmit current at `bottom` (µA) and the fixed charge of a
+    /// packet (receive window, wake-up; pC): a packet's cheapest charge at
+    /// each rate without a search of the table.
+    pub(crate) bottom_ua: u32,
+    pub(crate) fixed_pc: u64,
     /// The rates from the most robust (lowest offset) to the least, and
     /// each rate's place in that order.
     pub(crate) by_offset: [u8; MAX_RATES],
@@ -135,6 +140,8 @@ impl RatePlan {
             seg_hi: 0,
             bottom: 0,
             top: 0,
+            bottom_ua: 0,
+            fixed_pc: 0,
             by_offset: [0; MAX_RATES],
             rank: [0; MAX_RATES],
         }
@@ -187,6 +194,8 @@ impl RatePlan {
             seg_hi: 0,
             bottom: 0,
             top: 0,
+            bottom_ua: 0,
+            fixed_pc: 0,
             by_offset: [0; MAX_RATES],
             rank: [0; MAX_RATES],
         };
@@ -238,6 +247,8 @@ impl RatePlan {
         p.bottom = bottom;
         p.top = top;
         if let Some(c) = &p.charge {
+            p.bottom_ua = c.current_ua(bottom);
+            p.fixed_pc = c.charge_pc(bottom, 0);
             let mut lo: Option<u8> = None;
             for j in 0..c.points() {
                 let Some((_, hi, slope)) = c.segment(j) else {
@@ -588,7 +599,11 @@ impl RatePlan {
         let cur_fits = self.fits(cur, window);
         let r = Self::at(&self.rank, cur);
         let mut list = [cur; MAX_RATES];
-        let count = if cur_fits {
+        let count = if cur_fits && since_change < self.dwell {
+            // Within the dwell only the budget may move the rate, and the
+            // rate in use fits it: its own price is all the choice needs.
+            1
+        } else if cur_fits {
             let mut k = 1;
             for nr in [r.wrapping_sub(1), r.saturating_add(1)] {
                 if nr < self.n {
@@ -626,7 +641,9 @@ impl RatePlan {
                 a,
             );
             let first = usize::from(self.seg_lo);
-            let floor = c.charge_in(first, bottom, self.airtime(m));
+            let floor = u64::from(self.bottom_ua)
+                .saturating_mul(u64::from(self.airtime(m)))
+                .saturating_add(self.fixed_pc);
             let pick = if g < a && ja > floor.saturating_add(half_price) {
                 let mut k = first;
                 while k < j && c.segment(k).is_some_and(|(_, hi, _)| g > hi) {
@@ -659,7 +676,7 @@ impl RatePlan {
                 // a wake-up or a GPS fix per packet, paid at every rate,
                 // must not hide a saving. Charges below 2⁴⁷ pC (140 C): the
                 // products cannot saturate.
-                let fixed = c.charge_pc(bottom, 0).min(bj).min(cur_pick.0);
+                let fixed = self.fixed_pc.min(bj).min(cur_pick.0);
                 let cheaper = (bj - fixed).saturating_mul(1 << KEEP_BITS)
                     < (cur_pick.0 - fixed).saturating_mul(u64::from(self.keep));
                 if !cur_fits {
