@@ -399,7 +399,7 @@ fn pct(x: f64) -> String {
 /// price moves by a factor of 2 to 4 within a few hundred packets (the
 /// sawtooth of the outer loop at a high loss rate), and the packets sent
 /// while it is high buy slower rates that a constant price, which the
-/// hindsight margin amounts to, would not: about 6 % more charge per
+/// hindsight margin amounts to, would not: about 7 % more charge per
 /// delivered packet. Kept exact: a row that starts winning fails the test
 /// until it is removed from this list.
 const KNOWN_SHORTFALLS: [(Scenario, f32); 1] = [(Scenario::Fading, 0.10)];

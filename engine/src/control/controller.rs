@@ -510,8 +510,8 @@ pub(crate) struct LoggedReading {
 /// dear (a deep fade that only the slowest rate at full power would cross)
 /// the packet may be given up: sent as cheaply as `outage_ceiling` allows,
 /// with [`Reason::PricedOut`]. The rate moves one step of robustness per
-/// decision (the rate in use against its neighbours in the table ordered by
-/// required SNR plus noise change), with a hysteresis on the charge the
+/// decision (the rate in use against one of its neighbours in the table
+/// ordered by required SNR plus noise change, each in turn), with a hysteresis on the charge the
 /// choice moves and a dwell, and within the duty-cycle budget (`duty_limit`:
 /// when the rate in use does not fit, every rate is priced; the next packet
 /// is held, [`Decision::held`], when none fits). One estimate serves all
@@ -523,7 +523,7 @@ pub(crate) struct LoggedReading {
 /// `W = 32`, of which the power controller is 296 and the rest the rate
 /// table, the energy profile, the loss price and the duty budget's slots):
 /// the settings are kept only in the form the update uses. The priced rate
-/// choice prices at most three rates per update (all of them when the duty
+/// choice prices at most two rates per update (all of them when the duty
 /// budget rules the rate in use out), in integers: logarithms and powers of
 /// two from tables, one 32-bit division per update.
 /// Without rates, one [`Controller::update`] per packet is O(1) in `W`,

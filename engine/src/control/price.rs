@@ -187,7 +187,9 @@ impl LossModel {
         if t <= 0 {
             return 0;
         }
-        let x = (t.saturating_mul(self.scale)) >> LOG_BITS;
+        // t below 2³¹ (a balance beyond half a million octaves is no
+        // different) and scale below 2³²: the product fits.
+        let x = (t.min(1 << 31) * self.scale) >> LOG_BITS;
         i32::try_from(x).unwrap_or(i32::MAX)
     }
 
@@ -195,7 +197,8 @@ impl LossModel {
     /// `log2(1/(2q))` (2⁻¹² octave, negative for `q > ½`: see
     /// [`ceiling_log`]).
     pub(crate) fn x_at(&self, ceiling_log: i32) -> i32 {
-        let x = (i64::from(ceiling_log).saturating_mul(self.scale)) >> LOG_BITS;
+        // |ceiling_log| < 2³¹ and scale < 2³²: the product fits.
+        let x = (i64::from(ceiling_log) * self.scale) >> LOG_BITS;
         i32::try_from(x).unwrap_or(if x < 0 { i32::MIN } else { i32::MAX })
     }
 }

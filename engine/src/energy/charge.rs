@@ -189,8 +189,9 @@ impl ChargeTable {
         let c = u64::try_from(c.max(0))
             .unwrap_or(0)
             .min(u64::from(u32::MAX));
-        c.saturating_mul(u64::from(airtime_us))
-            .saturating_add(self.fixed_pc)
+        // Both factors below 2³²: the product fits (a saturating multiply
+        // of two u64 is a 128-bit check on a 32-bit core).
+        (c * u64::from(airtime_us)).saturating_add(self.fixed_pc)
     }
 
     /// The profile's own airtime (a packet without a rate table), µs.
@@ -207,9 +208,8 @@ impl ChargeTable {
     /// Charge of one packet at level `x` (1/8192 dBm) and `airtime_us`, pC.
     #[inline]
     pub fn charge_pc(&self, x: i32, airtime_us: u32) -> u64 {
-        u64::from(self.current_ua(x))
-            .saturating_mul(u64::from(airtime_us))
-            .saturating_add(self.fixed_pc)
+        // Both factors below 2³²: the product fits.
+        (u64::from(self.current_ua(x)) * u64::from(airtime_us)).saturating_add(self.fixed_pc)
     }
 }
 
