@@ -831,6 +831,41 @@ impl<const W: usize> Controller<W> {
         self.price = p;
     }
 
+    /// The loss price's outer loop, on the fate of the packet in flight
+    /// (several rates only; out of line, so that the power-only update
+    /// pays one branch for it).
+    #[inline(never)]
+    fn price_outcome(&mut self, delivered: bool) {
+        let tracking = self.mode == Mode::Track;
+        if let (true, Some(c)) = (tracking, self.plan.charge.as_ref()) {
+            // The packet whose fate this is went at the level and rate in
+            // use: its charge, and the averages of the price's floor (while
+            // tracking only: a dead link, climbing, must not make a
+            // delivered packet look priceless).
+            let pc = c.charge_pc(self.level, self.plan.airtime(self.rate));
+            self.paid = if self.paid == 0 {
+                pc
+            } else {
+                // Never above the larger of the two: no overflow.
+                (self.paid - (self.paid >> PAID_SHIFT)).saturating_add(pc >> PAID_SHIFT)
+            };
+            let g = if delivered { 1u32 << 16 } else { 0 };
+            self.got = (self.got - (self.got >> PAID_SHIFT)).saturating_add(g >> PAID_SHIFT);
+        }
+        let p = &self.plan.price;
+        if delivered {
+            if self.mode != Mode::WarmUp && !self.slack {
+                self.price = self.price.saturating_sub(p.down).max(p.min);
+            }
+        } else if tracking {
+            // Every loss counts, even one at the most robust rate and the
+            // highest power: the target is an average, so a loss that
+            // cannot be cured here is made up where it is cheap.
+            self.price = self.price.saturating_add(p.up).min(p.max);
+        }
+        self.price = self.price.max(self.price_floor());
+    }
+
     /// The least the loss price may be, `log2` pC in 2⁻²⁴ octave: the
     /// recent charge per delivered packet (`paid / got`), within the loop's
     /// bounds.
@@ -1219,52 +1254,14 @@ impl<const W: usize> Controller<W> {
         };
         let mut flushed: Option<Reason> = None;
         let priced = self.plan.n > 1;
-        let tracking = self.mode == Mode::Track;
-        if let (true, true, Some(d), Some(c)) =
-            (priced, tracking, outcome, self.plan.charge.as_ref())
-        {
-            // The packet whose fate this is went at the level and rate in
-            // use: its charge, and the averages of the price's floor (while
-            // tracking only: a dead link, climbing, must not make a
-            // delivered packet look priceless).
-            let pc = c.charge_pc(self.level, self.plan.airtime(self.rate));
-            self.paid = if self.paid == 0 {
-                pc
-            } else {
-                // Never above the larger of the two: no overflow.
-                (self.paid - (self.paid >> PAID_SHIFT)).saturating_add(pc >> PAID_SHIFT)
-            };
-            let g = if d { 1u32 << 16 } else { 0 };
-            self.got = (self.got - (self.got >> PAID_SHIFT)).saturating_add(g >> PAID_SHIFT);
+        if priced {
+            if let Some(d) = outcome {
+                self.price_outcome(d);
+            }
         }
         match outcome {
-            Some(false) if priced => {
-                // Every loss counts, even one at the most robust rate and
-                // the highest power: the target is an average, so a loss
-                // that cannot be cured here is made up where it is cheap.
-                if self.mode == Mode::Track {
-                    let p = &self.plan.price;
-                    self.price = self.price.saturating_add(p.up).min(p.max);
-                }
-                self.price = self.price.max(self.price_floor());
-                // A loss the plan expected says nothing about the estimate.
-                if !self.risky {
-                    self.loss_run = self.loss_run.saturating_add(1);
-                }
-            }
-            Some(true) if priced => {
-                if self.mode != Mode::WarmUp && !self.slack {
-                    let p = &self.plan.price;
-                    self.price = self.price.saturating_sub(p.down).max(p.min);
-                }
-                self.price = self.price.max(self.price_floor());
-                if self.loss_run >= climb_after {
-                    flushed = Some(Reason::Recovered);
-                }
-                self.loss_run = 0;
-            }
             Some(false) => {
-                if self.mode != Mode::WarmUp && !self.clamped_high {
+                if !priced && self.mode != Mode::WarmUp && !self.clamped_high {
                     // The margin is within its bounds (±300 dB, below 2⁴⁹
                     // steps) and a rise at most 20 dB: no overflow, and
                     // only the upper bound can be crossed.
@@ -1272,10 +1269,14 @@ impl<const W: usize> Controller<W> {
                     let hi = margin_steps(self.s.margin_max);
                     self.margin = (self.margin + up).min(hi);
                 }
-                self.loss_run = self.loss_run.saturating_add(1);
+                // A loss the plan expected (a packet priced out) says
+                // nothing about the estimate: no climb.
+                if !(priced && self.risky) {
+                    self.loss_run = self.loss_run.saturating_add(1);
+                }
             }
             Some(true) => {
-                if self.mode != Mode::WarmUp && !self.clamped_low {
+                if !priced && self.mode != Mode::WarmUp && !self.clamped_low {
                     // As above: a fall of less than one margin step per
                     // delivery can cross only the lower bound.
                     let lo = margin_steps(self.s.margin_min);
