@@ -133,7 +133,10 @@ fn resolve(h: Option<&LogHeader>) -> Result<ControllerConfig, Failure> {
 }
 
 #[inline(never)]
-fn build(config: &ControllerConfig, slot: &mut Option<Replay<REPLAY_WINDOW>>) -> Result<(), Failure> {
+fn build(
+    config: &ControllerConfig,
+    slot: &mut Option<Replay<REPLAY_WINDOW>>,
+) -> Result<(), Failure> {
     let refused = |e| Failure::Config(settings::ResolveError::Invalid(e));
     // A log with several rates: the rate is chosen by the charge of the
     // engine's invented demo node, as `cargo xtask firmware` replays it.
