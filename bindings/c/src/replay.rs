@@ -2,11 +2,11 @@
 //! `control::Replay`: the semantics of `headroom replay`, record by record),
 //! and its running totals.
 
-use headroom::control::{Reason, Summary};
+use headroom::control::{ControllerConfig, Reason, Summary};
 
 use crate::codec::{headroom_log_header, headroom_log_record, log_record};
 use crate::settings::{headroom_settings, resolved};
-use crate::state::{call, fits, input, output, required_output, slot, slot_ref, Block};
+use crate::state::{call, fits, input, output, required_output, slot, slot_ref, Block, Slot};
 use crate::{headroom_status, WindowReplay};
 
 /// Bytes of a `headroom_replay`.
@@ -162,8 +162,33 @@ pub unsafe extern "C" fn headroom_replay_init(
     let Some(slot) = (unsafe { slot(r) }) else {
         return headroom_status::HEADROOM_ERR_NULL;
     };
+    // The settings and the replay are built in frames of their own (not
+    // inlined here): together in one frame they passed the stack a
+    // Cortex-M0 with 16 KiB of RAM leaves beside the C demo's statics.
     // SAFETY: guaranteed by the caller.
-    let replay = unsafe { resolved(s, header) }.and_then(|res| Ok(WindowReplay::new(res.config)?));
+    match unsafe { resolved_config(s, header) } {
+        Ok(config) => build_replay(slot, &config),
+        Err(e) => slot.set::<headroom_replay>(Err(e)),
+    }
+}
+
+/// The settings in force for a replay (see [`headroom_replay_init`]).
+///
+/// # Safety
+/// As for [`headroom_replay_init`].
+#[inline(never)]
+unsafe fn resolved_config(
+    s: *const headroom_settings,
+    header: *const headroom_log_header,
+) -> Result<ControllerConfig, headroom_status> {
+    // SAFETY: guaranteed by the caller.
+    Ok(unsafe { resolved(s, header) }?.config)
+}
+
+/// Build the replay of `config` into `slot`.
+#[inline(never)]
+fn build_replay(slot: &mut Slot<WindowReplay>, config: &ControllerConfig) -> headroom_status {
+    let replay = WindowReplay::new(*config).map_err(headroom_status::from);
     slot.set::<headroom_replay>(replay)
 }
 
