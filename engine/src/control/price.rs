@@ -15,7 +15,11 @@
 //! adaptive margin moves in the power-only controller: up by a ratio after
 //! each loss, down by that ratio to the power `p/(1−p)` after each delivery,
 //! so that `μ` can stay bounded only if losses are a fraction `p` of the
-//! packets. Where holding the link is cheap the price buys a low `q`; where
+//! packets; it never falls below the recent charge per delivered packet
+//! (the minimum of a ratio, charge over deliveries, prices a delivery at
+//! least at the ratio itself: Dinkelbach's method), so where losses are
+//! dear in themselves (a fix paid for every packet) fewer are taken than
+//! the target allows. Where holding the link is cheap the price buys a low `q`; where
 //! it is dear (a deep shadow that needs the slowest rate) it accepts a high
 //! one, which is what a fixed margin tuned with hindsight over a whole log
 //! does, but chosen packet by packet from the estimate.
