@@ -398,9 +398,9 @@ fn pct(x: f64) -> String {
 /// table). In the correlated-fading scenario at a 10 % target the power
 /// choice at the fastest rate alone is on a par with the hindsight rule,
 /// but the 5 % of packets sent at slower rates after deep fades do not pay
-/// for themselves (the loss model's spread is the mean over 512 readings,
-/// not the correlated channel's state): about 7 % more charge per
-/// delivered packet. Kept exact: a row that starts winning fails the test
+/// for themselves (neither an averaged price nor a spread from the recent
+/// errors changed that, measured): about 7 % more charge per delivered
+/// packet. Kept exact: a row that starts winning fails the test
 /// until it is removed from this list.
 const KNOWN_SHORTFALLS: [(Scenario, f32); 1] = [(Scenario::Fading, 0.10)];
 
