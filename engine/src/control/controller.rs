@@ -1330,14 +1330,11 @@ impl<const W: usize> Controller<W> {
         let (mut risky, mut slack) = (false, false);
         if self.plan.n > 0 {
             let climbing = self.loss_run >= climb_after;
-            let base = if !climbing && n >= self.s.min_readings {
-                Some(self.est.map_or(0, |e| e.need).saturating_add(margin))
-            } else {
-                None
-            };
+            // The estimate drives the power (not warming up, not climbing).
+            let drives = !climbing && n >= self.s.min_readings;
             let may_switch = flushed.is_none() && ignored.is_none();
-            let priced = match (base, self.est) {
-                (Some(_), Some(e)) if may_switch && priced => self.plan.choose_priced(
+            let planned = match self.est {
+                Some(e) if drives && may_switch && priced => self.plan.choose_priced(
                     self.rate,
                     e.level,
                     e.mae.unwrap_or(0),
@@ -1348,21 +1345,13 @@ impl<const W: usize> Controller<W> {
                 ),
                 _ => None,
             };
-            let mut choice = match priced {
+            let mut choice = match planned {
                 Some(p) => {
                     plan = Some((p.wanted, p.above));
                     (risky, slack) = (p.risky, p.slack);
                     p.choice
                 }
-                None => self.plan.choose(
-                    self.rate,
-                    base,
-                    self.s.bottom,
-                    self.s.top,
-                    self.since_change,
-                    self.duty.as_ref(),
-                    may_switch,
-                ),
+                None => self.plan.choose(self.rate, self.duty.as_ref(), may_switch),
             };
             // Losses at the highest power: one rate more robust (the loss
             // at this rate says the same of the shared estimate at all).
@@ -1381,7 +1370,7 @@ impl<const W: usize> Controller<W> {
             if choice.rate != self.rate {
                 self.set_rate(choice.rate);
                 self.since_change = 0;
-                jump = base.is_some();
+                jump = drives;
             }
             rate_reason = choice.reason;
         }

@@ -180,24 +180,12 @@ impl RatePlan {
         }
         let mut p = RatePlan {
             n: u8::try_from(t.len()).unwrap_or(0),
-            norm: [0; MAX_RATES],
-            offset: [0; MAX_RATES],
-            airtime_us: [0; MAX_RATES],
             charge,
-            keep: 0,
             dwell: cfg.rate_dwell,
-            log_air: [0; MAX_RATES],
-            price: PriceLoop::default(),
             ceiling: price::ceiling_log(cfg.outage_ceiling),
-            log_slope: [i32::MIN; TX_POINTS],
-            seg_lo: 0,
-            seg_hi: 0,
-            bottom: 0,
-            top: 0,
-            bottom_ua: 0,
-            fixed_pc: 0,
-            by_offset: [0; MAX_RATES],
-            rank: [0; MAX_RATES],
+            bottom,
+            top,
+            ..Self::empty()
         };
 
         for (i, r) in t.as_slice().iter().enumerate() {
@@ -244,8 +232,6 @@ impl RatePlan {
                 *r = u8::try_from(k).unwrap_or(0);
             }
         }
-        p.bottom = bottom;
-        p.top = top;
         if let Some(c) = &p.charge {
             p.bottom_ua = c.current_ua(bottom);
             p.fixed_pc = c.charge_pc(bottom, 0);
@@ -321,34 +307,18 @@ impl RatePlan {
         }
     }
 
-    /// The choice for the next packet.
-    #[allow(clippy::too_many_arguments)]
-    ///
-    /// `base` is the shared estimate's requirement less the required SNR
-    /// (`ẑ + k·σ + margin`, at rate 0's bandwidth), `None` while the
-    /// estimate does not drive the power (warming up, climbing); `may_switch`
-    /// is false on an update whose reading was ignored or whose history was
-    /// flushed (the rate then stays, and the packet is held if it does not
-    /// fit the budget: its reason stays the one that names the reading).
-    ///
-    /// With an estimate: each rate `m` needs `base + offset_m`; it is
-    /// feasible when that is at or below `top`, and costs
-    /// `I_tx(max(need, bottom)) · airtime_m + fixed` (charge per packet; the
-    /// expected delivery of every feasible pair is the same `1 − p`, held by
-    /// the power, so the charge per delivered packet orders them alike). The
-    /// cheapest feasible rate that fits the budget replaces the rate in use
-    /// when that one is infeasible or does not fit (at once), or after
-    /// `dwell` packets when it saves more than the hysteresis. With no
-    /// feasible rate that fits, the rate with the most headroom that fits.
-    /// Without an estimate, only the budget moves the rate: the most robust
-    /// rate that fits. No rate fits: held.
+    /// The choice for the next packet when it is not priced (see
+    /// [`Self::choose_priced`]): while the estimate does not drive the power
+    /// (warming up, climbing), with one rate, or when no rate fits the duty
+    /// budget. Only the budget moves the rate here: the rate in use while it
+    /// fits, else the most robust rate that fits (`duty_limited`), else the
+    /// packet is held. `may_switch` is false on an update whose reading was
+    /// ignored or whose history was flushed: the rate then stays, and the
+    /// packet is held if it does not fit (its reason stays the one that
+    /// names the reading).
     pub(crate) fn choose(
         &self,
         cur: u8,
-        base: Option<i32>,
-        bottom: i32,
-        top: i32,
-        since_change: u16,
         window: Option<&AirtimeWindow>,
         may_switch: bool,
     ) -> Choice {
@@ -357,105 +327,32 @@ impl RatePlan {
             reason: None,
             held: false,
         };
-        let cur_fits = self.fits(cur, window);
-        if !may_switch || self.n <= 1 {
-            return Choice {
-                held: !cur_fits,
-                reason: if cur_fits {
-                    None
-                } else {
-                    Some(Reason::DutyHeld)
-                },
-                ..stay
-            };
-        }
-        let Some(base) = base else {
-            if cur_fits {
-                return stay;
-            }
-            // The most robust rate that fits (lowest offset).
-            let mut pick: Option<(u8, i32)> = None;
-            for m in 0..self.n {
-                let o = self.offset(m);
-                if self.fits(m, window) && pick.is_none_or(|(_, po)| o < po) {
-                    pick = Some((m, o));
-                }
-            }
-            return match pick {
-                Some((m, _)) => Choice {
-                    rate: m,
-                    reason: Some(Reason::DutyLimited),
-                    held: false,
-                },
-                None => Choice {
-                    held: true,
-                    reason: Some(Reason::DutyHeld),
-                    ..stay
-                },
-            };
+        let held = Choice {
+            held: true,
+            reason: Some(Reason::DutyHeld),
+            ..stay
         };
-        let Some(charge) = &self.charge else {
+        if self.fits(cur, window) {
             return stay;
-        };
-        let limit = top.saturating_add(EPS);
-        let mut best: Option<(u8, u64)> = None;
-        let mut robust: Option<(u8, i32)> = None;
-        let mut cur_cost = u64::MAX;
-        let mut cur_feasible = false;
+        }
+        if !may_switch || self.n <= 1 {
+            return held;
+        }
+        // The most robust rate that fits (lowest offset).
+        let mut pick: Option<(u8, i32)> = None;
         for m in 0..self.n {
-            let need = base.saturating_add(self.offset(m));
-            let fits = self.fits(m, window);
-            if fits && robust.is_none_or(|(_, rn)| need < rn) {
-                robust = Some((m, need));
-            }
-            if need > limit {
-                continue;
-            }
-            let level = if need < bottom { bottom } else { need };
-            let cost = charge.charge_pc(level, self.airtime(m));
-            if m == cur {
-                cur_cost = cost;
-                cur_feasible = true;
-            }
-            if fits && best.is_none_or(|(_, bc)| cost < bc) {
-                best = Some((m, cost));
+            let o = self.offset(m);
+            if self.fits(m, window) && pick.is_none_or(|(_, po)| o < po) {
+                pick = Some((m, o));
             }
         }
-        let forced = !cur_feasible || !cur_fits;
-        let why = |to: u8| {
-            if !cur_fits {
-                Reason::DutyLimited
-            } else {
-                self.direction(cur, to)
-            }
-        };
-        match (best, robust) {
-            (Some((b, _)), _) if b == cur => stay,
-            (Some((b, cost)), _) => {
-                // Charges below 2⁴⁷ pC (140 C): the products cannot saturate.
-                let cheaper = cost.saturating_mul(1 << KEEP_BITS)
-                    < cur_cost.saturating_mul(u64::from(self.keep));
-                if forced || (since_change >= self.dwell && cheaper) {
-                    Choice {
-                        rate: b,
-                        reason: Some(why(b)),
-                        held: false,
-                    }
-                } else {
-                    stay
-                }
-            }
-            (None, Some((r, _))) if r == cur => stay,
-            (None, Some((r, _))) => Choice {
-                rate: r,
-                reason: Some(why(r)),
+        match pick {
+            Some((m, _)) => Choice {
+                rate: m,
+                reason: Some(Reason::DutyLimited),
                 held: false,
             },
-            (None, None) => Choice {
-                held: true,
-                reason: Some(Reason::DutyHeld),
-                ..stay
-            },
+            None => held,
         }
     }
 
@@ -676,8 +573,8 @@ impl RatePlan {
         }
         // No rate fits the budget: the unpriced choice holds the packet.
         let (bm, bp) = best?;
-        let (rate, reason, held) = match (bm, bp.0) {
-            (b, _) if b == cur => (cur, None, false),
+        let (rate, reason) = match (bm, bp.0) {
+            (b, _) if b == cur => (cur, None),
             (b, bj) => {
                 // The hysteresis is on the part of the cost the choice moves:
                 // a wake-up or a GPS fix per packet, paid at every rate,
@@ -687,18 +584,22 @@ impl RatePlan {
                 let cheaper = (bj - fixed).saturating_mul(1 << KEEP_BITS)
                     < (cur_pick.0 - fixed).saturating_mul(u64::from(self.keep));
                 if !cur_fits {
-                    (b, Some(Reason::DutyLimited), false)
+                    (b, Some(Reason::DutyLimited))
                 } else if since_change >= self.dwell && cheaper {
-                    (b, Some(self.direction(cur, b)), false)
+                    (b, Some(self.direction(cur, b)))
                 } else {
-                    (cur, None, false)
+                    (cur, None)
                 }
             }
         };
         let (_, p, want) = if rate == bm { bp } else { cur_pick };
         let base = zhat.saturating_add(self.offset(rate));
         Some(Priced {
-            choice: Choice { rate, reason, held },
+            choice: Choice {
+                rate,
+                reason,
+                held: false,
+            },
             wanted: want,
             above: p.saturating_sub(base),
             // Given up: the cheap candidate, below the requirement (a power
