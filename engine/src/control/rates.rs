@@ -460,6 +460,49 @@ impl RatePlan {
         (p, want, j)
     }
 
+    /// The priced rate at a given `level` (1/8192 dBm): during the warm-up
+    /// the power stays where it starts, but the readings so far already
+    /// say which rate that power closes the link at most cheaply. For every
+    /// rate that fits the duty budget (and keeps the chance of loss within
+    /// the outage ceiling) `charge + μ·q` at `level`, with the prediction
+    /// `zhat` and spread `b` (see [`super::price`]); the cheapest. `None`
+    /// without an energy profile or when no rate qualifies.
+    pub(crate) fn choose_at(
+        &self,
+        cur: u8,
+        level: i32,
+        zhat: i32,
+        b: u32,
+        price_log: i32,
+        window: Option<&AirtimeWindow>,
+    ) -> Option<Choice> {
+        let c = self.charge.as_ref()?;
+        let model = LossModel::new(price_log, b);
+        let floor_x = self.ceiling.map(|q| model.x_at(q));
+        let mut best: Option<(u8, u64)> = None;
+        for m in 0..self.n {
+            if !self.fits(m, window) {
+                continue;
+            }
+            let x = level.saturating_sub(zhat.saturating_add(self.offset(m)));
+            if floor_x.is_some_and(|f| x < f) {
+                continue;
+            }
+            let j = c
+                .charge_pc(level, self.airtime(m))
+                .saturating_add(model.risk(x));
+            if best.is_none_or(|(_, bj)| j < bj) {
+                best = Some((m, j));
+            }
+        }
+        let (rate, _) = best?;
+        Some(Choice {
+            rate,
+            reason: (rate != cur).then(|| self.direction(cur, rate)),
+            held: false,
+        })
+    }
+
     /// The priced choice for the next packet (several rates, an estimate
     /// that drives the power): for the rate in use and a neighbour in
     /// robustness, the more robust and the faster in turn (every rate that
@@ -479,6 +522,7 @@ impl RatePlan {
         price_log: i32,
         bottom: i32,
         since_change: u16,
+        fresh: bool,
         window: Option<&AirtimeWindow>,
     ) -> Option<Priced> {
         let c = self.charge.as_ref()?;
@@ -497,11 +541,16 @@ impl RatePlan {
         let cur_fits = self.fits(cur, window);
         let r = Self::at(&self.rank, cur);
         let mut list = [cur; MAX_RATES];
-        let count = if cur_fits && since_change < self.dwell {
+        let count = if fresh || !cur_fits {
+            for (k, slot) in list.iter_mut().enumerate().take(usize::from(self.n)) {
+                *slot = u8::try_from(k).unwrap_or(0);
+            }
+            usize::from(self.n)
+        } else if since_change < self.dwell {
             // Within the dwell only the budget may move the rate, and the
             // rate in use fits it: its own price is all the choice needs.
             1
-        } else if cur_fits {
+        } else {
             // One neighbour a packet, the more robust one and the faster
             // one in turn (by the parity of the packets since the last
             // change); the other on the next packet.
@@ -518,11 +567,6 @@ impl RatePlan {
             } else {
                 1
             }
-        } else {
-            for (k, slot) in list.iter_mut().enumerate().take(usize::from(self.n)) {
-                *slot = u8::try_from(k).unwrap_or(0);
-            }
-            usize::from(self.n)
         };
         // (cost J, power, power wanted before clamping) of the rate in use
         // and of the best.
@@ -585,7 +629,7 @@ impl RatePlan {
                     < (cur_pick.0 - fixed).saturating_mul(u64::from(self.keep));
                 if !cur_fits {
                     (b, Some(Reason::DutyLimited))
-                } else if since_change >= self.dwell && cheaper {
+                } else if fresh || (since_change >= self.dwell && cheaper) {
                     (b, Some(self.direction(cur, b)))
                 } else {
                     (cur, None)
