@@ -909,7 +909,8 @@ impl<const W: usize> Controller<W> {
     /// forgotten: the airtime already spent stays spent.
     pub fn reset(&mut self) {
         self.held = false;
-        self.since_change = 0;
+        // No change to settle from: the first reading may move the rate.
+        self.since_change = self.plan.dwell;
         let mut start = 0u8;
         for m in 1..self.plan.n {
             if self.plan.offset(m) < self.plan.offset(start) {
@@ -1367,6 +1368,7 @@ impl<const W: usize> Controller<W> {
                     e.level,
                     e.mae.unwrap_or(0).max(RAYLEIGH_MAD_FINE),
                     self.price,
+                    self.since_change,
                     self.duty.as_ref(),
                 ),
                 _ => None,

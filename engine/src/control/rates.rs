@@ -460,13 +460,48 @@ impl RatePlan {
         (p, want, j)
     }
 
+    /// Whether the cheapest rate `best` (its cost `J`) replaces the rate in
+    /// use `cur` (its cost `cur_j`): at once when `cur` does not fit the
+    /// duty budget, else when `may_move` (past the dwell) and it saves more
+    /// than the hysteresis.
+    fn settle(
+        &self,
+        cur: u8,
+        cur_j: u64,
+        best: (u8, u64),
+        cur_fits: bool,
+        may_move: bool,
+    ) -> (u8, Option<Reason>) {
+        let (b, bj) = best;
+        if b == cur {
+            return (cur, None);
+        }
+        // The hysteresis is on the part of the cost the choice moves: a
+        // wake-up or a GPS fix per packet, paid at every rate, must not
+        // hide a saving. Charges below 2⁴⁷ pC (140 C): the products cannot
+        // saturate.
+        let fixed = self.fixed_pc.min(bj).min(cur_j);
+        let cheaper = (bj - fixed).saturating_mul(1 << KEEP_BITS)
+            < (cur_j - fixed).saturating_mul(u64::from(self.keep));
+        if !cur_fits {
+            (b, Some(Reason::DutyLimited))
+        } else if may_move && cheaper {
+            (b, Some(self.direction(cur, b)))
+        } else {
+            (cur, None)
+        }
+    }
+
     /// The priced rate at a given `level` (1/8192 dBm): during the warm-up
     /// the power stays where it starts, but the readings so far already
     /// say which rate that power closes the link at most cheaply. For every
     /// rate that fits the duty budget (and keeps the chance of loss within
     /// the outage ceiling) `charge + μ·q` at `level`, with the prediction
-    /// `zhat` and spread `b` (see [`super::price`]); the cheapest. `None`
-    /// without an energy profile or when no rate qualifies.
+    /// `zhat` and spread `b` (see [`super::price`]); the cheapest replaces
+    /// the rate in use as in the tracking choice (the dwell and the
+    /// hysteresis). `None` without an energy profile or when no rate
+    /// qualifies.
+    #[allow(clippy::too_many_arguments)]
     pub(crate) fn choose_at(
         &self,
         cur: u8,
@@ -474,12 +509,14 @@ impl RatePlan {
         zhat: i32,
         b: u32,
         price_log: i32,
+        since_change: u16,
         window: Option<&AirtimeWindow>,
     ) -> Option<Choice> {
         let c = self.charge.as_ref()?;
         let model = LossModel::new(price_log, b);
         let floor_x = self.ceiling.map(|q| model.x_at(q));
         let mut best: Option<(u8, u64)> = None;
+        let mut cur_j = u64::MAX;
         for m in 0..self.n {
             if !self.fits(m, window) {
                 continue;
@@ -491,14 +528,23 @@ impl RatePlan {
             let j = c
                 .charge_pc(level, self.airtime(m))
                 .saturating_add(model.risk(x));
+            if m == cur {
+                cur_j = j;
+            }
             if best.is_none_or(|(_, bj)| j < bj) {
                 best = Some((m, j));
             }
         }
-        let (rate, _) = best?;
+        let (rate, reason) = self.settle(
+            cur,
+            cur_j,
+            best?,
+            self.fits(cur, window),
+            since_change >= self.dwell,
+        );
         Some(Choice {
             rate,
-            reason: (rate != cur).then(|| self.direction(cur, rate)),
+            reason,
             held: false,
         })
     }
@@ -617,25 +663,13 @@ impl RatePlan {
         }
         // No rate fits the budget: the unpriced choice holds the packet.
         let (bm, bp) = best?;
-        let (rate, reason) = match (bm, bp.0) {
-            (b, _) if b == cur => (cur, None),
-            (b, bj) => {
-                // The hysteresis is on the part of the cost the choice moves:
-                // a wake-up or a GPS fix per packet, paid at every rate,
-                // must not hide a saving. Charges below 2⁴⁷ pC (140 C): the
-                // products cannot saturate.
-                let fixed = self.fixed_pc.min(bj).min(cur_pick.0);
-                let cheaper = (bj - fixed).saturating_mul(1 << KEEP_BITS)
-                    < (cur_pick.0 - fixed).saturating_mul(u64::from(self.keep));
-                if !cur_fits {
-                    (b, Some(Reason::DutyLimited))
-                } else if fresh || (since_change >= self.dwell && cheaper) {
-                    (b, Some(self.direction(cur, b)))
-                } else {
-                    (cur, None)
-                }
-            }
-        };
+        let (rate, reason) = self.settle(
+            cur,
+            cur_pick.0,
+            (bm, bp.0),
+            cur_fits,
+            fresh || since_change >= self.dwell,
+        );
         let (_, p, want) = if rate == bm { bp } else { cur_pick };
         let base = zhat.saturating_add(self.offset(rate));
         Some(Priced {
