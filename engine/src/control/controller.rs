@@ -1366,7 +1366,7 @@ impl<const W: usize> Controller<W> {
                     self.rate,
                     self.level,
                     e.level,
-                    e.mae.unwrap_or(0).max(RAYLEIGH_MAD_FINE),
+                    warm_spread(e.mae.unwrap_or(0), n),
                     self.price,
                     self.since_change,
                     self.duty.as_ref(),
@@ -1804,6 +1804,18 @@ fn table_fine(u: i16, per_db: u8) -> i32 {
 
 /// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
 /// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
+/// The spread the warm-up's rate choice assumes after `n` readings
+/// (1/8192 dB): the mean absolute error so far, at least
+/// [`RAYLEIGH_MAD_FINE`], widened by `(2n + 1)/(2n)` for the error of the
+/// level itself (a new reading's error about the mean of `n` has the
+/// spread `√(1 + 1/n)` times a reading's; `1 + 1/(2n)` is its first-order
+/// value, above it).
+fn warm_spread(mae: u32, n: u16) -> u32 {
+    let b = u64::from(mae.max(RAYLEIGH_MAD_FINE));
+    let n = u64::from(n.max(1));
+    u32::try_from(b * (2 * n + 1) / (2 * n)).unwrap_or(u32::MAX)
+}
+
 fn spread_term(mae: u32, factor: u32) -> i32 {
     let x = (u64::from(mae) * u64::from(factor)) >> SIGMA_FACTOR_BITS;
     i32::try_from(x).unwrap_or(i32::MAX)

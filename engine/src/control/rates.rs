@@ -494,9 +494,9 @@ impl RatePlan {
 
     /// The priced rate at a given `level` (1/8192 dBm): during the warm-up
     /// the power stays where it starts, but the readings so far already
-    /// say which rate that power closes the link at most cheaply. For every
-    /// rate that fits the duty budget (and keeps the chance of loss within
-    /// the outage ceiling) `charge + μ·q` at `level`, with the prediction
+    /// say which rate that power closes the link at most cheaply. For the
+    /// rate in use and every faster rate that fits the duty budget (and
+    /// keeps the chance of loss within the outage ceiling) `charge + μ·q` at `level`, with the prediction
     /// `zhat` and spread `b` (see [`super::price`]); the cheapest replaces
     /// the rate in use as in the tracking choice (the dwell and the
     /// hysteresis). `None` without an energy profile or when no rate
@@ -517,8 +517,13 @@ impl RatePlan {
         let floor_x = self.ceiling.map(|q| model.x_at(q));
         let mut best: Option<(u8, u64)> = None;
         let mut cur_j = u64::MAX;
+        let air = self.airtime(cur);
         for m in 0..self.n {
-            if !self.fits(m, window) {
+            // Only the rate in use and faster ones: a few readings cannot
+            // tell a slower rate's need from their own noise (the warm-up
+            // starts at the most robust rate; the tracking choice takes
+            // over when it ends).
+            if !self.fits(m, window) || (m != cur && self.airtime(m) >= air) {
                 continue;
             }
             let x = level.saturating_sub(zhat.saturating_add(self.offset(m)));
@@ -773,6 +778,85 @@ mod tests {
         }
         assert_ne!(d.reason, Reason::PricedOut, "{d:?}");
         assert!(d.rate.unwrap() >= 2, "{d:?}");
+    }
+
+    /// The demo node at the default hysteresis and dwell.
+    fn ctl_defaults() -> Controller<32> {
+        let cfg = ControllerConfig {
+            rates: demo_rates().unwrap(),
+            required_snr_db: Db(-7.5),
+            ..ControllerConfig::sub_ghz_node()
+        };
+        let charge = ChargeTable::from_profile(&demo_profile().unwrap()).unwrap();
+        Controller::with_charge(cfg, Some(charge)).unwrap()
+    }
+
+    /// While warming up the power stays at the start and the rate is priced
+    /// there: a strong first reading moves a fresh controller off the most
+    /// robust rate at once, to the fastest.
+    #[test]
+    fn the_warm_up_prices_the_rate_at_the_start_power() {
+        let mut c = ctl_defaults();
+        assert_eq!(c.rate(), Some(4), "starts at the most robust rate");
+        let start = c.tx();
+        // 17 dB of SNR at the start power: sf7 needs −7.5 dB.
+        let d = c.update(&heard(0, 14.0, -100.0));
+        assert_eq!(d.rate, Some(0), "{d:?}");
+        assert_eq!(d.reason, Reason::RateFaster, "{d:?}");
+        assert_eq!(d.tx, start, "{d:?}");
+        assert_eq!(c.mode(), super::super::Mode::WarmUp);
+    }
+
+    /// Over a sweep of link levels with readings jittering by ±2 dB, the
+    /// warm-up's rate never returns to a rate it has just left (the dwell
+    /// and the hysteresis apply to it as to the tracking choice).
+    #[test]
+    fn the_warm_up_does_not_flap() {
+        for level in 0..60 {
+            let rssi = -135.0 + level as f32 * 0.5;
+            let mut c = ctl_defaults();
+            let mut seen = [c.rate().unwrap()].to_vec();
+            for i in 0..8u64 {
+                let j = if i % 2 == 0 { 2.0 } else { -2.0 };
+                let d = c.update(&heard(i * 60_000, 14.0, rssi + j));
+                if c.mode() != super::super::Mode::WarmUp {
+                    break;
+                }
+                let r = d.rate.unwrap();
+                if Some(&r) != seen.last() {
+                    assert!(!seen.contains(&r), "{rssi} dBm: {seen:?} then {r}");
+                    seen.push(r);
+                }
+            }
+        }
+    }
+
+    /// A link lost for good at the fastest rate: the power climbs, the rate
+    /// stays until the run of losses is four times the one that starts the
+    /// climb, then moves one rate more robust a packet down to the slowest.
+    #[test]
+    fn a_long_loss_run_finds_the_most_robust_rate() {
+        let mut c = ctl_defaults();
+        let mut t = 0u64;
+        for i in 0..200u64 {
+            let j = if i % 2 == 0 { 1.0 } else { -1.0 };
+            c.update(&heard(t, 14.0, -105.0 + j));
+            t += 60_000;
+        }
+        assert_eq!(c.rate(), Some(0));
+        let climb = ControllerConfig::sub_ghz_node().climb_after_losses;
+        let mut first_change = None;
+        for n in 1..=(4 * u64::from(climb) + 8) {
+            t += 60_000;
+            let d = c.update(&Observation::Lost { t_ms: t });
+            if d.rate != Some(0) && first_change.is_none() {
+                first_change = Some(n);
+                assert_eq!(d.reason, Reason::RateSlower, "{d:?}");
+                assert_eq!(d.tx, c.limits().1, "at the highest power: {d:?}");
+            }
+        }
+        assert_eq!(first_change, Some(4 * u64::from(climb)));
+        assert_eq!(c.rate(), Some(4), "the most robust rate");
     }
 
     #[test]
