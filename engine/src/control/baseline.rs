@@ -324,6 +324,91 @@ impl Rule for CommonPracticeRate {
     }
 }
 
+/// Lowest fixed margin the hindsight search tries, dB.
+pub const HINDSIGHT_MIN_MARGIN_DB: f32 = -20.0;
+/// Highest fixed margin the hindsight search tries, dB.
+pub const HINDSIGHT_MAX_MARGIN_DB: f32 = 60.0;
+/// Resolution of the hindsight search's boundary, dB.
+pub const HINDSIGHT_RESOLUTION_DB: f32 = 0.01;
+/// Step of the hindsight search above the boundary, dB.
+pub const HINDSIGHT_STEP_DB: f32 = 0.5;
+/// Steps above the boundary without a cheaper margin that end the search.
+pub const HINDSIGHT_PATIENCE: u8 = 4;
+
+/// One replay of a log by [`FixedMarginRate`] at one margin, as the
+/// hindsight search needs it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MarginRun {
+    /// Fraction of the packets lost (NaN when none was judged).
+    pub loss: f64,
+    /// Charge per delivered packet, any unit (NaN when none was delivered).
+    pub charge_per_delivered: f64,
+}
+
+/// The hindsight search of one rate: the fixed margin within
+/// [`HINDSIGHT_MIN_MARGIN_DB`, `HINDSIGHT_MAX_MARGIN_DB`] whose loss over
+/// the whole log is at most `target` for the least charge per delivered
+/// packet. `run(margin)` is the caller's replay of the log through
+/// [`FixedMarginRate`] at that margin (the engine holds no log); its error
+/// ends the search. `Ok(None)` when even the highest margin misses the
+/// target. Both the host's `replay --baselines` and the tests use it.
+///
+/// First the smallest margin that meets the target, to
+/// [`HINDSIGHT_RESOLUTION_DB`], by bisection (a larger margin never sends
+/// at less power, so the loss does not grow with it). That is the cheapest
+/// when the charge is mostly the transmitter's; when a large part is paid
+/// per packet (a GPS fix), a higher margin that delivers more can cost less
+/// per delivered packet, so the search then steps up by
+/// [`HINDSIGHT_STEP_DB`] while a cheaper margin turns up within
+/// [`HINDSIGHT_PATIENCE`] steps.
+pub fn hindsight_margin<E>(
+    target: f64,
+    mut run: impl FnMut(f32) -> Result<MarginRun, E>,
+) -> Result<Option<(f32, MarginRun)>, E> {
+    let (mut lo, mut hi) = (HINDSIGHT_MIN_MARGIN_DB, HINDSIGHT_MAX_MARGIN_DB);
+    // NaN (nothing judged) never meets the target.
+    let meets = |r: &MarginRun| r.loss <= target;
+    let mut at_hi = run(hi)?;
+    if !meets(&at_hi) {
+        return Ok(None);
+    }
+    let at_lo = run(lo)?;
+    if meets(&at_lo) {
+        hi = lo;
+        at_hi = at_lo;
+    } else {
+        // At most 13 halvings of the 80 dB range to 0.01 dB.
+        while hi - lo > HINDSIGHT_RESOLUTION_DB {
+            let mid = 0.5 * (lo + hi);
+            let r = run(mid)?;
+            if meets(&r) {
+                (hi, at_hi) = (mid, r);
+            } else {
+                lo = mid;
+            }
+        }
+    }
+    let mut best = (hi, at_hi);
+    let mut misses = 0u8;
+    let mut k = 1u16;
+    while misses < HINDSIGHT_PATIENCE {
+        let m = hi + f32::from(k) * HINDSIGHT_STEP_DB;
+        if m > HINDSIGHT_MAX_MARGIN_DB {
+            break;
+        }
+        k += 1;
+        let r = run(m)?;
+        // NaN compares false: never cheaper.
+        if meets(&r) && r.charge_per_delivered < best.1.charge_per_delivered {
+            best = (m, r);
+            misses = 0;
+        } else {
+            misses += 1;
+        }
+    }
+    Ok(Some(best))
+}
+
 /// One rate, a filtered loss to noise and a fixed margin (see the module).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FixedMarginRate {
@@ -368,5 +453,58 @@ impl Rule for FixedMarginRate {
         if let Some(f) = self.filtered {
             self.tx = level_at_or_above(&self.cfg, self.judge.offset(self.rate) + f + self.margin);
         }
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::unwrap_used)]
+mod tests {
+    use super::*;
+
+    fn run(loss: f64, cost: f64) -> Result<MarginRun, ()> {
+        Ok(MarginRun {
+            loss,
+            charge_per_delivered: cost,
+        })
+    }
+
+    #[test]
+    fn the_hindsight_search_finds_the_smallest_margin_that_meets_the_target() {
+        // Loss falls linearly from 50 % at 0 dB to 0 at 20 dB: 10 % at 16
+        // dB; the charge per delivered packet rises with the margin.
+        let f = |m: f32| {
+            run(
+                f64::from((0.5 - m / 40.0).clamp(0.0, 1.0)),
+                f64::from(m) + 100.0,
+            )
+        };
+        let (m, r) = hindsight_margin(0.1, f).unwrap().unwrap();
+        assert!((m - 16.0).abs() <= HINDSIGHT_RESOLUTION_DB, "{m}");
+        assert!(r.loss <= 0.1);
+        // Never met: none; always met: the lowest margin.
+        assert_eq!(hindsight_margin(0.1, |_| run(0.2, 1.0)), Ok(None));
+        let (m, _) = hindsight_margin(0.1, |m| run(0.0, f64::from(m) + 100.0))
+            .unwrap()
+            .unwrap();
+        assert_eq!(m, HINDSIGHT_MIN_MARGIN_DB);
+        // Nothing judged (NaN) never meets it; an error ends the search.
+        assert_eq!(hindsight_margin(0.1, |_| run(f64::NAN, 1.0)), Ok(None));
+        assert_eq!(hindsight_margin(0.1, |_| Err::<MarginRun, u8>(7)), Err(7));
+    }
+
+    /// A charge per delivered packet that falls above the boundary (a large
+    /// per-packet charge: more deliveries cost less each) down to 20 dB:
+    /// the search steps up to it.
+    #[test]
+    fn the_hindsight_search_steps_up_to_a_cheaper_margin() {
+        let f = |m: f32| {
+            run(
+                f64::from((0.5 - m / 40.0).clamp(0.0, 1.0)),
+                f64::from((m - 20.0).abs()) + 100.0,
+            )
+        };
+        let (m, r) = hindsight_margin(0.1, f).unwrap().unwrap();
+        assert!((m - 20.0).abs() <= HINDSIGHT_STEP_DB, "{m}");
+        assert!(r.charge_per_delivered < 101.0, "{r:?}");
     }
 }

@@ -14,8 +14,9 @@
 //! - `common-practice`: `baseline::CommonPracticeRate`;
 //! - `hindsight`: `baseline::FixedMarginRate` at the rate and fixed margin
 //!   that, knowing the whole log, deliver at the target for the least charge
-//!   per delivered packet (margins searched from 0 to
-//!   [`HINDSIGHT_MAX_MARGIN_DB`] in steps of [`HINDSIGHT_STEP_DB`]).
+//!   per delivered packet (per rate by the engine's
+//!   `baseline::hindsight_margin`, the search the tests use; then the
+//!   cheapest rate).
 
 use headroom::control::baseline::{self, CommonPracticeRate, FixedMarginRate, Judge, Rule};
 use headroom::control::{ControllerConfig, Outcome};
@@ -28,11 +29,6 @@ use serde_json::{Map, Value};
 use super::HostReplay;
 use crate::error::{CliError, CliResult};
 use crate::output::json_num;
-
-/// Largest fixed margin the hindsight search tries, dB.
-pub const HINDSIGHT_MAX_MARGIN_DB: f32 = 30.0;
-/// Step of the hindsight search, dB.
-pub const HINDSIGHT_STEP_DB: f32 = 0.5;
 
 /// What one rule did over a log.
 #[derive(Debug, Clone)]
@@ -249,32 +245,42 @@ pub fn compare(
     let target = f64::from(cfg.target_outage);
     let mut best: Option<Row> = None;
     for m in 0..u8::try_from(cfg.rates.len()).unwrap_or(0) {
-        let mut k = 0u16;
-        loop {
-            let margin = f32::from(k) * HINDSIGHT_STEP_DB;
-            if margin > HINDSIGHT_MAX_MARGIN_DB {
-                break;
-            }
-            k += 1;
+        let name = cfg.rates.get(m).map_or("?", |r| r.name.as_str());
+        let run = |margin: f32| -> CliResult<Row> {
             let mut rule = FixedMarginRate::new(cfg, m, margin);
-            let name = cfg.rates.get(m).map_or("?", |r| r.name.as_str());
-            let mut books = Books::new(format!("hindsight: {name}, margin {margin} dB"))?;
+            // The lowest margin tried may be above the one that would do.
+            let at = if margin <= baseline::HINDSIGHT_MIN_MARGIN_DB {
+                "≤ "
+            } else {
+                ""
+            };
+            let mut books = Books::new(format!("hindsight: {name}, margin {at}{margin:.2} dB"))?;
             for rec in records {
                 step_rule(&mut rule, &mut books, cfg, p, rec)?;
             }
-            let row = books.row;
-            let meets = row.loss().is_some_and(|l| l <= target);
-            let cost = row.tally.charge_per_delivered().map(|q| q.0);
-            if meets {
-                let better = match (&best, cost) {
-                    (None, Some(_)) => true,
-                    (Some(b), Some(c)) => b.tally.charge_per_delivered().is_none_or(|q| c < q.0),
-                    _ => false,
-                };
-                if better {
-                    best = Some(row);
-                }
-            }
+            Ok(books.row)
+        };
+        let measure = |margin: f32| {
+            run(margin).map(|r| baseline::MarginRun {
+                loss: r.loss().unwrap_or(f64::NAN),
+                charge_per_delivered: r
+                    .tally
+                    .charge_per_delivered()
+                    .map_or(f64::NAN, |q| f64::from(q.0)),
+            })
+        };
+        let Some((margin, _)) = baseline::hindsight_margin(target, measure)? else {
+            continue;
+        };
+        let row = run(margin)?;
+        let cost = row.tally.charge_per_delivered().map(|q| q.0);
+        let better = match (&best, cost) {
+            (None, Some(_)) => true,
+            (Some(b), Some(c)) => b.tally.charge_per_delivered().is_none_or(|q| c < q.0),
+            _ => false,
+        };
+        if better {
+            best = Some(row);
         }
     }
     rows.push(best.unwrap_or(Row::new(
