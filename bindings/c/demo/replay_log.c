@@ -26,6 +26,15 @@ static int push(replay_job *job, size_t n, replay_write_fn write, void *ctx, rep
     return 0;
 }
 
+/* Start the replay over `header` (NULL: none), with the job's energy
+ * profile when it has one. */
+static headroom_status start(replay_job *job, const headroom_log_header *header) {
+    if (job->energy != NULL) {
+        return headroom_replay_init_energy(&job->replay, &job->settings, header, job->energy);
+    }
+    return headroom_replay_init(&job->replay, &job->settings, header);
+}
+
 /* One event of the decoder: start, step, write. */
 static int handle(replay_job *job, const headroom_event *ev, replay_write_fn write, void *ctx,
                   replay_report *rep) {
@@ -40,12 +49,12 @@ static int handle(replay_job *job, const headroom_event *ev, replay_write_fn wri
             rep->other_frames++;
             return 0;
         }
-        st = headroom_replay_init(&job->replay, &job->settings, &ev->header);
+        st = start(job, &ev->header);
         break;
     case HEADROOM_EVENT_RECORD:
         st = HEADROOM_OK;
         if (!job->started) {
-            st = headroom_replay_init(&job->replay, &job->settings, NULL);
+            st = start(job, NULL);
         }
         break;
     case HEADROOM_EVENT_DAMAGED:
@@ -94,6 +103,9 @@ int replay_log(replay_job *job, replay_read_fn read, void *read_ctx, replay_writ
     job->out_len = 0;
     job->started = 0;
     st = headroom_settings_init(&job->settings);
+    if (st == HEADROOM_OK && job->rate_count > 0) {
+        st = headroom_settings_set_rates(&job->settings, job->rates, job->rate_count);
+    }
     if (st == HEADROOM_OK) {
         st = headroom_decoder_init(&job->decoder);
     }

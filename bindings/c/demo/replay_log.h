@@ -28,8 +28,15 @@ typedef int (*replay_write_fn)(void *ctx, const uint8_t *data, size_t len);
 /* Bytes read from the source at a time. */
 #define REPLAY_IN_CHUNK 256
 
-/* Everything the loop keeps: caller-allocated (static on a device). */
+/* Everything the loop keeps: caller-allocated (static on a device). The
+ * caller may set `rates` (`rate_count` of them) and `energy` before
+ * replay_log: the replay then chooses the rate with the power, costed by
+ * the profile (`headroom replay --energy PROFILE LOG` with that rate
+ * table); left zero, the power only. */
 typedef struct {
+    const headroom_rate *rates;
+    size_t rate_count;
+    const headroom_energy_profile *energy;
     headroom_settings settings;
     headroom_replay replay;
     headroom_decoder decoder;

@@ -129,6 +129,21 @@
 #define HEADROOM_TX_POINTS 16
 
 /**
+ * Most rates of a rate table.
+ */
+#define HEADROOM_MAX_RATES 8
+
+/**
+ * Longest rate name, bytes (without the terminating NUL).
+ */
+#define HEADROOM_RATE_NAME_LEN 8
+
+/**
+ * Bytes of a rate's name field: the longest name and its NUL.
+ */
+#define HEADROOM_RATE_NAME_SIZE 9
+
+/**
  * Bytes of a `headroom_replay`.
  * (568 in use on a 64-bit host today; the rest is room for what the
  * engine adds.)
@@ -813,6 +828,33 @@ typedef struct {
 } headroom_energy_profile;
 
 /**
+ * One data rate of the radio.
+ */
+typedef struct {
+  /**
+   * The rate's name as logs spell it (`"sf9"`): 1 to
+   * `HEADROOM_RATE_NAME_LEN` printable ASCII bytes, NUL-terminated.
+   */
+  char name[HEADROOM_RATE_NAME_SIZE];
+  /**
+   * SNR below which the far end loses a packet at this rate, dB.
+   */
+  float required_snr_db;
+  /**
+   * Time on air of one packet at this rate, µs.
+   */
+  uint32_t airtime_us;
+  /**
+   * Noise bandwidth of the receiver at this rate, Hz (`has_noise_bandwidth`).
+   */
+  float noise_bandwidth_hz;
+  /**
+   * Non-zero: `noise_bandwidth_hz` is given (all rates of a table, or none).
+   */
+  uint8_t has_noise_bandwidth;
+} headroom_rate;
+
+/**
  * A replay's state, caller-allocated (`HEADROOM_REPLAY_SIZE` bytes,
  * aligned to `HEADROOM_STATE_ALIGN`); start with `headroom_replay_init`.
  */
@@ -1217,6 +1259,52 @@ headroom_status headroom_mean_current(const headroom_energy_profile *p,
 headroom_status headroom_battery_life(const headroom_energy_profile *p,
                                       float mean_current_ua,
                                       float *days);
+
+/**
+ * Set `"rates"` to the `count` rates at `rates` (0 to
+ * `HEADROOM_MAX_RATES`; none: the power only). With a table and no
+ * `required_snr_db` of its own, each rate's requirement is its own. More
+ * than one rate needs an energy profile to choose between them: start the
+ * controller or the replay with `headroom_controller_init_energy` or
+ * `headroom_replay_init_energy`.
+ *
+ * # Safety
+ * `s` is NULL or points to a `headroom_settings`; `rates` is NULL (with
+ * `count` 0) or valid for reads of `count` `headroom_rate`s.
+ */
+headroom_status headroom_settings_set_rates(headroom_settings *s,
+                                            const headroom_rate *rates,
+                                            size_t count);
+
+/**
+ * Start the controller `c` as `headroom_controller_init` does, with the
+ * energy profile `p` costing each rate of the settings' rate table
+ * (`headroom_settings_set_rates`): with several rates it chooses the rate
+ * with the power, for the least charge per delivered packet at the target
+ * loss. The profile must cover every power the controller may use.
+ *
+ * # Safety
+ * As `headroom_controller_init`; `p` is NULL or points to a
+ * `headroom_energy_profile`.
+ */
+headroom_status headroom_controller_init_energy(headroom_controller *c,
+                                                const headroom_settings *s,
+                                                const headroom_log_header *header,
+                                                const headroom_energy_profile *p);
+
+/**
+ * Start the replay `r` as `headroom_replay_init` does, with the energy
+ * profile `p` costing each rate of the settings' rate table: the replay
+ * `headroom replay --energy PROFILE LOG` makes (its rate table set here).
+ *
+ * # Safety
+ * As `headroom_replay_init`; `p` is NULL or points to a
+ * `headroom_energy_profile`.
+ */
+headroom_status headroom_replay_init_energy(headroom_replay *r,
+                                            const headroom_settings *s,
+                                            const headroom_log_header *header,
+                                            const headroom_energy_profile *p);
 
 /**
  * Start the replay `r` with the settings `s` over the log's header

@@ -28,6 +28,16 @@ pub(crate) struct State {
     last: Option<Reason>,
 }
 
+impl State {
+    /// A controller that has not decided yet.
+    pub(crate) fn new(controller: WindowController) -> Self {
+        State {
+            controller,
+            last: None,
+        }
+    }
+}
+
 // SAFETY: size and alignment checked just below.
 unsafe impl Block for headroom_controller {
     type Inner = State;
@@ -176,12 +186,8 @@ pub unsafe extern "C" fn headroom_controller_init(
         return headroom_status::HEADROOM_ERR_NULL;
     };
     // SAFETY: guaranteed by the caller.
-    let state = unsafe { resolved(s, header) }.and_then(|r| {
-        Ok(State {
-            controller: WindowController::new(r.config)?,
-            last: None,
-        })
-    });
+    let state = unsafe { resolved(s, header) }
+        .and_then(|r| Ok(State::new(WindowController::new(r.config)?)));
     slot.set::<headroom_controller>(state)
 }
 

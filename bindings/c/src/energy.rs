@@ -302,7 +302,7 @@ pub struct headroom_energy_profile {
     pub has_battery: u8,
 }
 
-fn profile(p: &headroom_energy_profile) -> Result<EnergyProfile, headroom_status> {
+pub(crate) fn profile(p: &headroom_energy_profile) -> Result<EnergyProfile, headroom_status> {
     let n = usize::try_from(p.tx_point_count).unwrap_or(usize::MAX);
     if n > HEADROOM_TX_POINTS {
         return Err(headroom_status::HEADROOM_ERR_TABLE_FULL);

@@ -21,7 +21,9 @@
 //!   summary's linear sums;
 //! - [`codec`]: the framed binary log encoder and the streaming decoder;
 //! - [`energy`]: path loss, link margin, airtime, charge per packet, mean
-//!   current and battery life.
+//!   current and battery life;
+//! - [`rates`]: a rate table as a setting, and the controller and the replay
+//!   with an energy profile (the joint choice of rate and power).
 //!
 //! Unsafe code is confined to the FFI boundary: dereferencing the caller's
 //! pointers, each after a null check, with a `SAFETY` comment on every block.
@@ -38,6 +40,7 @@
 pub mod codec;
 pub mod controller;
 pub mod energy;
+pub mod rates;
 pub mod replay;
 pub mod settings;
 mod state;

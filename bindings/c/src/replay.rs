@@ -177,7 +177,7 @@ pub unsafe extern "C" fn headroom_replay_init(
 /// # Safety
 /// As for [`headroom_replay_init`].
 #[inline(never)]
-unsafe fn resolved_config(
+pub(crate) unsafe fn resolved_config(
     s: *const headroom_settings,
     header: *const headroom_log_header,
 ) -> Result<ControllerConfig, headroom_status> {

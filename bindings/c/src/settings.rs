@@ -52,7 +52,9 @@ const _: () = assert!(fits::<Layer>(
 ///
 /// # Safety
 /// `s` is NULL or points to a `headroom_settings` the caller owns.
-unsafe fn layer_mut<'a>(s: *mut headroom_settings) -> Result<&'a mut Layer, headroom_status> {
+pub(crate) unsafe fn layer_mut<'a>(
+    s: *mut headroom_settings,
+) -> Result<&'a mut Layer, headroom_status> {
     // SAFETY: guaranteed by the caller.
     let slot = unsafe { slot(s) }.ok_or(headroom_status::HEADROOM_ERR_NULL)?;
     slot.get_mut::<headroom_settings>()

@@ -5,6 +5,7 @@ use core::ffi::c_char;
 use headroom::control::settings::ResolveError;
 use headroom::control::ConfigError;
 use headroom::energy::profile::TableError;
+use headroom::rate::RateError;
 use headroom::record::codec::CodecError;
 use headroom::Error;
 
@@ -197,6 +198,16 @@ impl From<CodecError> for headroom_status {
             CodecError::Truncated => S::HEADROOM_ERR_TRUNCATED,
             CodecError::UnknownKind(_) => S::HEADROOM_ERR_UNKNOWN_KIND,
             _ => S::HEADROOM_ERR_CODEC,
+        }
+    }
+}
+
+impl From<RateError> for headroom_status {
+    fn from(e: RateError) -> Self {
+        match e {
+            RateError::TooMany => S::HEADROOM_ERR_TABLE_FULL,
+            RateError::DuplicateName | RateError::MixedBandwidth => S::HEADROOM_ERR_INCONSISTENT,
+            _ => S::HEADROOM_ERR_INVALID_INPUT,
         }
     }
 }

@@ -4,11 +4,18 @@
  * their IEEE-754 bits; the Rust side computes the same with the engine's
  * Rust API and compares. A line "fail ..." is a check that failed here.
  *
- * Usage: c_api LOG.hrlog DECISIONS.hrlog
+ * Usage: c_api LOG.hrlog DECISIONS.hrlog [RATES.txt RATE-LOG.hrlog RATE-DECISIONS.hrlog]
+ *
+ * With the last three, the rate-bearing log is replayed too, with the rate
+ * table and the energy profile of RATES.txt (written by c_api.rs from the
+ * engine's demo node, floats as their bits: one "rate NAME SNR AIRTIME_US
+ * BANDWIDTH HAS_BANDWIDTH" line per rate, then "profile N P0 I0 ... V
+ * AIRTIME RX_WINDOW RX_CURRENT PER_PACKET SLEEP").
  */
 #include <inttypes.h>
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "headroom.h"
@@ -189,7 +196,9 @@ static int file_write(void *ctx, const uint8_t *data, size_t len) {
 
 static replay_job job;
 
-static void replay_run(const char *log, const char *out) {
+/* Replay `log` into `out` with the job as set; the summary's lines start
+ * with `tag`. */
+static void replay_run(const char *log, const char *out, const char *tag) {
     FILE *in = fopen(log, "rb");
     FILE *dst = fopen(out, "wb");
     replay_report rep;
@@ -208,19 +217,19 @@ static void replay_run(const char *log, const char *out) {
     }
     expect_status(rep.status, HEADROOM_OK, "replay status");
     expect_status(headroom_replay_summary(&job.replay, &sum), HEADROOM_OK, "summary");
-    printf("report %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 "\n", rep.bytes_in, rep.bytes_out,
+    printf("%sreport %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 "\n", tag, rep.bytes_in, rep.bytes_out,
            rep.damaged, rep.other_frames);
-    printf("counts %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64
-           " %" PRIu64 " %" PRIu64 " %" PRIu64 "\n",
+    printf("%scounts %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64 " %" PRIu64
+           " %" PRIu64 " %" PRIu64 " %" PRIu64 "\n", tag,
            sum.logs, sum.records, sum.judged, sum.lost, sum.unjudged, sum.judged_at_max,
            sum.lost_at_max, sum.power_changes, sum.logged_judged);
-    printf("logged %" PRIu64 " %" PRIu64 " %" PRIu64 " %016" PRIx64 " %016" PRIx64 "\n",
+    printf("%slogged %" PRIu64 " %" PRIu64 " %" PRIu64 " %016" PRIx64 " %016" PRIx64 "\n", tag,
            sum.logged_lost, sum.logged_without_readings, sum.logged_records_with_tx,
            bits64(sum.logged_tx_mw_sum), bits64(sum.logged_chosen_mw_sum));
-    printf("sums %016" PRIx64 " %016" PRIx64 " %08" PRIx32 " %u %08" PRIx32 "\n",
+    printf("%ssums %016" PRIx64 " %016" PRIx64 " %08" PRIx32 " %u %08" PRIx32 "\n", tag,
            bits64(sum.tx_mw_sum), bits64(sum.max_mw_sum), bits(sum.max_tx_dbm_used),
            (unsigned)sum.has_max_tx_used, bits(sum.max_allowed_dbm));
-    printf("ignored");
+    printf("%signored", tag);
     for (i = 0; i < HEADROOM_REASON_COUNT; i++) {
         printf(" %" PRIu64, sum.ignored_readings[i]);
     }
@@ -368,14 +377,128 @@ static void energy_run(void) {
                   "unsorted table");
 }
 
+static uint32_t hex_word(const char *s) {
+    return (uint32_t)strtoul(s, NULL, 16);
+}
+
+static float from_bits(const char *s) {
+    uint32_t u = hex_word(s);
+    float x;
+    memcpy(&x, &u, sizeof x);
+    return x;
+}
+
+static headroom_rate spec_rates[HEADROOM_MAX_RATES];
+static headroom_energy_profile spec_profile;
+
+/* The rate table and the energy profile of `path` (see the top). */
+static int read_spec(const char *path, size_t *count) {
+    FILE *f = fopen(path, "r");
+    char word[32], name[16], snr[16], bw[16];
+    unsigned long air;
+    int has_bw;
+    *count = 0;
+    if (f == NULL) {
+        return -1;
+    }
+    memset(&spec_profile, 0, sizeof spec_profile);
+    while (fscanf(f, "%31s", word) == 1) {
+        if (strcmp(word, "rate") == 0 && *count < HEADROOM_MAX_RATES) {
+            headroom_rate *r = &spec_rates[*count];
+            if (fscanf(f, "%15s %15s %lu %15s %d", name, snr, &air, bw, &has_bw) != 5) {
+                break;
+            }
+            memset(r, 0, sizeof *r);
+            {
+                size_t len = strlen(name);
+                memcpy(r->name, name, len < HEADROOM_RATE_NAME_LEN ? len : HEADROOM_RATE_NAME_LEN);
+            }
+            r->required_snr_db = from_bits(snr);
+            r->airtime_us = (uint32_t)air;
+            r->noise_bandwidth_hz = from_bits(bw);
+            r->has_noise_bandwidth = (uint8_t)has_bw;
+            (*count)++;
+        } else if (strcmp(word, "profile") == 0) {
+            unsigned n, i;
+            char a[16], b[16];
+            if (fscanf(f, "%u", &n) != 1 || n > HEADROOM_TX_POINTS) {
+                break;
+            }
+            for (i = 0; i < n; i++) {
+                if (fscanf(f, "%15s %15s", a, b) != 2) {
+                    fclose(f);
+                    return -1;
+                }
+                spec_profile.tx_points[i].power_dbm = from_bits(a);
+                spec_profile.tx_points[i].current_ma = from_bits(b);
+            }
+            spec_profile.tx_point_count = n;
+            {
+                char v[6][16];
+                if (fscanf(f, "%15s %15s %15s %15s %15s %15s", v[0], v[1], v[2], v[3], v[4], v[5]) != 6) {
+                    fclose(f);
+                    return -1;
+                }
+                spec_profile.supply_v = from_bits(v[0]);
+                spec_profile.airtime_ms = from_bits(v[1]);
+                spec_profile.rx_window_ms = from_bits(v[2]);
+                spec_profile.rx_current_ma = from_bits(v[3]);
+                spec_profile.per_packet_uc = from_bits(v[4]);
+                spec_profile.sleep_current_ua = from_bits(v[5]);
+            }
+        } else {
+            break;
+        }
+    }
+    fclose(f);
+    return *count > 0 && spec_profile.tx_point_count > 0 ? 0 : -1;
+}
+
+/* The rate-bearing log with the spec's rates and profile; then the
+ * refusals of a bad table. */
+static void rates_run(const char *spec, const char *log, const char *out) {
+    size_t count = 0;
+    headroom_settings s;
+    headroom_rate two[2];
+    if (read_spec(spec, &count) != 0) {
+        printf("fail cannot read %s\n", spec);
+        failures++;
+        return;
+    }
+    memset(&job, 0, sizeof job);
+    job.rates = spec_rates;
+    job.rate_count = count;
+    job.energy = &spec_profile;
+    replay_run(log, out, "rates-");
+    memset(&job, 0, sizeof job);
+    /* Refusals: two rates of one name, a name too long, too many. */
+    expect_status(headroom_settings_init(&s), HEADROOM_OK, "settings for rates");
+    two[0] = spec_rates[0];
+    two[1] = spec_rates[0];
+    expect_status(headroom_settings_set_rates(&s, two, 2), HEADROOM_ERR_INCONSISTENT,
+                  "duplicate rate name");
+    two[1] = spec_rates[1];
+    memset(two[1].name, 'x', sizeof two[1].name);
+    expect_status(headroom_settings_set_rates(&s, two, 2), HEADROOM_ERR_INVALID_INPUT,
+                  "rate name without its NUL");
+    expect_status(headroom_settings_set_rates(&s, spec_rates, HEADROOM_MAX_RATES + 1),
+                  HEADROOM_ERR_TABLE_FULL, "too many rates");
+    expect_status(headroom_settings_set_rates(&s, NULL, 1), HEADROOM_ERR_NULL, "no rates");
+    expect_status(headroom_settings_set_rates(&s, NULL, 0), HEADROOM_OK, "an empty table");
+}
+
 int main(int argc, char **argv) {
-    if (argc != 3) {
-        fprintf(stderr, "usage: c_api LOG.hrlog DECISIONS.hrlog\n");
+    if (argc != 3 && argc != 6) {
+        fprintf(stderr, "usage: c_api LOG.hrlog DECISIONS.hrlog [RATES.txt RATE-LOG.hrlog "
+                        "RATE-DECISIONS.hrlog]\n");
         return 2;
     }
     settings_checks();
     controller_run();
-    replay_run(argv[1], argv[2]);
+    replay_run(argv[1], argv[2], "");
+    if (argc == 6) {
+        rates_run(argv[3], argv[4], argv[5]);
+    }
     codec_run();
     energy_run();
     printf("failures %d\n", failures);

@@ -431,9 +431,15 @@ fn c_program_agrees_with_the_rust_api() {
     let exe = compile(&dir);
     let decisions = dir.join("decisions.hrlog");
     let _ = std::fs::remove_file(&decisions);
+    let (spec, rates_log, rates_header, rates_records) = rates_inputs(&dir);
+    let rate_decisions = dir.join("rate-decisions.hrlog");
+    let _ = std::fs::remove_file(&rate_decisions);
     let run = Command::new(&exe)
         .arg(&log)
         .arg(&decisions)
+        .arg(&spec)
+        .arg(&rates_log)
+        .arg(&rate_decisions)
         .output()
         .unwrap_or_else(|e| panic!("cannot run {}: {e}", exe.display()));
     let out = String::from_utf8_lossy(&run.stdout).into_owned();
@@ -445,8 +451,198 @@ fn c_program_agrees_with_the_rust_api() {
     assert_eq!(lines(&out, "refused").len(), 4);
     check_controller(&out);
     check_replay(&out, header.as_ref(), &records, &decisions);
+    check_rates_replay(&out, &rates_header, &rates_records, &rate_decisions);
     check_codec(&out);
     check_energy(&out);
+}
+
+/// The rate-bearing log of the C test and what the C program needs to
+/// replay it: the engine's demo node (its rate table and energy profile,
+/// floats as their bits, in `rates.txt`) and a log of 3 000 records written
+/// by the engine's simulator at 14 dBm, cycling sf7, sf9 and sf12 every 50
+/// packets. The header does not carry the rates (a C log header has no
+/// rate table): the C side sets them with `headroom_settings_set_rates`.
+fn rates_inputs(dir: &Path) -> (PathBuf, PathBuf, LogHeader, Vec<LogRecord>) {
+    use headroom::energy::demo::{demo_profile, demo_rates};
+    use headroom::propagation::PathLossModel;
+    use headroom::sim::{
+        ChannelConfig, FastFading, NoiseFloor, PowerPattern, RateSchedule, Shadowing, Synth,
+        Trajectory,
+    };
+    use headroom::units::Dbi;
+    let rates = demo_rates().unwrap_or_else(|e| panic!("{e}"));
+    let prof = demo_profile().unwrap_or_else(|e| panic!("{e}"));
+    let mut spec = String::new();
+    for r in rates.as_slice() {
+        spec.push_str(&format!(
+            "rate {} {} {} {} {}\n",
+            r.name.as_str(),
+            hex(r.required_snr.0),
+            r.airtime_us,
+            hex(r.noise_bandwidth_hz.unwrap_or(0.0)),
+            u8::from(r.noise_bandwidth_hz.is_some())
+        ));
+    }
+    let pts = prof.tx_current().points();
+    spec.push_str(&format!("profile {}", pts.len()));
+    for p in pts {
+        spec.push_str(&format!(" {} {}", hex(p.power.0), hex(p.current.0)));
+    }
+    spec.push_str(&format!(
+        " {} {} {} {} {} {}\n",
+        hex(prof.supply().0),
+        hex(prof.airtime().0),
+        hex(prof.rx_window().0),
+        hex(prof.rx_current().0),
+        hex(prof.per_packet().0),
+        hex(prof.sleep_current().0)
+    ));
+    let spec_path = dir.join("rates.txt");
+    std::fs::write(&spec_path, spec).unwrap_or_else(|e| panic!("{e}"));
+    // An invented 868 MHz link of our own, 0.3 to 3 km.
+    let channel = ChannelConfig {
+        frequency: Hertz(868.0e6),
+        path_loss: PathLossModel::LogDistance {
+            d0: Metres(1.0),
+            pl_d0: None,
+            exponent: 3.0,
+        },
+        tx_antenna_gain: Dbi(2.15),
+        rx_antenna_gain: Dbi(2.15),
+        trajectory: Trajectory {
+            start: Metres(300.0),
+            speed_m_per_s: 0.5,
+            min: Some(Metres(300.0)),
+            max: Some(Metres(3000.0)),
+        },
+        packet_interval_ms: 30_000,
+        start_ms: 0,
+        shadowing: Some(Shadowing {
+            sigma: Db(4.0),
+            decorrelation_distance: Metres(50.0),
+            time_constant_s: None,
+        }),
+        fading: FastFading::Rayleigh,
+        fading_correlation: 0.2,
+        noise: NoiseFloor {
+            mean: Dbm(-117.0),
+            jitter: Db(0.5),
+            bursts: None,
+            burst_rise: Db(0.0),
+        },
+        min_snr: None,
+        feedback_dropouts: None,
+        report_resolution: Some(Db(1.0)),
+        steps: Default::default(),
+    };
+    let schedule = RateSchedule::new(rates, &[0, 2, 4], 50).unwrap_or_else(|e| panic!("{e}"));
+    let mut synth = Synth::<0>::new(channel, PowerPattern::fixed(Dbm(14.0)), &[], 20_261_204)
+        .unwrap_or_else(|e| panic!("{e}"))
+        .with_rates(schedule);
+    let header = LogHeader {
+        device_id: 1516,
+        min_tx: Some(Dbm(-9.0)),
+        max_tx: Some(Dbm(22.0)),
+        tx_step: Some(Db(1.0)),
+        antenna_gain: Some(Dbi(2.15)),
+        eirp_cap: Some(Dbm(16.15)),
+        ..LogHeader::default()
+    };
+    let records: Vec<LogRecord> = (0..3000)
+        .map(|_| synth.next_record().unwrap_or_else(|e| panic!("{e}")).1)
+        .collect();
+    let mut enc = Encoder::new();
+    let mut buf = [0u8; MAX_FRAME];
+    let mut bytes = enc.header(&header, &mut buf).unwrap_or_default().to_vec();
+    for r in &records {
+        bytes.extend_from_slice(enc.record(r, &mut buf).unwrap_or_default());
+    }
+    let log = dir.join("rates.hrlog");
+    std::fs::write(&log, bytes).unwrap_or_else(|e| panic!("{e}"));
+    (spec_path, log, header, records)
+}
+
+/// The C replay with rates: every decision (power bits, outcome, reason and
+/// rate) and the summary's counts equal the engine's replay with the demo
+/// node's rate table and energy profile.
+fn check_rates_replay(out: &str, header: &LogHeader, records: &[LogRecord], decisions: &Path) {
+    use headroom::energy::demo::{demo_profile, demo_rates};
+    let mut flags = Layer::empty();
+    flags
+        .set(
+            Setting::Rates,
+            Value::Rates(demo_rates().unwrap_or_else(|e| panic!("{e}"))),
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+    let r = resolve(
+        &flags,
+        &Layer::from_header(header),
+        &Layer::empty(),
+        &Layer::defaults(),
+    )
+    .unwrap_or_else(|e| panic!("{e}"));
+    let prof = demo_profile().unwrap_or_else(|e| panic!("{e}"));
+    let mut replay =
+        Replay::<REPLAY_WINDOW>::with_energy(r.config, &prof).unwrap_or_else(|e| panic!("{e}"));
+    let want: Vec<DecisionRecord> = records
+        .iter()
+        .map(|rec| {
+            let s = replay.step(rec);
+            DecisionRecord {
+                t_ms: s.t_ms,
+                tx_dbm: s.chosen.0,
+                outcome: s.outcome.code(),
+                reason: s.reason.code(),
+                rate: s.rate,
+            }
+        })
+        .collect();
+    let bytes = std::fs::read(decisions).unwrap_or_else(|e| panic!("{e}"));
+    let mut dec: FrameDecoder = FrameDecoder::new();
+    let mut input = bytes.as_slice();
+    let mut got = Vec::new();
+    while let Some(ev) = dec.feed(&mut input) {
+        if let Event::Frame {
+            frame: Frame::Decision(d),
+            ..
+        } = ev
+        {
+            got.push(d);
+        }
+    }
+    assert_eq!(got.len(), want.len());
+    let mut changes = 0;
+    for (i, (g, w)) in got.iter().zip(&want).enumerate() {
+        assert!(
+            g.t_ms == w.t_ms
+                && g.tx_dbm.to_bits() == w.tx_dbm.to_bits()
+                && g.outcome == w.outcome
+                && g.reason == w.reason
+                && g.rate == w.rate,
+            "record {i}: C {g:?}, Rust {w:?}"
+        );
+        if i > 0 && got[i - 1].rate != g.rate {
+            changes += 1;
+        }
+    }
+    assert!(changes > 0, "the rate never moved: nothing was compared");
+    let s = replay.summary();
+    let counts = format!(
+        "{} {} {} {} {} {} {} {} {}",
+        s.logs,
+        s.records,
+        s.judged,
+        s.lost,
+        s.unjudged,
+        s.judged_at_max,
+        s.lost_at_max,
+        s.power_changes,
+        s.logged.judged
+    );
+    assert_eq!(
+        lines(out, "rates-counts"),
+        vec![counts.split(' ').collect::<Vec<_>>()]
+    );
 }
 
 /// The C block of the README's "From C" section compiles against the header.
