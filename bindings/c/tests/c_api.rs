@@ -119,6 +119,60 @@ fn compile(dir: &Path) -> PathBuf {
     exe
 }
 
+/// The C side's decision frames in `path`, read with the engine's decoder
+/// (one header frame, then decisions only), equal to `want` one by one:
+/// time, power bits, outcome, reason and rate. Returns them.
+fn same_decisions(path: &Path, want: &[DecisionRecord]) -> Vec<DecisionRecord> {
+    let bytes = std::fs::read(path).unwrap_or_else(|e| panic!("{e}"));
+    let mut dec: FrameDecoder = FrameDecoder::new();
+    let mut input = bytes.as_slice();
+    let mut got = Vec::new();
+    let mut headers = 0;
+    while let Some(ev) = dec.feed(&mut input) {
+        match ev {
+            Event::Frame {
+                frame: Frame::Decision(d),
+                ..
+            } => got.push(d),
+            Event::Frame {
+                frame: Frame::Header { .. },
+                ..
+            } => headers += 1,
+            other => panic!("unexpected {other:?}"),
+        }
+    }
+    assert_eq!(dec.finish(), None);
+    assert_eq!(headers, 1);
+    assert_eq!(got.len(), want.len());
+    for (i, (g, w)) in got.iter().zip(want).enumerate() {
+        assert!(
+            g.t_ms == w.t_ms
+                && g.tx_dbm.to_bits() == w.tx_dbm.to_bits()
+                && g.outcome == w.outcome
+                && g.reason == w.reason
+                && g.rate == w.rate,
+            "record {i}: C {g:?}, Rust {w:?}"
+        );
+    }
+    got
+}
+
+/// The summary's counts as the C program prints them.
+fn counts_of(s: &headroom::control::Summary) -> String {
+    format!(
+        "{} {} {} {} {} {} {} {} {}",
+        s.logs,
+        s.records,
+        s.judged,
+        s.lost,
+        s.unjudged,
+        s.judged_at_max,
+        s.lost_at_max,
+        s.power_changes,
+        s.logged.judged
+    )
+}
+
 /// Lines of the C program's output starting with `tag`, split in words.
 fn lines<'a>(out: &'a str, tag: &str) -> Vec<Vec<&'a str>> {
     out.lines()
@@ -247,50 +301,9 @@ fn check_replay(out: &str, header: Option<&LogHeader>, records: &[LogRecord], de
             }
         })
         .collect();
-    // The C side's decision frames, read with the engine's decoder.
-    let bytes = std::fs::read(decisions).unwrap_or_else(|e| panic!("{e}"));
-    let mut dec: FrameDecoder = FrameDecoder::new();
-    let mut input = bytes.as_slice();
-    let mut got = Vec::new();
-    let mut headers = 0;
-    while let Some(ev) = dec.feed(&mut input) {
-        match ev {
-            Event::Frame {
-                frame: Frame::Decision(d),
-                ..
-            } => got.push(d),
-            Event::Frame {
-                frame: Frame::Header { .. },
-                ..
-            } => headers += 1,
-            other => panic!("unexpected {other:?}"),
-        }
-    }
-    assert_eq!(dec.finish(), None);
-    assert_eq!(headers, 1);
-    assert_eq!(got.len(), want.len());
-    for (i, (g, w)) in got.iter().zip(&want).enumerate() {
-        assert!(
-            g.t_ms == w.t_ms
-                && g.tx_dbm.to_bits() == w.tx_dbm.to_bits()
-                && g.outcome == w.outcome
-                && g.reason == w.reason,
-            "record {i}: C {g:?}, Rust {w:?}"
-        );
-    }
+    same_decisions(decisions, &want);
     let s = replay.summary();
-    let counts = format!(
-        "{} {} {} {} {} {} {} {} {}",
-        s.logs,
-        s.records,
-        s.judged,
-        s.lost,
-        s.unjudged,
-        s.judged_at_max,
-        s.lost_at_max,
-        s.power_changes,
-        s.logged.judged
-    );
+    let counts = counts_of(s);
     assert_eq!(
         lines(out, "counts"),
         vec![counts.split(' ').collect::<Vec<_>>()]
@@ -597,48 +610,11 @@ fn check_rates_replay(out: &str, header: &LogHeader, records: &[LogRecord], deci
             }
         })
         .collect();
-    let bytes = std::fs::read(decisions).unwrap_or_else(|e| panic!("{e}"));
-    let mut dec: FrameDecoder = FrameDecoder::new();
-    let mut input = bytes.as_slice();
-    let mut got = Vec::new();
-    while let Some(ev) = dec.feed(&mut input) {
-        if let Event::Frame {
-            frame: Frame::Decision(d),
-            ..
-        } = ev
-        {
-            got.push(d);
-        }
-    }
-    assert_eq!(got.len(), want.len());
-    let mut changes = 0;
-    for (i, (g, w)) in got.iter().zip(&want).enumerate() {
-        assert!(
-            g.t_ms == w.t_ms
-                && g.tx_dbm.to_bits() == w.tx_dbm.to_bits()
-                && g.outcome == w.outcome
-                && g.reason == w.reason
-                && g.rate == w.rate,
-            "record {i}: C {g:?}, Rust {w:?}"
-        );
-        if i > 0 && got[i - 1].rate != g.rate {
-            changes += 1;
-        }
-    }
+    let got = same_decisions(decisions, &want);
+    let changes = got.windows(2).filter(|w| w[0].rate != w[1].rate).count();
     assert!(changes > 0, "the rate never moved: nothing was compared");
     let s = replay.summary();
-    let counts = format!(
-        "{} {} {} {} {} {} {} {} {}",
-        s.logs,
-        s.records,
-        s.judged,
-        s.lost,
-        s.unjudged,
-        s.judged_at_max,
-        s.lost_at_max,
-        s.power_changes,
-        s.logged.judged
-    );
+    let counts = counts_of(s);
     assert_eq!(
         lines(out, "rates-counts"),
         vec![counts.split(' ').collect::<Vec<_>>()]
