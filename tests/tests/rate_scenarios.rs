@@ -371,6 +371,24 @@ struct Row {
     fixed: Vec<Run>,
     common: Run,
     hindsight: Option<(Run, u8, f32)>,
+    /// The hindsight rule allowed the joint controller's own loss when that
+    /// is above the target (the same as `hindsight` otherwise): the
+    /// comparison at equal loss.
+    same_loss: Option<(Run, u8, f32)>,
+}
+
+impl Row {
+    /// The joint controller meets the target (within ±30 %) and spends less
+    /// per delivered packet than the best single rate chosen with hindsight
+    /// at the same loss or less (none meets it: nothing to beat).
+    fn wins(&self) -> bool {
+        let t = f64::from(self.target);
+        let meets = (self.joint.loss - t).abs() <= 0.3 * t;
+        meets
+            && self
+                .same_loss
+                .is_none_or(|(h, _, _)| self.joint.charge_per_delivered < h.charge_per_delivered)
+    }
 }
 
 fn evaluate(s: Scenario, seed: u64, target: f32) -> Row {
@@ -380,13 +398,20 @@ fn evaluate(s: Scenario, seed: u64, target: f32) -> Row {
     let fixed = (0..cfg.rates.len() as u8)
         .map(|m| run_controller(&log, single_rate(&cfg, m).expect("rate")).0)
         .collect();
+    let hindsight = run_hindsight(&log, &cfg);
+    let same_loss = if joint.loss > f64::from(target) {
+        run_hindsight(&log, &config(joint.loss as f32, DutyLimit::NoLimit))
+    } else {
+        hindsight
+    };
     Row {
         scenario: s,
         target,
         joint,
         fixed,
         common: run_common_practice(&log, &cfg),
-        hindsight: run_hindsight(&log, &cfg),
+        hindsight,
+        same_loss,
     }
 }
 
@@ -395,22 +420,27 @@ fn pct(x: f64) -> String {
 }
 
 /// The rows where the joint controller does **not** beat the best single
-/// rate chosen with hindsight (measured, seeds 500..502; see the README's
-/// table): none now. Kept exact: a row listed here that starts winning
-/// fails the test until it is removed, and a row not listed that stops
-/// winning fails it too.
+/// rate chosen with hindsight at the same loss (measured, seeds 500..502;
+/// see the README's table): none. Correlated fading at a 10 % target was
+/// one until the loss price's step was scaled with the target (its noise
+/// had bought slower rates on its peaks: 1.4 % dearer at equal loss, now
+/// 0.5 % cheaper). Kept exact: a row listed here that starts winning fails
+/// the test until it is removed, and a row not listed that stops winning
+/// fails it too.
 const KNOWN_SHORTFALLS: [(Scenario, f32); 0] = [];
 
 /// On every other row the joint controller meets the loss target (within
 /// ±30 %, as the power controller's own scenarios) with less charge per
 /// delivered packet than the best single rate chosen with hindsight with a
-/// hindsight-tuned margin; it always beats the common-practice rule's loss
-/// and is never above the target by more than 60 %.
+/// hindsight-tuned margin, that rule allowed the joint controller's own loss
+/// when it is above the target (equal loss); it always beats the
+/// common-practice rule's loss and is never above the target by more than
+/// 60 %.
 #[test]
 fn rate_comparison_table() {
     println!();
-    println!("| scenario | target | joint: loss, µC/delivered, shares sf7..sf12 | best fixed rate, power-only control: loss, µC/delivered | common practice: loss, µC/delivered | hindsight single rate: rate, margin, loss, µC/delivered |");
-    println!("|---|---|---|---|---|---|");
+    println!("| scenario | target | joint: loss, µC/delivered, shares sf7..sf12 | best fixed rate, power-only control: loss, µC/delivered | common practice: loss, µC/delivered | hindsight single rate: rate, margin, loss, µC/delivered | hindsight at the joint's loss: loss, µC/delivered |");
+    println!("|---|---|---|---|---|---|---|");
     let mut failures = Vec::new();
     for (i, s) in SCENARIOS.iter().enumerate() {
         for target in [0.01f32, 0.10] {
@@ -433,7 +463,7 @@ fn rate_comparison_table() {
                 .map(|x| format!("{:.0}", x * 100.0))
                 .collect();
             println!(
-                "| {} | {:.0} % | {}, {:.1}, [{}] % | {} | {}, {:.1} | {} |",
+                "| {} | {:.0} % | {}, {:.1}, [{}] % | {} | {}, {:.1} | {} | {} |",
                 r.scenario.name(),
                 t * 100.0,
                 pct(r.joint.loss),
@@ -460,12 +490,14 @@ fn rate_comparison_table() {
                     ),
                     None => "none meets the target".into(),
                 },
+                match (r.joint.loss > t, r.same_loss) {
+                    (false, _) => "(joint at or below the target)".into(),
+                    (true, Some((h, _, _))) =>
+                        format!("{}, {:.1}", pct(h.loss), h.charge_per_delivered),
+                    (true, None) => "none meets it".into(),
+                },
             );
             let known = KNOWN_SHORTFALLS.contains(&(r.scenario, r.target));
-            let meets = (r.joint.loss - t).abs() <= 0.3 * t;
-            let wins = r
-                .hindsight
-                .is_none_or(|(h, _, _)| r.joint.charge_per_delivered < h.charge_per_delivered);
             if r.joint.loss > 1.6 * t {
                 failures.push(format!(
                     "{:?} {t}: joint loss {:.4}",
@@ -478,7 +510,7 @@ fn rate_comparison_table() {
                     r.scenario
                 ));
             }
-            match (known, meets && wins) {
+            match (known, r.wins()) {
                 (false, false) => failures.push(format!(
                     "{:?} {t}: joint loss {:.4}, {:.1} µC/delivered against hindsight {:?}",
                     r.scenario,
@@ -562,14 +594,13 @@ fn other_seeds() {
                 let r = evaluate(s, seed, target);
                 let t = f64::from(target);
                 let ratio = r
-                    .hindsight
+                    .same_loss
                     .map(|(h, _, _)| r.joint.charge_per_delivered / h.charge_per_delivered);
-                let meets = (r.joint.loss - t).abs() <= 0.3 * t;
-                let win = meets && ratio.is_none_or(|x| x < 1.0);
+                let win = r.wins();
                 rows += 1;
                 wins += u32::from(win);
                 println!(
-                    "seed {seed} | {} | {:.0} % | joint {}, {:.1} µC/delivered | against hindsight {} | {}",
+                    "seed {seed} | {} | {:.0} % | joint {}, {:.1} µC/delivered | against hindsight at equal loss {} | {}",
                     s.name(),
                     t * 100.0,
                     pct(r.joint.loss),

@@ -15,7 +15,8 @@
 //! adaptive margin moves in the power-only controller: up by a ratio after
 //! each loss, down by that ratio to the power `p/(1−p)` after each delivery,
 //! so that `μ` can stay bounded only if losses are a fraction `p` of the
-//! packets; it never falls below the recent charge per delivered packet
+//! packets (the ratio scaled by `√((1−p)/p ÷ 99)`, so that the price's noise
+//! per packet is that of a 1 % target at every target); it never falls below the recent charge per delivered packet
 //! (the minimum of a ratio, charge over deliveries, prices a delivery at
 //! least at the ratio itself: Dinkelbach's method), so where losses are
 //! dear in themselves (a fix paid for every packet) fewer are taken than
