@@ -930,4 +930,37 @@ mod tests {
         assert!(c.price_log() <= c.price_loop().max);
         assert!(c.price_log() >= c.price_loop().min);
     }
+
+    /// The price's step: half the margin step's ratio at a 1 % target, and
+    /// at every target the same spread per packet, `up·√(p/(1−p))`; a
+    /// delivery undoes `p/(1−p)` of a loss.
+    #[test]
+    fn the_price_step_keeps_its_noise_per_packet_at_every_target() {
+        let at = |p: f32| {
+            let cfg = ControllerConfig {
+                rates: demo_rates().unwrap(),
+                required_snr_db: Db(-7.5),
+                target_outage: p,
+                ..ControllerConfig::sub_ghz_node()
+            };
+            let charge = ChargeTable::from_profile(&demo_profile().unwrap()).unwrap();
+            Controller::<32>::with_charge(cfg, Some(charge))
+                .unwrap()
+                .price_loop()
+        };
+        let octave = |x: i32| f64::from(x) / f64::from(1u32 << super::PRICE_BITS);
+        let one = at(0.01);
+        let step =
+            f64::from(ControllerConfig::sub_ghz_node().margin_step_db.0) * 10f64.log2() / 20.0;
+        assert!((octave(one.up) - step).abs() < 1e-6, "{}", octave(one.up));
+        let spread = |p: f64, up: i32| octave(up) * (p / (1.0 - p)).sqrt();
+        let s1 = spread(0.01, one.up);
+        for p in [0.001f32, 0.03, 0.1, 0.3] {
+            let l = at(p);
+            let s = spread(f64::from(p), l.up);
+            assert!((s / s1 - 1.0).abs() < 1e-3, "{p}: {s} against {s1}");
+            let back = octave(l.up) * f64::from(p) / (1.0 - f64::from(p));
+            assert!((octave(l.down) - back).abs() < 1e-6, "{p}");
+        }
+    }
 }
