@@ -157,6 +157,24 @@ fn same_decisions(path: &Path, want: &[DecisionRecord]) -> Vec<DecisionRecord> {
     got
 }
 
+/// Every record through the engine's replay, as the decision frames the C
+/// side writes (no rate without a rate table).
+fn replayed(replay: &mut Replay<REPLAY_WINDOW>, records: &[LogRecord]) -> Vec<DecisionRecord> {
+    records
+        .iter()
+        .map(|rec| {
+            let s = replay.step(rec);
+            DecisionRecord {
+                t_ms: s.t_ms,
+                tx_dbm: s.chosen.0,
+                outcome: s.outcome.code(),
+                reason: s.reason.code(),
+                rate: s.rate,
+            }
+        })
+        .collect()
+}
+
 /// The summary's counts as the C program prints them.
 fn counts_of(s: &headroom::control::Summary) -> String {
     format!(
@@ -288,19 +306,7 @@ fn check_controller(out: &str) {
 fn check_replay(out: &str, header: Option<&LogHeader>, records: &[LogRecord], decisions: &Path) {
     let r = settings::for_log(header).unwrap_or_else(|e| panic!("{e}"));
     let mut replay = Replay::<REPLAY_WINDOW>::new(r.config).unwrap_or_else(|e| panic!("{e}"));
-    let want: Vec<DecisionRecord> = records
-        .iter()
-        .map(|rec| {
-            let s = replay.step(rec);
-            DecisionRecord {
-                t_ms: s.t_ms,
-                tx_dbm: s.chosen.0,
-                outcome: s.outcome.code(),
-                reason: s.reason.code(),
-                rate: None,
-            }
-        })
-        .collect();
+    let want = replayed(&mut replay, records);
     same_decisions(decisions, &want);
     let s = replay.summary();
     let counts = counts_of(s);
@@ -597,19 +603,7 @@ fn check_rates_replay(out: &str, header: &LogHeader, records: &[LogRecord], deci
     let prof = demo_profile().unwrap_or_else(|e| panic!("{e}"));
     let mut replay =
         Replay::<REPLAY_WINDOW>::with_energy(r.config, &prof).unwrap_or_else(|e| panic!("{e}"));
-    let want: Vec<DecisionRecord> = records
-        .iter()
-        .map(|rec| {
-            let s = replay.step(rec);
-            DecisionRecord {
-                t_ms: s.t_ms,
-                tx_dbm: s.chosen.0,
-                outcome: s.outcome.code(),
-                reason: s.reason.code(),
-                rate: s.rate,
-            }
-        })
-        .collect();
+    let want = replayed(&mut replay, records);
     let got = same_decisions(decisions, &want);
     let changes = got.windows(2).filter(|w| w[0].rate != w[1].rate).count();
     assert!(changes > 0, "the rate never moved: nothing was compared");
