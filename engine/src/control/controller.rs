@@ -1802,8 +1802,6 @@ fn table_fine(u: i16, per_db: u8) -> i32 {
     x.wrapping_add(half).checked_div(d).unwrap_or(0)
 }
 
-/// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
-/// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
 /// The spread the warm-up's rate choice assumes after `n` readings
 /// (1/8192 dB): the mean absolute error so far, at least
 /// [`RAYLEIGH_MAD_FINE`], widened by `(2n + 1)/(2n)` for the error of the
@@ -1816,6 +1814,8 @@ fn warm_spread(mae: u32, n: u16) -> u32 {
     u32::try_from(b * (2 * n + 1) / (2 * n)).unwrap_or(u32::MAX)
 }
 
+/// `k·σ` in 1/8192 dB from the mean absolute error (1/8192 dB) and the
+/// factor `Q⁻¹(p)·√(π/2)` (2⁻¹⁶), saturating.
 fn spread_term(mae: u32, factor: u32) -> i32 {
     let x = (u64::from(mae) * u64::from(factor)) >> SIGMA_FACTOR_BITS;
     i32::try_from(x).unwrap_or(i32::MAX)

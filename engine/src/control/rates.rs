@@ -506,11 +506,11 @@ impl RatePlan {
     /// the power stays where it starts, but the readings so far already
     /// say which rate that power closes the link at most cheaply. For the
     /// rate in use and every faster rate that fits the duty budget (and
-    /// keeps the chance of loss within the outage ceiling) `charge + μ·q` at `level`, with the prediction
-    /// `zhat` and spread `b` (see [`super::price`]); the cheapest replaces
-    /// the rate in use as in the tracking choice (the dwell and the
-    /// hysteresis). `None` without an energy profile or when no rate
-    /// qualifies.
+    /// keeps the chance of loss within the outage ceiling), `charge + μ·q`
+    /// at `level`, with the prediction `zhat` and spread `b` (see
+    /// [`super::price`]); the cheapest replaces the rate in use as in the
+    /// tracking choice (the dwell and the hysteresis). `None` without an
+    /// energy profile or when no rate qualifies.
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn choose_at(
         &self,
@@ -567,13 +567,14 @@ impl RatePlan {
     /// The priced choice for the next packet (several rates, an estimate
     /// that drives the power): for the rate in use and a neighbour in
     /// robustness, the more robust and the faster in turn (every rate that
-    /// fits when the one in use does not fit the duty budget), the power that minimises `charge + μ·q` (see
-    /// [`super::price`]) given the prediction `zhat` (loss to noise at rate
-    /// 0's bandwidth, 1/8192 dB) and its mean absolute error `b`; the
-    /// cheapest rate replaces the one in use when that one does not fit the
-    /// budget (at once) or after `dwell` packets when it saves more than the
-    /// hysteresis. `None` when no rate fits the budget (the packet is held:
-    /// see [`Self::choose`]).
+    /// fits when the one in use does not fit the duty budget, or when the
+    /// estimate has just started to drive: `fresh`), the power that
+    /// minimises `charge + μ·q` (see [`super::price`]) given the prediction
+    /// `zhat` (loss to noise at rate 0's bandwidth, 1/8192 dB) and its mean
+    /// absolute error `b`; the cheapest rate replaces the one in use when
+    /// that one does not fit the budget (at once), or when `fresh` or after
+    /// `dwell` packets, when it saves more than the hysteresis. `None` when
+    /// no rate fits the budget (the packet is held: see [`Self::choose`]).
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn choose_priced(
         &self,
