@@ -539,3 +539,54 @@ fn a_rate_column_without_header_lines_is_read_by_the_profiles_table() {
         stderr(&o)
     );
 }
+
+/// Where the joint controller's loss is not the target, the hindsight rule
+/// is searched again at that loss (the comparison at equal loss), and that
+/// row is not marked as missing the target.
+#[test]
+fn baselines_add_the_hindsight_rule_at_the_joint_controllers_loss() {
+    let log = example("examples/logs/cattle-collar-915.csv");
+    let prof = example("examples/energy/cattle-collar-915-rates.toml");
+    let o = headroom(&[
+        "replay",
+        &log,
+        "--energy",
+        &prof,
+        "--logged-rate",
+        "sf10",
+        "--baselines",
+        "--format",
+        "json",
+    ]);
+    let v = json(&o);
+    let rows = v["logs"][0]["baselines"].as_array().expect("rows").clone();
+    let loss = |r: &serde_json::Value| r["loss_fraction"].as_f64().unwrap();
+    let joint = loss(&rows[0]);
+    assert!(
+        (joint - 0.01).abs() > 0.00005,
+        "the joint loss is the target: {joint}"
+    );
+    let last = rows.last().unwrap();
+    let rule = last["rule"].as_str().unwrap();
+    assert!(rule.starts_with("at the joint's loss: "), "{rows:?}");
+    assert!(loss(last) <= joint + 1e-12, "{last} against {joint}");
+    assert!(rows[rows.len() - 2]["rule"]
+        .as_str()
+        .unwrap()
+        .starts_with("hindsight: "));
+    let table = headroom(&[
+        "replay",
+        &log,
+        "--energy",
+        &prof,
+        "--logged-rate",
+        "sf10",
+        "--baselines",
+    ]);
+    let text = String::from_utf8_lossy(&table.stdout).into_owned();
+    let line = text
+        .lines()
+        .find(|l| l.trim_start().starts_with("at the joint's loss"))
+        .unwrap_or_else(|| panic!("{text}"));
+    assert!(!line.contains("misses the target"), "{line}");
+}

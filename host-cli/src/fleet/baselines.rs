@@ -16,7 +16,10 @@
 //!   that, knowing the whole log, deliver at the target for the least charge
 //!   per delivered packet (per rate by the engine's
 //!   `baseline::hindsight_margin`, the search the tests use; then the
-//!   cheapest rate).
+//!   cheapest rate);
+//! - `at the joint's loss`: the same search allowed the joint controller's
+//!   own loss, when that differs from the target by more than 0.5 % of it
+//!   (the comparison at equal loss).
 
 use headroom::control::baseline::{self, CommonPracticeRate, FixedMarginRate, Judge, Rule};
 use headroom::control::{ControllerConfig, Outcome};
@@ -29,6 +32,9 @@ use serde_json::{Map, Value};
 use super::HostReplay;
 use crate::error::{CliError, CliResult};
 use crate::output::json_num;
+
+/// The name of the hindsight row at the joint controller's own loss.
+const AT_JOINT_LOSS: &str = "at the joint's loss";
 
 /// What one rule did over a log.
 #[derive(Debug, Clone)]
@@ -241,8 +247,41 @@ pub fn compare(
         step_rule(&mut rule, &mut books, cfg, p, rec)?;
     }
     rows.push(books.row);
-    // The best single rate in hindsight, with a hindsight-tuned margin.
+    // The best single rate in hindsight, with a hindsight-tuned margin: at
+    // the target, and at the joint controller's own loss when that differs
+    // (the comparison at equal loss).
     let target = f64::from(cfg.target_outage);
+    let joint_loss = rows.first().and_then(Row::loss);
+    rows.push(
+        hindsight(cfg, p, records, target, "hindsight")?.unwrap_or(Row::new(
+            "hindsight: no single rate meets the target".into(),
+        )?),
+    );
+    let at_target = rows
+        .last()
+        .map(|r| (r.loss(), r.tally.charge_per_delivered()));
+    if let Some(l) = joint_loss.filter(|l| (l - target).abs() > 0.005 * target) {
+        if let Some(row) = hindsight(cfg, p, records, l, AT_JOINT_LOSS)? {
+            // Nothing new when the rule at the target is the same run.
+            if Some((row.loss(), row.tally.charge_per_delivered())) != at_target {
+                rows.push(row);
+            }
+        }
+    }
+    Ok(rows)
+}
+
+/// The best single rate with a fixed margin chosen in hindsight so that the
+/// loss is at most `target` (the engine's `baseline::hindsight_margin` per
+/// rate, then the cheapest), labelled `what: RATE, margin M dB`; `None` when
+/// no rate meets it at any margin.
+fn hindsight(
+    cfg: &ControllerConfig,
+    p: &EnergyProfile,
+    records: &[LogRecord],
+    target: f64,
+    what: &str,
+) -> CliResult<Option<Row>> {
     let mut best: Option<Row> = None;
     for m in 0..u8::try_from(cfg.rates.len()).unwrap_or(0) {
         let name = cfg.rates.get(m).map_or("?", |r| r.name.as_str());
@@ -254,7 +293,7 @@ pub fn compare(
             } else {
                 ""
             };
-            let mut books = Books::new(format!("hindsight: {name}, margin {at}{margin:.2} dB"))?;
+            let mut books = Books::new(format!("{what}: {name}, margin {at}{margin:.2} dB"))?;
             for rec in records {
                 step_rule(&mut rule, &mut books, cfg, p, rec)?;
             }
@@ -283,10 +322,7 @@ pub fn compare(
             best = Some(row);
         }
     }
-    rows.push(best.unwrap_or(Row::new(
-        "hindsight: no single rate meets the target".into(),
-    )?));
-    Ok(rows)
+    Ok(best)
 }
 
 /// The rows as a table: loss, charge per delivered packet, mean current,
@@ -299,9 +335,16 @@ pub fn table(out: &mut String, rows: &[Row], p: &EnergyProfile, target: f32) {
         "each rule over the same records, judged by the same rule (target: {} % lost):",
         target * 100.0
     );
+    // The rule column fits the longest name (at least 34 characters).
+    let w = rows
+        .iter()
+        .map(|r| r.rule.chars().count() + 1)
+        .max()
+        .unwrap_or(0)
+        .max(34);
     let _ = writeln!(
         out,
-        "  {:<34}{:>9}{:>16}{:>11}{:>12}{:>13}",
+        "  {:<w$}{:>9}{:>16}{:>11}{:>12}{:>13}",
         "rule", "lost %", "µC/delivered", "mean µA", "life days", "max duty %"
     );
     for r in rows {
@@ -310,14 +353,16 @@ pub fn table(out: &mut String, rows: &[Row], p: &EnergyProfile, target: f32) {
             v[k].as_f64()
                 .map_or_else(|| "n/a".to_string(), |x| format!("{:.d$}", x * scale))
         };
-        let miss = if r.loss().is_some_and(|l| l > f64::from(target)) {
+        // The row at the joint controller's loss is allowed that loss.
+        let equal = r.rule.starts_with(AT_JOINT_LOSS);
+        let miss = if !equal && r.loss().is_some_and(|l| l > f64::from(target)) {
             "  misses the target"
         } else {
             ""
         };
         let _ = writeln!(
             out,
-            "  {:<34}{:>9}{:>16}{:>11}{:>12}{:>13}{miss}",
+            "  {:<w$}{:>9}{:>16}{:>11}{:>12}{:>13}{miss}",
             r.rule,
             num("loss_fraction", 100.0, 3),
             num("charge_per_delivered_uc", 1.0, 1),
