@@ -4,9 +4,11 @@
  * Rust firmware's `replay` does, so that `cargo xtask c-demo` can compare
  * every decision with `headroom replay` bit for bit.
  *
- * Under QEMU: -append "LOG.hrlog DECISIONS.hrlog" (paths relative to
- * QEMU's working directory). Prints a one-line summary and exits 0, or
- * prints why it failed and exits 1.
+ * Under QEMU: -append "LOG.hrlog DECISIONS.hrlog [RATES.spec]" (paths
+ * relative to QEMU's working directory; with a spec, the replay chooses the
+ * rate with the power, with the spec's rate table and energy profile: see
+ * replay_spec_parse). Prints a one-line summary and exits 0, or prints why
+ * it failed and exits 1.
  */
 #include <stddef.h>
 #include <stdint.h>
@@ -18,6 +20,8 @@
 /* Everything the replay keeps, in static memory (no heap). */
 static replay_job job;
 static char cmdline[256];
+static headroom_rate rates[HEADROOM_MAX_RATES];
+static headroom_energy_profile profile;
 
 static size_t host_read(void *ctx, uint8_t *buf, size_t cap) {
     return sh_read(*(int *)ctx, buf, cap);
@@ -27,10 +31,11 @@ static int host_write(void *ctx, const uint8_t *data, size_t len) {
     return sh_write(*(int *)ctx, data, len);
 }
 
-/* The i-th word after the program name, NUL-terminated in place. */
-static char *arg(char *line, int i) {
+/* Split `line` into its words in place (NUL-terminated); the words after
+ * the program name go to `words` (at most `max`); their count. */
+static int split(char *line, char **words, int max) {
     char *p = line;
-    int word = -1;
+    int n = -1;
     while (*p != '\0') {
         while (*p == ' ') {
             *p++ = '\0';
@@ -38,19 +43,15 @@ static char *arg(char *line, int i) {
         if (*p == '\0') {
             break;
         }
-        if (word++ == i) {
-            char *start = p;
-            while (*p != '\0' && *p != ' ') {
-                p++;
-            }
-            *p = '\0';
-            return start;
+        if (n >= 0 && n < max) {
+            words[n] = p;
         }
+        n++;
         while (*p != '\0' && *p != ' ') {
             p++;
         }
     }
-    return NULL;
+    return n < 0 ? 0 : n;
 }
 
 static void fail(const char *why, const char *detail) {
@@ -64,24 +65,52 @@ static void fail(const char *why, const char *detail) {
     sh_exit(0);
 }
 
+/* Read the spec at `path` and give its rates and profile to the job. The
+ * text goes to the job's output buffer, unused until the replay starts
+ * (the microbit's 16 KiB of RAM leave no room for a buffer of its own). */
+static void load_spec(const char *path) {
+    uint8_t *text = job.out;
+    size_t n = 0, got, count = 0;
+    int h = sh_open(path, 0);
+    if (h < 0) {
+        fail("cannot open", path);
+    }
+    while ((got = sh_read(h, text + n, sizeof job.out - n)) != 0) {
+        if (got == (size_t)-1) {
+            fail("cannot read", path);
+        }
+        n += got;
+        if (n == sizeof job.out) {
+            fail("spec too long", path);
+        }
+    }
+    sh_close(h);
+    if (replay_spec_parse((const char *)text, n, rates, &count, &profile) != 0) {
+        fail("malformed spec", path);
+    }
+    job.rates = rates;
+    job.rate_count = count;
+    job.energy = &profile;
+}
+
 int main(void) {
-    char copy[sizeof cmdline];
+    char *words[3];
     char *in_path, *out_path;
-    int in, out;
-    size_t i;
+    int in, out, n;
     replay_report rep;
     headroom_summary sum;
 
     if (sh_cmdline(cmdline, sizeof cmdline) != 0) {
         fail("no command line", NULL);
     }
-    for (i = 0; i < sizeof copy; i++) {
-        copy[i] = cmdline[i];
+    n = split(cmdline, words, 3);
+    if (n < 2 || n > 3) {
+        fail("usage: c-replay LOG.hrlog DECISIONS.hrlog [RATES.spec]", NULL);
     }
-    in_path = arg(cmdline, 0);
-    out_path = arg(copy, 1);
-    if (in_path == NULL || out_path == NULL) {
-        fail("usage: c-replay LOG.hrlog DECISIONS.hrlog", NULL);
+    in_path = words[0];
+    out_path = words[1];
+    if (n == 3) {
+        load_spec(words[2]);
     }
     in = sh_open(in_path, 0);
     if (in < 0) {

@@ -147,3 +147,145 @@ int replay_log(replay_job *job, replay_read_fn read, void *read_ctx, replay_writ
     }
     return flush(job, write, write_ctx, rep);
 }
+
+/* The next word of the spec at *pos: its start and length (0 at the end). */
+static size_t next_word(const char *text, size_t len, size_t *pos, const char **word) {
+    size_t start, i = *pos;
+    while (i < len && (text[i] == ' ' || text[i] == '\n' || text[i] == '\r' || text[i] == '\t')) {
+        i++;
+    }
+    start = i;
+    while (i < len && text[i] != ' ' && text[i] != '\n' && text[i] != '\r' && text[i] != '\t') {
+        i++;
+    }
+    *pos = i;
+    *word = text + start;
+    return i - start;
+}
+
+static int same(const char *word, size_t n, const char *lit) {
+    size_t i = 0;
+    while (i < n && lit[i] != '\0' && word[i] == lit[i]) {
+        i++;
+    }
+    return i == n && lit[i] == '\0';
+}
+
+/* A decimal count, or -1. */
+static long decimal(const char *text, size_t len, size_t *pos) {
+    const char *w;
+    size_t n = next_word(text, len, pos, &w), i;
+    long v = 0;
+    if (n == 0 || n > 9) {
+        return -1;
+    }
+    for (i = 0; i < n; i++) {
+        if (w[i] < '0' || w[i] > '9') {
+            return -1;
+        }
+        v = v * 10 + (w[i] - '0');
+    }
+    return v;
+}
+
+/* A float from the 8 hex digits of its bits; 0 on success. */
+static int bits_float(const char *text, size_t len, size_t *pos, float *out) {
+    const char *w;
+    size_t n = next_word(text, len, pos, &w), i;
+    union {
+        uint32_t u;
+        float f;
+    } v;
+    v.u = 0;
+    if (n != 8) {
+        return -1;
+    }
+    for (i = 0; i < n; i++) {
+        char c = w[i];
+        uint32_t d;
+        if (c >= '0' && c <= '9') {
+            d = (uint32_t)(c - '0');
+        } else if (c >= 'a' && c <= 'f') {
+            d = (uint32_t)(c - 'a' + 10);
+        } else if (c >= 'A' && c <= 'F') {
+            d = (uint32_t)(c - 'A' + 10);
+        } else {
+            return -1;
+        }
+        v.u = (v.u << 4) | d;
+    }
+    *out = v.f;
+    return 0;
+}
+
+int replay_spec_parse(const char *text, size_t len, headroom_rate *rates, size_t *count,
+                      headroom_energy_profile *profile) {
+    size_t pos = 0, n, i;
+    const char *w;
+    headroom_energy_profile none = {0};
+    int have_profile = 0;
+    *count = 0;
+    *profile = none;
+    while ((n = next_word(text, len, &pos, &w)) != 0) {
+        if (same(w, n, "rate")) {
+            headroom_rate *r;
+            long air, has;
+            if (*count >= HEADROOM_MAX_RATES) {
+                return -1;
+            }
+            r = &rates[*count];
+            for (i = 0; i < sizeof r->name; i++) {
+                r->name[i] = '\0';
+            }
+            n = next_word(text, len, &pos, &w);
+            if (n == 0 || n > HEADROOM_RATE_NAME_LEN) {
+                return -1;
+            }
+            for (i = 0; i < n; i++) {
+                r->name[i] = w[i];
+            }
+            if (bits_float(text, len, &pos, &r->required_snr_db) != 0) {
+                return -1;
+            }
+            air = decimal(text, len, &pos);
+            if (air < 0 || bits_float(text, len, &pos, &r->noise_bandwidth_hz) != 0) {
+                return -1;
+            }
+            has = decimal(text, len, &pos);
+            if (has < 0 || has > 1) {
+                return -1;
+            }
+            r->airtime_us = (uint32_t)air;
+            r->has_noise_bandwidth = (uint8_t)has;
+            (*count)++;
+        } else if (same(w, n, "profile")) {
+            long points = decimal(text, len, &pos);
+            float *tail[6];
+            if (points <= 0 || points > HEADROOM_TX_POINTS) {
+                return -1;
+            }
+            for (i = 0; i < (size_t)points; i++) {
+                if (bits_float(text, len, &pos, &profile->tx_points[i].power_dbm) != 0 ||
+                    bits_float(text, len, &pos, &profile->tx_points[i].current_ma) != 0) {
+                    return -1;
+                }
+            }
+            profile->tx_point_count = (uint32_t)points;
+            tail[0] = &profile->supply_v;
+            tail[1] = &profile->airtime_ms;
+            tail[2] = &profile->rx_window_ms;
+            tail[3] = &profile->rx_current_ma;
+            tail[4] = &profile->per_packet_uc;
+            tail[5] = &profile->sleep_current_ua;
+            for (i = 0; i < 6; i++) {
+                if (bits_float(text, len, &pos, tail[i]) != 0) {
+                    return -1;
+                }
+            }
+            have_profile = 1;
+        } else {
+            return -1;
+        }
+    }
+    return *count > 0 && have_profile ? 0 : -1;
+}

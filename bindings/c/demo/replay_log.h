@@ -65,4 +65,16 @@ typedef struct {
 int replay_log(replay_job *job, replay_read_fn read, void *read_ctx, replay_write_fn write,
                void *write_ctx, replay_report *report);
 
+/* A rate table and an energy profile from the text of a spec (the one
+ * format the host C test and the demo read, written by their Rust drivers
+ * from the engine's demo node): words separated by white space, one
+ * "rate NAME SNR AIRTIME_US BANDWIDTH HAS_BANDWIDTH" per rate, then
+ * "profile N P0 I0 ... P(N-1) I(N-1) SUPPLY_V AIRTIME_MS RX_WINDOW_MS
+ * RX_CURRENT_MA PER_PACKET_UC SLEEP_UA"; floats as the 8 hex digits of
+ * their IEEE-754 bits, counts in decimal. Returns 0 and fills `rates`
+ * (`*count` of at most HEADROOM_MAX_RATES) and `profile`, or -1 on any
+ * malformed or missing word. No library call: it runs on the device. */
+int replay_spec_parse(const char *text, size_t len, headroom_rate *rates, size_t *count,
+                      headroom_energy_profile *profile);
+
 #endif

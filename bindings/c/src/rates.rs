@@ -16,7 +16,7 @@ use crate::controller::{headroom_controller, State};
 use crate::energy::{headroom_energy_profile, profile};
 use crate::replay::headroom_replay;
 use crate::settings::{headroom_settings, layer_mut, resolved};
-use crate::state::{call, input, slot};
+use crate::state::{call, input, slot, Slot};
 use crate::{headroom_status, WindowController, WindowReplay};
 
 /// Most rates of a rate table.
@@ -178,24 +178,31 @@ pub unsafe extern "C" fn headroom_replay_init_energy(
     let Some(slot) = (unsafe { slot(r) }) else {
         return headroom_status::HEADROOM_ERR_NULL;
     };
+    // As `headroom_replay_init`: the settings and the replay are built in
+    // frames of their own, and the replay goes into the slot from the frame
+    // that built it (a second copy in this frame passed the stack a
+    // Cortex-M0 with 16 KiB of RAM leaves beside the C demo's statics).
     // SAFETY: guaranteed by the caller.
-    let built = unsafe { crate::replay::resolved_config(s, header) }
+    match unsafe { crate::replay::resolved_config(s, header) } {
         // SAFETY: guaranteed by the caller.
-        .and_then(|config| unsafe { energy_replay(&config, p) });
-    slot.set::<headroom_replay>(built)
+        Ok(config) => unsafe { energy_replay(slot, &config, p) },
+        Err(e) => slot.set::<headroom_replay>(Err(e)),
+    }
 }
 
-/// The replay of `config` costed by `p`, in a frame of its own (as
-/// `headroom_replay_init`'s parts: a Cortex-M0's stack is small).
+/// Build the replay of `config` costed by `p` into `slot` (the profile's
+/// charge table made in a frame of its own, [`charge`]).
 ///
 /// # Safety
 /// `p` is NULL or points to a `headroom_energy_profile`.
 #[inline(never)]
 unsafe fn energy_replay(
+    slot: &mut Slot<WindowReplay>,
     config: &ControllerConfig,
     p: *const headroom_energy_profile,
-) -> Result<WindowReplay, headroom_status> {
+) -> headroom_status {
     // SAFETY: guaranteed by the caller.
-    let prof = profile(unsafe { input(p) }?)?;
-    Ok(WindowReplay::with_energy(*config, &prof)?)
+    let built = unsafe { charge(p) }
+        .and_then(|c| WindowReplay::with_charge(*config, c).map_err(headroom_status::from));
+    slot.set::<headroom_replay>(built)
 }

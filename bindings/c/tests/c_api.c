@@ -8,14 +8,11 @@
  *
  * With the last three, the rate-bearing log is replayed too, with the rate
  * table and the energy profile of RATES.txt (written by c_api.rs from the
- * engine's demo node, floats as their bits: one "rate NAME SNR AIRTIME_US
- * BANDWIDTH HAS_BANDWIDTH" line per rate, then "profile N P0 I0 ... V
- * AIRTIME RX_WINDOW RX_CURRENT PER_PACKET SLEEP").
+ * engine's demo node; read by the demo's `replay_spec_parse`).
  */
 #include <inttypes.h>
 #include <math.h>
 #include <stdio.h>
-#include <stdlib.h>
 #include <string.h>
 
 #include "headroom.h"
@@ -377,81 +374,24 @@ static void energy_run(void) {
                   "unsorted table");
 }
 
-static uint32_t hex_word(const char *s) {
-    return (uint32_t)strtoul(s, NULL, 16);
-}
-
-static float from_bits(const char *s) {
-    uint32_t u = hex_word(s);
-    float x;
-    memcpy(&x, &u, sizeof x);
-    return x;
-}
-
 static headroom_rate spec_rates[HEADROOM_MAX_RATES];
 static headroom_energy_profile spec_profile;
+static char spec_text[8192];
 
-/* The rate table and the energy profile of `path` (see the top). */
+/* The rate table and the energy profile of `path`, by the demo's parser. */
 static int read_spec(const char *path, size_t *count) {
-    FILE *f = fopen(path, "r");
-    char word[32], name[16], snr[16], bw[16];
-    unsigned long air;
-    int has_bw;
+    FILE *f = fopen(path, "rb");
+    size_t n;
     *count = 0;
     if (f == NULL) {
         return -1;
     }
-    memset(&spec_profile, 0, sizeof spec_profile);
-    while (fscanf(f, "%31s", word) == 1) {
-        if (strcmp(word, "rate") == 0 && *count < HEADROOM_MAX_RATES) {
-            headroom_rate *r = &spec_rates[*count];
-            if (fscanf(f, "%15s %15s %lu %15s %d", name, snr, &air, bw, &has_bw) != 5) {
-                break;
-            }
-            memset(r, 0, sizeof *r);
-            {
-                size_t len = strlen(name);
-                memcpy(r->name, name, len < HEADROOM_RATE_NAME_LEN ? len : HEADROOM_RATE_NAME_LEN);
-            }
-            r->required_snr_db = from_bits(snr);
-            r->airtime_us = (uint32_t)air;
-            r->noise_bandwidth_hz = from_bits(bw);
-            r->has_noise_bandwidth = (uint8_t)has_bw;
-            (*count)++;
-        } else if (strcmp(word, "profile") == 0) {
-            unsigned n, i;
-            char a[16], b[16];
-            if (fscanf(f, "%u", &n) != 1 || n > HEADROOM_TX_POINTS) {
-                break;
-            }
-            for (i = 0; i < n; i++) {
-                if (fscanf(f, "%15s %15s", a, b) != 2) {
-                    fclose(f);
-                    return -1;
-                }
-                spec_profile.tx_points[i].power_dbm = from_bits(a);
-                spec_profile.tx_points[i].current_ma = from_bits(b);
-            }
-            spec_profile.tx_point_count = n;
-            {
-                char v[6][16];
-                if (fscanf(f, "%15s %15s %15s %15s %15s %15s", v[0], v[1], v[2], v[3], v[4], v[5]) != 6) {
-                    fclose(f);
-                    return -1;
-                }
-                spec_profile.supply_v = from_bits(v[0]);
-                spec_profile.airtime_ms = from_bits(v[1]);
-                spec_profile.rx_window_ms = from_bits(v[2]);
-                spec_profile.rx_current_ma = from_bits(v[3]);
-                spec_profile.per_packet_uc = from_bits(v[4]);
-                spec_profile.sleep_current_ua = from_bits(v[5]);
-            }
-        } else {
-            break;
-        }
-    }
+    n = fread(spec_text, 1, sizeof spec_text, f);
     fclose(f);
-    return *count > 0 && spec_profile.tx_point_count > 0 ? 0 : -1;
+    if (n == sizeof spec_text) {
+        return -1;
+    }
+    return replay_spec_parse(spec_text, n, spec_rates, count, &spec_profile);
 }
 
 /* The rate-bearing log with the spec's rates and profile; then the

@@ -697,6 +697,13 @@ impl<const W: usize> Replay<W> {
         Self::build(cfg, Some(charge))
     }
 
+    /// [`Replay::with_energy`] from the profile's charge table
+    /// ([`ChargeTable::from_profile`]) already made: a caller with little
+    /// stack (the C library on a Cortex-M0) makes it in a frame of its own.
+    pub fn with_charge(cfg: ControllerConfig, charge: ChargeTable) -> Result<Self, ConfigError> {
+        Self::build(cfg, Some(charge))
+    }
+
     fn build(cfg: ControllerConfig, charge: Option<ChargeTable>) -> Result<Self, ConfigError> {
         let controller = Controller::<W>::with_charge(cfg, charge)?;
         let summary = Summary::new(controller.limits().1);

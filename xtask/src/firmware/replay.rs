@@ -95,7 +95,8 @@ pub fn run_images(ctx: &Ctx, images: &[Image]) -> Result<(), String> {
             ),
             Ok((n, false)) => println!(
                 "{name}: {n} decisions identical in the engine here (rates in play, the demo node's \
-                 energy profile) and the Rust firmware on {}",
+                 energy profile) and the {} on {}",
+                images.first().map_or("firmware", |i| i.what),
                 boards.join(" and ")
             ),
             Err(e) => {
@@ -123,9 +124,12 @@ fn check_log(
     let (engine, rates) = engine_replay(&bytes)?;
     if rates > 1 {
         // Rates in play: the Rust firmware replays with the demo node's
-        // energy profile, which the C library cannot take yet.
-        for image in images.iter().filter(|i| i.tag == "rust") {
-            let target = run_target(ctx, image, dir, log, name)?;
+        // energy profile built in; the C demo reads the demo node's rate
+        // table and profile from a spec (a C log header has no rate table).
+        let spec = write_demo_spec(log.parent().unwrap_or(dir))?;
+        for image in images {
+            let extra = (image.tag == "c").then_some(spec.as_str());
+            let target = run_target(ctx, image, dir, log, name, extra)?;
             compare(
                 &format!("{} on {}", image.what, image.board.machine),
                 &target,
@@ -158,7 +162,7 @@ fn check_log(
 
     for image in images {
         let b = &image.board;
-        let target = run_target(ctx, image, dir, log, name)?;
+        let target = run_target(ctx, image, dir, log, name, None)?;
         compare(
             &format!("{} on {}", image.what, b.machine),
             &target,
@@ -169,13 +173,56 @@ fn check_log(
     Ok((engine.len(), true))
 }
 
-/// The decisions of `image` (a replay firmware) for `log`.
+/// The demo node's rate table and energy profile as the C demo reads them
+/// (`replay_spec_parse` in `bindings/c/demo/replay_log.c`: floats as their
+/// bits), written to `rates-demo-node.spec` in `dir`; its file name.
+fn write_demo_spec(dir: &Path) -> Result<String, String> {
+    use std::fmt::Write as _;
+    let hex = |x: f32| format!("{:08x}", x.to_bits());
+    let rates = demo::demo_rates().map_err(|e| format!("demo rates: {e}"))?;
+    let prof = demo::demo_profile().map_err(|e| format!("demo profile: {e}"))?;
+    let mut spec = String::new();
+    for r in rates.as_slice() {
+        let _ = writeln!(
+            spec,
+            "rate {} {} {} {} {}",
+            r.name.as_str(),
+            hex(r.required_snr.0),
+            r.airtime_us,
+            hex(r.noise_bandwidth_hz.unwrap_or(0.0)),
+            u8::from(r.noise_bandwidth_hz.is_some())
+        );
+    }
+    let pts = prof.tx_current().points();
+    let _ = write!(spec, "profile {}", pts.len());
+    for p in pts {
+        let _ = write!(spec, " {} {}", hex(p.power.0), hex(p.current.0));
+    }
+    let _ = writeln!(
+        spec,
+        " {} {} {} {} {} {}",
+        hex(prof.supply().0),
+        hex(prof.airtime().0),
+        hex(prof.rx_window().0),
+        hex(prof.rx_current().0),
+        hex(prof.per_packet().0),
+        hex(prof.sleep_current().0)
+    );
+    let name = "rates-demo-node.spec";
+    let path = dir.join(name);
+    fs::write(&path, spec).map_err(|e| format!("{}: {e}", path.display()))?;
+    Ok(name.to_string())
+}
+
+/// The decisions of `image` (a replay firmware) for `log`; `extra` is a
+/// third word of the command line (the C demo's spec).
 fn run_target(
     ctx: &Ctx,
     image: &Image,
     dir: &Path,
     log: &Path,
     name: &str,
+    extra: Option<&str>,
 ) -> Result<Vec<DecisionRecord>, String> {
     let b = &image.board;
     let out_name = format!("{name}.{}.{}.decisions.hrlog", image.tag, b.machine);
@@ -185,12 +232,11 @@ fn run_target(
         .file_name()
         .and_then(|s| s.to_str())
         .ok_or("log name is not UTF-8")?;
-    let mut q = ctx.qemu(
-        b,
-        &image.elf,
-        false,
-        Some(&format!("{log_name} {out_name}")),
-    );
+    let args = match extra {
+        Some(x) => format!("{log_name} {out_name} {x}"),
+        None => format!("{log_name} {out_name}"),
+    };
+    let mut q = ctx.qemu(b, &image.elf, false, Some(&args));
     q.current_dir(log.parent().unwrap_or(dir));
     let said = ctx.run_qemu(
         q,
