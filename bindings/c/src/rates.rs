@@ -206,3 +206,52 @@ unsafe fn energy_replay(
         .and_then(|c| WindowReplay::with_charge(*config, c).map_err(headroom_status::from));
     slot.set::<headroom_replay>(built)
 }
+
+/// Write the spec of a rate table and an energy profile that the demo's
+/// `replay_spec_parse` (`demo/replay_log.c`) reads: one line
+/// `rate NAME SNR AIRTIME_US BANDWIDTH HAS_BANDWIDTH` per rate, then
+/// `profile N P0 I0 ... SUPPLY_V AIRTIME_MS RX_WINDOW_MS RX_CURRENT_MA
+/// PER_PACKET_UC SLEEP_UA`, floats as the 8 hex digits of their bits. The
+/// one writer of the format (the host C test and `cargo xtask c-demo` use
+/// it); the battery is not part of it.
+///
+/// # Errors
+/// The sink's.
+pub fn write_spec<W: core::fmt::Write, const N: usize>(
+    out: &mut W,
+    rates: &RateTable,
+    profile: &headroom::energy::EnergyProfile<N>,
+) -> core::fmt::Result {
+    struct Bits(f32);
+    impl core::fmt::Display for Bits {
+        fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+            write!(f, "{:08x}", self.0.to_bits())
+        }
+    }
+    for r in rates.as_slice() {
+        writeln!(
+            out,
+            "rate {} {} {} {} {}",
+            r.name.as_str(),
+            Bits(r.required_snr.0),
+            r.airtime_us,
+            Bits(r.noise_bandwidth_hz.unwrap_or(0.0)),
+            u8::from(r.noise_bandwidth_hz.is_some())
+        )?;
+    }
+    let pts = profile.tx_current().points();
+    write!(out, "profile {}", pts.len())?;
+    for p in pts {
+        write!(out, " {} {}", Bits(p.power.0), Bits(p.current.0))?;
+    }
+    writeln!(
+        out,
+        " {} {} {} {} {} {}",
+        Bits(profile.supply().0),
+        Bits(profile.airtime().0),
+        Bits(profile.rx_window().0),
+        Bits(profile.rx_current().0),
+        Bits(profile.per_packet().0),
+        Bits(profile.sleep_current().0)
+    )
+}

@@ -492,30 +492,7 @@ fn rates_inputs(dir: &Path) -> (PathBuf, PathBuf, LogHeader, Vec<LogRecord>) {
     let rates = demo_rates().unwrap_or_else(|e| panic!("{e}"));
     let prof = demo_profile().unwrap_or_else(|e| panic!("{e}"));
     let mut spec = String::new();
-    for r in rates.as_slice() {
-        spec.push_str(&format!(
-            "rate {} {} {} {} {}\n",
-            r.name.as_str(),
-            hex(r.required_snr.0),
-            r.airtime_us,
-            hex(r.noise_bandwidth_hz.unwrap_or(0.0)),
-            u8::from(r.noise_bandwidth_hz.is_some())
-        ));
-    }
-    let pts = prof.tx_current().points();
-    spec.push_str(&format!("profile {}", pts.len()));
-    for p in pts {
-        spec.push_str(&format!(" {} {}", hex(p.power.0), hex(p.current.0)));
-    }
-    spec.push_str(&format!(
-        " {} {} {} {} {} {}\n",
-        hex(prof.supply().0),
-        hex(prof.airtime().0),
-        hex(prof.rx_window().0),
-        hex(prof.rx_current().0),
-        hex(prof.per_packet().0),
-        hex(prof.sleep_current().0)
-    ));
+    headroom_c::rates::write_spec(&mut spec, &rates, &prof).unwrap_or_else(|e| panic!("{e}"));
     let spec_path = dir.join("rates.txt");
     std::fs::write(&spec_path, spec).unwrap_or_else(|e| panic!("{e}"));
     // An invented 868 MHz link of our own, 0.3 to 3 km.

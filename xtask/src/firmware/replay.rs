@@ -174,40 +174,15 @@ fn check_log(
 }
 
 /// The demo node's rate table and energy profile as the C demo reads them
-/// (`replay_spec_parse` in `bindings/c/demo/replay_log.c`: floats as their
-/// bits), written to `rates-demo-node.spec` in `dir`; its file name.
+/// (`replay_spec_parse` in `bindings/c/demo/replay_log.c`, written by the C
+/// library's `write_spec`), to `rates-demo-node.spec` in `dir`; its file
+/// name.
 fn write_demo_spec(dir: &Path) -> Result<String, String> {
-    use std::fmt::Write as _;
-    let hex = |x: f32| format!("{:08x}", x.to_bits());
     let rates = demo::demo_rates().map_err(|e| format!("demo rates: {e}"))?;
     let prof = demo::demo_profile().map_err(|e| format!("demo profile: {e}"))?;
     let mut spec = String::new();
-    for r in rates.as_slice() {
-        let _ = writeln!(
-            spec,
-            "rate {} {} {} {} {}",
-            r.name.as_str(),
-            hex(r.required_snr.0),
-            r.airtime_us,
-            hex(r.noise_bandwidth_hz.unwrap_or(0.0)),
-            u8::from(r.noise_bandwidth_hz.is_some())
-        );
-    }
-    let pts = prof.tx_current().points();
-    let _ = write!(spec, "profile {}", pts.len());
-    for p in pts {
-        let _ = write!(spec, " {} {}", hex(p.power.0), hex(p.current.0));
-    }
-    let _ = writeln!(
-        spec,
-        " {} {} {} {} {} {}",
-        hex(prof.supply().0),
-        hex(prof.airtime().0),
-        hex(prof.rx_window().0),
-        hex(prof.rx_current().0),
-        hex(prof.per_packet().0),
-        hex(prof.sleep_current().0)
-    );
+    headroom_c::rates::write_spec(&mut spec, &rates, &prof)
+        .map_err(|e| format!("demo spec: {e}"))?;
     let name = "rates-demo-node.spec";
     let path = dir.join(name);
     fs::write(&path, spec).map_err(|e| format!("{}: {e}", path.display()))?;
