@@ -547,7 +547,7 @@ fn a_rate_column_without_header_lines_is_read_by_the_profiles_table() {
 fn baselines_add_the_hindsight_rule_at_the_joint_controllers_loss() {
     let log = example("examples/logs/cattle-collar-915.csv");
     let prof = example("examples/energy/cattle-collar-915-rates.toml");
-    let o = headroom(&[
+    let args = [
         "replay",
         &log,
         "--energy",
@@ -555,10 +555,8 @@ fn baselines_add_the_hindsight_rule_at_the_joint_controllers_loss() {
         "--logged-rate",
         "sf10",
         "--baselines",
-        "--format",
-        "json",
-    ]);
-    let v = json(&o);
+    ];
+    let v = json(&headroom(&[&args[..], &["--format", "json"]].concat()));
     let rows = v["logs"][0]["baselines"].as_array().expect("rows").clone();
     let loss = |r: &serde_json::Value| r["loss_fraction"].as_f64().unwrap();
     let joint = loss(&rows[0]);
@@ -570,19 +568,12 @@ fn baselines_add_the_hindsight_rule_at_the_joint_controllers_loss() {
     let rule = last["rule"].as_str().unwrap();
     assert!(rule.starts_with("at the joint's loss: "), "{rows:?}");
     assert!(loss(last) <= joint + 1e-12, "{last} against {joint}");
+    assert_eq!(last["allowed_loss_fraction"].as_f64(), Some(joint));
     assert!(rows[rows.len() - 2]["rule"]
         .as_str()
         .unwrap()
         .starts_with("hindsight: "));
-    let table = headroom(&[
-        "replay",
-        &log,
-        "--energy",
-        &prof,
-        "--logged-rate",
-        "sf10",
-        "--baselines",
-    ]);
+    let table = headroom(&args);
     let text = String::from_utf8_lossy(&table.stdout).into_owned();
     let line = text
         .lines()

@@ -79,8 +79,9 @@ pub(crate) struct PriceLoop {
     pub(crate) min: i32,
     /// Highest price: the dearest packet over the target loss, times 16.
     pub(crate) max: i32,
-    /// Rise after a loss: half the margin step as a power ratio
-    /// (`margin_step_db · log2(10)/20` octave: ×1.06 for 0.5 dB).
+    /// Rise after a loss: at a 1 % target half the margin step as a power
+    /// ratio (`margin_step_db · log2(10)/20` octave: ×1.06 for 0.5 dB),
+    /// scaled by `√((1−p)/p ÷ 99)` at other targets (see `PriceLoop::new`).
     pub(crate) up: i32,
     /// Fall after a delivery: `up · p/(1−p)`.
     pub(crate) down: i32,

@@ -694,7 +694,7 @@ impl<const W: usize> Replay<W> {
             setting: "rates",
             why: "the energy profile's transmit current table has too many points",
         })?;
-        Self::build(cfg, Some(charge))
+        Self::with_charge(cfg, charge)
     }
 
     /// [`Replay::with_energy`] from the profile's charge table

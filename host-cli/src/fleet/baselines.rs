@@ -33,9 +33,6 @@ use super::HostReplay;
 use crate::error::{CliError, CliResult};
 use crate::output::json_num;
 
-/// The name of the hindsight row at the joint controller's own loss.
-const AT_JOINT_LOSS: &str = "at the joint's loss";
-
 /// What one rule did over a log.
 #[derive(Debug, Clone)]
 pub struct Row {
@@ -53,6 +50,9 @@ pub struct Row {
     pub max_hour_airtime_us: u32,
     /// Airtime of one hour, µs (the window's limit at a fraction of 1).
     pub hour_us: u32,
+    /// The loss this rule was held to when not the target (the hindsight
+    /// rule at the joint controller's own loss).
+    pub allowed_loss: Option<f64>,
 }
 
 impl Row {
@@ -66,6 +66,7 @@ impl Row {
             tally: EnergyTally::new(),
             max_hour_airtime_us: 0,
             hour_us: w.limit_us(),
+            allowed_loss: None,
         })
     }
 
@@ -87,6 +88,9 @@ impl Row {
             "loss_fraction".into(),
             self.loss().map_or(Value::Null, Value::from),
         );
+        if let Some(l) = self.allowed_loss {
+            m.insert("allowed_loss_fraction".into(), l.into());
+        }
         let opt = |x: Option<f32>| x.map_or(Value::Null, json_num);
         m.insert(
             "charge_per_delivered_uc".into(),
@@ -261,10 +265,13 @@ pub fn compare(
         .last()
         .map(|r| (r.loss(), r.tally.charge_per_delivered()));
     if let Some(l) = joint_loss.filter(|l| (l - target).abs() > 0.005 * target) {
-        if let Some(row) = hindsight(cfg, p, records, l, AT_JOINT_LOSS)? {
+        if let Some(row) = hindsight(cfg, p, records, l, "at the joint's loss")? {
             // Nothing new when the rule at the target is the same run.
             if Some((row.loss(), row.tally.charge_per_delivered())) != at_target {
-                rows.push(row);
+                rows.push(Row {
+                    allowed_loss: Some(l),
+                    ..row
+                });
             }
         }
     }
@@ -353,9 +360,8 @@ pub fn table(out: &mut String, rows: &[Row], p: &EnergyProfile, target: f32) {
             v[k].as_f64()
                 .map_or_else(|| "n/a".to_string(), |x| format!("{:.d$}", x * scale))
         };
-        // The row at the joint controller's loss is allowed that loss.
-        let equal = r.rule.starts_with(AT_JOINT_LOSS);
-        let miss = if !equal && r.loss().is_some_and(|l| l > f64::from(target)) {
+        let allowed = r.allowed_loss.unwrap_or(f64::from(target));
+        let miss = if r.loss().is_some_and(|l| l > allowed) {
             "  misses the target"
         } else {
             ""
